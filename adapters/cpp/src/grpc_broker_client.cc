@@ -1,0 +1,119 @@
+#include "grpc_broker_client.h"
+
+#include <charconv>
+#include <limits>
+#include <optional>
+#include <string_view>
+
+#include <grpcpp/grpcpp.h>
+
+namespace weir::adapter::internal {
+namespace {
+
+std::optional<std::int64_t> TrailingInt(const grpc::ClientContext& call, std::string_view key) {
+  const auto& trailers = call.GetServerTrailingMetadata();
+  auto it = trailers.find(grpc::string_ref(key.data(), key.size()));
+  if (it == trailers.end()) return std::nullopt;
+  const char* begin = it->second.data();
+  const char* end = begin + it->second.size();
+  std::int64_t value = 0;
+  auto [ptr, ec] = std::from_chars(begin, end, value);
+  if (ec != std::errc() || ptr != end) return std::nullopt;
+  return value;
+}
+
+BrokerStatus Failed(const grpc::ClientContext& call, const grpc::Status& status) {
+  BrokerStatus out;
+  out.code = status.error_code();
+  out.message = status.error_message();
+  out.now_ns = TrailingInt(call, kNowMetadataKey);
+  if (out.throttled()) {
+    if (auto ms = TrailingInt(call, kRetryAfterMetadataKey); ms.has_value() && *ms >= 0) {
+      constexpr std::int64_t kMax = std::numeric_limits<std::int64_t>::max() / 1'000'000;
+      out.retry_after_ns = *ms > kMax ? std::numeric_limits<std::int64_t>::max() : *ms * 1'000'000;
+    }
+  }
+  return out;
+}
+
+BrokerStatus Succeeded(std::int64_t now_ns) {
+  BrokerStatus out;
+  out.now_ns = now_ns;
+  return out;
+}
+
+std::shared_ptr<grpc::Channel> MakeChannel(const std::string& target) {
+  grpc::ChannelArguments args;
+  // Loopback only: an http_proxy in the environment must not reroute the broker.
+  args.SetInt(GRPC_ARG_ENABLE_HTTP_PROXY, 0);
+  // A retried call would be a second broker call the trace does not expect.
+  args.SetInt(GRPC_ARG_ENABLE_RETRIES, 0);
+  args.SetMaxReceiveMessageSize(-1);
+  args.SetMaxSendMessageSize(-1);
+  return grpc::CreateCustomChannel(target, grpc::InsecureChannelCredentials(), args);
+}
+
+}  // namespace
+
+GrpcBrokerClient::GrpcBrokerClient(const std::string& target, std::chrono::seconds call_timeout)
+    : call_timeout_(call_timeout), stub_(v1::Broker::NewStub(MakeChannel(target))) {}
+
+void GrpcBrokerClient::Prepare(grpc::ClientContext* call) const {
+  // Wall time bounds the call only; virtual time comes from the broker's answer.
+  call->set_deadline(std::chrono::system_clock::now() + call_timeout_);
+  call->set_wait_for_ready(true);
+}
+
+BrokerStatus GrpcBrokerClient::Pull(std::uint32_t max, std::vector<v1::Delivery>* out) {
+  out->clear();
+  grpc::ClientContext call;
+  Prepare(&call);
+  v1::PullRequest request;
+  request.set_max_messages(max);
+  v1::PullResponse response;
+  grpc::Status status = stub_->Pull(&call, request, &response);
+  if (!status.ok()) return Failed(call, status);
+  out->reserve(static_cast<std::size_t>(response.deliveries_size()));
+  for (v1::Delivery& d : *response.mutable_deliveries()) out->push_back(std::move(d));
+  return Succeeded(response.now_ns());
+}
+
+BrokerStatus GrpcBrokerClient::Ack(const std::vector<std::uint64_t>& receipts) {
+  grpc::ClientContext call;
+  Prepare(&call);
+  v1::AckRequest request;
+  request.mutable_receipts()->Add(receipts.begin(), receipts.end());
+  v1::AckResponse response;
+  grpc::Status status = stub_->Ack(&call, request, &response);
+  if (!status.ok()) return Failed(call, status);
+  return Succeeded(response.now_ns());
+}
+
+BrokerStatus GrpcBrokerClient::Nack(const std::vector<std::uint64_t>& receipts) {
+  grpc::ClientContext call;
+  Prepare(&call);
+  v1::NackRequest request;
+  request.mutable_receipts()->Add(receipts.begin(), receipts.end());
+  v1::NackResponse response;
+  grpc::Status status = stub_->Nack(&call, request, &response);
+  if (!status.ok()) return Failed(call, status);
+  return Succeeded(response.now_ns());
+}
+
+BrokerStatus GrpcBrokerClient::ExtendLease(const std::vector<std::uint64_t>& receipts,
+                                           std::int64_t extension_ns,
+                                           std::vector<std::uint64_t>* rejected) {
+  rejected->clear();
+  grpc::ClientContext call;
+  Prepare(&call);
+  v1::ExtendLeaseRequest request;
+  request.mutable_receipts()->Add(receipts.begin(), receipts.end());
+  request.set_extension_ns(extension_ns);
+  v1::ExtendLeaseResponse response;
+  grpc::Status status = stub_->ExtendLease(&call, request, &response);
+  if (!status.ok()) return Failed(call, status);
+  rejected->assign(response.rejected_receipts().begin(), response.rejected_receipts().end());
+  return Succeeded(response.now_ns());
+}
+
+}  // namespace weir::adapter::internal

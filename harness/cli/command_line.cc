@@ -1,0 +1,82 @@
+#include "harness/cli/command_line.h"
+
+#include "absl/status/status.h"
+#include <cctype>
+
+#include "absl/strings/str_cat.h"
+
+namespace weir {
+
+absl::StatusOr<std::vector<std::string>> SplitCommandLine(std::string_view text) {
+  std::vector<std::string> out;
+  std::string word;
+  bool in_word = false;
+  for (std::size_t i = 0; i < text.size(); ++i) {
+    const char c = text[i];
+    if (c == ' ' || c == '\t' || c == '\n') {
+      if (in_word) out.push_back(std::move(word));
+      word.clear();
+      in_word = false;
+      continue;
+    }
+    in_word = true;
+    if (c == '\\') {
+      if (i + 1 >= text.size()) {
+        return absl::InvalidArgumentError(
+            absl::StrCat("column ", i + 1, ": trailing backslash; expected a character after it"));
+      }
+      word.push_back(text[++i]);
+    } else if (c == '\'' || c == '"') {
+      const std::size_t start = i;
+      for (++i; i < text.size() && text[i] != c; ++i) {
+        if (c == '"' && text[i] == '\\' && i + 1 < text.size() &&
+            (text[i + 1] == '"' || text[i + 1] == '\\')) {
+          ++i;
+        }
+        word.push_back(text[i]);
+      }
+      if (i >= text.size()) {
+        return absl::InvalidArgumentError(absl::StrCat("column ", start + 1, ": unterminated ", std::string(1, c),
+                                                       "; expected a closing ", std::string(1, c)));
+      }
+    } else {
+      word.push_back(c);
+    }
+  }
+  if (in_word) out.push_back(std::move(word));
+  return out;
+}
+
+std::string ShellQuote(std::string_view word) {
+  if (word.empty()) return "''";
+  bool plain = true;
+  for (char c : word) {
+    if (!(std::isalnum(static_cast<unsigned char>(c)) || c == '/' || c == '.' || c == '_' ||
+          c == '-' || c == '=' || c == ':' || c == ',' || c == '+' || c == '@')) {
+      plain = false;
+      break;
+    }
+  }
+  if (plain) return std::string(word);
+  std::string out = "'";
+  for (char c : word) {
+    if (c == '\'') {
+      out += "'\\''";
+    } else {
+      out.push_back(c);
+    }
+  }
+  out.push_back('\'');
+  return out;
+}
+
+std::string ShellJoin(const std::vector<std::string>& argv) {
+  std::string out;
+  for (const auto& a : argv) {
+    if (!out.empty()) out.push_back(' ');
+    out += ShellQuote(a);
+  }
+  return out;
+}
+
+}  // namespace weir

@@ -1,0 +1,24 @@
+// File: command_line.h
+//
+// Turning a connector command string into an argv and back, with no shell in
+// between: SplitCommandLine understands single quotes, double quotes and
+// backslash escapes, and nothing else (no variables, globs or substitutions).
+// ShellQuote produces text that a POSIX shell reads back as the same argv, for
+// paste-ready replay lines.
+#pragma once
+
+#include <string>
+#include <string_view>
+#include <vector>
+
+#include "absl/status/statusor.h"
+
+namespace weir {
+
+// Error: an unterminated quote or a trailing backslash, with its column.
+[[nodiscard]] absl::StatusOr<std::vector<std::string>> SplitCommandLine(std::string_view text);
+
+std::string ShellQuote(std::string_view word);
+std::string ShellJoin(const std::vector<std::string>& argv);
+
+}  // namespace weir

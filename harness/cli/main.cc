@@ -1,0 +1,171 @@
+// weir: the command line. Subcommands: run (one seeded run against a
+// connector). Exit codes: 0 every invariant held, 1 an invariant failed,
+// 2 usage or input error, 3 harness fault.
+#include <unistd.h>
+
+#include <cstdio>
+#include <cstdlib>
+#include <iostream>
+#include <random>
+#include <string>
+#include <vector>
+
+#include <CLI/CLI.hpp>
+
+#include "absl/strings/str_cat.h"
+#include "harness/cli/command_line.h"
+#include "harness/edge/grpc_run.h"
+#include "harness/report/text_report.h"
+#include "harness/scenario/scenario_file.h"
+
+namespace weir {
+namespace {
+
+constexpr int kExitPassed = 0;
+constexpr int kExitFailed = 1;
+constexpr int kExitUsage = 2;
+constexpr int kExitHarness = 3;
+
+struct RunFlags {
+  std::string scenario;
+  std::uint64_t seed = 0;
+  bool seed_given = false;
+  std::string connector;
+  std::vector<std::string> command;
+  std::string trace;
+  std::string transport = "tcp";
+};
+
+int UsageError(const std::string& message) {
+  std::fprintf(stderr, "weir: %s\n", message.c_str());
+  return kExitUsage;
+}
+
+// argv[0] as posix_spawnp would find it: a path with '/', or a PATH search.
+bool IsExecutable(const std::string& program) {
+  if (program.find('/') != std::string::npos) return ::access(program.c_str(), X_OK) == 0;
+  const char* path = std::getenv("PATH");
+  std::string dirs = path != nullptr ? path : "/usr/bin:/bin";
+  std::size_t start = 0;
+  while (start <= dirs.size()) {
+    std::size_t end = dirs.find(':', start);
+    if (end == std::string::npos) end = dirs.size();
+    const std::string dir = end > start ? dirs.substr(start, end - start) : ".";
+    if (::access((dir + "/" + program).c_str(), X_OK) == 0) return true;
+    start = end + 1;
+  }
+  return false;
+}
+
+std::string ReplayLine(const RunFlags& flags, const std::vector<std::string>& argv) {
+  std::string line = absl::StrCat("weir run --scenario ", ShellQuote(flags.scenario), " --seed ",
+                                  flags.seed);
+  if (flags.transport != "tcp") absl::StrAppend(&line, " --transport ", flags.transport);
+  absl::StrAppend(&line, " --connector ", ShellQuote(ShellJoin(argv)));
+  return line;
+}
+
+int RunCommand(RunFlags& flags) {
+  std::vector<std::string> argv;
+  if (!flags.connector.empty() && !flags.command.empty()) {
+    return UsageError("give the connector either as --connector 'CMD ARGS' or after --, not both");
+  }
+  if (!flags.connector.empty()) {
+    auto split = SplitCommandLine(flags.connector);
+    if (!split.ok()) {
+      return UsageError(absl::StrCat("--connector ", split.status().message()));
+    }
+    argv = std::move(*split);
+  } else {
+    argv = flags.command;
+  }
+  if (argv.empty()) return UsageError("no connector command; expected --connector 'CMD ARGS…'");
+  if (!IsExecutable(argv[0])) {
+    return UsageError("--connector: '" + argv[0] + "' is not an executable file (nor found on PATH)");
+  }
+  Transport transport;
+  if (flags.transport == "tcp") {
+    transport = Transport::kTcp;
+  } else if (flags.transport == "unix") {
+    transport = Transport::kUnix;
+  } else {
+    return UsageError("--transport is '" + flags.transport + "'; expected tcp or unix");
+  }
+  if (!flags.seed_given) flags.seed = std::random_device{}() * 65536ULL + std::random_device{}() % 65536;
+
+  // The seed comes first, so it is on screen even if the run never ends well.
+  std::printf("weir run: seed %llu\n", static_cast<unsigned long long>(flags.seed));
+  std::fflush(stdout);
+
+  auto scenario = LoadScenario(flags.scenario);
+  if (!scenario.ok()) {
+    std::fprintf(stderr, "%s\n", std::string(scenario.status().message()).c_str());
+    return kExitUsage;
+  }
+
+  RunSpec spec;
+  spec.scenario = std::move(*scenario);
+  spec.scenario_path = flags.scenario;
+  spec.seed = flags.seed;
+  spec.connector_argv = argv;
+  spec.transport = transport;
+  spec.trace_path = flags.trace;
+  auto out = RunOverGrpc(spec);
+  const std::string replay = ReplayLine(flags, argv);
+  if (!out.ok()) {
+    std::fprintf(stderr, "weir: harness fault: %s\nreplay: %s\n",
+                 std::string(out.status().message()).c_str(), replay.c_str());
+    return kExitHarness;
+  }
+  const RunSummary& s = out->summary;
+  std::printf("scenario   %s (%s)\n", flags.scenario.c_str(), spec.scenario.name().c_str());
+  std::printf("connector  %s\n", ShellJoin(argv).c_str());
+  std::printf(
+      "run        %s at %s virtual; %llu published, %llu committed, %llu incarnation(s), %llu "
+      "steps, %llu checkpoints, %llu events\n",
+      s.end_reason.c_str(), FormatTime(s.end_time).c_str(),
+      static_cast<unsigned long long>(s.published),
+      static_cast<unsigned long long>(s.committed_messages),
+      static_cast<unsigned long long>(s.incarnations), static_cast<unsigned long long>(s.steps),
+      static_cast<unsigned long long>(s.checkpoints), static_cast<unsigned long long>(out->events));
+  std::printf("digest     %s\n", out->digest.c_str());
+  if (!flags.trace.empty()) std::printf("trace      %s\n", flags.trace.c_str());
+  std::printf("\n%s", FormatVerdictTable(out->verdict).c_str());
+  std::printf("%s", FormatViolations(out->verdict).c_str());
+  const bool passed = out->verdict.passed();
+  std::printf("\n%s\nreplay: %s\n", passed ? "PASSED: every invariant held." : "FAILED.",
+              replay.c_str());
+  return passed ? kExitPassed : kExitFailed;
+}
+
+}  // namespace
+}  // namespace weir
+
+int main(int argc, char** argv) {
+  using namespace weir;
+  CLI::App app{"weir: a deterministic test harness for stream source connectors"};
+  app.require_subcommand(1);
+
+  RunFlags run_flags;
+  CLI::App* run = app.add_subcommand("run", "One seeded run of a connector against a scenario");
+  run->add_option("--scenario", run_flags.scenario, "Scenario file (Protobuf text format)")
+      ->required();
+  run->add_option("--seed", run_flags.seed, "Seed (default: a random one, printed first)");
+  run->add_option("--connector", run_flags.connector,
+                  "Connector command, split into argv without a shell: 'CMD ARGS…'");
+  run->add_option("--trace", run_flags.trace, "Write the trace (JSON lines) to this file");
+  run->add_option("--transport", run_flags.transport, "tcp (loopback, default) or unix");
+  run->add_option("command", run_flags.command, "Connector command after --");
+
+  try {
+    app.parse(argc, argv);
+  } catch (const CLI::ParseError& e) {
+    const int code = app.exit(e);
+    return code == 0 ? 0 : kExitUsage;
+  }
+  if (run->parsed()) {
+    run_flags.seed_given = run->count("--seed") > 0;
+    return RunCommand(run_flags);
+  }
+  return kExitUsage;
+}

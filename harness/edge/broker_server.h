@@ -1,0 +1,42 @@
+// File: broker_server.h
+//
+// The gRPC edge of the broker: serves the Broker service on loopback TCP (an
+// OS-assigned port) or on a Unix socket, and relays every call onto the
+// simulation thread through a CallRelay. Answers carry the virtual now; a
+// failed call carries it in trailing metadata "weir-now-ns", and a throttled
+// one "retry-after-ms" plus a weir.v1.RetryAfter status detail.
+//
+// Thread safety: gRPC's threads call in; Start/Shutdown from the owner thread.
+#pragma once
+
+#include <grpcpp/grpcpp.h>
+
+#include <memory>
+#include <string>
+
+#include "absl/status/statusor.h"
+#include "harness/edge/call_relay.h"
+
+namespace weir {
+
+class BrokerServer {
+ public:
+  // listen: "127.0.0.1:0" (or another loopback host:port) or "unix:/path".
+  // REQUIRES: relay outlives the server.
+  [[nodiscard]] static absl::StatusOr<std::unique_ptr<BrokerServer>> Start(
+      const std::string& listen, CallRelay& relay, std::chrono::milliseconds call_bound);
+  ~BrokerServer();
+
+  // The address a client should dial ("127.0.0.1:40123" or "unix:/path").
+  const std::string& address() const { return address_; }
+
+ private:
+  class Service;
+  BrokerServer() = default;
+
+  std::unique_ptr<Service> service_;
+  std::unique_ptr<grpc::Server> server_;
+  std::string address_;
+};
+
+}  // namespace weir

@@ -1,0 +1,179 @@
+#include "harness/edge/grpc_connector_port.h"
+
+#include <condition_variable>
+#include <mutex>
+
+#include "absl/strings/match.h"
+#include "absl/strings/str_cat.h"
+
+namespace weir {
+
+bool IsLocalAddress(const std::string& address) {
+  if (absl::StartsWith(address, "unix:")) return address.size() > 5;
+  const auto colon = address.rfind(':');
+  if (colon == std::string::npos) return false;
+  std::string host = address.substr(0, colon);
+  if (absl::StartsWith(host, "ipv4:")) host = host.substr(5);
+  if (host == "localhost" || host == "[::1]") return true;
+  return absl::StartsWith(host, "127.");
+}
+
+GrpcConnectorPort::GrpcConnectorPort(Options options, CallRelay& relay)
+    : options_(std::move(options)), relay_(relay) {}
+
+GrpcConnectorPort::~GrpcConnectorPort() { Kill(); }
+
+void GrpcConnectorPort::Kill() {
+  stub_.reset();
+  channel_.reset();
+  if (child_ != nullptr) child_->Kill();
+  child_.reset();
+}
+
+ConnectorFailure GrpcConnectorPort::ExitedOr(ConnectorFailure::Kind kind, std::string detail) {
+  ConnectorFailure f;
+  f.kind = kind;
+  f.detail = std::move(detail);
+  if (child_ != nullptr) {
+    if (auto how = child_->TryReap(std::chrono::milliseconds(200)); how.has_value()) {
+      f.kind = kind == ConnectorFailure::Kind::kStartFailed ? kind : ConnectorFailure::Kind::kExited;
+      f.exit_status = *how;
+    }
+    f.stderr_tail = child_->OutputTail();
+  }
+  return f;
+}
+
+ConnectorFailure GrpcConnectorPort::Start(std::uint64_t incarnation) {
+  Kill();
+  ChildProcess::Options spawn;
+  spawn.argv = options_.argv;
+  spawn.env["WEIR_BROKER_ADDRESS"] = options_.broker_address;
+  spawn.env["WEIR_LISTEN_ADDRESS"] = options_.listen_address;
+  spawn.env["WEIR_READY_FD"] = "3";
+  spawn.env["WEIR_INCARNATION"] = std::to_string(incarnation);
+  auto child = ChildProcess::Spawn(spawn);
+  if (!child.ok()) {
+    return ConnectorFailure{ConnectorFailure::Kind::kStartFailed,
+                            std::string(child.status().message()), "", ""};
+  }
+  child_ = std::move(*child);
+  auto line = child_->ReadReadyLine(options_.start_timeout);
+  if (!line.ok()) {
+    return ExitedOr(ConnectorFailure::Kind::kStartFailed,
+                    absl::StrCat("the connector never reported its address: ",
+                                 line.status().message()));
+  }
+  std::string address = *line;
+  while (!address.empty() && (address.back() == '\r' || address.back() == ' ')) address.pop_back();
+  if (!IsLocalAddress(address)) {
+    return ExitedOr(ConnectorFailure::Kind::kStartFailed,
+                    absl::StrCat("the connector reported address '", address.substr(0, 200),
+                                 "', which is neither loopback nor a Unix socket"));
+  }
+  grpc::ChannelArguments args;
+  args.SetMaxReceiveMessageSize(static_cast<int>(options_.max_message_bytes));
+  args.SetInt(GRPC_ARG_ENABLE_RETRIES, 0);
+  channel_ = grpc::CreateCustomChannel(address, grpc::InsecureChannelCredentials(), args);
+  if (!channel_->WaitForConnected(std::chrono::system_clock::now() + options_.start_timeout)) {
+    return ExitedOr(ConnectorFailure::Kind::kStartFailed,
+                    absl::StrCat("cannot connect to the connector at ", address));
+  }
+  stub_ = v1::Connector::NewStub(channel_);
+  return {};
+}
+
+template <typename Request, typename Response, typename Starter>
+ConnectorFailure GrpcConnectorPort::Invoke(const char* name, const Request& request,
+                                           Response* response, BrokerEndpoint& broker,
+                                           Starter start) {
+  if (stub_ == nullptr) {
+    return ConnectorFailure{ConnectorFailure::Kind::kExited, "no live incarnation", "", ""};
+  }
+  for (const std::string& method : relay_.TakeStrayCalls()) broker.OnStrayCall(method);
+
+  grpc::ClientContext context;
+  const auto wall_deadline = std::chrono::steady_clock::now() + options_.call_timeout;
+  context.set_deadline(std::chrono::system_clock::now() + options_.call_timeout +
+                       std::chrono::milliseconds(1000));
+  std::mutex mu;
+  std::condition_variable cv;
+  bool completed = false;
+  grpc::Status status;
+
+  relay_.Open(broker);
+  start(&context, &request, response, [&](grpc::Status s) {
+    {
+      std::lock_guard<std::mutex> lock(mu);
+      status = std::move(s);
+      completed = true;
+    }
+    cv.notify_all();
+    relay_.Done();
+  });
+  const CallRelay::Served served = relay_.ServeUntilDone(wall_deadline);
+  relay_.Close();
+  if (served == CallRelay::Served::kDeadline) context.TryCancel();
+  {
+    // The callback refers to this frame: it must have run before we return.
+    std::unique_lock<std::mutex> lock(mu);
+    cv.wait(lock, [&] { return completed; });
+  }
+  if (served == CallRelay::Served::kDeadline ||
+      status.error_code() == grpc::StatusCode::DEADLINE_EXCEEDED) {
+    if (auto how = child_->TryReap(std::chrono::milliseconds(0)); how.has_value()) {
+      return ExitedOr(ConnectorFailure::Kind::kExited, absl::StrCat("died during ", name));
+    }
+    ConnectorFailure f{ConnectorFailure::Kind::kTimeout,
+                       absl::StrCat(name, " did not answer within ", options_.call_timeout.count(),
+                                    " ms"),
+                       "", child_->OutputTail()};
+    return f;
+  }
+  if (!status.ok()) {
+    if (status.error_code() == grpc::StatusCode::UNAVAILABLE ||
+        status.error_code() == grpc::StatusCode::CANCELLED) {
+      ConnectorFailure f = ExitedOr(ConnectorFailure::Kind::kCallFailed,
+                                    absl::StrCat(name, " failed: ", status.error_message()));
+      if (f.kind == ConnectorFailure::Kind::kExited) f.detail = absl::StrCat("died during ", name);
+      return f;
+    }
+    return ConnectorFailure{ConnectorFailure::Kind::kCallFailed,
+                            absl::StrCat(name, " answered ", status.error_code(), " ",
+                                         status.error_message()),
+                            "", ""};
+  }
+  return {};
+}
+
+ConnectorFailure GrpcConnectorPort::Open(const v1::OpenRequest& request,
+                                         v1::OpenResponse* response, BrokerEndpoint& broker) {
+  return Invoke("Open", request, response, broker, [&](auto* c, auto* rq, auto* rs, auto cb) {
+    stub_->async()->Open(c, rq, rs, std::move(cb));
+  });
+}
+
+ConnectorFailure GrpcConnectorPort::Advance(const v1::AdvanceRequest& request,
+                                            v1::AdvanceResponse* response, BrokerEndpoint& broker) {
+  return Invoke("Advance", request, response, broker, [&](auto* c, auto* rq, auto* rs, auto cb) {
+    stub_->async()->Advance(c, rq, rs, std::move(cb));
+  });
+}
+
+ConnectorFailure GrpcConnectorPort::Checkpoint(const v1::CheckpointRequest& request,
+                                               v1::CheckpointResponse* response,
+                                               BrokerEndpoint& broker) {
+  return Invoke("Checkpoint", request, response, broker, [&](auto* c, auto* rq, auto* rs, auto cb) {
+    stub_->async()->Checkpoint(c, rq, rs, std::move(cb));
+  });
+}
+
+ConnectorFailure GrpcConnectorPort::Committed(const v1::CommittedRequest& request,
+                                              v1::CommittedResponse* response,
+                                              BrokerEndpoint& broker) {
+  return Invoke("Committed", request, response, broker, [&](auto* c, auto* rq, auto* rs, auto cb) {
+    stub_->async()->Committed(c, rq, rs, std::move(cb));
+  });
+}
+
+}  // namespace weir

@@ -1,0 +1,70 @@
+// File: grpc_connector_port.h
+//
+// ConnectorPort over gRPC to a child process. Start() launches the connector
+// command (argv, own process group) with the handshake environment of
+// connector.proto, waits (bounded) for the address it listens on, and dials
+// it. Each call is asynchronous on the wire while the simulation thread serves
+// the connector's broker calls through the CallRelay; every call has a
+// wall-clock bound. Kill() ends the process group and reaps it.
+//
+// Thread safety: the simulation thread only.
+#pragma once
+
+#include <grpcpp/grpcpp.h>
+
+#include <chrono>
+#include <memory>
+#include <string>
+#include <vector>
+
+#include "harness/edge/call_relay.h"
+#include "harness/edge/child_process.h"
+#include "harness/runtime/connector_port.h"
+#include "weir/v1/connector.grpc.pb.h"
+
+namespace weir {
+
+class GrpcConnectorPort : public ConnectorPort {
+ public:
+  struct Options {
+    std::vector<std::string> argv;
+    std::string broker_address;  // what the connector dials
+    std::string listen_address;  // what the connector listens on
+    std::chrono::milliseconds call_timeout{10000};
+    std::chrono::milliseconds start_timeout{10000};
+    std::size_t max_message_bytes = 16u << 20;
+  };
+
+  // REQUIRES: relay outlives the port.
+  GrpcConnectorPort(Options options, CallRelay& relay);
+  ~GrpcConnectorPort() override;
+
+  ConnectorFailure Start(std::uint64_t incarnation) override;
+  ConnectorFailure Open(const v1::OpenRequest& request, v1::OpenResponse* response,
+                        BrokerEndpoint& broker) override;
+  ConnectorFailure Advance(const v1::AdvanceRequest& request, v1::AdvanceResponse* response,
+                           BrokerEndpoint& broker) override;
+  ConnectorFailure Checkpoint(const v1::CheckpointRequest& request,
+                              v1::CheckpointResponse* response, BrokerEndpoint& broker) override;
+  ConnectorFailure Committed(const v1::CommittedRequest& request, v1::CommittedResponse* response,
+                             BrokerEndpoint& broker) override;
+  void Kill() override;
+
+ private:
+  template <typename Request, typename Response, typename Starter>
+  ConnectorFailure Invoke(const char* name, const Request& request, Response* response,
+                          BrokerEndpoint& broker, Starter start);
+  ConnectorFailure ExitedOr(ConnectorFailure::Kind kind, std::string detail);
+
+  const Options options_;
+  CallRelay& relay_;
+  std::unique_ptr<ChildProcess> child_;
+  std::shared_ptr<grpc::Channel> channel_;
+  std::unique_ptr<v1::Connector::Stub> stub_;
+};
+
+// True for addresses weir may talk to without an explicit opt-in: loopback
+// TCP (127.0.0.0/8, [::1], localhost) or a Unix socket.
+bool IsLocalAddress(const std::string& address);
+
+}  // namespace weir

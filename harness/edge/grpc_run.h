@@ -1,0 +1,46 @@
+// File: grpc_run.h
+//
+// One run of a real connector process over gRPC: wires the broker model, the
+// runtime model, the oracle and the trace to a BrokerServer and a
+// GrpcConnectorPort, runs to the end, and returns the verdict. The trace file,
+// when asked for, is written to "<path>.partial" and renamed at the end, so no
+// half-written trace is ever left under the requested name.
+#pragma once
+
+#include <cstdint>
+#include <string>
+#include <vector>
+
+#include "absl/status/statusor.h"
+#include "harness/oracle/verdict.h"
+#include "harness/runtime/runtime_model.h"
+#include "weir/v1/scenario.pb.h"
+
+namespace weir {
+
+enum class Transport { kTcp, kUnix };
+
+struct RunSpec {
+  v1::Scenario scenario;  // validated, defaults filled
+  std::string scenario_path;
+  std::uint64_t seed = 0;
+  std::vector<std::string> connector_argv;
+  Transport transport = Transport::kTcp;
+  std::string trace_path;  // empty: no trace file
+};
+
+struct RunOutput {
+  Verdict verdict;
+  RunSummary summary;
+  std::string digest;  // "sha256:…" over the event lines
+  std::uint64_t events = 0;
+};
+
+// Errors are harness faults (cannot listen, cannot write the trace…), never
+// connector misbehaviour: that is in the verdict.
+[[nodiscard]] absl::StatusOr<RunOutput> RunOverGrpc(const RunSpec& spec);
+
+// The version string written into traces and reports.
+const char* WeirVersion();
+
+}  // namespace weir

@@ -1,0 +1,229 @@
+#include "harness/oracle/oracle.h"
+
+#include <algorithm>
+
+#include "absl/strings/str_cat.h"
+#include "harness/core/virtual_time.h"
+#include "harness/trace/describe.h"
+
+namespace weir {
+
+using v1::TraceEvent;
+
+Oracle::Oracle(const v1::Profile& profile)
+    : exactly_once_(profile.guarantee() == v1::Profile::EXACTLY_ONCE) {
+  verdict_.at(Invariant::kDuplicateOutput).checked = exactly_once_;
+}
+
+void Oracle::Report(Invariant invariant, const std::string& sentence,
+                    std::vector<EventRef> cited, const TraceEvent* current) {
+  InvariantResult& result = verdict_.at(invariant);
+  ++result.violations;
+  if (result.first.size() >= kKeptViolations) return;
+  Violation v;
+  v.invariant = invariant;
+  v.sentence = sentence;
+  std::sort(cited.begin(), cited.end(),
+            [](const EventRef& a, const EventRef& b) { return a.seq < b.seq; });
+  for (const EventRef& ref : cited) {
+    if (!ref.valid()) continue;
+    if (current != nullptr && ref.seq == current->seq()) continue;
+    v.evidence.push_back(Evidence{ref.seq, ref.t, ref.incarnation, DescribeEvent(Rebuild(ref))});
+  }
+  if (current != nullptr) {
+    v.evidence.push_back(
+        Evidence{current->seq(), current->t_ns(), current->incarnation(), DescribeEvent(*current)});
+  }
+  result.first.push_back(std::move(v));
+}
+
+bool Oracle::IsCommitted(std::uint64_t id) const {
+  if (id < retired_.size() && retired_[id]) return true;
+  auto it = messages_.find(id);
+  return it != messages_.end() && it->second.committed_records > 0;
+}
+
+void Oracle::Retire(std::uint64_t id) {
+  if (id >= retired_.size()) retired_.resize(std::max<std::size_t>(id + 1, retired_.size() * 2));
+  retired_[id] = true;
+  messages_.erase(id);
+}
+
+void Oracle::DiscardUncommitted() {
+  open_epoch_.clear();
+  pending_.clear();
+}
+
+void Oracle::OnEvent(const TraceEvent& e) {
+  ++verdict_.events;
+  switch (e.kind_case()) {
+    case TraceEvent::kPublished:
+      messages_[e.published().message_id()].published = MakeRef(e);
+      break;
+    case TraceEvent::kDelivered: {
+      auto it = messages_.find(e.delivered().message_id());
+      if (it != messages_.end()) it->second.last_delivered = MakeRef(e);
+      break;
+    }
+    case TraceEvent::kEmitted: {
+      const EventRef ref = MakeRef(e);
+      open_epoch_.push_back(PendingRecord{e.emitted().message_id(), ref});
+      auto it = messages_.find(e.emitted().message_id());
+      if (it != messages_.end()) it->second.last_emitted = ref;
+      break;
+    }
+    case TraceEvent::kStepped:
+      if (e.stepped().has_watermark_ns()) OnWatermark(e, e.stepped().watermark_ns());
+      break;
+    case TraceEvent::kCheckpoint: {
+      auto& epoch = pending_[e.checkpoint().checkpoint_id()];
+      epoch.insert(epoch.end(), open_epoch_.begin(), open_epoch_.end());
+      open_epoch_.clear();
+      break;
+    }
+    case TraceEvent::kCommitted:
+      OnCommitted(e);
+      break;
+    case TraceEvent::kCommitFailed:
+      pending_.erase(e.commit_failed().checkpoint_id());
+      break;
+    case TraceEvent::kAcked:
+      OnAcked(e);
+      break;
+    case TraceEvent::kOpened:
+      DiscardUncommitted();
+      opened_ref_ = MakeRef(e);
+      watermark_.reset();
+      watermark_ref_ = EventRef{};
+      if (e.opened().restored() && e.opened().has_watermark_ns()) {
+        watermark_ = e.opened().watermark_ns();
+        watermark_ref_ = opened_ref_;
+      }
+      break;
+    case TraceEvent::kCrashed:
+      DiscardUncommitted();
+      break;
+    case TraceEvent::kExited:
+      OnConnectorFailure(e, e.exited().call(), Invariant::kUnexpectedExit,
+                         absl::StrCat("The connector process ended without a crash point: ",
+                                      e.exited().status(),
+                                      e.exited().stderr_tail().empty()
+                                          ? std::string()
+                                          : absl::StrCat("; stderr ends with: ",
+                                                         e.exited().stderr_tail())));
+      break;
+    case TraceEvent::kCallTimedOut:
+      OnConnectorFailure(e, e.call_timed_out().call(), Invariant::kStepTimeout,
+                         absl::StrCat("The connector did not answer ", e.call_timed_out().call(),
+                                      " within ", e.call_timed_out().bound_wall_ms(),
+                                      " ms of wall time."));
+      break;
+    case TraceEvent::kProtocolError:
+      OnConnectorFailure(e, e.protocol_error().call(), Invariant::kProtocolError,
+                         absl::StrCat("Malformed exchange in ", e.protocol_error().call(), ": ",
+                                      e.protocol_error().detail(), "."));
+      break;
+    case TraceEvent::kRunEnded:
+      OnRunEnded(e);
+      break;
+    default:
+      break;
+  }
+}
+
+void Oracle::OnConnectorFailure(const TraceEvent& e, const std::string& call, Invariant invariant,
+                                const std::string& sentence) {
+  if (call == "Open" && opened_ref_.valid() && opened_ref_.f[0] != 0 &&
+      opened_ref_.incarnation == e.incarnation()) {
+    Report(Invariant::kBadCheckpoint,
+           absl::StrCat("Opening incarnation ", e.incarnation(), " from committed checkpoint ",
+                        opened_ref_.f[1], " failed: ", sentence),
+           {opened_ref_}, &e);
+    return;
+  }
+  Report(invariant, sentence, {opened_ref_}, &e);
+}
+
+void Oracle::OnWatermark(const TraceEvent& e, std::int64_t watermark) {
+  if (watermark_.has_value() && watermark < *watermark_) {
+    const bool from_checkpoint = watermark_ref_.kind == TraceEvent::kOpened;
+    Report(Invariant::kWatermarkRegression,
+           absl::StrCat("The watermark went back from ", FormatTime(*watermark_), " to ",
+                        FormatTime(watermark), from_checkpoint
+                                                   ? " below the watermark committed with the "
+                                                     "restored checkpoint."
+                                                   : " within incarnation " +
+                                                         std::to_string(e.incarnation()) + "."),
+           {watermark_ref_}, &e);
+    return;
+  }
+  watermark_ = watermark;
+  watermark_ref_ = MakeRef(e);
+}
+
+void Oracle::OnCommitted(const TraceEvent& e) {
+  auto node = pending_.extract(e.committed().checkpoint_id());
+  if (node.empty()) return;
+  const EventRef committed = MakeRef(e);
+  for (const PendingRecord& r : node.mapped()) {
+    const bool already = IsCommitted(r.message_id);
+    if (already) {
+      ++verdict_.duplicate_records;
+      if (exactly_once_) {
+        std::vector<EventRef> cited = {r.emitted};
+        auto it = messages_.find(r.message_id);
+        if (it != messages_.end()) cited.push_back(it->second.committed);
+        Report(Invariant::kDuplicateOutput,
+               absl::StrCat("Message ", r.message_id,
+                            " has a second record in the committed output (checkpoint ",
+                            e.committed().checkpoint_id(), ")."),
+               std::move(cited), &e);
+      }
+      continue;
+    }
+    auto it = messages_.find(r.message_id);
+    if (it == messages_.end()) continue;
+    it->second.committed = committed;
+    it->second.committed_records = 1;
+    if (it->second.acked) Retire(r.message_id);
+  }
+}
+
+void Oracle::OnAcked(const TraceEvent& e) {
+  const std::uint64_t id = e.acked().message_id();
+  auto it = messages_.find(id);
+  if (it == messages_.end()) return;  // committed and acked before: retired
+  MessageState& m = it->second;
+  if (m.committed_records == 0) {
+    std::vector<EventRef> cited = {m.last_delivered};
+    if (m.last_emitted.valid()) cited.push_back(m.last_emitted);
+    Report(Invariant::kAckBeforeCommit,
+           absl::StrCat("The broker received an ack for message ", id,
+                        m.last_emitted.valid() ? " while its record was not yet committed."
+                                               : " before the connector emitted any record of it."),
+           std::move(cited), &e);
+    m.acked = true;
+    return;
+  }
+  Retire(id);
+}
+
+void Oracle::OnRunEnded(const TraceEvent& e) {
+  std::vector<std::uint64_t> lost;
+  for (const auto& [id, m] : messages_) {
+    if (m.committed_records == 0) lost.push_back(id);
+  }
+  std::sort(lost.begin(), lost.end());
+  for (std::uint64_t id : lost) {
+    const MessageState& m = messages_.at(id);
+    Report(Invariant::kLostMessage,
+           absl::StrCat("Message ", id, " was published but has no record in the committed output",
+                        m.acked ? " although the broker received its ack" : "",
+                        " when the run ended (", e.run_ended().reason(), ")."),
+           {m.published, m.last_delivered, m.last_emitted}, &e);
+  }
+}
+
+Verdict Oracle::Finish() { return verdict_; }
+
+}  // namespace weir

@@ -1,0 +1,50 @@
+#include "harness/oracle/verdict.h"
+
+namespace weir {
+
+const char* InvariantName(Invariant invariant) {
+  switch (invariant) {
+    case Invariant::kAckBeforeCommit: return "ack-before-commit";
+    case Invariant::kLostMessage: return "lost-message";
+    case Invariant::kDuplicateOutput: return "duplicate-output";
+    case Invariant::kWatermarkRegression: return "watermark-regression";
+    case Invariant::kBadCheckpoint: return "bad-checkpoint";
+    case Invariant::kStepTimeout: return "step-timeout";
+    case Invariant::kUnexpectedExit: return "unexpected-exit";
+    case Invariant::kProtocolError: return "protocol-error";
+    case Invariant::kCount: break;
+  }
+  return "unknown";
+}
+
+const char* InvariantRule(Invariant invariant) {
+  switch (invariant) {
+    case Invariant::kAckBeforeCommit:
+      return "The broker must not receive an ack for a message before some record of it is in a "
+             "committed epoch.";
+    case Invariant::kLostMessage:
+      return "Every published message must have a record in the committed output by the end of "
+             "the run.";
+    case Invariant::kDuplicateOutput:
+      return "Under exactly-once, no message may have more than one record in the committed "
+             "output.";
+    case Invariant::kWatermarkRegression:
+      return "A watermark must never be lower than one reported before it in the same "
+             "incarnation, nor than the watermark committed with the checkpoint it was restored "
+             "from.";
+    case Invariant::kBadCheckpoint:
+      return "Opening the connector from a committed checkpoint must succeed.";
+    case Invariant::kStepTimeout:
+      return "Every connector call must answer within the wall-clock bound.";
+    case Invariant::kUnexpectedExit:
+      return "The connector process must not end unless weir kills it at a crash point.";
+    case Invariant::kProtocolError:
+      return "Every connector answer and broker call must be well-formed and refer only to "
+             "messages, receipts and times that exist.";
+    case Invariant::kCount:
+      break;
+  }
+  return "";
+}
+
+}  // namespace weir

@@ -1,0 +1,72 @@
+// File: verdict.h
+//
+// What the oracle concludes about one run: for every invariant, held or failed,
+// how often, and the first few violations with the trace events that prove
+// them. Plain values; no I/O.
+#pragma once
+
+#include <array>
+#include <cstdint>
+#include <string>
+#include <vector>
+
+#include "harness/core/virtual_time.h"
+
+namespace weir {
+
+enum class Invariant : int {
+  kAckBeforeCommit,
+  kLostMessage,
+  kDuplicateOutput,
+  kWatermarkRegression,
+  kBadCheckpoint,
+  kStepTimeout,
+  kUnexpectedExit,
+  kProtocolError,
+  kCount,  // not an invariant
+};
+
+inline constexpr int kInvariantCount = static_cast<int>(Invariant::kCount);
+
+// "ack-before-commit", …: the name used in reports, flags and files.
+const char* InvariantName(Invariant invariant);
+// The rule in one sentence, as the docs state it.
+const char* InvariantRule(Invariant invariant);
+
+// One trace event cited as proof.
+struct Evidence {
+  std::uint64_t seq = 0;
+  VirtualTime t = 0;
+  std::uint64_t incarnation = 0;
+  std::string what;
+};
+
+struct Violation {
+  Invariant invariant = Invariant::kCount;
+  std::string sentence;  // what went wrong in this run, in one sentence
+  std::vector<Evidence> evidence;
+};
+
+struct InvariantResult {
+  bool checked = true;            // false when the profile does not claim it
+  std::uint64_t violations = 0;   // how many times it failed
+  std::vector<Violation> first;   // the first few, in trace order
+};
+
+struct Verdict {
+  std::array<InvariantResult, kInvariantCount> results;
+  // Figures that are not pass/fail.
+  std::uint64_t duplicate_records = 0;  // committed records beyond the first per message
+  std::uint64_t events = 0;
+
+  bool passed() const {
+    for (const auto& r : results) {
+      if (r.checked && r.violations > 0) return false;
+    }
+    return true;
+  }
+  const InvariantResult& at(Invariant i) const { return results[static_cast<int>(i)]; }
+  InvariantResult& at(Invariant i) { return results[static_cast<int>(i)]; }
+};
+
+}  // namespace weir

@@ -1,0 +1,44 @@
+#include "harness/report/text_report.h"
+
+#include <cstdio>
+
+#include "absl/strings/str_cat.h"
+#include "absl/strings/str_format.h"
+
+namespace weir {
+
+std::string FormatVerdictTable(const Verdict& verdict) {
+  std::string out = absl::StrFormat("%-22s %-12s %s\n", "invariant", "verdict", "violations");
+  for (int i = 0; i < kInvariantCount; ++i) {
+    const auto inv = static_cast<Invariant>(i);
+    const InvariantResult& r = verdict.at(inv);
+    const char* word = !r.checked ? "not claimed" : r.violations == 0 ? "held" : "FAILED";
+    out += absl::StrFormat("%-22s %-12s %d\n", InvariantName(inv), word, r.violations);
+  }
+  return out;
+}
+
+std::string FormatViolations(const Verdict& verdict) {
+  std::string out;
+  for (int i = 0; i < kInvariantCount; ++i) {
+    const auto inv = static_cast<Invariant>(i);
+    const InvariantResult& r = verdict.at(inv);
+    if (!r.checked || r.violations == 0) continue;
+    absl::StrAppend(&out, "\nFAILED ", InvariantName(inv), " (", r.violations,
+                    r.violations == 1 ? " violation" : " violations", ")\n  rule: ",
+                    InvariantRule(inv), "\n");
+    for (const Violation& v : r.first) {
+      absl::StrAppend(&out, "  - ", v.sentence, "\n");
+      for (const Evidence& e : v.evidence) {
+        absl::StrAppend(&out, absl::StrFormat("      #%-7d %16s  inc %-3d %s\n", e.seq,
+                                              FormatTime(e.t), e.incarnation, e.what));
+      }
+    }
+    if (r.violations > r.first.size()) {
+      absl::StrAppend(&out, "  … and ", r.violations - r.first.size(), " more\n");
+    }
+  }
+  return out;
+}
+
+}  // namespace weir

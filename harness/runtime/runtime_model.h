@@ -1,0 +1,102 @@
+// File: runtime_model.h
+//
+// weir's stand-in for the stream engine that hosts the connector. It drives the
+// connector lock-step through a ConnectorPort (Open, Advance, Checkpoint,
+// Committed), keeps the committed output in a CommitStore, takes a checkpoint
+// every N records or T virtual time, commits epoch + checkpoint atomically,
+// sends the commit notice, and at the end drains: keeps stepping until every
+// published message is committed or the drain bound passes.
+//
+// Time is discrete-event: between calls the virtual clock jumps to the next
+// scheduled event (a step's resume time, a checkpoint). Each connector call
+// runs inside a BrokerSession window so broker calls advance the call's clock.
+//
+// Invariants:
+//   - the commit notice for checkpoint N is sent only after N is committed,
+//     at most once, never retried;
+//   - a crash discards the open epoch; the next incarnation opens from the
+//     last committed checkpoint;
+//   - every exit path leaves no incarnation alive (port.Kill()).
+//
+// Thread safety: none; Run() is the simulation thread.
+#pragma once
+
+#include <cstdint>
+#include <optional>
+#include <string>
+#include <vector>
+
+#include "harness/broker/broker_model.h"
+#include "harness/broker/broker_session.h"
+#include "harness/core/event_queue.h"
+#include "harness/runtime/commit_store.h"
+#include "harness/runtime/connector_port.h"
+#include "harness/trace/trace_log.h"
+#include "weir/v1/scenario.pb.h"
+
+namespace weir {
+
+struct RunSummary {
+  std::string end_reason;  // "all messages committed", "drain bound reached", …
+  bool connector_failed = false;
+  VirtualTime end_time = 0;
+  std::uint64_t steps = 0;
+  std::uint64_t incarnations = 0;
+  std::uint64_t checkpoints = 0;
+  std::uint64_t published = 0;
+  std::uint64_t committed_messages = 0;
+  std::uint64_t duplicate_records = 0;
+};
+
+class RuntimeModel {
+ public:
+  // REQUIRES: every argument outlives the model; scenario is validated.
+  RuntimeModel(const v1::Scenario& scenario, BrokerModel& broker, BrokerSession& session,
+               ConnectorPort& port, TraceLog& trace);
+
+  // Runs to the end. Never leaves the connector alive.
+  RunSummary Run();
+
+ private:
+  enum class EventKind { kStep, kCheckpointDue };
+  struct Event {
+    EventKind kind;
+    std::uint64_t generation;  // incarnation for steps, timer generation for checkpoints
+  };
+
+  // Each returns false when the connector failed (already traced).
+  bool StartIncarnation();
+  bool DoStep();
+  bool DoCheckpointCycle();
+
+  // Wraps one connector call in a broker session window and moves now.
+  template <typename Request, typename Response, typename Method>
+  ConnectorFailure Call(Method method, Request& request, Response* response);
+
+  void TraceFailure(const char* call, const ConnectorFailure& failure);
+  void TraceProtocolError(const char* call, std::string detail);
+  void ScheduleCheckpointTimer();
+  bool AllCommitted() const;
+
+  const v1::Scenario& scenario_;
+  BrokerModel& broker_;
+  BrokerSession& session_;
+  ConnectorPort& port_;
+  TraceLog& trace_;
+  const VirtualTime hard_end_;
+
+  EventQueue<Event> queue_;
+  CommitStore store_;
+  VirtualTime now_ = 0;
+  std::uint64_t incarnation_ = 0;
+  std::uint64_t step_ = 0;
+  std::uint64_t next_checkpoint_id_ = 1;
+  std::uint64_t checkpoint_timer_generation_ = 0;
+  std::uint64_t checkpoints_ = 0;
+  std::uint64_t same_time_steps_ = 0;
+  bool finished_ = false;  // the live incarnation said it is finished
+  std::optional<VirtualTime> watermark_;  // last reported in this incarnation
+  std::vector<std::uint64_t> open_epoch_;  // message ids of records not yet checkpointed
+};
+
+}  // namespace weir

@@ -1,0 +1,87 @@
+#include "harness/scenario/scenario_file.h"
+
+#include "absl/strings/str_cat.h"
+#include "harness/scenario/text_file.h"
+
+namespace weir {
+namespace {
+
+// One year of virtual time: larger durations are surely typos.
+constexpr std::int64_t kMaxMillis = 365LL * 24 * 3600 * 1000;
+
+void CheckMillis(TextFile& f, std::int64_t value, const char* message_field,
+                 const char* field, bool positive) {
+  const std::string name = absl::StrCat(message_field, ".", field);
+  if (positive) {
+    f.Require(value >= 1 && value <= kMaxMillis, {message_field, field},
+              absl::StrCat(name, " is ", value, "; expected 1 ..", kMaxMillis, " (milliseconds)"));
+  } else {
+    f.Require(value >= 0 && value <= kMaxMillis, {message_field, field},
+              absl::StrCat(name, " is ", value, "; expected 0 ..", kMaxMillis, " (milliseconds)"));
+  }
+}
+
+void Validate(TextFile& f, const v1::Scenario& s) {
+  const auto& w = s.workload();
+  f.Require(s.has_workload(), {"workload"}, "expected a workload { … } block");
+  f.Require(w.messages() >= 1 && w.messages() <= 100000000, {"workload", "messages"},
+            absl::StrCat("workload.messages is ", w.messages(), "; expected 1 ..100000000"));
+  CheckMillis(f, w.start_ms(), "workload", "start_ms", false);
+  CheckMillis(f, w.publish_interval_ms(), "workload", "publish_interval_ms", true);
+  CheckMillis(f, w.max_event_time_skew_ms(), "workload", "max_event_time_skew_ms", false);
+  f.Require(w.payload_bytes() <= (1u << 20), {"workload", "payload_bytes"},
+            absl::StrCat("workload.payload_bytes is ", w.payload_bytes(), "; expected at most 1048576"));
+  if (w.messages() >= 1 && w.publish_interval_ms() >= 1) {
+    const double span = static_cast<double>(w.messages()) * static_cast<double>(w.publish_interval_ms());
+    f.Require(span <= 1e15, {"workload", "messages"},
+              "workload spans more than 1e15 ms of virtual time; expected fewer messages or a "
+              "shorter publish_interval_ms");
+  }
+  const auto& b = s.broker();
+  CheckMillis(f, b.lease_ms(), "broker", "lease_ms", false);
+  CheckMillis(f, b.redelivery_horizon_ms(), "broker", "redelivery_horizon_ms", false);
+  const auto& r = s.runtime();
+  CheckMillis(f, r.checkpoint_interval_ms(), "runtime", "checkpoint_interval_ms", false);
+  CheckMillis(f, r.drain_bound_ms(), "runtime", "drain_bound_ms", false);
+  CheckMillis(f, r.call_timeout_wall_ms(), "runtime", "call_timeout_wall_ms", false);
+  CheckMillis(f, r.start_timeout_wall_ms(), "runtime", "start_timeout_wall_ms", false);
+}
+
+void FillDefaults(v1::Scenario& s) {
+  auto* b = s.mutable_broker();
+  if (b->lease_ms() == 0) b->set_lease_ms(30000);
+  if (b->max_pull() == 0) b->set_max_pull(1000);
+  if (b->redelivery_horizon_ms() == 0) b->set_redelivery_horizon_ms(60000);
+  auto* r = s.mutable_runtime();
+  if (r->checkpoint_interval_ms() == 0) r->set_checkpoint_interval_ms(1000);
+  if (r->drain_bound_ms() == 0) r->set_drain_bound_ms(600000);
+  if (r->call_timeout_wall_ms() == 0) r->set_call_timeout_wall_ms(10000);
+  if (r->start_timeout_wall_ms() == 0) r->set_start_timeout_wall_ms(10000);
+  auto* w = s.mutable_workload();
+  if (w->payload_bytes() == 0) w->set_payload_bytes(32);
+}
+
+absl::StatusOr<v1::Scenario> Finish(TextFile& f, v1::Scenario s) {
+  Validate(f, s);
+  if (absl::Status st = f.status(); !st.ok()) return st;
+  FillDefaults(s);
+  return s;
+}
+
+}  // namespace
+
+absl::StatusOr<v1::Scenario> LoadScenario(const std::string& path) {
+  TextFile f(path);
+  v1::Scenario s;
+  if (absl::Status st = f.Parse(&s); !st.ok()) return st;
+  return Finish(f, std::move(s));
+}
+
+absl::StatusOr<v1::Scenario> ParseScenario(const std::string& path, std::string_view text) {
+  TextFile f(path);
+  v1::Scenario s;
+  if (absl::Status st = f.ParseText(text, &s); !st.ok()) return st;
+  return Finish(f, std::move(s));
+}
+
+}  // namespace weir

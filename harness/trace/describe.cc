@@ -1,0 +1,88 @@
+#include "harness/trace/describe.h"
+
+#include "absl/strings/str_cat.h"
+#include "harness/core/virtual_time.h"
+
+namespace weir {
+namespace {
+
+std::string Watermark(bool has, std::int64_t value) {
+  return has ? FormatTime(value) : std::string("none");
+}
+
+}  // namespace
+
+std::string DescribeEvent(const v1::TraceEvent& e) {
+  using v1::TraceEvent;
+  switch (e.kind_case()) {
+    case TraceEvent::kPublished:
+      return absl::StrCat("published message ", e.published().message_id(), " (event time ",
+                          FormatTime(e.published().event_time_ns()), ")");
+    case TraceEvent::kDelivered:
+      return absl::StrCat("delivered message ", e.delivered().message_id(), " (receipt ",
+                          e.delivered().receipt(), ", attempt ", e.delivered().attempt(),
+                          ", lease until ", FormatTime(e.delivered().lease_deadline_ns()), ")");
+    case TraceEvent::kEmitted:
+      return absl::StrCat("emitted a record of message ", e.emitted().message_id(), " in step ",
+                          e.emitted().step(), " (event time ", FormatTime(e.emitted().event_time_ns()),
+                          ")");
+    case TraceEvent::kStepped:
+      return absl::StrCat("step ", e.stepped().step(), " ended: ", e.stepped().records(),
+                          " records, watermark ",
+                          Watermark(e.stepped().has_watermark_ns(), e.stepped().watermark_ns()),
+                          e.stepped().finished()
+                              ? std::string(", finished")
+                              : absl::StrCat(", resume at ", FormatTime(e.stepped().resume_at_ns())));
+    case TraceEvent::kCheckpoint:
+      return absl::StrCat("took checkpoint ", e.checkpoint().checkpoint_id(), " (",
+                          e.checkpoint().records(), " records in the epoch, watermark ",
+                          Watermark(e.checkpoint().has_watermark_ns(), e.checkpoint().watermark_ns()),
+                          ")");
+    case TraceEvent::kCommitted:
+      return absl::StrCat("committed checkpoint ", e.committed().checkpoint_id());
+    case TraceEvent::kCommitFailed:
+      return absl::StrCat("commit of checkpoint ", e.commit_failed().checkpoint_id(), " failed");
+    case TraceEvent::kCommitNotice:
+      return absl::StrCat("sent the commit notice for checkpoint ",
+                          e.commit_notice().checkpoint_id());
+    case TraceEvent::kAcked:
+      return absl::StrCat("broker received an ack for message ", e.acked().message_id(),
+                          " (receipt ", e.acked().receipt(), ")");
+    case TraceEvent::kNacked:
+      return absl::StrCat("broker received a nack for message ", e.nacked().message_id(),
+                          " (receipt ", e.nacked().receipt(), ")");
+    case TraceEvent::kLeaseExtended:
+      return absl::StrCat("extended the lease of message ", e.lease_extended().message_id(),
+                          " to ", FormatTime(e.lease_extended().lease_deadline_ns()));
+    case TraceEvent::kLeaseExpired:
+      return absl::StrCat("lease of message ", e.lease_expired().message_id(), " (receipt ",
+                          e.lease_expired().receipt(), ") expired");
+    case TraceEvent::kOpened:
+      return e.opened().restored()
+                 ? absl::StrCat("opened incarnation ", e.incarnation(), " from checkpoint ",
+                                e.opened().checkpoint_id(), " (committed watermark ",
+                                Watermark(e.opened().has_watermark_ns(), e.opened().watermark_ns()),
+                                ")")
+                 : absl::StrCat("opened incarnation ", e.incarnation(), " fresh");
+    case TraceEvent::kCrashed:
+      return absl::StrCat("crashed the connector at ", e.crashed().point());
+    case TraceEvent::kExited:
+      return absl::StrCat("connector exited: ", e.exited().status());
+    case TraceEvent::kProtocolError:
+      return absl::StrCat("protocol error in ", e.protocol_error().call(), ": ",
+                          e.protocol_error().detail());
+    case TraceEvent::kAckIgnored:
+      return absl::StrCat("broker ignored receipt ", e.ack_ignored().receipt(), " (",
+                          e.ack_ignored().reason(), ")");
+    case TraceEvent::kRunEnded:
+      return absl::StrCat("run ended: ", e.run_ended().reason());
+    case TraceEvent::kCallTimedOut:
+      return absl::StrCat(e.call_timed_out().call(), " did not answer within ",
+                          e.call_timed_out().bound_wall_ms(), " ms of wall time");
+    case TraceEvent::KIND_NOT_SET:
+      break;
+  }
+  return "unknown event";
+}
+
+}  // namespace weir

@@ -1,0 +1,190 @@
+#include "harness/trace/event_ref.h"
+
+namespace weir {
+namespace {
+
+std::int64_t S(std::uint64_t v) { return static_cast<std::int64_t>(v); }
+std::uint64_t U(std::int64_t v) { return static_cast<std::uint64_t>(v); }
+
+}  // namespace
+
+EventRef MakeRef(const v1::TraceEvent& e) {
+  using v1::TraceEvent;
+  EventRef r;
+  r.seq = e.seq();
+  r.t = e.t_ns();
+  r.incarnation = e.incarnation();
+  r.kind = e.kind_case();
+  switch (r.kind) {
+    case TraceEvent::kPublished:
+      r.f[0] = S(e.published().message_id());
+      r.f[1] = e.published().event_time_ns();
+      r.f[2] = e.published().payload_crc32c();
+      break;
+    case TraceEvent::kDelivered:
+      r.f[0] = S(e.delivered().message_id());
+      r.f[1] = S(e.delivered().receipt());
+      r.f[2] = e.delivered().attempt();
+      r.f[3] = e.delivered().lease_deadline_ns();
+      break;
+    case TraceEvent::kEmitted:
+      r.f[0] = S(e.emitted().message_id());
+      r.f[1] = e.emitted().event_time_ns();
+      r.f[2] = S(e.emitted().step());
+      break;
+    case TraceEvent::kStepped:
+      r.f[0] = S(e.stepped().step());
+      r.f[1] = e.stepped().records();
+      r.f[2] = e.stepped().watermark_ns();
+      r.f[3] = e.stepped().resume_at_ns();
+      r.has_watermark = e.stepped().has_watermark_ns() | (e.stepped().finished() ? 2 : 0);
+      break;
+    case TraceEvent::kCheckpoint:
+      r.f[0] = S(e.checkpoint().checkpoint_id());
+      r.f[1] = e.checkpoint().records();
+      r.f[2] = e.checkpoint().watermark_ns();
+      r.f[3] = S(e.checkpoint().state_bytes());
+      r.has_watermark = e.checkpoint().has_watermark_ns();
+      break;
+    case TraceEvent::kCommitted:
+      r.f[0] = S(e.committed().checkpoint_id());
+      break;
+    case TraceEvent::kCommitFailed:
+      r.f[0] = S(e.commit_failed().checkpoint_id());
+      break;
+    case TraceEvent::kCommitNotice:
+      r.f[0] = S(e.commit_notice().checkpoint_id());
+      break;
+    case TraceEvent::kAcked:
+      r.f[0] = S(e.acked().message_id());
+      r.f[1] = S(e.acked().receipt());
+      break;
+    case TraceEvent::kNacked:
+      r.f[0] = S(e.nacked().message_id());
+      r.f[1] = S(e.nacked().receipt());
+      break;
+    case TraceEvent::kLeaseExtended:
+      r.f[0] = S(e.lease_extended().message_id());
+      r.f[1] = S(e.lease_extended().receipt());
+      r.f[2] = e.lease_extended().lease_deadline_ns();
+      break;
+    case TraceEvent::kLeaseExpired:
+      r.f[0] = S(e.lease_expired().message_id());
+      r.f[1] = S(e.lease_expired().receipt());
+      break;
+    case TraceEvent::kOpened:
+      r.f[0] = e.opened().restored();
+      r.f[1] = S(e.opened().checkpoint_id());
+      r.f[2] = e.opened().watermark_ns();
+      r.has_watermark = e.opened().has_watermark_ns();
+      break;
+    case TraceEvent::kAckIgnored:
+      r.f[0] = S(e.ack_ignored().receipt());
+      r.f[1] = S(e.ack_ignored().message_id());
+      break;
+    default:
+      break;
+  }
+  return r;
+}
+
+v1::TraceEvent Rebuild(const EventRef& r) {
+  using v1::TraceEvent;
+  TraceEvent e;
+  e.set_seq(r.seq);
+  e.set_t_ns(r.t);
+  e.set_incarnation(r.incarnation);
+  switch (r.kind) {
+    case TraceEvent::kPublished: {
+      auto* x = e.mutable_published();
+      x->set_message_id(U(r.f[0]));
+      x->set_event_time_ns(r.f[1]);
+      x->set_payload_crc32c(static_cast<std::uint32_t>(r.f[2]));
+      break;
+    }
+    case TraceEvent::kDelivered: {
+      auto* x = e.mutable_delivered();
+      x->set_message_id(U(r.f[0]));
+      x->set_receipt(U(r.f[1]));
+      x->set_attempt(static_cast<std::uint32_t>(r.f[2]));
+      x->set_lease_deadline_ns(r.f[3]);
+      break;
+    }
+    case TraceEvent::kEmitted: {
+      auto* x = e.mutable_emitted();
+      x->set_message_id(U(r.f[0]));
+      x->set_event_time_ns(r.f[1]);
+      x->set_step(U(r.f[2]));
+      break;
+    }
+    case TraceEvent::kStepped: {
+      auto* x = e.mutable_stepped();
+      x->set_step(U(r.f[0]));
+      x->set_records(static_cast<std::uint32_t>(r.f[1]));
+      if (r.has_watermark & 1) x->set_watermark_ns(r.f[2]);
+      x->set_resume_at_ns(r.f[3]);
+      x->set_finished((r.has_watermark & 2) != 0);
+      break;
+    }
+    case TraceEvent::kCheckpoint: {
+      auto* x = e.mutable_checkpoint();
+      x->set_checkpoint_id(U(r.f[0]));
+      x->set_records(static_cast<std::uint32_t>(r.f[1]));
+      if (r.has_watermark) x->set_watermark_ns(r.f[2]);
+      x->set_state_bytes(U(r.f[3]));
+      break;
+    }
+    case TraceEvent::kCommitted:
+      e.mutable_committed()->set_checkpoint_id(U(r.f[0]));
+      break;
+    case TraceEvent::kCommitFailed:
+      e.mutable_commit_failed()->set_checkpoint_id(U(r.f[0]));
+      break;
+    case TraceEvent::kCommitNotice:
+      e.mutable_commit_notice()->set_checkpoint_id(U(r.f[0]));
+      break;
+    case TraceEvent::kAcked: {
+      auto* x = e.mutable_acked();
+      x->set_message_id(U(r.f[0]));
+      x->set_receipt(U(r.f[1]));
+      break;
+    }
+    case TraceEvent::kNacked: {
+      auto* x = e.mutable_nacked();
+      x->set_message_id(U(r.f[0]));
+      x->set_receipt(U(r.f[1]));
+      break;
+    }
+    case TraceEvent::kLeaseExtended: {
+      auto* x = e.mutable_lease_extended();
+      x->set_message_id(U(r.f[0]));
+      x->set_receipt(U(r.f[1]));
+      x->set_lease_deadline_ns(r.f[2]);
+      break;
+    }
+    case TraceEvent::kLeaseExpired: {
+      auto* x = e.mutable_lease_expired();
+      x->set_message_id(U(r.f[0]));
+      x->set_receipt(U(r.f[1]));
+      break;
+    }
+    case TraceEvent::kOpened: {
+      auto* x = e.mutable_opened();
+      x->set_restored(r.f[0] != 0);
+      x->set_checkpoint_id(U(r.f[1]));
+      if (r.has_watermark) x->set_watermark_ns(r.f[2]);
+      break;
+    }
+    case TraceEvent::kAckIgnored: {
+      auto* x = e.mutable_ack_ignored();
+      x->set_receipt(U(r.f[0]));
+      x->set_message_id(U(r.f[1]));
+      break;
+    }
+    default:
+      break;
+  }
+  return e;
+}
+
+}  // namespace weir

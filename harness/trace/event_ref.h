@@ -1,0 +1,32 @@
+// File: event_ref.h
+//
+// A compact, copyable reference to a trace event: its position, time,
+// incarnation, kind and up to four numeric fields. Enough to describe the
+// event later (as a proving event in a report) without keeping the event.
+// String fields are not kept; events whose meaning lives in a string (exits,
+// protocol errors) are described when they happen.
+#pragma once
+
+#include <cstdint>
+#include <string>
+
+#include "weir/v1/trace.pb.h"
+
+namespace weir {
+
+struct EventRef {
+  std::uint64_t seq = 0;
+  std::int64_t t = 0;
+  std::uint64_t incarnation = 0;
+  v1::TraceEvent::KindCase kind = v1::TraceEvent::KIND_NOT_SET;
+  std::int64_t f[4] = {0, 0, 0, 0};
+  std::uint8_t has_watermark = 0;
+
+  bool valid() const { return kind != v1::TraceEvent::KIND_NOT_SET; }
+};
+
+EventRef MakeRef(const v1::TraceEvent& event);
+// Rebuilds the event (numeric fields only) from a reference.
+v1::TraceEvent Rebuild(const EventRef& ref);
+
+}  // namespace weir

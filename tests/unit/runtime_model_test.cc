@@ -1,0 +1,120 @@
+#include "harness/runtime/runtime_model.h"
+
+#include <map>
+
+#include <gtest/gtest.h>
+
+#include "harness/oracle/oracle.h"
+#include "tests/unit/fake_connector.h"
+#include "tests/unit/test_support.h"
+
+namespace weir {
+namespace {
+
+using testing::FakeConnector;
+using testing::SmallScenario;
+using testing::TraceRecorder;
+
+struct Harness {
+  explicit Harness(v1::Scenario s) : scenario(std::move(s)), broker(scenario, 3, log), session(broker, log) {
+    log.AddObserver(&rec);
+  }
+  RunSummary Run() {
+    RuntimeModel runtime(scenario, broker, session, port, log);
+    return runtime.Run();
+  }
+  v1::Scenario scenario;
+  TraceLog log;
+  TraceRecorder rec;
+  BrokerModel broker;
+  BrokerSession session;
+  FakeConnector port;
+};
+
+TEST(RuntimeModel, CorrectConnectorGetsEveryMessageCommitted) {
+  Harness h(SmallScenario(23));
+  RunSummary s = h.Run();
+  EXPECT_EQ(s.end_reason, "all messages committed");
+  EXPECT_EQ(s.published, 23u);
+  EXPECT_EQ(s.committed_messages, 23u);
+  EXPECT_FALSE(s.connector_failed);
+  EXPECT_EQ(h.port.calls.front(), "Start");
+  EXPECT_EQ(h.port.calls.back(), "Kill");
+}
+
+TEST(RuntimeModel, CheckpointThenCommitThenNoticeThenAcks) {
+  Harness h(SmallScenario(23));
+  h.Run();
+  // For every checkpoint id: taken < committed < notice, and each in that order
+  // exactly once; acks for its epoch come after its notice.
+  std::map<std::uint64_t, std::vector<std::uint64_t>> order;  // id -> seqs
+  for (const auto& e : h.rec.events) {
+    if (e.has_checkpoint()) order[e.checkpoint().checkpoint_id()].push_back(e.seq());
+    if (e.has_committed()) order[e.committed().checkpoint_id()].push_back(e.seq());
+    if (e.has_commit_notice()) order[e.commit_notice().checkpoint_id()].push_back(e.seq());
+  }
+  ASSERT_FALSE(order.empty());
+  for (const auto& [id, seqs] : order) {
+    ASSERT_EQ(seqs.size(), 3u) << "checkpoint " << id;
+    EXPECT_LT(seqs[0], seqs[1]);
+    EXPECT_LT(seqs[1], seqs[2]);
+  }
+  std::uint64_t last_notice = 0;
+  bool saw_ack = false;
+  for (const auto& e : h.rec.events) {
+    if (e.has_commit_notice()) last_notice = e.seq();
+    if (e.has_acked()) {
+      saw_ack = true;
+      EXPECT_GT(last_notice, 0u) << "ack at #" << e.seq() << " before any commit notice";
+    }
+  }
+  EXPECT_TRUE(saw_ack);
+}
+
+TEST(RuntimeModel, CheckpointsEveryNRecords) {
+  v1::Scenario s = SmallScenario(20);
+  s.mutable_runtime()->set_checkpoint_interval_ms(1000000);  // count only
+  s.mutable_workload()->set_publish_interval_ms(1);
+  Harness h(s);
+  h.Run();
+  for (const auto& e : h.rec.Of(v1::TraceEvent::kCheckpoint)) {
+    EXPECT_GE(e.checkpoint().records(), 5u);
+  }
+  EXPECT_GE(h.rec.Of(v1::TraceEvent::kCheckpoint).size(), 2u);
+}
+
+TEST(RuntimeModel, SameScenarioAndSeedGiveTheSameTrace) {
+  Harness a(SmallScenario(30)), b(SmallScenario(30));
+  a.Run();
+  b.Run();
+  ASSERT_EQ(a.rec.events.size(), b.rec.events.size());
+  for (std::size_t i = 0; i < a.rec.events.size(); ++i) {
+    ASSERT_EQ(a.rec.events[i].SerializeAsString(), b.rec.events[i].SerializeAsString()) << i;
+  }
+}
+
+TEST(RuntimeModel, AckOnPullIsCaughtByTheOracle) {
+  Harness h(SmallScenario(10));
+  h.port.ack_on_pull = true;
+  Oracle oracle(h.scenario.profile());
+  h.log.AddObserver(&oracle);
+  h.Run();
+  Verdict v = oracle.Finish();
+  EXPECT_GT(v.at(Invariant::kAckBeforeCommit).violations, 0u);
+  EXPECT_FALSE(v.passed());
+}
+
+TEST(RuntimeModel, CorrectConnectorPassesTheOracle) {
+  Harness h(SmallScenario(40));
+  Oracle oracle(h.scenario.profile());
+  h.log.AddObserver(&oracle);
+  h.Run();
+  Verdict v = oracle.Finish();
+  for (int i = 0; i < kInvariantCount; ++i) {
+    EXPECT_EQ(v.results[i].violations, 0u) << InvariantName(static_cast<Invariant>(i));
+  }
+  EXPECT_TRUE(v.passed());
+}
+
+}  // namespace
+}  // namespace weir

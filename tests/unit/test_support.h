@@ -1,0 +1,45 @@
+// Helpers shared by weir's unit tests: a trace recorder and scenario builders.
+#pragma once
+
+#include <vector>
+
+#include "harness/trace/trace_log.h"
+#include "weir/v1/scenario.pb.h"
+#include "weir/v1/trace.pb.h"
+
+namespace weir::testing {
+
+// Keeps every event of a trace, for tests only.
+class TraceRecorder : public TraceObserver {
+ public:
+  void OnEvent(const v1::TraceEvent& e) override { events.push_back(e); }
+  std::vector<v1::TraceEvent> Of(v1::TraceEvent::KindCase kind) const {
+    std::vector<v1::TraceEvent> out;
+    for (const auto& e : events) {
+      if (e.kind_case() == kind) out.push_back(e);
+    }
+    return out;
+  }
+  std::vector<v1::TraceEvent> events;
+};
+
+// A small valid scenario: n messages 10 ms apart, lease 1 s.
+inline v1::Scenario SmallScenario(std::uint64_t n) {
+  v1::Scenario s;
+  s.set_name("test");
+  auto* w = s.mutable_workload();
+  w->set_messages(n);
+  w->set_publish_interval_ms(10);
+  w->set_payload_bytes(16);
+  w->add_sources("buoy-7");
+  s.mutable_broker()->set_lease_ms(1000);
+  s.mutable_broker()->set_max_pull(100);
+  s.mutable_broker()->set_redelivery_horizon_ms(5000);
+  s.mutable_runtime()->set_checkpoint_every_records(5);
+  s.mutable_runtime()->set_checkpoint_interval_ms(500);
+  s.mutable_runtime()->set_drain_bound_ms(10000);
+  s.mutable_profile()->set_guarantee(v1::Profile::EXACTLY_ONCE);
+  return s;
+}
+
+}  // namespace weir::testing
