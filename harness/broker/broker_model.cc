@@ -6,8 +6,9 @@
 
 namespace weir {
 
-BrokerModel::BrokerModel(const v1::Scenario& scenario, std::uint64_t seed, TraceLog& trace)
-    : scenario_(scenario), seed_(seed), trace_(trace), workload_(scenario.workload(), seed) {}
+BrokerModel::BrokerModel(const v1::Scenario& scenario, std::uint64_t seed, TraceLog& trace,
+                         FaultSource& faults)
+    : scenario_(scenario), seed_(seed), trace_(trace), faults_(faults), workload_(scenario.workload(), seed) {}
 
 void BrokerModel::AdvanceTo(VirtualTime now) {
   for (;;) {

@@ -26,6 +26,7 @@
 #include "absl/container/flat_hash_map.h"
 #include "harness/broker/workload.h"
 #include "harness/core/virtual_time.h"
+#include "harness/faults/fault_source.h"
 #include "harness/trace/trace_log.h"
 #include "weir/v1/broker.pb.h"
 #include "weir/v1/scenario.pb.h"
@@ -34,7 +35,8 @@ namespace weir {
 
 class BrokerModel {
  public:
-  BrokerModel(const v1::Scenario& scenario, std::uint64_t seed, TraceLog& trace);
+  // REQUIRES: scenario, trace and faults outlive the model.
+  BrokerModel(const v1::Scenario& scenario, std::uint64_t seed, TraceLog& trace, FaultSource& faults);
 
   // Applies every publish and lease expiry at or before now, in time order.
   void AdvanceTo(VirtualTime now);
@@ -86,6 +88,7 @@ class BrokerModel {
   const v1::Scenario& scenario_;
   const std::uint64_t seed_;
   TraceLog& trace_;
+  FaultSource& faults_;
   Workload workload_;
   absl::flat_hash_map<std::uint64_t, Message> messages_;
   absl::flat_hash_map<std::uint64_t, std::uint64_t> receipt_owner_;  // live receipts only

@@ -13,6 +13,7 @@
 
 #include "harness/broker/broker_endpoint.h"
 #include "harness/broker/broker_model.h"
+#include "harness/faults/fault_source.h"
 #include "harness/trace/trace_log.h"
 
 namespace weir {
@@ -20,7 +21,8 @@ namespace weir {
 class BrokerSession : public BrokerEndpoint {
  public:
   // REQUIRES: model and trace outlive the session.
-  BrokerSession(BrokerModel& model, TraceLog& trace) : model_(model), trace_(trace) {}
+  BrokerSession(BrokerModel& model, TraceLog& trace, FaultSource& faults)
+      : model_(model), trace_(trace), faults_(faults) {}
 
   // Opens the window of one connector call starting at virtual time now.
   void BeginCall(VirtualTime now);
@@ -44,6 +46,7 @@ class BrokerSession : public BrokerEndpoint {
 
   BrokerModel& model_;
   TraceLog& trace_;
+  FaultSource& faults_;
   bool in_call_ = false;
   VirtualTime now_ = 0;
   std::uint64_t calls_in_window_ = 0;

@@ -10,6 +10,7 @@
 #include "harness/edge/call_relay.h"
 #include "harness/edge/grpc_connector_port.h"
 #include "harness/edge/private_dir.h"
+#include "harness/faults/fault_source.h"
 #include "harness/oracle/oracle.h"
 #include "harness/trace/trace_format.h"
 
@@ -96,8 +97,11 @@ absl::StatusOr<RunOutput> RunOverGrpc(const RunSpec& spec) {
   auto server = BrokerServer::Start(broker_listen, relay, call_timeout);
   if (!server.ok()) return server.status();
 
-  BrokerModel broker(spec.scenario, spec.seed, trace);
-  BrokerSession session(broker, trace);
+  FaultSource faults = spec.plan.has_value()
+                           ? FaultSource(*spec.plan, spec.seed, trace)
+                           : FaultSource(spec.scenario.faults(), spec.seed, trace);
+  BrokerModel broker(spec.scenario, spec.seed, trace, faults);
+  BrokerSession session(broker, trace, faults);
   GrpcConnectorPort::Options port_options;
   port_options.argv = spec.connector_argv;
   port_options.broker_address = (*server)->address();
@@ -106,7 +110,7 @@ absl::StatusOr<RunOutput> RunOverGrpc(const RunSpec& spec) {
   port_options.start_timeout =
       std::chrono::milliseconds(spec.scenario.runtime().start_timeout_wall_ms());
   GrpcConnectorPort port(port_options, relay);
-  RuntimeModel runtime(spec.scenario, broker, session, port, trace);
+  RuntimeModel runtime(spec.scenario, broker, session, port, trace, faults);
 
   RunOutput out;
   out.summary = runtime.Run();

@@ -8,12 +8,14 @@
 #pragma once
 
 #include <cstdint>
+#include <optional>
 #include <string>
 #include <vector>
 
 #include "absl/status/statusor.h"
 #include "harness/oracle/verdict.h"
 #include "harness/runtime/runtime_model.h"
+#include "weir/v1/faults.pb.h"
 #include "weir/v1/scenario.pb.h"
 
 namespace weir {
@@ -27,6 +29,8 @@ struct RunSpec {
   std::vector<std::string> connector_argv;
   Transport transport = Transport::kTcp;
   std::string trace_path;  // empty: no trace file
+  // Given: apply exactly this plan instead of drawing from the scenario's rates.
+  std::optional<v1::FaultPlan> plan;
 };
 
 struct RunOutput {

@@ -24,12 +24,14 @@ const char* FailureKindName(ConnectorFailure::Kind kind) {
 }
 
 RuntimeModel::RuntimeModel(const v1::Scenario& scenario, BrokerModel& broker,
-                           BrokerSession& session, ConnectorPort& port, TraceLog& trace)
+                           BrokerSession& session, ConnectorPort& port, TraceLog& trace,
+                           FaultSource& faults)
     : scenario_(scenario),
       broker_(broker),
       session_(session),
       port_(port),
       trace_(trace),
+      faults_(faults),
       hard_end_(SaturatingAdd(broker.last_publish_time(), Millis(scenario.runtime().drain_bound_ms()))) {}
 
 template <typename Request, typename Response, typename Method>

@@ -29,6 +29,7 @@
 #include "harness/broker/broker_model.h"
 #include "harness/broker/broker_session.h"
 #include "harness/core/event_queue.h"
+#include "harness/faults/fault_source.h"
 #include "harness/runtime/commit_store.h"
 #include "harness/runtime/connector_port.h"
 #include "harness/trace/trace_log.h"
@@ -52,7 +53,7 @@ class RuntimeModel {
  public:
   // REQUIRES: every argument outlives the model; scenario is validated.
   RuntimeModel(const v1::Scenario& scenario, BrokerModel& broker, BrokerSession& session,
-               ConnectorPort& port, TraceLog& trace);
+               ConnectorPort& port, TraceLog& trace, FaultSource& faults);
 
   // Runs to the end. Never leaves the connector alive.
   RunSummary Run();
@@ -83,6 +84,7 @@ class RuntimeModel {
   BrokerSession& session_;
   ConnectorPort& port_;
   TraceLog& trace_;
+  FaultSource& faults_;
   const VirtualTime hard_end_;
 
   EventQueue<Event> queue_;

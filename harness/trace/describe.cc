@@ -79,6 +79,24 @@ std::string DescribeEvent(const v1::TraceEvent& e) {
     case TraceEvent::kCallTimedOut:
       return absl::StrCat(e.call_timed_out().call(), " did not answer within ",
                           e.call_timed_out().bound_wall_ms(), " ms of wall time");
+    case TraceEvent::kBrokerCallFailed: {
+      const auto& x = e.broker_call_failed();
+      const char* what = x.code() == 8    ? "RESOURCE_EXHAUSTED (throttled)"
+                         : x.code() == 14 ? "UNAVAILABLE"
+                         : x.code() == 4  ? "DEADLINE_EXCEEDED"
+                                          : "an error";
+      return absl::StrCat("broker answered ", x.method(), " with ", what,
+                          x.retry_after_ns() > 0
+                              ? absl::StrCat(", retry after ", FormatTime(x.retry_after_ns()))
+                              : std::string());
+    }
+    case TraceEvent::kFaultApplied: {
+      std::string text = e.fault_applied().decision().ShortDebugString();
+      return absl::StrCat("fault applied: ", text);
+    }
+    case TraceEvent::kBrokerCall:
+      return absl::StrCat("connector called ", e.broker_call().method(), " #",
+                          e.broker_call().position());
     case TraceEvent::KIND_NOT_SET:
       break;
   }

@@ -13,7 +13,8 @@ using testing::TraceRecorder;
 
 class BrokerModelTest : public ::testing::Test {
  protected:
-  BrokerModelTest() : scenario_(SmallScenario(3)), model_(scenario_, 11, log_) {
+  BrokerModelTest()
+      : scenario_(SmallScenario(3)), faults_(scenario_.faults(), 11, log_), model_(scenario_, 11, log_, faults_) {
     log_.AddObserver(&rec_);
   }
   v1::PullResponse Pull(VirtualTime now, std::uint32_t n = 10) {
@@ -32,6 +33,7 @@ class BrokerModelTest : public ::testing::Test {
   v1::Scenario scenario_;
   TraceLog log_;
   TraceRecorder rec_;
+  FaultSource faults_;
   BrokerModel model_;
 };
 

@@ -16,16 +16,21 @@ using testing::SmallScenario;
 using testing::TraceRecorder;
 
 struct Harness {
-  explicit Harness(v1::Scenario s) : scenario(std::move(s)), broker(scenario, 3, log), session(broker, log) {
+  explicit Harness(v1::Scenario s)
+      : scenario(std::move(s)),
+        faults(scenario.faults(), 3, log),
+        broker(scenario, 3, log, faults),
+        session(broker, log, faults) {
     log.AddObserver(&rec);
   }
   RunSummary Run() {
-    RuntimeModel runtime(scenario, broker, session, port, log);
+    RuntimeModel runtime(scenario, broker, session, port, log, faults);
     return runtime.Run();
   }
   v1::Scenario scenario;
   TraceLog log;
   TraceRecorder rec;
+  FaultSource faults;
   BrokerModel broker;
   BrokerSession session;
   FakeConnector port;
