@@ -46,6 +46,13 @@ class BrokerEndpoint {
   // The connector called `method` while no connector call was in progress; the
   // transport refused it. Recorded as a protocol error.
   virtual void OnStrayCall(const std::string& method) = 0;
+
+  // Crash-point hook (see harness/runtime/crash_gate.h): true once the runtime
+  // wants the connector killed now, right after the broker call that just
+  // completed. A ConnectorPort checks it after serving each broker call and, if
+  // set, kills the connector before it can do anything else. Plain endpoints
+  // never ask.
+  virtual bool CrashRequested() const { return false; }
 };
 
 }  // namespace weir

@@ -11,6 +11,7 @@ BrokerModel::BrokerModel(const v1::Scenario& scenario, std::uint64_t seed, Trace
     : scenario_(scenario), seed_(seed), trace_(trace), faults_(faults), workload_(scenario.workload(), seed) {}
 
 void BrokerModel::AdvanceTo(VirtualTime now) {
+  Prune(now);
   for (;;) {
     while (!leases_.empty()) {
       const Lease& top = leases_.top();
@@ -19,15 +20,22 @@ void BrokerModel::AdvanceTo(VirtualTime now) {
           it->second.receipt == top.receipt && it->second.lease_deadline == top.deadline) {
         break;
       }
-      leases_.pop();  // superseded by an ack, nack, extension or redelivery
+      leases_.pop();  // superseded by an ack, nack, extension, redelivery or restart
     }
     const MessageSpec* next = workload_.Peek();
     const VirtualTime publish_at = next != nullptr ? next->publish_time : kNever;
+    const VirtualTime reveal_at = hidden_.empty() ? kNever : hidden_.top().at;
     const VirtualTime expire_at = leases_.empty() ? kNever : leases_.top().deadline;
-    if (std::min(publish_at, expire_at) > now) return;
-    if (publish_at <= expire_at) {
+    if (std::min({publish_at, reveal_at, expire_at}) > now) return;
+    // Ties: publish, then reveal, then expire — a fixed order keeps traces stable.
+    if (publish_at <= reveal_at && publish_at <= expire_at) {
       Publish(*next);
       workload_.Pop();
+    } else if (reveal_at <= expire_at) {
+      const std::uint64_t id = hidden_.top().message_id;
+      hidden_.pop();
+      messages_.at(id).state = State::kReady;
+      ready_.push_back(id);
     } else {
       const Lease lease = leases_.top();
       leases_.pop();
@@ -36,12 +44,23 @@ void BrokerModel::AdvanceTo(VirtualTime now) {
   }
 }
 
+void BrokerModel::Prune(VirtualTime now) {
+  // A duplicate of an acked message may come at most the horizon after its
+  // ack; past that the broker has no reason to remember it.
+  const VirtualDuration horizon = Millis(scenario_.broker().redelivery_horizon_ms());
+  while (!ack_order_.empty() && SaturatingAdd(ack_order_.front().first, horizon) < now) {
+    recently_acked_.erase(ack_order_.front().second);
+    ack_order_.pop_front();
+  }
+  for (auto it = ghosts_.begin(); it != ghosts_.end();) {
+    it = it->second.deadline <= now ? ghosts_.erase(it) : std::next(it);
+  }
+}
+
 void BrokerModel::Publish(const MessageSpec& spec) {
   Message m;
   m.publish_time = spec.publish_time;
   m.event_time = spec.event_time;
-  messages_.emplace(spec.id, m);
-  ready_.push_back(spec.id);
   ++published_;
   auto& e = trace_.Append(spec.publish_time);
   auto* p = e.mutable_published();
@@ -49,6 +68,26 @@ void BrokerModel::Publish(const MessageSpec& spec) {
   p->set_event_time_ns(spec.event_time);
   p->set_payload_crc32c(Crc32c(MessagePayload(seed_, spec.id, scenario_.workload().payload_bytes())));
   trace_.Commit();
+
+  const auto& cfg = faults_.config();
+  auto delay = faults_.Decide(
+      v1::PUBLISH, spec.id, v1::FaultDecision::kVisibilityDelayMs, spec.publish_time,
+      [&](v1::FaultDecision* out) {
+        if (cfg.max_visibility_delay_ms() <= 0) return false;
+        if (!faults_.Chance("visibility_delay", spec.id, cfg.visibility_delay_rate())) return false;
+        out->set_visibility_delay_ms(
+            faults_.Int("visibility_delay", spec.id, 1, cfg.max_visibility_delay_ms()));
+        return true;
+      });
+  if (delay.has_value() && delay->visibility_delay_ms() > 0) {
+    m.state = State::kHidden;
+    hidden_.push(Reveal{SaturatingAdd(spec.publish_time, Millis(delay->visibility_delay_ms())),
+                        spec.id});
+    messages_.emplace(spec.id, m);
+    return;
+  }
+  messages_.emplace(spec.id, m);
+  ready_.push_back(spec.id);
 }
 
 void BrokerModel::ExpireLease(const Lease& lease) {
@@ -63,46 +102,153 @@ void BrokerModel::ExpireLease(const Lease& lease) {
   trace_.Commit();
 }
 
+void BrokerModel::Restart(VirtualTime now) {
+  std::vector<std::uint64_t> leased;
+  for (const auto& [id, m] : messages_) {
+    if (m.state == State::kLeased) leased.push_back(id);
+  }
+  std::sort(leased.begin(), leased.end());  // hash order must not reach the trace
+  for (std::uint64_t id : leased) {
+    Message& m = messages_.at(id);
+    m.state = State::kReady;
+    receipt_owner_.erase(m.receipt);
+    ready_.push_back(id);
+    auto& e = trace_.Append(now);
+    auto* x = e.mutable_lease_expired();
+    x->set_message_id(id);
+    x->set_receipt(m.receipt);
+    trace_.Commit();
+  }
+  ghosts_.clear();
+}
+
+void BrokerModel::Shuffle(std::uint64_t position) {
+  // Fisher–Yates with one position-keyed draw per slot: replaying the same
+  // pull position gives the same order.
+  std::vector<std::uint64_t> ids(ready_.begin(), ready_.end());
+  for (std::size_t i = ids.size(); i > 1; --i) {
+    const auto j = static_cast<std::size_t>(
+        faults_.Int("reorder.shuffle", position, 0, static_cast<std::int64_t>(i - 1), i));
+    std::swap(ids[i - 1], ids[j]);
+  }
+  ready_.assign(ids.begin(), ids.end());
+}
+
+void BrokerModel::FillDelivery(std::uint64_t id, const Message& m,
+                               v1::PullResponse* response) const {
+  v1::Delivery* d = response->add_deliveries();
+  d->set_message_id(id);
+  d->set_receipt(m.receipt);
+  d->set_payload(MessagePayload(seed_, id, scenario_.workload().payload_bytes()));
+  d->set_payload_crc32c(Crc32c(d->payload()));
+  d->set_event_time_ns(m.event_time);
+  d->set_publish_time_ns(m.publish_time);
+  d->set_lease_deadline_ns(m.lease_deadline);
+  d->set_attempt(m.attempts);
+  const auto& sources = scenario_.workload().sources();
+  if (!sources.empty()) {
+    (*d->mutable_attributes())["source"] =
+        sources[static_cast<int>((id - 1) % static_cast<std::uint64_t>(sources.size()))];
+  }
+}
+
+void BrokerModel::TraceDelivered(VirtualTime now, std::uint64_t id, std::uint64_t receipt,
+                                 std::uint32_t attempt, VirtualTime deadline) {
+  auto& e = trace_.Append(now);
+  auto* x = e.mutable_delivered();
+  x->set_message_id(id);
+  x->set_receipt(receipt);
+  x->set_attempt(attempt);
+  x->set_lease_deadline_ns(deadline);
+  trace_.Commit();
+}
+
+void BrokerModel::Deliver(std::uint64_t id, VirtualTime now, v1::PullResponse* response) {
+  Message& m = messages_.at(id);
+  if (m.state == State::kLeased) receipt_owner_.erase(m.receipt);  // superseded
+  m.state = State::kLeased;
+  m.attempts++;
+  m.receipt = ++last_receipt_;
+  m.lease_deadline = SaturatingAdd(now, Millis(scenario_.broker().lease_ms()));
+  receipt_owner_[m.receipt] = id;
+  leases_.push(Lease{m.lease_deadline, m.receipt, id});
+  FillDelivery(id, m, response);
+  TraceDelivered(now, id, m.receipt, m.attempts, m.lease_deadline);
+}
+
+bool BrokerModel::HasDuplicateCandidate() const {
+  if (!recently_acked_.empty()) return true;
+  for (const auto& [id, m] : messages_) {
+    if (m.state == State::kLeased) return true;
+  }
+  return false;
+}
+
+bool BrokerModel::Duplicate(std::uint64_t position, VirtualTime now, v1::PullResponse* response) {
+  std::vector<std::uint64_t> candidates;
+  for (const auto& [id, m] : messages_) {
+    if (m.state == State::kLeased) candidates.push_back(id);
+  }
+  for (const auto& [id, a] : recently_acked_) candidates.push_back(id);  // pruned: within horizon
+  if (candidates.empty()) return false;
+  std::sort(candidates.begin(), candidates.end());
+  const std::uint64_t id = candidates[static_cast<std::size_t>(faults_.Int(
+      "duplicate.pick", position, 0, static_cast<std::int64_t>(candidates.size() - 1)))];
+  if (messages_.contains(id)) {
+    Deliver(id, now, response);
+    return true;
+  }
+  Message& m = recently_acked_.at(id).message;
+  m.attempts++;
+  m.receipt = ++last_receipt_;
+  m.lease_deadline = SaturatingAdd(now, Millis(scenario_.broker().lease_ms()));
+  ghosts_[m.receipt] = Ghost{id, m.lease_deadline};
+  FillDelivery(id, m, response);
+  TraceDelivered(now, id, m.receipt, m.attempts, m.lease_deadline);
+  return true;
+}
+
 void BrokerModel::Pull(const v1::PullRequest& request, VirtualTime now,
-                       v1::PullResponse* response) {
+                       v1::PullResponse* response, std::uint64_t position) {
   AdvanceTo(now);
   std::uint32_t n = request.max_messages();
   if (scenario_.broker().max_pull() > 0) n = std::min(n, scenario_.broker().max_pull());
-  const VirtualDuration lease = Millis(scenario_.broker().lease_ms());
-  const std::uint32_t payload_bytes = scenario_.workload().payload_bytes();
+  const auto& cfg = faults_.config();
+  if (position > 0) {
+    if (faults_.Decide(v1::PULL, position, v1::FaultDecision::kBrokerRestart, now,
+                       [&](v1::FaultDecision* out) {
+                         if (!faults_.Chance("broker_restart", position, cfg.broker_restart_rate()))
+                           return false;
+                         out->set_broker_restart(true);
+                         return true;
+                       })) {
+      Restart(now);
+    }
+    if (faults_.Decide(v1::PULL, position, v1::FaultDecision::kReorder, now,
+                       [&](v1::FaultDecision* out) {
+                         if (ready_.size() < 2) return false;  // nothing to reorder
+                         if (!faults_.Chance("reorder", position, cfg.reorder_rate())) return false;
+                         out->set_reorder(true);
+                         return true;
+                       })) {
+      Shuffle(position);
+    }
+    if (n > 0 && faults_.Decide(v1::PULL, position, v1::FaultDecision::kDuplicate, now,
+                                [&](v1::FaultDecision* out) {
+                                  if (!faults_.Chance("duplicate", position, cfg.duplicate_rate()))
+                                    return false;
+                                  if (!HasDuplicateCandidate()) return false;
+                                  out->set_duplicate(true);
+                                  return true;
+                                })) {
+      // The copy takes one of the n slots: a connector never gets more than it asked for.
+      if (Duplicate(position, now, response)) --n;
+    }
+  }
   for (std::uint32_t i = 0; i < n && !ready_.empty(); ++i) {
     const std::uint64_t id = ready_.front();
     ready_.pop_front();
-    Message& m = messages_.at(id);
-    m.state = State::kLeased;
-    m.attempts++;
-    m.receipt = ++last_receipt_;
-    m.lease_deadline = SaturatingAdd(now, lease);
-    receipt_owner_[m.receipt] = id;
-    leases_.push(Lease{m.lease_deadline, m.receipt, id});
-
-    v1::Delivery* d = response->add_deliveries();
-    d->set_message_id(id);
-    d->set_receipt(m.receipt);
-    d->set_payload(MessagePayload(seed_, id, payload_bytes));
-    d->set_payload_crc32c(Crc32c(d->payload()));
-    d->set_event_time_ns(m.event_time);
-    d->set_publish_time_ns(m.publish_time);
-    d->set_lease_deadline_ns(m.lease_deadline);
-    d->set_attempt(m.attempts);
-    const auto& sources = scenario_.workload().sources();
-    if (!sources.empty()) {
-      (*d->mutable_attributes())["source"] =
-          sources[static_cast<int>((id - 1) % static_cast<std::uint64_t>(sources.size()))];
-    }
-
-    auto& e = trace_.Append(now);
-    auto* x = e.mutable_delivered();
-    x->set_message_id(id);
-    x->set_receipt(m.receipt);
-    x->set_attempt(m.attempts);
-    x->set_lease_deadline_ns(m.lease_deadline);
-    trace_.Commit();
+    Deliver(id, now, response);
   }
   response->set_now_ns(now);
 }
@@ -136,14 +282,44 @@ void BrokerModel::TraceIgnored(VirtualTime now, const char* call, std::uint64_t 
   trace_.Commit();
 }
 
-void BrokerModel::Ack(const v1::AckRequest& request, VirtualTime now) {
+void BrokerModel::Ack(const v1::AckRequest& request, VirtualTime now, std::uint64_t position) {
   AdvanceTo(now);
+  if (position > 0 &&
+      faults_.Decide(v1::ACK, position, v1::FaultDecision::kLostAck, now,
+                     [&](v1::FaultDecision* out) {
+                       if (!faults_.Chance("lost_ack", position, faults_.config().lost_ack_rate()))
+                         return false;
+                       out->set_lost_ack(true);
+                       return true;
+                     })) {
+    for (std::uint64_t receipt : request.receipts()) {
+      auto owner = receipt_owner_.find(receipt);
+      TraceIgnored(now, "ack", receipt, owner != receipt_owner_.end() ? owner->second : 0,
+                   "lost by a fault; the lease will run out");
+    }
+    return;
+  }
+  const bool remember = scenario_.broker().redelivery_horizon_ms() > 0;
   for (std::uint64_t receipt : request.receipts()) {
+    if (auto g = ghosts_.find(receipt); g != ghosts_.end()) {
+      // A copy of an acked message: acking it again is harmless.
+      auto& e = trace_.Append(now);
+      e.mutable_acked()->set_message_id(g->second.message_id);
+      e.mutable_acked()->set_receipt(receipt);
+      trace_.Commit();
+      ghosts_.erase(g);
+      continue;
+    }
     std::uint64_t id;
     const char* reason;
-    if (Holder(receipt, now, &id, &reason) == nullptr) {
+    Message* m = Holder(receipt, now, &id, &reason);
+    if (m == nullptr) {
       TraceIgnored(now, "ack", receipt, id, reason);
       continue;
+    }
+    if (remember) {
+      recently_acked_[id] = Acked{*m, now};
+      ack_order_.emplace_back(now, id);
     }
     messages_.erase(id);
     receipt_owner_.erase(receipt);
@@ -158,6 +334,12 @@ void BrokerModel::Ack(const v1::AckRequest& request, VirtualTime now) {
 void BrokerModel::Nack(const v1::NackRequest& request, VirtualTime now) {
   AdvanceTo(now);
   for (std::uint64_t receipt : request.receipts()) {
+    if (auto g = ghosts_.find(receipt); g != ghosts_.end()) {
+      TraceIgnored(now, "nack", receipt, g->second.message_id,
+                   "copy of an already acked message; nothing to redeliver");
+      ghosts_.erase(g);
+      continue;
+    }
     std::uint64_t id;
     const char* reason;
     Message* m = Holder(receipt, now, &id, &reason);
@@ -180,6 +362,16 @@ void BrokerModel::ExtendLease(const v1::ExtendLeaseRequest& request, VirtualTime
                               v1::ExtendLeaseResponse* response) {
   AdvanceTo(now);
   for (std::uint64_t receipt : request.receipts()) {
+    if (auto g = ghosts_.find(receipt); g != ghosts_.end() && request.extension_ns() > 0) {
+      g->second.deadline = SaturatingAdd(now, request.extension_ns());
+      auto& e = trace_.Append(now);
+      auto* x = e.mutable_lease_extended();
+      x->set_message_id(g->second.message_id);
+      x->set_receipt(receipt);
+      x->set_lease_deadline_ns(g->second.deadline);
+      trace_.Commit();
+      continue;
+    }
     std::uint64_t id;
     const char* reason;
     Message* m = Holder(receipt, now, &id, &reason);

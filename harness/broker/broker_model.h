@@ -10,16 +10,35 @@
 // applies publishes and lease expiries up to now in time order, so nothing has
 // to be scheduled for them.
 //
+// Faults (each through FaultSource, keyed by position; `position` 0 on a call
+// means "not a counted broker call": no per-call faults):
+//   - delayed visibility (PUBLISH k = message id): published at its time,
+//     deliverable only visibility_delay_ms later;
+//   - broker restart (PULL k, before it): every lease dropped (traced as
+//     lease_expired), everything unacked deliverable again;
+//   - reorder (PULL k): the deliverable messages are shuffled before handing out;
+//   - duplicate (PULL k): one of the handed-out slots is another copy, with a
+//     new receipt, of a message that is still leased (the new receipt
+//     supersedes the old one, as any redelivery does) or that was acked at most
+//     broker.redelivery_horizon_ms ago (a "ghost" delivery: acking, nacking or
+//     letting it expire changes nothing, so it is never redelivered again);
+//   - lost ack (ACK k): the call answers OK and the broker forgets its acks.
+//
 // Invariants:
-//   - a message is in exactly one of: unpublished, ready, leased, acked;
+//   - a message is in exactly one of: unpublished, hidden (published, not yet
+//     visible), ready, leased, acked;
 //   - only the newest receipt of a leased message can ack, nack or extend it;
-//   - memory holds only published, unacked messages (what is in flight).
+//   - memory holds only published, unacked messages (what is in flight), plus
+//     messages acked within the redelivery horizon and their ghost receipts
+//     (pruned as virtual time passes).
 //
 // Thread safety: none; the simulation thread owns the model.
 #pragma once
 
 #include <cstdint>
 #include <deque>
+#include <map>
+#include <utility>
 #include <queue>
 #include <vector>
 
@@ -42,8 +61,10 @@ class BrokerModel {
   void AdvanceTo(VirtualTime now);
 
   // Each REQUIRES: now is not earlier than any earlier call's now.
-  void Pull(const v1::PullRequest& request, VirtualTime now, v1::PullResponse* response);
-  void Ack(const v1::AckRequest& request, VirtualTime now);
+  // `position`: this call's 1-based position among calls of its method (0: none).
+  void Pull(const v1::PullRequest& request, VirtualTime now, v1::PullResponse* response,
+            std::uint64_t position = 0);
+  void Ack(const v1::AckRequest& request, VirtualTime now, std::uint64_t position = 0);
   void Nack(const v1::NackRequest& request, VirtualTime now);
   void ExtendLease(const v1::ExtendLeaseRequest& request, VirtualTime now,
                    v1::ExtendLeaseResponse* response);
@@ -56,9 +77,11 @@ class BrokerModel {
   std::size_t in_flight() const { return messages_.size(); }
   // True when a Pull now would hand out nothing (after AdvanceTo(now)).
   bool nothing_deliverable() const { return ready_.empty(); }
+  // Messages acked within the redelivery horizon still remembered (for tests).
+  std::size_t remembered_acks() const { return recently_acked_.size(); }
 
  private:
-  enum class State : std::uint8_t { kReady, kLeased };
+  enum class State : std::uint8_t { kHidden, kReady, kLeased };
   struct Message {
     VirtualTime publish_time = 0;
     VirtualTime event_time = 0;
@@ -77,7 +100,34 @@ class BrokerModel {
     }
   };
 
+  struct Acked {
+    Message message;  // as it was when acked (times, attempts)
+    VirtualTime acked_at = 0;
+  };
+  struct Ghost {  // a delivery of an already acked message
+    std::uint64_t message_id = 0;
+    VirtualTime deadline = 0;
+  };
+  struct Reveal {  // a hidden message becoming visible
+    VirtualTime at;
+    std::uint64_t message_id;
+    bool operator>(const Reveal& o) const {
+      return at != o.at ? at > o.at : message_id > o.message_id;
+    }
+  };
+
   void Publish(const MessageSpec& spec);
+  void Prune(VirtualTime now);
+  void Restart(VirtualTime now);
+  void Shuffle(std::uint64_t position);
+  // Hands out message `id` (ready or leased) as a new delivery.
+  void Deliver(std::uint64_t id, VirtualTime now, v1::PullResponse* response);
+  bool HasDuplicateCandidate() const;
+  // Hands out one more copy of a leased or recently acked message, if any.
+  bool Duplicate(std::uint64_t position, VirtualTime now, v1::PullResponse* response);
+  void FillDelivery(std::uint64_t id, const Message& m, v1::PullResponse* response) const;
+  void TraceDelivered(VirtualTime now, std::uint64_t id, std::uint64_t receipt,
+                      std::uint32_t attempt, VirtualTime deadline);
   void ExpireLease(const Lease& lease);
   // The leased message this receipt currently holds, or nullptr (and the reason).
   Message* Holder(std::uint64_t receipt, VirtualTime now, std::uint64_t* message_id,
@@ -94,6 +144,10 @@ class BrokerModel {
   absl::flat_hash_map<std::uint64_t, std::uint64_t> receipt_owner_;  // live receipts only
   std::deque<std::uint64_t> ready_;
   std::priority_queue<Lease, std::vector<Lease>, std::greater<Lease>> leases_;
+  std::priority_queue<Reveal, std::vector<Reveal>, std::greater<Reveal>> hidden_;
+  absl::flat_hash_map<std::uint64_t, Acked> recently_acked_;
+  std::deque<std::pair<VirtualTime, std::uint64_t>> ack_order_;  // (acked_at, id), time order
+  std::map<std::uint64_t, Ghost> ghosts_;  // by receipt; ordered so pruning is deterministic
   std::uint64_t published_ = 0;
   std::uint64_t last_receipt_ = 0;
 };

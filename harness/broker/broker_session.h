@@ -6,6 +6,21 @@
 // outside any window is a protocol error: it is refused with
 // FAILED_PRECONDITION and written to the trace.
 //
+// Per-call faults. Each broker call is the k-th call of its method (site PULL,
+// ACK, NACK or EXTEND_LEASE, position k, 1-based) and is traced as broker_call
+// at its start. Then, in this order, each through FaultSource:
+//   1. latency: the call's virtual now moves forward before it takes effect;
+//   2. throttling: a call inside a scripted throttle window is throttled until
+//      the window's end; otherwise the token bucket (RFC 2697 single-rate
+//      bucket: one token per 1/rate_per_s seconds, at most `burst`, initially
+//      full; each admitted call takes one) throttles a call that finds none,
+//      until the next token. Either way the outcome is a throttle_retry_after_ms
+//      decision, so a replayed plan reproduces it without the bucket;
+//   3. transient UNAVAILABLE / DEADLINE_EXCEEDED.
+// A call failed by 2 or 3 does not reach the model and is traced as
+// broker_call_failed. Draws are keyed by (method, k), so turning one kind off
+// never moves another kind's draws.
+//
 // Thread safety: none; every method runs on the simulation thread.
 #pragma once
 
@@ -42,7 +57,14 @@ class BrokerSession : public BrokerEndpoint {
  private:
   // Common entry: checks the window, counts the call. Returns false (and fills
   // *status) when the call must be refused.
-  bool Enter(const char* method, CallStatus* status);
+  // Then applies the per-call faults (see above): false (and *status filled)
+  // when the call fails; *position is the call's position among its method's.
+  bool Enter(const char* method, v1::Site site, CallStatus* status, std::uint64_t* position);
+  // The throttle decision for this call, if any (consults windows and bucket).
+  bool Throttled(v1::Site site, std::uint64_t position, VirtualDuration* retry_after);
+  // Takes a token if one is there; else *wait is the time until the next one.
+  bool TakeToken(VirtualDuration* wait);
+  void TraceFailure(const char* method, const CallStatus& status);
 
   BrokerModel& model_;
   TraceLog& trace_;
@@ -50,6 +72,10 @@ class BrokerSession : public BrokerEndpoint {
   bool in_call_ = false;
   VirtualTime now_ = 0;
   std::uint64_t calls_in_window_ = 0;
+  std::uint64_t calls_[5] = {0, 0, 0, 0, 0};  // by v1::Site (PULL..EXTEND_LEASE)
+  // Token bucket: tokens held, and the refill ticks counted so far.
+  std::int64_t tokens_ = -1;  // -1: not yet initialized (full at time 0)
+  std::int64_t ticks_ = 0;
 };
 
 }  // namespace weir

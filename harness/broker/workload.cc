@@ -32,6 +32,9 @@ void Workload::Generate() {
     clock_ += config_.arrival() == v1::Workload::POISSON
                   ? arrivals_.Exponential(static_cast<double>(mean))
                   : mean;
+    if (config_.idle_gap_every() > 0 && generated_ % config_.idle_gap_every() == 0) {
+      clock_ += Millis(config_.idle_gap_ms());
+    }
   }
   ++generated_;
   next_.id = generated_;

@@ -4,6 +4,7 @@
 #include <unistd.h>
 
 #include <cstdio>
+#include <optional>
 #include <cstdlib>
 #include <iostream>
 #include <random>
@@ -12,10 +13,12 @@
 
 #include <CLI/CLI.hpp>
 
+#include "absl/strings/match.h"
 #include "absl/strings/str_cat.h"
 #include "harness/cli/command_line.h"
 #include "harness/edge/grpc_run.h"
 #include "harness/report/text_report.h"
+#include "harness/scenario/plan_file.h"
 #include "harness/scenario/scenario_file.h"
 
 namespace weir {
@@ -34,7 +37,23 @@ struct RunFlags {
   std::vector<std::string> command;
   std::string trace;
   std::string transport = "tcp";
+  std::string plan;
+  std::string save_plan;
 };
+
+// Writes "<path>.partial" and renames it, so a failed write leaves nothing.
+absl::Status WriteFileAtomically(const std::string& path, const std::string& text) {
+  const std::string partial = path + ".partial";
+  std::FILE* f = std::fopen(partial.c_str(), "wb");
+  bool ok = f != nullptr && std::fwrite(text.data(), 1, text.size(), f) == text.size();
+  if (f != nullptr && std::fclose(f) != 0) ok = false;
+  if (ok) ok = std::rename(partial.c_str(), path.c_str()) == 0;
+  if (!ok) {
+    std::remove(partial.c_str());
+    return absl::UnavailableError(absl::StrCat(path, ": cannot write"));
+  }
+  return absl::OkStatus();
+}
 
 int UsageError(const std::string& message) {
   std::fprintf(stderr, "weir: %s\n", message.c_str());
@@ -61,6 +80,7 @@ std::string ReplayLine(const RunFlags& flags, const std::vector<std::string>& ar
   std::string line = absl::StrCat("weir run --scenario ", ShellQuote(flags.scenario), " --seed ",
                                   flags.seed);
   if (flags.transport != "tcp") absl::StrAppend(&line, " --transport ", flags.transport);
+  if (!flags.plan.empty()) absl::StrAppend(&line, " --plan ", ShellQuote(flags.plan));
   absl::StrAppend(&line, " --connector ", ShellQuote(ShellJoin(argv)));
   return line;
 }
@@ -103,7 +123,18 @@ int RunCommand(RunFlags& flags) {
     return kExitUsage;
   }
 
+  std::optional<v1::FaultPlan> plan;
+  if (!flags.plan.empty()) {
+    auto loaded = LoadFaultPlan(flags.plan);
+    if (!loaded.ok()) {
+      std::fprintf(stderr, "%s\n", std::string(loaded.status().message()).c_str());
+      return kExitUsage;
+    }
+    plan = std::move(*loaded);
+  }
+
   RunSpec spec;
+  spec.plan = plan;
   spec.scenario = std::move(*scenario);
   spec.scenario_path = flags.scenario;
   spec.seed = flags.seed;
@@ -117,6 +148,14 @@ int RunCommand(RunFlags& flags) {
                  std::string(out.status().message()).c_str(), replay.c_str());
     return kExitHarness;
   }
+  if (!flags.save_plan.empty()) {
+    const std::string text = FormatFaultPlan(
+        out->plan, absl::StrCat("Fault plan of scenario ", flags.scenario, ", seed ", flags.seed, "."));
+    if (absl::Status st = WriteFileAtomically(flags.save_plan, text); !st.ok()) {
+      std::fprintf(stderr, "weir: %s\n", std::string(st.message()).c_str());
+      return kExitHarness;
+    }
+  }
   const RunSummary& s = out->summary;
   std::printf("scenario   %s (%s)\n", flags.scenario.c_str(), spec.scenario.name().c_str());
   std::printf("connector  %s\n", ShellJoin(argv).c_str());
@@ -129,13 +168,40 @@ int RunCommand(RunFlags& flags) {
       static_cast<unsigned long long>(s.incarnations), static_cast<unsigned long long>(s.steps),
       static_cast<unsigned long long>(s.checkpoints), static_cast<unsigned long long>(out->events));
   std::printf("digest     %s\n", out->digest.c_str());
+  std::printf("faults     %d applied%s\n", out->plan.decisions_size(),
+              flags.plan.empty() ? " (drawn from the scenario's rates)" : " (from the given plan)");
   if (!flags.trace.empty()) std::printf("trace      %s\n", flags.trace.c_str());
+  if (!flags.save_plan.empty()) std::printf("plan       %s\n", flags.save_plan.c_str());
   std::printf("\n%s", FormatVerdictTable(out->verdict).c_str());
   std::printf("%s", FormatViolations(out->verdict).c_str());
   const bool passed = out->verdict.passed();
   std::printf("\n%s\nreplay: %s\n", passed ? "PASSED: every invariant held." : "FAILED.",
               replay.c_str());
   return passed ? kExitPassed : kExitFailed;
+}
+
+// weir lint FILE…: validates scenario (.scenario) and fault plan (.plan)
+// files; prints every error as file:line:column and exits 2 if any.
+int LintCommand(const std::vector<std::string>& files) {
+  int bad = 0;
+  for (const std::string& file : files) {
+    absl::Status st;
+    if (absl::EndsWith(file, ".plan")) {
+      st = LoadFaultPlan(file).status();
+    } else if (absl::EndsWith(file, ".scenario")) {
+      st = LoadScenario(file).status();
+    } else {
+      st = absl::InvalidArgumentError(
+          absl::StrCat(file, ":1:1: unknown kind of file; expected a name ending in .scenario or .plan"));
+    }
+    if (st.ok()) {
+      std::printf("ok   %s\n", file.c_str());
+    } else {
+      ++bad;
+      std::fprintf(stderr, "%s\n", std::string(st.message()).c_str());
+    }
+  }
+  return bad == 0 ? kExitPassed : kExitUsage;
 }
 
 }  // namespace
@@ -156,6 +222,14 @@ int main(int argc, char** argv) {
   run->add_option("--trace", run_flags.trace, "Write the trace (JSON lines) to this file");
   run->add_option("--transport", run_flags.transport, "tcp (loopback, default) or unix");
   run->add_option("command", run_flags.command, "Connector command after --");
+  run->add_option("--plan", run_flags.plan,
+                  "Apply exactly this fault plan (text format) instead of the scenario's rates");
+  run->add_option("--save-plan", run_flags.save_plan,
+                  "Write the faults this run applied as a plan file (for --plan)");
+
+  std::vector<std::string> lint_files;
+  CLI::App* lint = app.add_subcommand("lint", "Validate scenario (.scenario) and plan (.plan) files");
+  lint->add_option("files", lint_files, "Files to check")->required();
 
   try {
     app.parse(argc, argv);
@@ -167,5 +241,6 @@ int main(int argc, char** argv) {
     run_flags.seed_given = run->count("--seed") > 0;
     return RunCommand(run_flags);
   }
+  if (lint->parsed()) return LintCommand(lint_files);
   return kExitUsage;
 }

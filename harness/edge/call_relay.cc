@@ -17,8 +17,9 @@ bool CallRelay::Submit(const char* method, Work work, std::chrono::milliseconds 
       task->refused = true;  // the simulation thread will skip it
       return false;
     }
-    // The work holds references into our caller's frame: wait for it to end.
-    done_cv_.wait(lock, [&] { return task->finished; });
+    // The work holds references into our caller's frame: wait for it to end
+    // (or to be refused after it ran, when its answer is held for a crash).
+    done_cv_.wait(lock, [&] { return task->finished || task->refused; });
   }
   return task->finished;
 }
@@ -47,6 +48,11 @@ CallRelay::Served CallRelay::ServeUntilDone(std::chrono::steady_clock::time_poin
       lock.unlock();
       task->work(*broker);
       lock.lock();
+      if (broker->CrashRequested()) {
+        // Hold the answer: the caller kills the connector, then Close().
+        held_ = std::move(task);
+        return Served::kCrashRequested;
+      }
       task->finished = true;
       done_cv_.notify_all();
     }
@@ -62,6 +68,10 @@ void CallRelay::Close() {
   broker_ = nullptr;
   for (auto& task : queue_) task->refused = true;
   queue_.clear();
+  if (held_ != nullptr) {
+    held_->refused = true;
+    held_.reset();
+  }
   done_cv_.notify_all();
 }
 

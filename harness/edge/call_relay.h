@@ -39,10 +39,14 @@ class CallRelay {
 
   // Simulation thread: opens a window dispatching to `broker`.
   void Open(BrokerEndpoint& broker);
-  enum class Served { kDone, kDeadline };
-  // Simulation thread: serves submitted work until Done() or the deadline.
+  enum class Served { kDone, kDeadline, kCrashRequested };
+  // Simulation thread: serves submitted work until Done() or the deadline, or
+  // until, right after a piece of work, the endpoint's CrashRequested() is set.
+  // In that last case the work's submitter is *not* released: its answer is
+  // held until Close(), so the caller can kill the connector first and the
+  // connector never sees that answer.
   Served ServeUntilDone(std::chrono::steady_clock::time_point deadline);
-  // Simulation thread: closes the window; pending work is refused.
+  // Simulation thread: closes the window; pending and held work is refused.
   void Close();
   // Simulation thread: names of broker methods called outside any window since
   // the last call; clears the list.
@@ -60,6 +64,7 @@ class CallRelay {
   std::condition_variable sim_cv_;   // wakes the simulation thread
   std::condition_variable done_cv_;  // wakes submitters
   std::deque<std::shared_ptr<Task>> queue_;
+  std::shared_ptr<Task> held_;  // ran, answer held back for a crash point
   BrokerEndpoint* broker_ = nullptr;
   bool done_ = false;
   std::vector<std::string> stray_;

@@ -112,12 +112,21 @@ ConnectorFailure GrpcConnectorPort::Invoke(const char* name, const Request& requ
     relay_.Done();
   });
   const CallRelay::Served served = relay_.ServeUntilDone(wall_deadline);
+  const bool crash = served == CallRelay::Served::kCrashRequested;
+  // A crash point: SIGKILL the process group while the broker answer is still
+  // held in the relay, so the connector dies without seeing it.
+  if (crash && child_ != nullptr) child_->Kill();
   relay_.Close();
-  if (served == CallRelay::Served::kDeadline) context.TryCancel();
+  if (served != CallRelay::Served::kDone) context.TryCancel();
   {
     // The callback refers to this frame: it must have run before we return.
     std::unique_lock<std::mutex> lock(mu);
     cv.wait(lock, [&] { return completed; });
+  }
+  if (crash) {
+    Kill();  // drop the channel and the reaped child: no incarnation is alive
+    return ConnectorFailure{ConnectorFailure::Kind::kCrashed,
+                            absl::StrCat("killed during ", name, " at a crash point"), "", ""};
   }
   if (served == CallRelay::Served::kDeadline ||
       status.error_code() == grpc::StatusCode::DEADLINE_EXCEEDED) {

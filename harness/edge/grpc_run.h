@@ -38,6 +38,8 @@ struct RunOutput {
   RunSummary summary;
   std::string digest;  // "sha256:…" over the event lines
   std::uint64_t events = 0;
+  // The faults the run applied: drawn from the scenario's rates, or the given plan.
+  v1::FaultPlan plan;
 };
 
 // Errors are harness faults (cannot listen, cannot write the trace…), never

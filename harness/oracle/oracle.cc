@@ -11,8 +11,10 @@ namespace weir {
 using v1::TraceEvent;
 
 Oracle::Oracle(const v1::Profile& profile)
-    : exactly_once_(profile.guarantee() == v1::Profile::EXACTLY_ONCE) {
+    : exactly_once_(profile.guarantee() == v1::Profile::EXACTLY_ONCE),
+      min_backoff_(Millis(profile.min_backoff_ms())) {
   verdict_.at(Invariant::kDuplicateOutput).checked = exactly_once_;
+  verdict_.at(Invariant::kRetryStorm).checked = min_backoff_ > 0;
 }
 
 void Oracle::Report(Invariant invariant, const std::string& sentence,
@@ -93,6 +95,7 @@ void Oracle::OnEvent(const TraceEvent& e) {
     case TraceEvent::kOpened:
       DiscardUncommitted();
       opened_ref_ = MakeRef(e);
+      methods_.clear();
       watermark_.reset();
       watermark_ref_ = EventRef{};
       if (e.opened().restored() && e.opened().has_watermark_ns()) {
@@ -125,6 +128,12 @@ void Oracle::OnEvent(const TraceEvent& e) {
       break;
     case TraceEvent::kRunEnded:
       OnRunEnded(e);
+      break;
+    case TraceEvent::kBrokerCall:
+      OnBrokerCall(e);
+      break;
+    case TraceEvent::kBrokerCallFailed:
+      OnBrokerCallFailed(e);
       break;
     default:
       break;
@@ -221,6 +230,49 @@ void Oracle::OnRunEnded(const TraceEvent& e) {
                         m.acked ? " although the broker received its ack" : "",
                         " when the run ended (", e.run_ended().reason(), ")."),
            {m.published, m.last_delivered, m.last_emitted}, &e);
+  }
+}
+
+void Oracle::OnBrokerCallFailed(const TraceEvent& e) {
+  const auto& x = e.broker_call_failed();
+  MethodState& m = methods_[x.method()];
+  if (x.code() == 8) {  // RESOURCE_EXHAUSTED
+    m.throttled = MakeRef(e);
+    m.throttled_until = SaturatingAdd(e.t_ns(), x.retry_after_ns());
+  } else if (x.code() == 14 || x.code() == 4) {  // UNAVAILABLE, DEADLINE_EXCEEDED
+    m.transient = MakeRef(e);
+  }
+}
+
+void Oracle::OnBrokerCall(const TraceEvent& e) {
+  auto it = methods_.find(e.broker_call().method());
+  if (it == methods_.end()) return;
+  const std::string& method = it->first;
+  MethodState& m = it->second;
+  const VirtualTime t = e.t_ns();
+  if (m.throttled.valid()) {
+    if (t < m.throttled_until) {
+      Report(Invariant::kThrottleViolation,
+             absl::StrCat("The connector called ", method, " again at ", FormatTime(t), ", ",
+                          FormatTime(m.throttled_until - t),
+                          " before the retry-after of its throttled ", method, " call (until ",
+                          FormatTime(m.throttled_until), ") had passed."),
+             {m.throttled}, &e);
+    } else {
+      m.throttled = EventRef{};  // served its time
+    }
+  }
+  if (m.transient.valid()) {
+    const VirtualDuration gap = t - m.transient.t;
+    if (min_backoff_ > 0 && gap < min_backoff_) {
+      Report(Invariant::kRetryStorm,
+             absl::StrCat("The connector retried ", method, " ", FormatTime(gap),
+                          " after a transient failure, sooner than the profile's minimum backoff "
+                          "of ",
+                          FormatTime(min_backoff_), "."),
+             {m.transient}, &e);
+    }
+    m.transient = EventRef{};  // only the next call after a failure is a retry
   }
 }
 

@@ -15,12 +15,21 @@
 //   watermark-regression: a reported watermark is lower than the one reported
 //     before it in the same incarnation, or than the watermark committed with
 //     the checkpoint the incarnation was restored from.
+//   throttle-violation: after a broker_call_failed with RESOURCE_EXHAUSTED at
+//     time t with retry-after r, a broker_call of the same method before t + r.
+//     Other methods are not restricted (acks may keep flowing).
+//   retry-storm (checked when profile.min_backoff_ms > 0): after a
+//     broker_call_failed with UNAVAILABLE or DEADLINE_EXCEEDED at time t, the
+//     next broker_call of the same method comes before t + min_backoff.
+//   Both are judged per incarnation: a new incarnation starts with a clean
+//   slate, since a fresh process cannot know what its predecessor was told.
 //
 // Thread safety: none.
 #pragma once
 
 #include <cstdint>
 #include <optional>
+#include <string>
 #include <vector>
 
 #include "absl/container/flat_hash_map.h"
@@ -67,6 +76,8 @@ class Oracle : public TraceObserver {
   void OnConnectorFailure(const v1::TraceEvent& e, const std::string& call, Invariant invariant,
                           const std::string& sentence);
   void OnRunEnded(const v1::TraceEvent& e);
+  void OnBrokerCall(const v1::TraceEvent& e);
+  void OnBrokerCallFailed(const v1::TraceEvent& e);
   bool IsCommitted(std::uint64_t id) const;
   void Retire(std::uint64_t id);
 
@@ -80,6 +91,14 @@ class Oracle : public TraceObserver {
   std::optional<std::int64_t> watermark_;
   EventRef watermark_ref_;
   EventRef opened_ref_;
+  // Per broker method (a handful of names), what limits its next call.
+  struct MethodState {
+    EventRef throttled;  // the last throttled call, while its retry-after runs
+    VirtualTime throttled_until = 0;
+    EventRef transient;  // the last transient failure, until the next call
+  };
+  const VirtualDuration min_backoff_;
+  absl::flat_hash_map<std::string, MethodState> methods_;
 };
 
 }  // namespace weir

@@ -12,6 +12,8 @@ const char* InvariantName(Invariant invariant) {
     case Invariant::kStepTimeout: return "step-timeout";
     case Invariant::kUnexpectedExit: return "unexpected-exit";
     case Invariant::kProtocolError: return "protocol-error";
+    case Invariant::kThrottleViolation: return "throttle-violation";
+    case Invariant::kRetryStorm: return "retry-storm";
     case Invariant::kCount: break;
   }
   return "unknown";
@@ -41,6 +43,13 @@ const char* InvariantRule(Invariant invariant) {
     case Invariant::kProtocolError:
       return "Every connector answer and broker call must be well-formed and refer only to "
              "messages, receipts and times that exist.";
+    case Invariant::kThrottleViolation:
+      return "After the broker throttles a call, the connector must not call that same method "
+             "again before the retry-after has passed (other methods, such as acks, may keep "
+             "flowing).";
+    case Invariant::kRetryStorm:
+      return "After a transient broker failure of a method, the connector's next call of that "
+             "method must come no sooner than the profile's minimum backoff.";
     case Invariant::kCount:
       break;
   }

@@ -23,6 +23,8 @@ enum class Invariant : int {
   kStepTimeout,
   kUnexpectedExit,
   kProtocolError,
+  kThrottleViolation,
+  kRetryStorm,
   kCount,  // not an invariant
 };
 

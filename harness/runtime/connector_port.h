@@ -8,6 +8,14 @@
 //
 // Every call is bounded in wall time by the implementation; a connector that
 // hangs, dies or answers garbage yields a ConnectorFailure, never a hang.
+//
+// Crash points inside a call: after serving each broker call, an
+// implementation checks `broker.CrashRequested()` (the runtime passes a
+// CrashGate, harness/runtime/crash_gate.h). When it is set, the implementation
+// kills the incarnation at once — before the connector can act on that
+// answer or make another call — abandons the call and returns Kind::kCrashed.
+// The gRPC edge SIGKILLs the process group while the broker answer is still
+// held on the simulation thread; the in-process fake returns from its call.
 #pragma once
 
 #include <cstdint>
@@ -25,6 +33,7 @@ struct ConnectorFailure {
     kTimeout,      // did not answer within the wall-clock bound
     kExited,       // the process ended during or before the call
     kCallFailed,   // answered the call with an error status
+    kCrashed,      // killed by the port because broker.CrashRequested(): a crash point, not a fault
   };
   Kind kind = Kind::kNone;
   std::string detail;       // what happened, for the report

@@ -10,6 +10,22 @@ namespace {
 // times in a row is livelocked: virtual time would never move again.
 constexpr std::uint64_t kMaxSameTimeSteps = 100000;
 
+// Crashes in a row without a completed step: the fault rates leave the
+// connector no room to work, and virtual time would never move again.
+constexpr std::uint64_t kMaxCrashesWithoutStep = 1000;
+
+// Names of crash points in the trace (crashed.point).
+const char* CrashPointName(v1::CrashPoint point) {
+  switch (point) {
+    case v1::BEFORE_STEP: return "before-step";
+    case v1::IN_STEP_AFTER_BROKER_CALL: return "in-step-after-broker-call";
+    case v1::AFTER_CHECKPOINT_BEFORE_COMMIT: return "after-checkpoint-before-commit";
+    case v1::AFTER_COMMIT_BEFORE_NOTICE: return "after-commit-before-notice";
+    case v1::IN_NOTICE_AFTER_ACK: return "in-notice-after-ack";
+    default: return "unspecified";
+  }
+}
+
 }  // namespace
 
 const char* FailureKindName(ConnectorFailure::Kind kind) {
@@ -19,6 +35,7 @@ const char* FailureKindName(ConnectorFailure::Kind kind) {
     case ConnectorFailure::Kind::kTimeout: return "timeout";
     case ConnectorFailure::Kind::kExited: return "exited";
     case ConnectorFailure::Kind::kCallFailed: return "call failed";
+    case ConnectorFailure::Kind::kCrashed: return "crashed at a crash point";
   }
   return "unknown";
 }
@@ -30,6 +47,7 @@ RuntimeModel::RuntimeModel(const v1::Scenario& scenario, BrokerModel& broker,
       broker_(broker),
       session_(session),
       port_(port),
+      gate_(session),
       trace_(trace),
       faults_(faults),
       hard_end_(SaturatingAdd(broker.last_publish_time(), Millis(scenario.runtime().drain_bound_ms()))) {}
@@ -38,7 +56,7 @@ template <typename Request, typename Response, typename Method>
 ConnectorFailure RuntimeModel::Call(Method method, Request& request, Response* response) {
   request.set_now_ns(now_);
   session_.BeginCall(now_);
-  ConnectorFailure failure = (port_.*method)(request, response, session_);
+  ConnectorFailure failure = (port_.*method)(request, response, gate_);
   now_ = std::max(now_, session_.EndCall());
   return failure;
 }
@@ -62,6 +80,7 @@ void RuntimeModel::TraceFailure(const char* call, const ConnectorFailure& failur
       break;
     }
     case ConnectorFailure::Kind::kCallFailed:
+    case ConnectorFailure::Kind::kCrashed:  // without the gate firing: a port bug
     case ConnectorFailure::Kind::kNone: {
       auto* x = e.mutable_protocol_error();
       x->set_call(call);
@@ -119,15 +138,55 @@ bool RuntimeModel::StartIncarnation() {
   return true;
 }
 
+bool RuntimeModel::CrashAndRestart(const char* point) {
+  port_.Kill();
+  ++crashes_;
+  {
+    auto& e = trace_.Append(now_);
+    e.mutable_crashed()->set_point(point);
+    trace_.Commit();
+  }
+  if (++crashes_since_step_ > kMaxCrashesWithoutStep) {
+    crash_loop_ = true;
+    return false;
+  }
+  return StartIncarnation();  // clears the open epoch, opens from the store's latest
+}
+
 bool RuntimeModel::DoStep() {
+  const std::uint64_t k = ++step_;
+  std::optional<v1::Crash> crash;
+  if (auto d = faults_.Decide(v1::STEP, k, v1::FaultDecision::kCrash, now_,
+                              [&](v1::FaultDecision* out) {
+                                if (!faults_.Chance("crash", k, faults_.config().crash_rate())) {
+                                  return false;
+                                }
+                                out->mutable_crash()->set_point(v1::BEFORE_STEP);
+                                return true;
+                              })) {
+    crash = d->crash();
+  }
+  if (crash.has_value() && crash->point() == v1::BEFORE_STEP) {
+    return CrashAndRestart(CrashPointName(v1::BEFORE_STEP));
+  }
+  const bool in_step = crash.has_value() && crash->point() == v1::IN_STEP_AFTER_BROKER_CALL;
+  if (in_step) gate_.Arm(CrashGate::Count::kAnyCall, crash->after_calls());
+
   v1::AdvanceRequest request;
-  request.set_step(++step_);
+  request.set_step(k);
   const VirtualTime asked_at = now_;
   v1::AdvanceResponse response;
-  if (ConnectorFailure f = Call(&ConnectorPort::Advance, request, &response); !f.ok()) {
+  ConnectorFailure f = Call(&ConnectorPort::Advance, request, &response);
+  const bool fired = gate_.fired();
+  gate_.Disarm();
+  // The gate decides, not the failure kind: a port that let the call finish
+  // anyway still gets its incarnation killed and its answer discarded.
+  if (fired) return CrashAndRestart(CrashPointName(v1::IN_STEP_AFTER_BROKER_CALL));
+  if (!f.ok()) {
     TraceFailure("Advance", f);
     return false;
   }
+  crashes_since_step_ = 0;
   const std::uint64_t total = broker_.total_messages();
   std::uint32_t accepted = 0;
   for (const v1::Record& r : response.records()) {
@@ -214,6 +273,48 @@ bool RuntimeModel::DoCheckpointCycle() {
     trace_.Commit();
   }
 
+  // Crash points of this checkpoint: one drawn out of the three, by its own
+  // streams so that turning commit failures on or off does not move them.
+  std::optional<v1::Crash> crash;
+  if (auto d = faults_.Decide(
+          v1::CHECKPOINT, id, v1::FaultDecision::kCrash, now_, [&](v1::FaultDecision* out) {
+            if (!faults_.Chance("checkpoint_crash", id, faults_.config().checkpoint_crash_rate())) {
+              return false;
+            }
+            static constexpr v1::CrashPoint kPoints[] = {v1::AFTER_CHECKPOINT_BEFORE_COMMIT,
+                                                         v1::AFTER_COMMIT_BEFORE_NOTICE,
+                                                         v1::IN_NOTICE_AFTER_ACK};
+            auto* c = out->mutable_crash();
+            c->set_point(kPoints[faults_.Int("checkpoint_crash.point", id, 0, 2)]);
+            if (c->point() == v1::IN_NOTICE_AFTER_ACK) c->set_after_calls(1);
+            return true;
+          })) {
+    crash = d->crash();
+  }
+  const auto crash_at = [&](v1::CrashPoint p) { return crash.has_value() && crash->point() == p; };
+  // The taken checkpoint is dropped with the epoch: it never reaches the store.
+  if (crash_at(v1::AFTER_CHECKPOINT_BEFORE_COMMIT)) {
+    return CrashAndRestart(CrashPointName(v1::AFTER_CHECKPOINT_BEFORE_COMMIT));
+  }
+
+  const auto failure = faults_.Decide(
+      v1::CHECKPOINT, id, v1::FaultDecision::kCommitFailure, now_, [&](v1::FaultDecision* out) {
+        if (!faults_.Chance("commit_failure", id, faults_.config().commit_failure_rate())) {
+          return false;
+        }
+        out->set_commit_failure(true);
+        return true;
+      });
+  if (failure.has_value() && failure->commit_failure()) {
+    // The epoch and checkpoint are discarded and no notice is sent; the
+    // connector cannot know which of its epochs are safe, so it restarts from
+    // the last committed checkpoint (leases expire, the broker redelivers).
+    auto& e = trace_.Append(now_);
+    e.mutable_commit_failed()->set_checkpoint_id(id);
+    trace_.Commit();
+    return CrashAndRestart("commit-failed");
+  }
+
   store_.Commit(CommittedCheckpoint{id, std::move(*response.mutable_state()), watermark_}, epoch);
   ++checkpoints_;
   {
@@ -221,16 +322,25 @@ bool RuntimeModel::DoCheckpointCycle() {
     e.mutable_committed()->set_checkpoint_id(id);
     trace_.Commit();
   }
+  // Committed but never noticed: the notice is not retried; leases expire.
+  if (crash_at(v1::AFTER_COMMIT_BEFORE_NOTICE)) {
+    return CrashAndRestart(CrashPointName(v1::AFTER_COMMIT_BEFORE_NOTICE));
+  }
 
   {
     auto& e = trace_.Append(now_);
     e.mutable_commit_notice()->set_checkpoint_id(id);
     trace_.Commit();
   }
+  if (crash_at(v1::IN_NOTICE_AFTER_ACK)) gate_.Arm(CrashGate::Count::kAckCalls, crash->after_calls());
   v1::CommittedRequest notice;
   notice.set_checkpoint_id(id);
   v1::CommittedResponse ignored;
-  if (ConnectorFailure f = Call(&ConnectorPort::Committed, notice, &ignored); !f.ok()) {
+  ConnectorFailure f = Call(&ConnectorPort::Committed, notice, &ignored);
+  const bool fired = gate_.fired();
+  gate_.Disarm();
+  if (fired) return CrashAndRestart(CrashPointName(v1::IN_NOTICE_AFTER_ACK));
+  if (!f.ok()) {
     TraceFailure("Committed", f);
     return false;
   }
@@ -278,7 +388,10 @@ RunSummary RuntimeModel::Run() {
         break;
     }
   }
-  if (!ok) {
+  if (!ok && crash_loop_) {
+    reason = "crash loop: " + std::to_string(kMaxCrashesWithoutStep) +
+             " crashes without a completed step";
+  } else if (!ok) {
     reason = "connector failed";
     summary.connector_failed = true;
   }
@@ -289,6 +402,7 @@ RunSummary RuntimeModel::Run() {
   summary.end_time = now_;
   summary.steps = step_;
   summary.incarnations = incarnation_;
+  summary.crashes = crashes_;
   summary.checkpoints = checkpoints_;
   summary.published = broker_.published();
   summary.committed_messages = store_.committed_messages();

@@ -16,6 +16,23 @@
 //     at most once, never retried;
 //   - a crash discards the open epoch; the next incarnation opens from the
 //     last committed checkpoint;
+//   - a crash is port.Kill() (SIGKILL to the process group for the gRPC edge),
+//     a `crashed{point}` event, then a new incarnation; it is never reported as
+//     an unexpected exit. An exit no crash point caused ends the run.
+//
+// Faults (decided through FaultSource, keyed by logical position):
+//   STEP k (k = step number, consumed even when the Advance is never sent):
+//     crash BEFORE_STEP (also drawn per step at crash_rate), or
+//     IN_STEP_AFTER_BROKER_CALL after the connector's n-th broker call of that
+//     Advance (through the CrashGate; if the step makes fewer calls, no crash).
+//   CHECKPOINT k (k = checkpoint id), after the checkpoint is taken:
+//     crash AFTER_CHECKPOINT_BEFORE_COMMIT, AFTER_COMMIT_BEFORE_NOTICE or
+//     IN_NOTICE_AFTER_ACK after the n-th Ack call of the notice (one of the
+//     three drawn at checkpoint_crash_rate); then commit_failure (drawn at
+//     commit_failure_rate), decided only if the commit is reached: the commit
+//     fails, the epoch is discarded, no notice is sent, and the connector is
+//     restarted from the last committed checkpoint (crashed{"commit-failed"}).
+//     A commit failure makes a later crash point of that checkpoint moot.
 //   - every exit path leaves no incarnation alive (port.Kill()).
 //
 // Thread safety: none; Run() is the simulation thread.
@@ -32,6 +49,7 @@
 #include "harness/faults/fault_source.h"
 #include "harness/runtime/commit_store.h"
 #include "harness/runtime/connector_port.h"
+#include "harness/runtime/crash_gate.h"
 #include "harness/trace/trace_log.h"
 #include "weir/v1/scenario.pb.h"
 
@@ -43,6 +61,7 @@ struct RunSummary {
   VirtualTime end_time = 0;
   std::uint64_t steps = 0;
   std::uint64_t incarnations = 0;
+  std::uint64_t crashes = 0;
   std::uint64_t checkpoints = 0;
   std::uint64_t published = 0;
   std::uint64_t committed_messages = 0;
@@ -69,6 +88,10 @@ class RuntimeModel {
   bool StartIncarnation();
   bool DoStep();
   bool DoCheckpointCycle();
+  // Kills the live incarnation at crash point `point` (kebab-case name),
+  // traces it and starts the next incarnation from the last committed
+  // checkpoint. Returns false when the restart failed or crashes loop.
+  bool CrashAndRestart(const char* point);
 
   // Wraps one connector call in a broker session window and moves now.
   template <typename Request, typename Response, typename Method>
@@ -83,6 +106,7 @@ class RuntimeModel {
   BrokerModel& broker_;
   BrokerSession& session_;
   ConnectorPort& port_;
+  CrashGate gate_;  // wraps session_; what the port sees as the broker
   TraceLog& trace_;
   FaultSource& faults_;
   const VirtualTime hard_end_;
@@ -96,6 +120,9 @@ class RuntimeModel {
   std::uint64_t checkpoint_timer_generation_ = 0;
   std::uint64_t checkpoints_ = 0;
   std::uint64_t same_time_steps_ = 0;
+  std::uint64_t crashes_ = 0;
+  std::uint64_t crashes_since_step_ = 0;  // guards against a crash loop
+  bool crash_loop_ = false;
   bool finished_ = false;  // the live incarnation said it is finished
   std::optional<VirtualTime> watermark_;  // last reported in this incarnation
   std::vector<std::uint64_t> open_epoch_;  // message ids of records not yet checkpointed

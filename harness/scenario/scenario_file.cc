@@ -1,6 +1,7 @@
 #include "harness/scenario/scenario_file.h"
 
 #include "absl/strings/str_cat.h"
+#include "harness/scenario/fault_validation.h"
 #include "harness/scenario/text_file.h"
 
 namespace weir {
@@ -29,6 +30,7 @@ void Validate(TextFile& f, const v1::Scenario& s) {
   CheckMillis(f, w.start_ms(), "workload", "start_ms", false);
   CheckMillis(f, w.publish_interval_ms(), "workload", "publish_interval_ms", true);
   CheckMillis(f, w.max_event_time_skew_ms(), "workload", "max_event_time_skew_ms", false);
+  CheckMillis(f, w.idle_gap_ms(), "workload", "idle_gap_ms", false);
   f.Require(w.payload_bytes() <= (1u << 20), {"workload", "payload_bytes"},
             absl::StrCat("workload.payload_bytes is ", w.payload_bytes(), "; expected at most 1048576"));
   if (w.messages() >= 1 && w.publish_interval_ms() >= 1) {
@@ -40,6 +42,9 @@ void Validate(TextFile& f, const v1::Scenario& s) {
   const auto& b = s.broker();
   CheckMillis(f, b.lease_ms(), "broker", "lease_ms", false);
   CheckMillis(f, b.redelivery_horizon_ms(), "broker", "redelivery_horizon_ms", false);
+  ValidateFaults(f, s.faults());
+  f.Require(s.profile().min_backoff_ms() >= 0, {"profile", "min_backoff_ms"},
+            absl::StrCat("profile.min_backoff_ms is ", s.profile().min_backoff_ms(), "; expected >= 0"));
   const auto& r = s.runtime();
   CheckMillis(f, r.checkpoint_interval_ms(), "runtime", "checkpoint_interval_ms", false);
   CheckMillis(f, r.drain_bound_ms(), "runtime", "drain_bound_ms", false);

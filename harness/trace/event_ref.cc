@@ -6,6 +6,16 @@ namespace {
 std::int64_t S(std::uint64_t v) { return static_cast<std::int64_t>(v); }
 std::uint64_t U(std::int64_t v) { return static_cast<std::uint64_t>(v); }
 
+// Broker methods are kept as small codes: an EventRef holds no strings.
+constexpr const char* kMethods[] = {"", "Pull", "Ack", "Nack", "ExtendLease"};
+std::int64_t MethodCode(const std::string& m) {
+  for (std::int64_t i = 1; i < 5; ++i) {
+    if (m == kMethods[i]) return i;
+  }
+  return 0;
+}
+const char* MethodName(std::int64_t code) { return code > 0 && code < 5 ? kMethods[code] : "?"; }
+
 }  // namespace
 
 EventRef MakeRef(const v1::TraceEvent& e) {
@@ -81,6 +91,15 @@ EventRef MakeRef(const v1::TraceEvent& e) {
     case TraceEvent::kAckIgnored:
       r.f[0] = S(e.ack_ignored().receipt());
       r.f[1] = S(e.ack_ignored().message_id());
+      break;
+    case TraceEvent::kBrokerCall:
+      r.f[0] = MethodCode(e.broker_call().method());
+      r.f[1] = S(e.broker_call().position());
+      break;
+    case TraceEvent::kBrokerCallFailed:
+      r.f[0] = MethodCode(e.broker_call_failed().method());
+      r.f[1] = e.broker_call_failed().code();
+      r.f[2] = e.broker_call_failed().retry_after_ns();
       break;
     default:
       break;
@@ -179,6 +198,19 @@ v1::TraceEvent Rebuild(const EventRef& r) {
       auto* x = e.mutable_ack_ignored();
       x->set_receipt(U(r.f[0]));
       x->set_message_id(U(r.f[1]));
+      break;
+    }
+    case TraceEvent::kBrokerCall: {
+      auto* x = e.mutable_broker_call();
+      x->set_method(MethodName(r.f[0]));
+      x->set_position(U(r.f[1]));
+      break;
+    }
+    case TraceEvent::kBrokerCallFailed: {
+      auto* x = e.mutable_broker_call_failed();
+      x->set_method(MethodName(r.f[0]));
+      x->set_code(static_cast<std::int32_t>(r.f[1]));
+      x->set_retry_after_ns(r.f[2]);
       break;
     }
     default:

@@ -1,6 +1,8 @@
 // An in-process ConnectorPort for tests: a simple connector that calls the
 // broker endpoint directly. Correct by default; `ack_on_pull` makes it ack each
-// message as soon as it is pulled.
+// message as soon as it is pulled. Start() forgets everything, as a new process
+// would. After each broker call it honours broker.CrashRequested() (the crash
+// point contract of connector_port.h) by abandoning the call with kCrashed.
 #pragma once
 
 #include <map>
@@ -16,10 +18,16 @@ class FakeConnector : public ConnectorPort {
  public:
   bool ack_on_pull = false;
   bool fail_restore = false;
+  // Nonzero: the process "dies on its own" (kExited) in the Advance of this step.
+  std::uint64_t exit_on_step = 0;
   std::vector<std::string> calls;  // "Start", "Open", "Advance", …
 
   ConnectorFailure Start(std::uint64_t) override {
     calls.push_back("Start");
+    seen_.clear();
+    open_.clear();
+    epochs_.clear();
+    watermark_ = 0;
     return {};
   }
   ConnectorFailure Open(const v1::OpenRequest& rq, v1::OpenResponse*, BrokerEndpoint&) override {
@@ -32,10 +40,15 @@ class FakeConnector : public ConnectorPort {
   ConnectorFailure Advance(const v1::AdvanceRequest& rq, v1::AdvanceResponse* rs,
                            BrokerEndpoint& broker) override {
     calls.push_back("Advance");
+    if (exit_on_step != 0 && rq.step() == exit_on_step) {
+      return ConnectorFailure{ConnectorFailure::Kind::kExited, "died during Advance",
+                              "signal 11 (SIGSEGV)", ""};
+    }
     v1::PullRequest pull;
     pull.set_max_messages(10);
     v1::PullResponse got;
     CallStatus st = broker.Pull(pull, &got);
+    if (broker.CrashRequested()) return Crashed("Advance");
     if (!st.ok()) {
       rs->set_resume_at_ns(st.now + Millis(100));
       return {};
@@ -46,6 +59,7 @@ class FakeConnector : public ConnectorPort {
         ack.add_receipts(d.receipt());
         v1::AckResponse ignored;
         broker.Ack(ack, &ignored);
+        if (broker.CrashRequested()) return Crashed("Advance");
       } else {
         open_.push_back(d.receipt());
       }
@@ -72,18 +86,35 @@ class FakeConnector : public ConnectorPort {
   ConnectorFailure Committed(const v1::CommittedRequest& rq, v1::CommittedResponse*,
                              BrokerEndpoint& broker) override {
     calls.push_back("Committed");
-    v1::AckRequest ack;
+    // One ack call per epoch (at most ack_batch receipts each), so a notice
+    // covering several epochs makes several ack calls.
     for (auto it = epochs_.begin(); it != epochs_.end() && it->first <= rq.checkpoint_id();) {
-      for (auto r : it->second) ack.add_receipts(r);
+      std::vector<std::uint64_t> receipts = std::move(it->second);
       it = epochs_.erase(it);
+      for (std::size_t i = 0; i < receipts.size(); i += ack_batch) {
+        v1::AckRequest ack;
+        for (std::size_t j = i; j < receipts.size() && j < i + ack_batch; ++j) {
+          ack.add_receipts(receipts[j]);
+        }
+        v1::AckResponse ignored;
+        broker.Ack(ack, &ignored);
+        if (broker.CrashRequested()) return Crashed("Committed");
+      }
     }
-    v1::AckResponse ignored;
-    if (ack.receipts_size() > 0) broker.Ack(ack, &ignored);
     return {};
   }
   void Kill() override { calls.push_back("Kill"); }
 
+  // Receipts per ack call in Committed.
+  std::size_t ack_batch = 2;
+
  private:
+  ConnectorFailure Crashed(const char* call) {
+    calls.push_back(std::string("Crashed in ") + call);
+    return ConnectorFailure{ConnectorFailure::Kind::kCrashed,
+                            std::string("killed during ") + call, "", ""};
+  }
+
   std::set<std::uint64_t> seen_;
   std::vector<std::uint64_t> open_;
   std::map<std::uint64_t, std::vector<std::uint64_t>> epochs_;

@@ -8,7 +8,9 @@ namespace {
 // Builds a trace by hand and feeds it to an oracle.
 class TraceBuilder {
  public:
-  explicit TraceBuilder(v1::Profile::Guarantee g = v1::Profile::EXACTLY_ONCE) : oracle_(Profile(g)) {}
+  explicit TraceBuilder(v1::Profile::Guarantee g = v1::Profile::EXACTLY_ONCE,
+                        std::int64_t min_backoff_ms = 0)
+      : oracle_(Profile(g, min_backoff_ms)) {}
 
   std::uint64_t Published(std::uint64_t id) {
     auto& e = Next();
@@ -67,6 +69,23 @@ class TraceBuilder {
     if (watermark.has_value()) e.mutable_opened()->set_watermark_ns(*watermark);
     return Send(e);
   }
+  // Broker calls at explicit virtual times (the other events use seq ms).
+  std::uint64_t BrokerCall(const std::string& method, VirtualTime t, std::uint64_t position = 1) {
+    auto& e = Next();
+    e.set_t_ns(t);
+    e.mutable_broker_call()->set_method(method);
+    e.mutable_broker_call()->set_position(position);
+    return Send(e);
+  }
+  std::uint64_t BrokerCallFailed(const std::string& method, VirtualTime t, int code,
+                                 VirtualDuration retry_after = 0) {
+    auto& e = Next();
+    e.set_t_ns(t);
+    e.mutable_broker_call_failed()->set_method(method);
+    e.mutable_broker_call_failed()->set_code(code);
+    e.mutable_broker_call_failed()->set_retry_after_ns(retry_after);
+    return Send(e);
+  }
   Verdict End() {
     auto& e = Next();
     e.mutable_run_ended()->set_reason("test over");
@@ -75,9 +94,10 @@ class TraceBuilder {
   }
 
  private:
-  static v1::Profile Profile(v1::Profile::Guarantee g) {
+  static v1::Profile Profile(v1::Profile::Guarantee g, std::int64_t min_backoff_ms) {
     v1::Profile p;
     p.set_guarantee(g);
+    p.set_min_backoff_ms(min_backoff_ms);
     return p;
   }
   v1::TraceEvent& Next() {
@@ -259,6 +279,75 @@ TEST(Oracle, KeepsOnlyTheFirstFewViolationsButCountsAll) {
   EXPECT_EQ(v.at(Invariant::kLostMessage).violations, 10u);
   EXPECT_EQ(v.at(Invariant::kLostMessage).first.size(), Oracle::kKeptViolations);
   EXPECT_EQ(v.at(Invariant::kLostMessage).first[0].evidence.front().what.rfind("published message 1", 0), 0u);
+}
+
+constexpr int kThrottled = 8, kUnavailable = 14, kDeadlineExceeded = 4;
+
+TEST(Oracle, CallingAThrottledMethodBeforeItsRetryAfterIsAThrottleViolation) {
+  TraceBuilder t;
+  t.BrokerCall("Pull", Millis(100), 1);
+  const auto failed = t.BrokerCallFailed("Pull", Millis(100), kThrottled, Millis(50));
+  const auto early = t.BrokerCall("Pull", Millis(120), 2);
+  Verdict v = t.End();
+  const auto& r = v.at(Invariant::kThrottleViolation);
+  ASSERT_EQ(r.violations, 1u);
+  EXPECT_EQ(Seqs(r.first[0]), (std::vector<std::uint64_t>{failed, early}));
+  EXPECT_NE(r.first[0].sentence.find("Pull"), std::string::npos);
+  EXPECT_FALSE(v.passed());
+}
+
+TEST(Oracle, ThrottleHoldsAfterTheRetryAfterAndForOtherMethods) {
+  TraceBuilder t;
+  t.BrokerCall("Pull", Millis(100), 1);
+  t.BrokerCallFailed("Pull", Millis(100), kThrottled, Millis(50));
+  t.BrokerCall("Ack", Millis(101), 1);          // a throttled pull does not forbid acks
+  t.BrokerCall("Pull", Millis(150), 2);         // exactly at the retry-after: fine
+  t.BrokerCall("Pull", Millis(151), 3);
+  Verdict v = t.End();
+  EXPECT_EQ(v.at(Invariant::kThrottleViolation).violations, 0u);
+}
+
+TEST(Oracle, ANewIncarnationStartsWithoutThrottles) {
+  TraceBuilder t;
+  t.BrokerCallFailed("Pull", Millis(100), kThrottled, Millis(500));
+  t.Crashed();
+  t.Opened(0, std::nullopt);
+  t.BrokerCall("Pull", Millis(200), 2);
+  EXPECT_EQ(t.End().at(Invariant::kThrottleViolation).violations, 0u);
+}
+
+TEST(Oracle, RetryingATransientFailureTooSoonIsARetryStorm) {
+  TraceBuilder t(v1::Profile::EXACTLY_ONCE, /*min_backoff_ms=*/20);
+  t.BrokerCall("Ack", Millis(100), 1);
+  const auto failed = t.BrokerCallFailed("Ack", Millis(100), kUnavailable);
+  const auto retry = t.BrokerCall("Ack", Millis(105), 2);
+  Verdict v = t.End();
+  const auto& r = v.at(Invariant::kRetryStorm);
+  ASSERT_EQ(r.violations, 1u);
+  EXPECT_EQ(Seqs(r.first[0]), (std::vector<std::uint64_t>{failed, retry}));
+  EXPECT_NE(r.first[0].sentence.find("Ack"), std::string::npos);
+  EXPECT_FALSE(v.passed());
+}
+
+TEST(Oracle, BackingOffLongEnoughAfterATransientFailureHolds) {
+  TraceBuilder t(v1::Profile::EXACTLY_ONCE, /*min_backoff_ms=*/20);
+  t.BrokerCallFailed("Pull", Millis(100), kDeadlineExceeded);
+  t.BrokerCall("Ack", Millis(101), 1);   // another method: not a retry
+  t.BrokerCall("Pull", Millis(120), 2);  // waited the minimum backoff
+  t.BrokerCall("Pull", Millis(121), 3);  // not after a failure: free
+  Verdict v = t.End();
+  EXPECT_TRUE(v.at(Invariant::kRetryStorm).checked);
+  EXPECT_EQ(v.at(Invariant::kRetryStorm).violations, 0u);
+  EXPECT_TRUE(v.passed());
+}
+
+TEST(Oracle, RetryStormIsNotCheckedWithoutAMinimumBackoff) {
+  TraceBuilder t;  // min_backoff_ms 0
+  t.BrokerCallFailed("Pull", Millis(100), kUnavailable);
+  t.BrokerCall("Pull", Millis(100), 2);
+  Verdict v = t.End();
+  EXPECT_FALSE(v.at(Invariant::kRetryStorm).checked);
+  EXPECT_EQ(v.at(Invariant::kRetryStorm).violations, 0u);
 }
 
 }  // namespace

@@ -1,0 +1,21 @@
+// File: fault_validation.h
+//
+// Checks the meaning of a scenario's `faults { … }` block, recording every
+// problem on the TextFile at the offending field (file:line:column):
+//   - every rate and probability is in [0, 1];
+//   - every duration is non-negative; latency min_ms <= max_ms;
+//   - a visibility delay rate needs max_visibility_delay_ms >= 1;
+//   - a token bucket has rate_per_s > 0 and burst >= 1;
+//   - a throttle window has 0 <= start_ms < end_ms;
+//   - a scripted decision names a site, a position >= 1 and a fault.
+// The scenario loader calls it after parsing; errors are values on the file.
+#pragma once
+
+#include "harness/scenario/text_file.h"
+#include "weir/v1/faults.pb.h"
+
+namespace weir {
+
+void ValidateFaults(TextFile& f, const v1::FaultConfig& c);
+
+}  // namespace weir
