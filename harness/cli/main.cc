@@ -161,11 +161,12 @@ int RunCommand(RunFlags& flags) {
   std::printf("connector  %s\n", ShellJoin(argv).c_str());
   std::printf(
       "run        %s at %s virtual; %llu published, %llu committed, %llu incarnation(s), %llu "
-      "steps, %llu checkpoints, %llu events\n",
+      "crash(es), %llu steps, %llu checkpoints, %llu events\n",
       s.end_reason.c_str(), FormatTime(s.end_time).c_str(),
       static_cast<unsigned long long>(s.published),
       static_cast<unsigned long long>(s.committed_messages),
-      static_cast<unsigned long long>(s.incarnations), static_cast<unsigned long long>(s.steps),
+      static_cast<unsigned long long>(s.incarnations), static_cast<unsigned long long>(s.crashes),
+      static_cast<unsigned long long>(s.steps),
       static_cast<unsigned long long>(s.checkpoints), static_cast<unsigned long long>(out->events));
   std::printf("digest     %s\n", out->digest.c_str());
   std::printf("faults     %d applied%s\n", out->plan.decisions_size(),
