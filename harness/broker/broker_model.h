@@ -77,6 +77,14 @@ class BrokerModel {
   std::size_t in_flight() const { return messages_.size(); }
   // True when a Pull now would hand out nothing (after AdvanceTo(now)).
   bool nothing_deliverable() const { return ready_.empty(); }
+  // True when nothing is ready, nothing waits to become visible and no publish
+  // or lease expiry is due at or before now: a Pull now would hand out nothing
+  // even after AdvanceTo(now). Does not change the model (no trace events).
+  bool IdleAt(VirtualTime now) const {
+    const MessageSpec* next = workload_.Peek();
+    return ready_.empty() && hidden_.empty() && (next == nullptr || next->publish_time > now) &&
+           (leases_.empty() || leases_.top().deadline > now);
+  }
   // Messages acked within the redelivery horizon still remembered (for tests).
   std::size_t remembered_acks() const { return recently_acked_.size(); }
 

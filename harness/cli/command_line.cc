@@ -1,7 +1,10 @@
 #include "harness/cli/command_line.h"
 
 #include "absl/status/status.h"
+#include <unistd.h>
+
 #include <cctype>
+#include <cstdlib>
 
 #include "absl/strings/str_cat.h"
 
@@ -45,6 +48,26 @@ absl::StatusOr<std::vector<std::string>> SplitCommandLine(std::string_view text)
   }
   if (in_word) out.push_back(std::move(word));
   return out;
+}
+
+std::optional<std::string> ResolveExecutable(const std::string& program) {
+  if (program.empty()) return std::nullopt;
+  if (program.find('/') != std::string::npos) {
+    if (::access(program.c_str(), X_OK) == 0) return program;
+    return std::nullopt;
+  }
+  const char* path = std::getenv("PATH");
+  const std::string dirs = path != nullptr ? path : "/usr/bin:/bin";
+  std::size_t start = 0;
+  while (start <= dirs.size()) {
+    std::size_t end = dirs.find(':', start);
+    if (end == std::string::npos) end = dirs.size();
+    const std::string dir = end > start ? dirs.substr(start, end - start) : ".";
+    const std::string candidate = dir + "/" + program;
+    if (::access(candidate.c_str(), X_OK) == 0) return candidate;
+    start = end + 1;
+  }
+  return std::nullopt;
 }
 
 std::string ShellQuote(std::string_view word) {

@@ -7,6 +7,7 @@
 // paste-ready replay lines.
 #pragma once
 
+#include <optional>
 #include <string>
 #include <string_view>
 #include <vector>
@@ -19,6 +20,10 @@ namespace weir {
 [[nodiscard]] absl::StatusOr<std::vector<std::string>> SplitCommandLine(std::string_view text);
 
 std::string ShellQuote(std::string_view word);
+
+// Where posix_spawnp would find `program` (a path with '/', or a PATH search),
+// or nullopt when it is not an executable file.
+std::optional<std::string> ResolveExecutable(const std::string& program);
 std::string ShellJoin(const std::vector<std::string>& argv);
 
 }  // namespace weir

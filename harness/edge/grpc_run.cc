@@ -72,7 +72,7 @@ class TraceFile : public TraceEncoder::LineSink {
 
 const char* WeirVersion() { return "0.1.0"; }
 
-absl::StatusOr<RunOutput> RunOverGrpc(const RunSpec& spec) {
+absl::StatusOr<RunOutput> RunWithPort(const RunSpec& spec, ConnectorPort& port) {
   std::unique_ptr<TraceFile> file;
   if (!spec.trace_path.empty()) {
     auto f = TraceFile::Create(spec.trace_path);
@@ -86,35 +86,11 @@ absl::StatusOr<RunOutput> RunOverGrpc(const RunSpec& spec) {
   trace.AddObserver(&encoder);
   trace.AddObserver(&oracle);
 
-  std::unique_ptr<PrivateDir> dir;
-  std::string broker_listen = "127.0.0.1:0";
-  std::string connector_listen = "127.0.0.1:0";
-  if (spec.transport == Transport::kUnix) {
-    auto d = PrivateDir::Create();
-    if (!d.ok()) return d.status();
-    dir = std::move(*d);
-    broker_listen = "unix:" + dir->path() + "/broker.sock";
-    connector_listen = "unix:" + dir->path() + "/connector.sock";
-  }
-
-  const auto call_timeout = std::chrono::milliseconds(spec.scenario.runtime().call_timeout_wall_ms());
-  CallRelay relay;
-  auto server = BrokerServer::Start(broker_listen, relay, call_timeout);
-  if (!server.ok()) return server.status();
-
   FaultSource faults = spec.plan.has_value()
                            ? FaultSource(*spec.plan, spec.seed, trace)
                            : FaultSource(spec.scenario.faults(), spec.seed, trace);
   BrokerModel broker(spec.scenario, spec.seed, trace, faults);
   BrokerSession session(broker, trace, faults);
-  GrpcConnectorPort::Options port_options;
-  port_options.argv = spec.connector_argv;
-  port_options.broker_address = (*server)->address();
-  port_options.listen_address = connector_listen;
-  port_options.call_timeout = call_timeout;
-  port_options.start_timeout =
-      std::chrono::milliseconds(spec.scenario.runtime().start_timeout_wall_ms());
-  GrpcConnectorPort port(port_options, relay);
   RuntimeModel runtime(spec.scenario, broker, session, port, trace, faults);
 
   RunOutput out;
@@ -142,6 +118,33 @@ absl::StatusOr<RunOutput> RunOverGrpc(const RunSpec& spec) {
     }
   }
   return out;
+}
+
+
+absl::StatusOr<RunOutput> RunOverGrpc(const RunSpec& spec) {
+  std::unique_ptr<PrivateDir> dir;
+  std::string broker_listen = "127.0.0.1:0";
+  std::string connector_listen = "127.0.0.1:0";
+  if (spec.transport == Transport::kUnix) {
+    auto d = PrivateDir::Create();
+    if (!d.ok()) return d.status();
+    dir = std::move(*d);
+    broker_listen = "unix:" + dir->path() + "/broker.sock";
+    connector_listen = "unix:" + dir->path() + "/connector.sock";
+  }
+  const auto call_timeout = std::chrono::milliseconds(spec.scenario.runtime().call_timeout_wall_ms());
+  CallRelay relay;
+  auto server = BrokerServer::Start(broker_listen, relay, call_timeout);
+  if (!server.ok()) return server.status();
+  GrpcConnectorPort::Options port_options;
+  port_options.argv = spec.connector_argv;
+  port_options.broker_address = (*server)->address();
+  port_options.listen_address = connector_listen;
+  port_options.call_timeout = call_timeout;
+  port_options.start_timeout =
+      std::chrono::milliseconds(spec.scenario.runtime().start_timeout_wall_ms());
+  GrpcConnectorPort port(port_options, relay);
+  return RunWithPort(spec, port);
 }
 
 }  // namespace weir

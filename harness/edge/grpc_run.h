@@ -14,6 +14,7 @@
 
 #include "absl/status/statusor.h"
 #include "harness/oracle/verdict.h"
+#include "harness/runtime/connector_port.h"
 #include "harness/runtime/runtime_model.h"
 #include "weir/v1/faults.pb.h"
 #include "weir/v1/scenario.pb.h"
@@ -41,6 +42,11 @@ struct RunOutput {
   // The faults the run applied: drawn from the scenario's rates, or the given plan.
   v1::FaultPlan plan;
 };
+
+// One run against any ConnectorPort (the gRPC edge, or an in-process host):
+// the same broker, runtime, oracle and trace. Kills the port's incarnation at
+// the end. Errors are harness faults (cannot write the trace…).
+[[nodiscard]] absl::StatusOr<RunOutput> RunWithPort(const RunSpec& spec, ConnectorPort& port);
 
 // Errors are harness faults (cannot listen, cannot write the trace…), never
 // connector misbehaviour: that is in the verdict.

@@ -2,6 +2,7 @@
 
 #include <algorithm>
 
+#include "absl/strings/match.h"
 #include "absl/strings/str_cat.h"
 #include "harness/core/virtual_time.h"
 #include "harness/trace/describe.h"
@@ -10,11 +11,31 @@ namespace weir {
 
 using v1::TraceEvent;
 
+namespace {
+
+// Times a connector gives (watermarks, resume times) further than this from
+// virtual now are surely garbage: 100 years in nanoseconds fits in int64.
+constexpr VirtualDuration kTimeRange = 100LL * 365 * 24 * 3600 * 1'000'000'000LL;
+
+bool ClaimsWatermark(const v1::Profile& p) {
+  return p.watermark_policy() == v1::Profile::MONOTONIC ||
+         p.watermark_policy() == v1::Profile::BOUNDED_LATENESS;
+}
+
+}  // namespace
+
 Oracle::Oracle(const v1::Profile& profile)
     : exactly_once_(profile.guarantee() == v1::Profile::EXACTLY_ONCE),
+      lateness_bounded_(profile.watermark_policy() == v1::Profile::BOUNDED_LATENESS),
+      allowed_lateness_(Millis(profile.allowed_lateness_ms())),
+      idle_timeout_(ClaimsWatermark(profile) ? Millis(profile.idle_timeout_ms()) : 0),
+      idle_max_lag_(Millis(profile.has_idle_max_lag_ms() ? profile.idle_max_lag_ms()
+                                                         : profile.idle_timeout_ms())),
       min_backoff_(Millis(profile.min_backoff_ms())) {
   verdict_.at(Invariant::kDuplicateOutput).checked = exactly_once_;
   verdict_.at(Invariant::kRetryStorm).checked = min_backoff_ > 0;
+  verdict_.at(Invariant::kWatermarkStall).checked = idle_timeout_ > 0;
+  verdict_.at(Invariant::kLateRecord).checked = lateness_bounded_;
 }
 
 void Oracle::Report(Invariant invariant, const std::string& sentence,
@@ -27,8 +48,10 @@ void Oracle::Report(Invariant invariant, const std::string& sentence,
   v.sentence = sentence;
   std::sort(cited.begin(), cited.end(),
             [](const EventRef& a, const EventRef& b) { return a.seq < b.seq; });
+  std::uint64_t last_seq = ~std::uint64_t{0};
   for (const EventRef& ref : cited) {
-    if (!ref.valid()) continue;
+    if (!ref.valid() || ref.seq == last_seq) continue;  // one event may prove two things
+    last_seq = ref.seq;
     if (current != nullptr && ref.seq == current->seq()) continue;
     v.evidence.push_back(Evidence{ref.seq, ref.t, ref.incarnation, DescribeEvent(Rebuild(ref))});
   }
@@ -61,21 +84,23 @@ void Oracle::OnEvent(const TraceEvent& e) {
   switch (e.kind_case()) {
     case TraceEvent::kPublished:
       messages_[e.published().message_id()].published = MakeRef(e);
+      EndIdle();
       break;
-    case TraceEvent::kDelivered: {
-      auto it = messages_.find(e.delivered().message_id());
-      if (it != messages_.end()) it->second.last_delivered = MakeRef(e);
+    case TraceEvent::kDelivered:
+      OnDelivered(e);
       break;
-    }
-    case TraceEvent::kEmitted: {
-      const EventRef ref = MakeRef(e);
-      open_epoch_.push_back(PendingRecord{e.emitted().message_id(), ref});
-      auto it = messages_.find(e.emitted().message_id());
-      if (it != messages_.end()) it->second.last_emitted = ref;
+    case TraceEvent::kEmitted:
+      OnEmitted(e);
       break;
-    }
     case TraceEvent::kStepped:
-      if (e.stepped().has_watermark_ns()) OnWatermark(e, e.stepped().watermark_ns());
+      OnStepped(e);
+      break;
+    case TraceEvent::kNacked:
+    case TraceEvent::kLeaseExpired:
+      EndIdle();  // the message is deliverable again
+      break;
+    case TraceEvent::kAckIgnored:
+      OnAckIgnored(e);
       break;
     case TraceEvent::kCheckpoint: {
       auto& epoch = pending_[e.checkpoint().checkpoint_id()];
@@ -98,13 +123,21 @@ void Oracle::OnEvent(const TraceEvent& e) {
       methods_.clear();
       watermark_.reset();
       watermark_ref_ = EventRef{};
+      reported_watermark_.reset();
+      reported_ref_ = EventRef{};
       if (e.opened().restored() && e.opened().has_watermark_ns()) {
         watermark_ = e.opened().watermark_ns();
         watermark_ref_ = opened_ref_;
+        reported_watermark_ = watermark_;
+        reported_ref_ = opened_ref_;
       }
+      // Every MessageState stamp names an older incarnation now.
+      awaiting_ = 0;
+      EndIdle();
       break;
     case TraceEvent::kCrashed:
       DiscardUncommitted();
+      EndIdle();
       break;
     case TraceEvent::kExited:
       OnConnectorFailure(e, e.exited().call(), Invariant::kUnexpectedExit,
@@ -170,6 +203,113 @@ void Oracle::OnWatermark(const TraceEvent& e, std::int64_t watermark) {
   watermark_ref_ = MakeRef(e);
 }
 
+void Oracle::OnDelivered(const TraceEvent& e) {
+  EndIdle();  // something was deliverable
+  auto it = messages_.find(e.delivered().message_id());
+  if (it == messages_.end()) return;  // retired (a duplicate needs no record) or unknown
+  MessageState& m = it->second;
+  m.last_delivered = MakeRef(e);
+  const bool was = Awaiting(m, e.incarnation());
+  m.delivered_in = e.incarnation();
+  if (!was && Awaiting(m, e.incarnation())) ++awaiting_;
+}
+
+void Oracle::OnEmitted(const TraceEvent& e) {
+  const std::uint64_t id = e.emitted().message_id();
+  const EventRef ref = MakeRef(e);
+  open_epoch_.push_back(PendingRecord{id, ref});
+  // late-record: against the last watermark reported before this step (this
+  // step's own watermark comes with its stepped event, after its records).
+  if (reported_watermark_.has_value() && e.emitted().event_time_ns() < *reported_watermark_) {
+    ++verdict_.late_records;
+    const VirtualDuration late = *reported_watermark_ - e.emitted().event_time_ns();
+    if (lateness_bounded_ && late > allowed_lateness_) {
+      Report(Invariant::kLateRecord,
+             absl::StrCat("Step ", e.emitted().step(), " emitted a record of message ", id,
+                          " with event time ", FormatTime(e.emitted().event_time_ns()), ", ",
+                          FormatTime(late), " below the watermark ",
+                          FormatTime(*reported_watermark_), " reported before it (allowed: ",
+                          FormatTime(allowed_lateness_), ")."),
+             {reported_ref_}, &e);
+    }
+  }
+  if (id < retired_.size() && retired_[id]) return;  // delivery history retired with it
+  auto it = messages_.find(id);
+  if (it == messages_.end() || it->second.delivered_in != e.incarnation()) {
+    std::vector<EventRef> cited;
+    if (it != messages_.end()) cited = {it->second.published, it->second.last_delivered};
+    Report(Invariant::kProtocolError,
+           absl::StrCat("Step ", e.emitted().step(), " emitted a record of message ", id,
+                        it == messages_.end() ? ", which the broker has not published"
+                                              : ", which was never delivered to incarnation ",
+                        it == messages_.end() ? std::string() : std::to_string(e.incarnation()),
+                        "."),
+           std::move(cited), &e);
+    if (it == messages_.end()) return;
+  }
+  MessageState& m = it->second;
+  m.last_emitted = ref;
+  if (Awaiting(m, e.incarnation())) --awaiting_;
+  m.emitted_in = e.incarnation();
+}
+
+bool Oracle::TimeInRange(const TraceEvent& e, const char* what, std::int64_t value) {
+  const VirtualTime now = e.t_ns();
+  if (value <= SaturatingAdd(now, kTimeRange) && value >= now - kTimeRange) return true;
+  Report(Invariant::kProtocolError,
+         absl::StrCat("Step ", e.stepped().step(), " reported a ", what, " of ", FormatTime(value),
+                      ", more than 100 years away from virtual now ", FormatTime(now), "."),
+         {}, &e);
+  return false;
+}
+
+void Oracle::OnStepped(const TraceEvent& e) {
+  const auto& x = e.stepped();
+  if (!x.finished()) TimeInRange(e, "resume time", x.resume_at_ns());
+  if (x.has_watermark_ns() && TimeInRange(e, "watermark", x.watermark_ns())) {
+    OnWatermark(e, x.watermark_ns());
+    // Cite the step that first reported this value: for a stall, where it stuck.
+    if (reported_watermark_ != x.watermark_ns()) reported_ref_ = MakeRef(e);
+    reported_watermark_ = x.watermark_ns();
+  }
+  if (!x.broker_idle() || awaiting_ > 0) {
+    EndIdle();
+    return;
+  }
+  if (!idle_) {
+    idle_ = true;
+    idle_reported_ = false;
+    idle_since_ = MakeRef(e);
+  }
+  if (idle_timeout_ == 0 || idle_reported_) return;
+  const VirtualDuration idle_for = e.t_ns() - idle_since_.t;
+  if (idle_for <= idle_timeout_) return;
+  const VirtualTime floor = e.t_ns() - idle_max_lag_;
+  if (reported_watermark_.has_value() && *reported_watermark_ >= floor) return;
+  idle_reported_ = true;
+  Report(Invariant::kWatermarkStall,
+         absl::StrCat("The source has been idle for ", FormatTime(idle_for),
+                      " (longer than the profile's ", FormatTime(idle_timeout_),
+                      ") and the watermark is ",
+                      reported_watermark_.has_value()
+                          ? absl::StrCat(FormatTime(*reported_watermark_), ", ",
+                                         FormatTime(e.t_ns() - *reported_watermark_),
+                                         " behind virtual now")
+                          : std::string("not set"),
+                      " (allowed: ", FormatTime(idle_max_lag_), ")."),
+         {idle_since_, reported_ref_}, &e);
+}
+
+void Oracle::OnAckIgnored(const TraceEvent& e) {
+  // Lost acks and expired or superseded receipts are the broker's doing or a
+  // race; a receipt the broker never handed out can only be made up.
+  if (!absl::StrContains(e.ack_ignored().reason(), "receipt never issued")) return;
+  Report(Invariant::kProtocolError,
+         absl::StrCat("The connector acknowledged receipt ", e.ack_ignored().receipt(),
+                      ", which the broker never issued."),
+         {}, &e);
+}
+
 void Oracle::OnCommitted(const TraceEvent& e) {
   auto node = pending_.extract(e.committed().checkpoint_id());
   if (node.empty()) return;
@@ -192,6 +332,7 @@ void Oracle::OnCommitted(const TraceEvent& e) {
     }
     auto it = messages_.find(r.message_id);
     if (it == messages_.end()) continue;
+    if (Awaiting(it->second, e.incarnation())) --awaiting_;  // committed: needs no record
     it->second.committed = committed;
     it->second.committed_records = 1;
     if (it->second.acked) Retire(r.message_id);

@@ -23,6 +23,29 @@
 //     next broker_call of the same method comes before t + min_backoff.
 //   Both are judged per incarnation: a new incarnation starts with a clean
 //   slate, since a fresh process cannot know what its predecessor was told.
+//   watermark-stall (checked when the profile claims a watermark and
+//     idle_timeout_ms > 0): an idle period starts at the end of a step whose
+//     stepped event says broker_idle while every message delivered to this
+//     incarnation has a record (emitted by it, or committed); it ends at the
+//     first delivered, published, nacked or lease_expired event, a stepped
+//     event that is not idle, or a crash or open. At the end of every step
+//     more than idle_timeout after the period began, the watermark (the step's
+//     own included) must be at least step time - idle_max_lag. One violation
+//     per idle period.
+//   late-record: a record is late when its event time is below the last
+//     watermark the connector reported before the step that emitted it (a
+//     restored incarnation starts from the watermark committed with its
+//     checkpoint). Always counted (Verdict::late_records); a violation only
+//     under BOUNDED_LATENESS, when it is more than allowed_lateness below.
+//   protocol-error, besides the runtime's own protocol_error events: a record
+//     of a message not delivered to the emitting incarnation (messages already
+//     retired are not checked: their delivery history is gone), an ack of a
+//     receipt never issued, a watermark or resume time more than 100 years
+//     away from virtual now.
+//
+// Memory: per in-flight message one MessageState (which also holds the
+// per-incarnation delivery facts, so they go when the message retires), one
+// bit per retired id, the open and pending epochs, and O(1) else.
 //
 // Thread safety: none.
 #pragma once
@@ -59,6 +82,9 @@ class Oracle : public TraceObserver {
     EventRef committed;  // the commit that first put a record of it in the output
     std::uint32_t committed_records = 0;
     bool acked = false;
+    // Incarnations that last had it delivered / emitted a record of it (0: none).
+    std::uint64_t delivered_in = 0;
+    std::uint64_t emitted_in = 0;
   };
   struct PendingRecord {
     std::uint64_t message_id;
@@ -73,6 +99,18 @@ class Oracle : public TraceObserver {
   void OnCommitted(const v1::TraceEvent& e);
   void OnAcked(const v1::TraceEvent& e);
   void OnWatermark(const v1::TraceEvent& e, std::int64_t watermark);
+  void OnDelivered(const v1::TraceEvent& e);
+  void OnEmitted(const v1::TraceEvent& e);
+  void OnStepped(const v1::TraceEvent& e);
+  void OnAckIgnored(const v1::TraceEvent& e);
+  // Reports a time the connector gave that is absurdly far from virtual now.
+  bool TimeInRange(const v1::TraceEvent& e, const char* what, std::int64_t value);
+  // Delivered to the live incarnation and without a record yet (blocks idleness).
+  bool Awaiting(const MessageState& m, std::uint64_t incarnation) const {
+    return m.delivered_in == incarnation && m.emitted_in != incarnation &&
+           m.committed_records == 0;
+  }
+  void EndIdle() { idle_ = false; }
   void OnConnectorFailure(const v1::TraceEvent& e, const std::string& call, Invariant invariant,
                           const std::string& sentence);
   void OnRunEnded(const v1::TraceEvent& e);
@@ -82,6 +120,10 @@ class Oracle : public TraceObserver {
   void Retire(std::uint64_t id);
 
   const bool exactly_once_;
+  const bool lateness_bounded_;
+  const VirtualDuration allowed_lateness_;
+  const VirtualDuration idle_timeout_;  // 0: watermark-stall not checked
+  const VirtualDuration idle_max_lag_;
   Verdict verdict_;
   absl::flat_hash_map<std::uint64_t, MessageState> messages_;  // published, in flight
   std::vector<bool> retired_;  // committed and acked: no longer in flight
@@ -91,6 +133,14 @@ class Oracle : public TraceObserver {
   std::optional<std::int64_t> watermark_;
   EventRef watermark_ref_;
   EventRef opened_ref_;
+  // The last watermark reported (literally, even one that regressed): late-record.
+  std::optional<std::int64_t> reported_watermark_;
+  EventRef reported_ref_;
+  // Messages for which Awaiting() holds; idleness needs zero.
+  std::uint64_t awaiting_ = 0;
+  bool idle_ = false;
+  bool idle_reported_ = false;  // this idle period already has its violation
+  EventRef idle_since_;         // the stepped event that began the idle period
   // Per broker method (a handful of names), what limits its next call.
   struct MethodState {
     EventRef throttled;  // the last throttled call, while its retry-after runs

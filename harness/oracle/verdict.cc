@@ -8,6 +8,8 @@ const char* InvariantName(Invariant invariant) {
     case Invariant::kLostMessage: return "lost-message";
     case Invariant::kDuplicateOutput: return "duplicate-output";
     case Invariant::kWatermarkRegression: return "watermark-regression";
+    case Invariant::kWatermarkStall: return "watermark-stall";
+    case Invariant::kLateRecord: return "late-record";
     case Invariant::kBadCheckpoint: return "bad-checkpoint";
     case Invariant::kStepTimeout: return "step-timeout";
     case Invariant::kUnexpectedExit: return "unexpected-exit";
@@ -34,6 +36,15 @@ const char* InvariantRule(Invariant invariant) {
       return "A watermark must never be lower than one reported before it in the same "
              "incarnation, nor than the watermark committed with the checkpoint it was restored "
              "from.";
+    case Invariant::kWatermarkStall:
+      return "Once the source has been idle (the broker has nothing deliverable and every message "
+             "delivered to the incarnation has a record) longer than the profile's idle timeout, "
+             "the watermark at the end of each step must be at most the profile's idle lag behind "
+             "virtual now.";
+    case Invariant::kLateRecord:
+      return "Under a bounded-lateness profile, a record's event time must not be further below "
+             "the last watermark reported before the step that emitted it than the profile's "
+             "allowed lateness (late records are counted under every profile).";
     case Invariant::kBadCheckpoint:
       return "Opening the connector from a committed checkpoint must succeed.";
     case Invariant::kStepTimeout:
@@ -42,7 +53,8 @@ const char* InvariantRule(Invariant invariant) {
       return "The connector process must not end unless weir kills it at a crash point.";
     case Invariant::kProtocolError:
       return "Every connector answer and broker call must be well-formed and refer only to "
-             "messages, receipts and times that exist.";
+             "messages delivered to the same incarnation, receipts the broker issued, and times "
+             "within 100 years of virtual now.";
     case Invariant::kThrottleViolation:
       return "After the broker throttles a call, the connector must not call that same method "
              "again before the retry-after has passed (other methods, such as acks, may keep "

@@ -19,6 +19,8 @@ enum class Invariant : int {
   kLostMessage,
   kDuplicateOutput,
   kWatermarkRegression,
+  kWatermarkStall,
+  kLateRecord,
   kBadCheckpoint,
   kStepTimeout,
   kUnexpectedExit,
@@ -59,6 +61,9 @@ struct Verdict {
   std::array<InvariantResult, kInvariantCount> results;
   // Figures that are not pass/fail.
   std::uint64_t duplicate_records = 0;  // committed records beyond the first per message
+  // Records whose event time is below the last watermark reported before their
+  // step (counted under every profile; failing only under BOUNDED_LATENESS).
+  std::uint64_t late_records = 0;
   std::uint64_t events = 0;
 
   bool passed() const {

@@ -15,6 +15,9 @@ std::string FormatVerdictTable(const Verdict& verdict) {
     const char* word = !r.checked ? "not claimed" : r.violations == 0 ? "held" : "FAILED";
     out += absl::StrFormat("%-22s %-12s %d\n", InvariantName(inv), word, r.violations);
   }
+  // Figures that never fail a run on their own (see Verdict).
+  absl::StrAppend(&out, "figures: ", verdict.duplicate_records, " duplicate records, ",
+                  verdict.late_records, " late records\n");
   return out;
 }
 

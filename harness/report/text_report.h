@@ -10,7 +10,8 @@
 
 namespace weir {
 
-// "invariant  verdict  violations" rows, one per invariant.
+// "invariant  verdict  violations" rows, one per invariant, then a line of
+// figures (duplicate and late records).
 std::string FormatVerdictTable(const Verdict& verdict);
 
 // Every kept violation, in invariant order; empty when the run passed.

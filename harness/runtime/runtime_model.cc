@@ -225,6 +225,7 @@ bool RuntimeModel::DoStep() {
   if (response.has_watermark_ns()) x->set_watermark_ns(response.watermark_ns());
   x->set_resume_at_ns(finished_ ? kNever : resume_at);
   x->set_finished(finished_);
+  x->set_broker_idle(broker_.IdleAt(now_));  // for the oracle's watermark-stall rule
   trace_.Commit();
 
   if (!finished_) {

@@ -3,6 +3,7 @@
 #include <string>
 
 #include "absl/strings/str_cat.h"
+#include "google/protobuf/descriptor.h"
 
 namespace weir {
 namespace {
@@ -32,6 +33,57 @@ void Duration(TextFile& f, std::int64_t v, const std::string& field,
               const std::string& parent = "") {
   At(f, v >= 0, field, parent,
      absl::StrCat(Name(field, parent), " is ", v, "; expected a duration >= 0"));
+}
+
+bool IsBrokerCallSite(v1::Site s) {
+  return s == v1::PULL || s == v1::ACK || s == v1::NACK || s == v1::EXTEND_LEASE;
+}
+
+// What the fault of d is called in a message: "crash at BEFORE_STEP", "lost_ack"…
+std::string FaultName(const v1::FaultDecision& d) {
+  if (d.fault_case() == v1::FaultDecision::kCrash) {
+    return absl::StrCat("crash at ", v1::CrashPoint_Name(d.crash().point()));
+  }
+  const auto* field = v1::FaultDecision::descriptor()->FindFieldByNumber(d.fault_case());
+  return field == nullptr ? "this fault" : field->name();
+}
+
+// nullptr when d's fault can apply at d's site; otherwise the site(s) it needs.
+// Mirrors the plan file's rules (plan_file.cc): step crash points fire only at
+// STEP, checkpoint crash points only at CHECKPOINT, broker faults at the calls.
+const char* ExpectedSite(const v1::FaultDecision& d) {
+  const v1::Site s = d.site();
+  switch (d.fault_case()) {
+    case v1::FaultDecision::kLatencyMs:
+    case v1::FaultDecision::kThrottleRetryAfterMs:
+    case v1::FaultDecision::kTransient:
+      return IsBrokerCallSite(s) ? nullptr : "PULL, ACK, NACK or EXTEND_LEASE";
+    case v1::FaultDecision::kDuplicate:
+    case v1::FaultDecision::kReorder:
+    case v1::FaultDecision::kBrokerRestart:
+      return s == v1::PULL ? nullptr : "PULL";
+    case v1::FaultDecision::kLostAck:
+      return s == v1::ACK ? nullptr : "ACK";
+    case v1::FaultDecision::kVisibilityDelayMs:
+      return s == v1::PUBLISH ? nullptr : "PUBLISH";
+    case v1::FaultDecision::kCommitFailure:
+      return s == v1::CHECKPOINT ? nullptr : "CHECKPOINT";
+    case v1::FaultDecision::kCrash:
+      switch (d.crash().point()) {
+        case v1::BEFORE_STEP:
+        case v1::IN_STEP_AFTER_BROKER_CALL:
+          return s == v1::STEP ? nullptr : "STEP (a step crash point)";
+        case v1::AFTER_CHECKPOINT_BEFORE_COMMIT:
+        case v1::AFTER_COMMIT_BEFORE_NOTICE:
+        case v1::IN_NOTICE_AFTER_ACK:
+          return s == v1::CHECKPOINT ? nullptr : "CHECKPOINT (a checkpoint crash point)";
+        default:
+          return nullptr;  // no crash point: reported at the crash field instead
+      }
+    case v1::FaultDecision::FAULT_NOT_SET:
+      return nullptr;
+  }
+  return nullptr;
 }
 
 }  // namespace
@@ -98,6 +150,19 @@ void ValidateFaults(TextFile& f, const v1::FaultConfig& c) {
     f.Require(d.latency_ms() >= 0 && d.throttle_retry_after_ms() >= 0 &&
                   d.visibility_delay_ms() >= 0,
               {"faults", at}, absl::StrCat("faults.", at, " has a negative duration; expected >= 0"));
+    // A decision at a site its fault cannot apply at would never fire: the
+    // run would quietly test less than the file says, so lint rejects it.
+    if (d.has_crash()) {
+      f.Require(d.crash().point() != v1::CRASH_POINT_UNSPECIFIED, {"faults", at, "crash"},
+                absl::StrCat("faults.", at, ".crash names no crash point; expected e.g. "
+                                            "crash { point: BEFORE_STEP }"));
+    }
+    if (d.site() != v1::SITE_UNSPECIFIED && d.fault_case() != v1::FaultDecision::FAULT_NOT_SET) {
+      const char* expected = ExpectedSite(d);
+      f.Require(expected == nullptr, {"faults", at, "site"},
+                absl::StrCat("faults.", at, ".site is ", v1::Site_Name(d.site()), " for ",
+                             FaultName(d), "; expected site ", expected == nullptr ? "" : expected));
+    }
   }
 }
 

@@ -7,7 +7,9 @@
 //   - a visibility delay rate needs max_visibility_delay_ms >= 1;
 //   - a token bucket has rate_per_s > 0 and burst >= 1;
 //   - a throttle window has 0 <= start_ms < end_ms;
-//   - a scripted decision names a site, a position >= 1 and a fault.
+//   - a scripted decision names a site, a position >= 1 and a fault, at a site
+//     where that fault can apply (a step crash point at STEP, a checkpoint
+//     crash point at CHECKPOINT, lost_ack at ACK, … as in plan files).
 // The scenario loader calls it after parsing; errors are values on the file.
 #pragma once
 

@@ -2,6 +2,7 @@
 
 #include "absl/strings/str_cat.h"
 #include "harness/scenario/fault_validation.h"
+#include "harness/scenario/profile_file.h"
 #include "harness/scenario/text_file.h"
 
 namespace weir {
@@ -43,8 +44,7 @@ void Validate(TextFile& f, const v1::Scenario& s) {
   CheckMillis(f, b.lease_ms(), "broker", "lease_ms", false);
   CheckMillis(f, b.redelivery_horizon_ms(), "broker", "redelivery_horizon_ms", false);
   ValidateFaults(f, s.faults());
-  f.Require(s.profile().min_backoff_ms() >= 0, {"profile", "min_backoff_ms"},
-            absl::StrCat("profile.min_backoff_ms is ", s.profile().min_backoff_ms(), "; expected >= 0"));
+  ValidateProfile(f, s.profile(), /*in_scenario=*/true);
   const auto& r = s.runtime();
   CheckMillis(f, r.checkpoint_interval_ms(), "runtime", "checkpoint_interval_ms", false);
   CheckMillis(f, r.drain_bound_ms(), "runtime", "drain_bound_ms", false);

@@ -79,12 +79,15 @@ std::string TextFile::Locate(std::initializer_list<std::string_view> field_path)
     }
     const google::protobuf::FieldDescriptor* field = descriptor->FindFieldByName(name);
     if (field == nullptr) break;
+    // A repeated field is located by element; "name" alone means its first.
+    if (field->is_repeated() && index < 0) index = 0;
+    if (!field->is_repeated()) index = -1;
     const auto loc = tree->GetLocation(field, index);
     if (loc.line < 0) break;
     line = loc.line;
     column = loc.column;
     if (field->type() != google::protobuf::FieldDescriptor::TYPE_MESSAGE) break;
-    tree = tree->GetTreeForNested(field, index < 0 ? -1 : index);
+    tree = tree->GetTreeForNested(field, index);
     descriptor = field->message_type();
   }
   return absl::StrCat(path_, ":", line + 1, ":", column + 1);

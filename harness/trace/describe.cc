@@ -32,7 +32,8 @@ std::string DescribeEvent(const v1::TraceEvent& e) {
                           Watermark(e.stepped().has_watermark_ns(), e.stepped().watermark_ns()),
                           e.stepped().finished()
                               ? std::string(", finished")
-                              : absl::StrCat(", resume at ", FormatTime(e.stepped().resume_at_ns())));
+                              : absl::StrCat(", resume at ", FormatTime(e.stepped().resume_at_ns())),
+                          e.stepped().broker_idle() ? ", broker idle" : "");
     case TraceEvent::kCheckpoint:
       return absl::StrCat("took checkpoint ", e.checkpoint().checkpoint_id(), " (",
                           e.checkpoint().records(), " records in the epoch, watermark ",

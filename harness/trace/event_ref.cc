@@ -47,7 +47,9 @@ EventRef MakeRef(const v1::TraceEvent& e) {
       r.f[1] = e.stepped().records();
       r.f[2] = e.stepped().watermark_ns();
       r.f[3] = e.stepped().resume_at_ns();
-      r.has_watermark = e.stepped().has_watermark_ns() | (e.stepped().finished() ? 2 : 0);
+      r.has_watermark = static_cast<std::uint8_t>(e.stepped().has_watermark_ns() |
+                                                  (e.stepped().finished() ? 2 : 0) |
+                                                  (e.stepped().broker_idle() ? 4 : 0));
       break;
     case TraceEvent::kCheckpoint:
       r.f[0] = S(e.checkpoint().checkpoint_id());
@@ -143,6 +145,7 @@ v1::TraceEvent Rebuild(const EventRef& r) {
       if (r.has_watermark & 1) x->set_watermark_ns(r.f[2]);
       x->set_resume_at_ns(r.f[3]);
       x->set_finished((r.has_watermark & 2) != 0);
+      x->set_broker_idle((r.has_watermark & 4) != 0);
       break;
     }
     case TraceEvent::kCheckpoint: {

@@ -20,6 +20,7 @@ struct EventRef {
   std::uint64_t incarnation = 0;
   v1::TraceEvent::KindCase kind = v1::TraceEvent::KIND_NOT_SET;
   std::int64_t f[4] = {0, 0, 0, 0};
+  // Bit 0: has a watermark; for stepped also bit 1 finished, bit 2 broker idle.
   std::uint8_t has_watermark = 0;
 
   bool valid() const { return kind != v1::TraceEvent::KIND_NOT_SET; }

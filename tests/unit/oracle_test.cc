@@ -11,6 +11,37 @@ class TraceBuilder {
   explicit TraceBuilder(v1::Profile::Guarantee g = v1::Profile::EXACTLY_ONCE,
                         std::int64_t min_backoff_ms = 0)
       : oracle_(Profile(g, min_backoff_ms)) {}
+  explicit TraceBuilder(const v1::Profile& profile) : oracle_(profile) {}
+
+  // The next event happens at t (the others use seq ms).
+  TraceBuilder& At(VirtualTime t) {
+    next_t_ = t;
+    return *this;
+  }
+  std::uint64_t Record(std::uint64_t id, VirtualTime event_time, std::uint64_t step = 1) {
+    auto& e = Next();
+    e.mutable_emitted()->set_message_id(id);
+    e.mutable_emitted()->set_event_time_ns(event_time);
+    e.mutable_emitted()->set_step(step);
+    return Send(e);
+  }
+  // The end of a step; resume_at defaults to the step's own time.
+  std::uint64_t Stepped(std::optional<std::int64_t> watermark, bool broker_idle,
+                        std::optional<VirtualTime> resume_at = std::nullopt) {
+    auto& e = Next();
+    auto* x = e.mutable_stepped();
+    x->set_step(++step_);
+    if (watermark.has_value()) x->set_watermark_ns(*watermark);
+    x->set_broker_idle(broker_idle);
+    x->set_resume_at_ns(resume_at.value_or(e.t_ns()));
+    return Send(e);
+  }
+  std::uint64_t AckIgnored(std::uint64_t receipt, const std::string& reason) {
+    auto& e = Next();
+    e.mutable_ack_ignored()->set_receipt(receipt);
+    e.mutable_ack_ignored()->set_reason(reason);
+    return Send(e);
+  }
 
   std::uint64_t Published(std::uint64_t id) {
     auto& e = Next();
@@ -103,7 +134,8 @@ class TraceBuilder {
   v1::TraceEvent& Next() {
     event_.Clear();
     event_.set_seq(seq_);
-    event_.set_t_ns(Millis(static_cast<std::int64_t>(seq_)));
+    event_.set_t_ns(next_t_.value_or(Millis(static_cast<std::int64_t>(seq_))));
+    next_t_.reset();
     event_.set_incarnation(incarnation_);
     return event_;
   }
@@ -115,6 +147,8 @@ class TraceBuilder {
   v1::TraceEvent event_;
   std::uint64_t seq_ = 0;
   std::uint64_t incarnation_ = 1;
+  std::uint64_t step_ = 0;
+  std::optional<VirtualTime> next_t_;
 };
 
 std::vector<std::uint64_t> Seqs(const Violation& v) {
@@ -229,6 +263,7 @@ TEST(Oracle, SecondCommittedRecordIsADuplicateUnderExactlyOnce) {
 TEST(Oracle, DuplicatesAreOnlyCountedUnderAtLeastOnce) {
   TraceBuilder t(v1::Profile::AT_LEAST_ONCE);
   t.Published(1);
+  t.Delivered(1, 10);
   t.Emitted(1);
   t.Emitted(1);
   t.Checkpoint(1);
@@ -348,6 +383,224 @@ TEST(Oracle, RetryStormIsNotCheckedWithoutAMinimumBackoff) {
   Verdict v = t.End();
   EXPECT_FALSE(v.at(Invariant::kRetryStorm).checked);
   EXPECT_EQ(v.at(Invariant::kRetryStorm).violations, 0u);
+}
+
+// ---- profiles: watermark-stall ------------------------------------------------
+
+v1::Profile StallProfile(std::int64_t timeout_ms, std::optional<std::int64_t> lag_ms = std::nullopt) {
+  v1::Profile p;
+  p.set_guarantee(v1::Profile::EXACTLY_ONCE);
+  p.set_watermark_policy(v1::Profile::MONOTONIC);
+  p.set_idle_timeout_ms(timeout_ms);
+  if (lag_ms.has_value()) p.set_idle_max_lag_ms(*lag_ms);
+  return p;
+}
+
+TEST(Oracle, WatermarkStuckThroughALongIdlePeriodIsAStall) {
+  TraceBuilder t(StallProfile(1000));
+  t.At(Millis(10)).Published(1);
+  t.At(Millis(10)).Delivered(1, 10);
+  t.At(Millis(10)).Record(1, Millis(5));
+  const auto begin = t.At(Millis(10)).Stepped(Millis(5), /*broker_idle=*/true);
+  t.At(Millis(500)).Stepped(Millis(5), true);   // idle 490 ms: within the timeout
+  const auto late = t.At(Millis(1500)).Stepped(Millis(5), true);  // idle 1.49 s, watermark 1.495 s behind
+  t.At(Millis(2500)).Stepped(Millis(5), true);  // same idle period: not reported again
+  Verdict v = t.End();
+  const auto& r = v.at(Invariant::kWatermarkStall);
+  ASSERT_TRUE(r.checked);
+  ASSERT_EQ(r.violations, 1u);
+  EXPECT_EQ(Seqs(r.first[0]), (std::vector<std::uint64_t>{begin, late}));
+  EXPECT_NE(r.first[0].sentence.find("idle"), std::string::npos);
+  EXPECT_FALSE(v.passed());
+}
+
+TEST(Oracle, WatermarkThatAdvancesWhileIdleHolds) {
+  TraceBuilder t(StallProfile(1000));
+  t.At(Millis(10)).Published(1);
+  t.At(Millis(10)).Delivered(1, 10);
+  t.At(Millis(10)).Record(1, Millis(5));
+  t.At(Millis(10)).Stepped(Millis(5), true);
+  t.At(Millis(1500)).Stepped(Millis(600), true);   // 900 ms behind now: within the 1 s lag
+  t.At(Millis(3000)).Stepped(Millis(2500), true);
+  t.At(Millis(3000)).Checkpoint(1);
+  t.At(Millis(3000)).Committed(1);
+  Verdict v = t.End();
+  EXPECT_EQ(v.at(Invariant::kWatermarkStall).violations, 0u);
+  EXPECT_TRUE(v.passed());
+}
+
+TEST(Oracle, NotIdleWhileADeliveredMessageHasNoRecordOrTheBrokerHasWork) {
+  TraceBuilder t(StallProfile(1000));
+  t.At(Millis(10)).Published(1);
+  t.At(Millis(10)).Delivered(1, 10);
+  t.At(Millis(10)).Stepped(std::nullopt, true);     // message 1 still has no record: busy
+  t.At(Millis(2000)).Stepped(std::nullopt, true);
+  t.At(Millis(2000)).Record(1, Millis(5));
+  t.At(Millis(2000)).Stepped(Millis(5), false);     // the broker has work: busy
+  t.At(Millis(4000)).Stepped(Millis(5), false);
+  t.At(Millis(4000)).Stepped(Millis(5), true);      // idle starts here
+  t.At(Millis(4500)).Published(2);                  // and ends here
+  t.At(Millis(5500)).Stepped(Millis(5), true);      // a new idle period starts
+  Verdict v = t.End();
+  EXPECT_EQ(v.at(Invariant::kWatermarkStall).violations, 0u);
+}
+
+TEST(Oracle, StallUsesTheExplicitLagAndIsNotCheckedWithoutAWatermarkPolicy) {
+  {
+    TraceBuilder t(StallProfile(1000, /*lag_ms=*/100));
+    t.At(0).Stepped(Millis(0), true);
+    t.At(Millis(1500)).Stepped(Millis(1300), true);  // 200 ms behind: more than 100
+    EXPECT_EQ(t.End().at(Invariant::kWatermarkStall).violations, 1u);
+  }
+  {
+    v1::Profile p = StallProfile(1000);
+    p.set_watermark_policy(v1::Profile::NO_WATERMARK);
+    TraceBuilder t(p);
+    t.At(0).Stepped(std::nullopt, true);
+    t.At(Millis(5000)).Stepped(std::nullopt, true);
+    Verdict v = t.End();
+    EXPECT_FALSE(v.at(Invariant::kWatermarkStall).checked);
+    EXPECT_EQ(v.at(Invariant::kWatermarkStall).violations, 0u);
+  }
+}
+
+// ---- late-record ----------------------------------------------------------------
+
+v1::Profile Lateness(std::int64_t allowed_ms) {
+  v1::Profile p;
+  p.set_guarantee(v1::Profile::EXACTLY_ONCE);
+  p.set_watermark_policy(v1::Profile::BOUNDED_LATENESS);
+  p.set_allowed_lateness_ms(allowed_ms);
+  return p;
+}
+
+TEST(Oracle, RecordFurtherBelowTheWatermarkThanAllowedIsLate) {
+  TraceBuilder t(Lateness(10));
+  t.Published(1);
+  t.Published(2);
+  t.Delivered(1, 10);
+  t.Delivered(2, 20);
+  t.Record(1, Millis(100), 1);
+  const auto wm = t.Stepped(Millis(100), false);
+  const auto late = t.Record(2, Millis(80), 2);  // 20 ms below: more than 10
+  t.Stepped(Millis(100), false);
+  Verdict v = t.End();
+  const auto& r = v.at(Invariant::kLateRecord);
+  ASSERT_EQ(r.violations, 1u);
+  EXPECT_EQ(Seqs(r.first[0]), (std::vector<std::uint64_t>{wm, late}));
+  EXPECT_NE(r.first[0].sentence.find("message 2"), std::string::npos);
+  EXPECT_EQ(v.late_records, 1u);
+}
+
+TEST(Oracle, AStepsOwnWatermarkAppliesAfterItsRecordsAndSmallLatenessIsAllowed) {
+  TraceBuilder t(Lateness(10));
+  t.Published(1);
+  t.Published(2);
+  t.Delivered(1, 10);
+  t.Delivered(2, 20);
+  t.Record(1, Millis(50), 1);
+  t.Record(2, Millis(40), 1);  // below the step's own watermark of 100: not late
+  t.Stepped(Millis(100), false);
+  Verdict v = t.End();
+  EXPECT_EQ(v.late_records, 0u);
+  EXPECT_EQ(v.at(Invariant::kLateRecord).violations, 0u);
+
+  TraceBuilder u(Lateness(10));
+  u.Published(1);
+  u.Published(2);
+  u.Delivered(1, 10);
+  u.Delivered(2, 20);
+  u.Record(1, Millis(100), 1);
+  u.Stepped(Millis(100), false);
+  u.Record(2, Millis(95), 2);  // 5 ms late: counted, allowed
+  Verdict w = u.End();
+  EXPECT_EQ(w.late_records, 1u);
+  EXPECT_EQ(w.at(Invariant::kLateRecord).violations, 0u);
+}
+
+TEST(Oracle, LateRecordsAreOnlyCountedWithoutBoundedLateness) {
+  TraceBuilder t;  // no watermark policy
+  t.Published(1);
+  t.Published(2);
+  t.Delivered(1, 10);
+  t.Delivered(2, 20);
+  t.Record(1, Millis(100), 1);
+  t.Stepped(Millis(100), false);
+  t.Record(2, Millis(10), 2);
+  Verdict v = t.End();
+  EXPECT_FALSE(v.at(Invariant::kLateRecord).checked);
+  EXPECT_EQ(v.late_records, 1u);
+}
+
+TEST(Oracle, ARestoredIncarnationJudgesLatenessAgainstTheCommittedWatermark) {
+  TraceBuilder t(Lateness(0));
+  t.Published(1);
+  t.Crashed();
+  t.Opened(1, Millis(100));
+  t.Delivered(1, 10);
+  t.Record(1, Millis(50), 1);
+  EXPECT_EQ(t.End().at(Invariant::kLateRecord).violations, 1u);
+}
+
+// ---- protocol-error details ------------------------------------------------------
+
+TEST(Oracle, ARecordOfAMessageNotDeliveredToThisIncarnationIsAProtocolError) {
+  TraceBuilder t;
+  t.Published(1);
+  const auto d = t.Delivered(1, 10);
+  t.Crashed();
+  t.Opened(0, std::nullopt);
+  const auto e = t.Emitted(1);  // the new incarnation never got message 1
+  Verdict v = t.End();
+  const auto& r = v.at(Invariant::kProtocolError);
+  ASSERT_EQ(r.violations, 1u);
+  EXPECT_EQ(Seqs(r.first[0]), (std::vector<std::uint64_t>{0, d, e}));
+  EXPECT_NE(r.first[0].sentence.find("never delivered to incarnation 2"), std::string::npos);
+}
+
+TEST(Oracle, ARecordOfAnUnpublishedMessageIsAProtocolError) {
+  TraceBuilder t;
+  t.Emitted(7);
+  EXPECT_EQ(t.End().at(Invariant::kProtocolError).violations, 1u);
+}
+
+TEST(Oracle, RecordsOfRedeliveredAndRetiredMessagesAreFine) {
+  TraceBuilder t;
+  t.Published(1);
+  t.Delivered(1, 10);
+  t.Crashed();
+  t.Opened(0, std::nullopt);
+  t.Delivered(1, 11);  // redelivered to the new incarnation
+  t.Emitted(1);
+  t.Checkpoint(1);
+  t.Committed(1);
+  t.Acked(1, 11);      // retired
+  Verdict v = t.End();
+  EXPECT_EQ(v.at(Invariant::kProtocolError).violations, 0u);
+  EXPECT_TRUE(v.passed());
+}
+
+TEST(Oracle, AnAckOfAReceiptNeverIssuedIsAProtocolError) {
+  TraceBuilder t;
+  t.AckIgnored(99, "ack: receipt never issued");
+  t.AckIgnored(5, "ack: receipt expired, superseded or already acked");  // a race: fine
+  t.AckIgnored(6, "ack: lost by a fault; the lease will run out");
+  Verdict v = t.End();
+  const auto& r = v.at(Invariant::kProtocolError);
+  ASSERT_EQ(r.violations, 1u);
+  EXPECT_NE(r.first[0].sentence.find("receipt 99"), std::string::npos);
+}
+
+TEST(Oracle, WatermarksAndResumeTimesMoreThanAHundredYearsAwayAreProtocolErrors) {
+  constexpr VirtualDuration kYear = 365LL * 24 * 3600 * 1'000'000'000LL;
+  TraceBuilder t;
+  t.At(0).Stepped(-101 * kYear, false);
+  t.At(0).Stepped(std::nullopt, false, /*resume_at=*/kNever - 1);
+  t.At(0).Stepped(Millis(-50), false, 99 * kYear);  // a negative event time is fine
+  Verdict v = t.End();
+  const auto& r = v.at(Invariant::kProtocolError);
+  EXPECT_EQ(r.violations, 2u);
+  EXPECT_EQ(v.at(Invariant::kWatermarkRegression).violations, 0u);  // the bad one is dropped
 }
 
 }  // namespace

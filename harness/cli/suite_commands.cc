@@ -1,0 +1,372 @@
+#include "harness/cli/suite_commands.h"
+
+#include <signal.h>
+#include <unistd.h>
+
+#include <atomic>
+#include <chrono>
+#include <cstdio>
+#include <cstdlib>
+#include <fstream>
+#include <map>
+#include <thread>
+
+#include "absl/strings/numbers.h"
+#include "absl/strings/str_cat.h"
+#include "absl/strings/str_split.h"
+#include "harness/cli/command_line.h"
+#include "harness/scenario/text_file.h"
+#include "harness/suite/certify.h"
+#include "harness/suite/suite_reports.h"
+#include "harness/trace/trace_format.h"
+
+namespace weir {
+namespace {
+
+constexpr int kPassed = 0, kFailed = 1, kUsage = 2, kHarness = 3, kInterrupted = 4;
+
+std::atomic<bool> g_stop{false};
+extern "C" void OnStopSignal(int) { g_stop.store(true); }
+
+int Usage(const std::string& message) {
+  std::fprintf(stderr, "weir: %s\n", message.c_str());
+  return kUsage;
+}
+
+absl::Status WriteAtomically(const std::string& path, const std::string& text) {
+  const std::string partial = path + ".partial";
+  std::FILE* f = std::fopen(partial.c_str(), "wb");
+  bool ok = f != nullptr && std::fwrite(text.data(), 1, text.size(), f) == text.size();
+  if (f != nullptr && std::fclose(f) != 0) ok = false;
+  if (ok) ok = std::rename(partial.c_str(), path.c_str()) == 0;
+  if (!ok) {
+    std::remove(partial.c_str());
+    return absl::UnavailableError(absl::StrCat(path, ": cannot write"));
+  }
+  return absl::OkStatus();
+}
+
+absl::StatusOr<std::string> FileSha256(const std::string& path) {
+  std::ifstream in(path, std::ios::binary);
+  if (!in) return absl::NotFoundError(absl::StrCat(path, ": cannot open"));
+  Sha256 h;
+  std::string buf(1 << 16, '\0');
+  while (in) {
+    in.read(buf.data(), static_cast<std::streamsize>(buf.size()));
+    h.Update(std::string_view(buf.data(), static_cast<std::size_t>(in.gcount())));
+  }
+  return h.HexDigest();
+}
+
+void Touch(const char* env) {
+  const char* path = std::getenv(env);
+  if (path == nullptr || *path == '\0') return;
+  if (std::FILE* f = std::fopen(path, "a")) std::fclose(f);
+}
+
+// --shard I/N, else the sharding variables CI systems and job runners set.
+absl::StatusOr<ShardSpec> ResolveShard(const SuiteCommands& s) {
+  auto parse = [](const std::string& text, std::uint32_t* out) {
+    return absl::SimpleAtoi(text, out);
+  };
+  ShardSpec spec;
+  if (!s.shard.empty()) {
+    std::vector<std::string> parts = absl::StrSplit(s.shard, '/');
+    if (parts.size() != 2 || !parse(parts[0], &spec.index) || !parse(parts[1], &spec.count) ||
+        spec.count == 0 || spec.index >= spec.count) {
+      return absl::InvalidArgumentError(
+          absl::StrCat("--shard is '", s.shard, "'; expected I/N with 0 <= I < N"));
+    }
+    return spec;
+  }
+  struct Convention {
+    const char* total;
+    const char* index;
+    const char* status_file;
+  };
+  for (const Convention c : {Convention{"GTEST_TOTAL_SHARDS", "GTEST_SHARD_INDEX", "GTEST_SHARD_STATUS_FILE"},
+                             Convention{"TEST_TOTAL_SHARDS", "TEST_SHARD_INDEX", "TEST_SHARD_STATUS_FILE"}}) {
+    const char* total = std::getenv(c.total);
+    const char* index = std::getenv(c.index);
+    if (total == nullptr && index == nullptr) continue;
+    if (total == nullptr || index == nullptr || !parse(total, &spec.count) || !parse(index, &spec.index) ||
+        spec.count == 0 || spec.index >= spec.count) {
+      return absl::InvalidArgumentError(absl::StrCat(c.total, "/", c.index, " are '",
+                                                     total ? total : "", "'/'", index ? index : "",
+                                                     "'; expected a total >= 1 and 0 <= index < total"));
+    }
+    Touch(c.status_file);
+    return spec;
+  }
+  if (const char* job = std::getenv("JOB_COMPLETION_INDEX"); job != nullptr && s.shard_count_for_index > 0) {
+    spec.count = s.shard_count_for_index;
+    if (!parse(job, &spec.index) || spec.index >= spec.count) {
+      return absl::InvalidArgumentError(absl::StrCat("JOB_COMPLETION_INDEX is '", job,
+                                                     "'; expected 0 <= index < ", spec.count));
+    }
+    return spec;
+  }
+  return spec;
+}
+
+int Certify(SuiteCommands& s) {
+  std::vector<std::string> argv;
+  if (!s.connector.empty() && !s.command.empty()) {
+    return Usage("give the connector either as --connector 'CMD ARGS' or after --, not both");
+  }
+  if (!s.connector.empty()) {
+    auto split = SplitCommandLine(s.connector);
+    if (!split.ok()) return Usage(absl::StrCat("--connector ", split.status().message()));
+    argv = *split;
+  } else {
+    argv = s.command;
+  }
+  if (argv.empty()) return Usage("no connector command; expected --connector 'CMD ARGS…'");
+  const auto binary = ResolveExecutable(argv[0]);
+  if (!binary.has_value()) {
+    return Usage("--connector: '" + argv[0] + "' is not an executable file (nor found on PATH)");
+  }
+  Transport transport = Transport::kTcp;
+  if (s.transport == "unix") {
+    transport = Transport::kUnix;
+  } else if (s.transport != "tcp") {
+    return Usage("--transport is '" + s.transport + "'; expected tcp or unix");
+  }
+  auto shard = ResolveShard(s);
+  if (!shard.ok()) return Usage(std::string(shard.status().message()));
+  auto suite = LoadSuite(s.suite);
+  if (!suite.ok()) {
+    std::fprintf(stderr, "%s\n", std::string(suite.status().message()).c_str());
+    return kUsage;
+  }
+  auto sha = FileSha256(*binary);
+  if (!sha.ok()) return Usage(std::string(sha.status().message()));
+
+  CertifyOptions options;
+  options.connector_argv = argv;
+  options.connector_sha256 = *sha;
+  options.jobs = s.jobs > 0 ? s.jobs : std::max(1u, std::thread::hardware_concurrency());
+  options.max_failures = s.max_failures;
+  options.shard = *shard;
+  options.transport = transport;
+  options.stop = &g_stop;
+
+  const bool tty = s.progress == "bar" || (s.progress == "auto" && ::isatty(STDOUT_FILENO));
+  const bool quiet = s.progress == "none";
+  const auto start = std::chrono::steady_clock::now();
+  auto last_line = start;
+  options.progress = [&](const CertifyOptions::Progress& p, const v1::RunRecord& rec) {
+    const auto now = std::chrono::steady_clock::now();
+    const double elapsed = std::chrono::duration<double>(now - start).count();
+    const double rate = elapsed > 0 ? static_cast<double>(p.done) / elapsed : 0;
+    const double left = rate > 0 ? static_cast<double>(p.total - p.done) / rate : 0;
+    if (quiet) return;
+    if (tty) {
+      const int width = 30;
+      const int filled = p.total == 0 ? width : static_cast<int>(width * p.done / p.total);
+      std::printf("\r[%s%s] %llu/%llu runs, %llu failed, %.1f runs/s, ~%.0f s left ",
+                  std::string(static_cast<std::size_t>(filled), '#').c_str(),
+                  std::string(static_cast<std::size_t>(width - filled), '.').c_str(),
+                  static_cast<unsigned long long>(p.done), static_cast<unsigned long long>(p.total),
+                  static_cast<unsigned long long>(p.failed), rate, left);
+      if (p.done == p.total) std::printf("\n");
+    } else if (!rec.passed() || now - last_line >= std::chrono::seconds(10) || p.done == p.total) {
+      last_line = now;
+      std::printf("certify: %llu/%llu runs, %llu failed, %.1f runs/s, ~%.0f s left%s\n",
+                  static_cast<unsigned long long>(p.done), static_cast<unsigned long long>(p.total),
+                  static_cast<unsigned long long>(p.failed), rate, left,
+                  rec.passed() ? ""
+                               : absl::StrCat(" — FAILED ", rec.scenario(), " seed ", rec.seed(), ": ",
+                                              rec.first_violation().empty() ? rec.harness_error()
+                                                                            : rec.first_violation())
+                                     .c_str());
+    }
+    std::fflush(stdout);
+  };
+
+  struct sigaction sa {};
+  sa.sa_handler = OnStopSignal;
+  sigemptyset(&sa.sa_mask);
+  sigaction(SIGINT, &sa, nullptr);
+  sigaction(SIGTERM, &sa, nullptr);
+
+  std::printf("weir certify: suite %s (%s), %llu pairs, shard %u/%u, %u jobs\nconnector %s (%s)\n",
+              s.suite.c_str(), suite->digest.c_str(), static_cast<unsigned long long>(suite->pairs()),
+              options.shard.index, options.shard.count, options.jobs, ShellJoin(argv).c_str(),
+              sha->c_str());
+  std::fflush(stdout);
+  auto report = weir::Certify(*suite, options);
+  if (!report.ok()) {
+    std::fprintf(stderr, "weir: harness fault: %s\n", std::string(report.status().message()).c_str());
+    return kHarness;
+  }
+  const v1::Certificate cert = MakeCertificate(*report);
+  std::printf("\n%s", SuiteSummaryText(*report).c_str());
+
+  char host[256] = "localhost";
+  ::gethostname(host, sizeof host - 1);
+  char stamp[32];
+  const std::time_t t = std::time(nullptr);
+  std::tm tm{};
+  ::gmtime_r(&t, &tm);
+  std::strftime(stamp, sizeof stamp, "%Y-%m-%dT%H:%M:%S", &tm);
+  int write_errors = 0;
+  auto write = [&](const std::string& path, const std::string& text, const char* what) {
+    if (path.empty()) return;
+    if (absl::Status st = WriteAtomically(path, text); !st.ok()) {
+      std::fprintf(stderr, "weir: %s\n", std::string(st.message()).c_str());
+      ++write_errors;
+    } else {
+      std::printf("%-12s %s\n", what, path.c_str());
+    }
+  };
+  write(s.json, SuiteReportJson(*report), "json report");
+  write(s.junit, SuiteJUnitXml(*report, stamp, host), "junit");
+  write(s.certificate, CertificateJson(cert), "certificate");
+
+  bool harness_faults = false, failed = false;
+  for (const auto& run : report->runs()) {
+    harness_faults |= !run.harness_error().empty();
+    failed |= !run.passed() && run.harness_error().empty();
+  }
+  if (g_stop.load()) return kInterrupted;
+  if (write_errors > 0 || harness_faults) return kHarness;
+  if (failed) return kFailed;
+  if (options.shard.count <= 1) {
+    std::printf("%s\n", cert.certified() ? "CERTIFIED: every run of the suite passed."
+                                         : "NOT CERTIFIED: the suite did not run to completion.");
+    return cert.certified() ? kPassed : kFailed;
+  }
+  std::printf("shard %u/%u: every run passed; merge the shard reports with weir merge.\n",
+              options.shard.index, options.shard.count);
+  return kPassed;
+}
+
+int Verify(SuiteCommands& s) {
+  std::string text;
+  if (absl::Status st = ReadWholeFile(s.cert_file, &text); !st.ok()) return Usage(std::string(st.message()));
+  auto cert = ParseCertificateJson(text);
+  if (!cert.ok()) {
+    return Usage(absl::StrCat(s.cert_file, ": not a certificate: ", cert.status().message()));
+  }
+  auto sha = FileSha256(s.connector_binary);
+  if (!sha.ok()) return Usage(std::string(sha.status().message()));
+  if (CertificateSeal(*cert) != cert->seal()) {
+    std::printf("REJECTED: %s has been altered (its seal does not match its contents).\n", s.cert_file.c_str());
+    return kFailed;
+  }
+  if (*sha != cert->connector_sha256()) {
+    std::printf("REJECTED: %s certifies connector %s, but %s is %s.\n", s.cert_file.c_str(),
+                cert->connector_sha256().c_str(), s.connector_binary.c_str(), sha->c_str());
+    return kFailed;
+  }
+  if (!cert->certified()) {
+    std::printf("REJECTED: the certificate is intact and names this binary, but the suite did not pass "
+                "(%llu of %llu runs failed).\n",
+                static_cast<unsigned long long>(cert->runs_failed()), static_cast<unsigned long long>(cert->runs()));
+    return kFailed;
+  }
+  std::printf("VERIFIED: %s certifies %s: suite %s (%s), %llu runs passed, weir %s.\n", s.cert_file.c_str(),
+              s.connector_binary.c_str(), cert->suite_name().c_str(), cert->suite_digest().c_str(),
+              static_cast<unsigned long long>(cert->runs()), cert->weir_version().c_str());
+  return kPassed;
+}
+
+int Merge(SuiteCommands& s) {
+  std::vector<v1::SuiteReport> shards;
+  for (const auto& path : s.reports) {
+    std::string text;
+    if (absl::Status st = ReadWholeFile(path, &text); !st.ok()) return Usage(std::string(st.message()));
+    auto r = ParseSuiteReportJson(text);
+    if (!r.ok()) return Usage(absl::StrCat(path, ": not a suite report: ", r.status().message()));
+    shards.push_back(std::move(*r));
+  }
+  const v1::SuiteReport& first = shards.front();
+  std::map<std::uint32_t, bool> seen;
+  for (std::size_t i = 0; i < shards.size(); ++i) {
+    const auto& r = shards[i];
+    if (r.suite_digest() != first.suite_digest() || r.connector_sha256() != first.connector_sha256() ||
+        r.shard_count() != first.shard_count() || r.pairs_total() != first.pairs_total()) {
+      return Usage(absl::StrCat(s.reports[i], ": belongs to another suite, connector or sharding than ",
+                                s.reports[0]));
+    }
+    if (seen[r.shard_index()]) return Usage(absl::StrCat(s.reports[i], ": shard ", r.shard_index(), " given twice"));
+    seen[r.shard_index()] = true;
+  }
+  v1::SuiteReport merged = first;
+  merged.clear_runs();
+  bool complete = seen.size() == first.shard_count();
+  std::string stopped;
+  std::vector<v1::RunRecord> runs;
+  for (const auto& r : shards) {
+    complete &= r.complete();
+    if (!r.stopped_because().empty()) stopped = r.stopped_because();
+    for (const auto& run : r.runs()) runs.push_back(run);
+  }
+  std::sort(runs.begin(), runs.end(),
+            [](const v1::RunRecord& a, const v1::RunRecord& b) { return a.pair_index() < b.pair_index(); });
+  for (auto& run : runs) *merged.add_runs() = std::move(run);
+  merged.set_shard_index(0);
+  merged.set_shard_count(1);
+  merged.set_complete(complete && static_cast<std::uint64_t>(merged.runs_size()) == merged.pairs_total());
+  merged.set_stopped_because(complete ? "" : (stopped.empty() ? "shards missing" : stopped));
+  Summarize(&merged);
+  const v1::Certificate cert = MakeCertificate(merged);
+  std::printf("%s", SuiteSummaryText(merged).c_str());
+  char stamp[32];
+  const std::time_t t = std::time(nullptr);
+  std::tm tm{};
+  ::gmtime_r(&t, &tm);
+  std::strftime(stamp, sizeof stamp, "%Y-%m-%dT%H:%M:%S", &tm);
+  char host[256] = "localhost";
+  ::gethostname(host, sizeof host - 1);
+  for (const auto& [path, text] : {std::pair{s.json, SuiteReportJson(merged)},
+                                   std::pair{s.junit, SuiteJUnitXml(merged, stamp, host)},
+                                   std::pair{s.certificate, CertificateJson(cert)}}) {
+    if (path.empty()) continue;
+    if (absl::Status st = WriteAtomically(path, text); !st.ok()) {
+      std::fprintf(stderr, "weir: %s\n", std::string(st.message()).c_str());
+      return kHarness;
+    }
+  }
+  return cert.certified() ? kPassed : kFailed;
+}
+
+}  // namespace
+
+void AddSuiteCommands(CLI::App& app, SuiteCommands& s) {
+  s.certify = app.add_subcommand("certify", "Run a suite against a connector; write reports and a certificate");
+  s.certify->add_option("--suite", s.suite, "Suite file (Protobuf text format)")->required();
+  s.certify->add_option("--connector", s.connector, "Connector command 'CMD ARGS…' (no shell)");
+  s.certify->add_option("command", s.command, "Connector command after --");
+  s.certify->add_option("--jobs", s.jobs, "Runs at a time (default: one per core)")
+      ->multi_option_policy(CLI::MultiOptionPolicy::TakeLast);
+  s.certify->add_option("--max-failures", s.max_failures, "Stop launching runs after N failed runs");
+  s.certify->add_option("--shard", s.shard, "Run shard I of N (I/N); default from GTEST_*/TEST_* sharding variables");
+  s.certify->add_option("--shard-count", s.shard_count_for_index,
+                        "Total shards when the index comes from JOB_COMPLETION_INDEX");
+  s.certify->add_option("--json", s.json, "Write the JSON report here");
+  s.certify->add_option("--junit", s.junit, "Write JUnit XML here");
+  s.certify->add_option("--certificate", s.certificate, "Write the certificate here");
+  s.certify->add_option("--transport", s.transport, "tcp (default) or unix");
+  s.certify->add_option("--progress", s.progress, "auto (bar on a terminal), bar, lines or none");
+
+  s.verify = app.add_subcommand("verify", "Check that a certificate is intact and belongs to a connector binary");
+  s.verify->add_option("certificate", s.cert_file, "Certificate file")->required();
+  s.verify->add_option("--connector-binary", s.connector_binary, "The connector binary to check")->required();
+
+  s.merge = app.add_subcommand("merge", "Combine shard reports into one report and one certificate");
+  s.merge->add_option("reports", s.reports, "Shard JSON reports")->required();
+  s.merge->add_option("--json", s.json, "Write the merged JSON report here");
+  s.merge->add_option("--junit", s.junit, "Write merged JUnit XML here");
+  s.merge->add_option("--certificate", s.certificate, "Write the certificate here");
+}
+
+int RunSuiteCommand(SuiteCommands& s) {
+  if (s.certify != nullptr && s.certify->parsed()) return Certify(s);
+  if (s.verify != nullptr && s.verify->parsed()) return Verify(s);
+  if (s.merge != nullptr && s.merge->parsed()) return Merge(s);
+  return -1;
+}
+
+}  // namespace weir

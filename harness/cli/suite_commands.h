@@ -1,0 +1,42 @@
+// File: suite_commands.h
+//
+// The suite-level subcommands of `weir`: certify (run a suite, write reports
+// and a certificate), verify (check a certificate against a binary) and merge
+// (combine shard reports). Exit codes: 0 passed / intact, 1 an invariant failed
+// / not certified, 2 usage or input error, 3 harness fault, 4 interrupted.
+#pragma once
+
+#include <string>
+#include <vector>
+
+#include <CLI/CLI.hpp>
+
+namespace weir {
+
+struct SuiteCommands {
+  CLI::App* certify = nullptr;
+  CLI::App* verify = nullptr;
+  CLI::App* merge = nullptr;
+  // certify
+  std::string suite;
+  std::string connector;
+  std::vector<std::string> command;
+  unsigned jobs = 0;
+  std::uint64_t max_failures = 0;
+  std::string shard;
+  std::uint32_t shard_count_for_index = 0;
+  std::string json, junit, certificate;
+  std::string transport = "tcp";
+  std::string progress = "auto";
+  // verify
+  std::string cert_file;
+  std::string connector_binary;
+  // merge
+  std::vector<std::string> reports;
+};
+
+void AddSuiteCommands(CLI::App& app, SuiteCommands& state);
+// Runs whichever suite command was parsed; -1 when none was.
+int RunSuiteCommand(SuiteCommands& state);
+
+}  // namespace weir

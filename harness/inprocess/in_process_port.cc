@@ -1,0 +1,141 @@
+#include "harness/inprocess/in_process_port.h"
+
+#include "absl/strings/str_cat.h"
+#include "harness/suite/certify.h"
+
+namespace weir {
+namespace {
+
+// The adapter's BrokerClient over the simulation's BrokerEndpoint.
+class EndpointClient : public adapter::BrokerClient {
+ public:
+  explicit EndpointClient(BrokerEndpoint& broker) : broker_(broker) {}
+
+  adapter::BrokerStatus Pull(std::uint32_t max, std::vector<v1::Delivery>* out) override {
+    v1::PullRequest rq;
+    rq.set_max_messages(max);
+    v1::PullResponse rs;
+    adapter::BrokerStatus st = Convert(broker_.Pull(rq, &rs));
+    if (st.ok()) {
+      for (auto& d : *rs.mutable_deliveries()) out->push_back(std::move(d));
+    }
+    return st;
+  }
+  adapter::BrokerStatus Ack(const std::vector<std::uint64_t>& receipts) override {
+    v1::AckRequest rq;
+    for (auto r : receipts) rq.add_receipts(r);
+    v1::AckResponse rs;
+    return Convert(broker_.Ack(rq, &rs));
+  }
+  adapter::BrokerStatus Nack(const std::vector<std::uint64_t>& receipts) override {
+    v1::NackRequest rq;
+    for (auto r : receipts) rq.add_receipts(r);
+    v1::NackResponse rs;
+    return Convert(broker_.Nack(rq, &rs));
+  }
+  adapter::BrokerStatus ExtendLease(const std::vector<std::uint64_t>& receipts,
+                                    std::int64_t extension_ns,
+                                    std::vector<std::uint64_t>* rejected) override {
+    v1::ExtendLeaseRequest rq;
+    for (auto r : receipts) rq.add_receipts(r);
+    rq.set_extension_ns(extension_ns);
+    v1::ExtendLeaseResponse rs;
+    adapter::BrokerStatus st = Convert(broker_.ExtendLease(rq, &rs));
+    if (rejected != nullptr) rejected->assign(rs.rejected_receipts().begin(), rs.rejected_receipts().end());
+    return st;
+  }
+
+ private:
+  static adapter::BrokerStatus Convert(const CallStatus& c) {
+    adapter::BrokerStatus st;
+    st.code = static_cast<grpc::StatusCode>(static_cast<int>(c.code));
+    st.message = c.message;
+    st.now_ns = c.now;
+    if (c.code == CallCode::kResourceExhausted) st.retry_after_ns = c.retry_after;
+    return st;
+  }
+  BrokerEndpoint& broker_;
+};
+
+ConnectorFailure Misuse(const char* call, const std::string& what) {
+  return ConnectorFailure{ConnectorFailure::Kind::kCallFailed, absl::StrCat(call, ": ", what), "", ""};
+}
+
+ConnectorFailure NotAlive() {
+  return ConnectorFailure{ConnectorFailure::Kind::kExited, "no live incarnation", "", ""};
+}
+
+}  // namespace
+
+ConnectorFailure InProcessPort::Start(std::uint64_t /*incarnation*/) {
+  source_ = factory_();
+  if (source_ == nullptr) {
+    return ConnectorFailure{ConnectorFailure::Kind::kStartFailed, "the source factory returned null", "", ""};
+  }
+  return {};
+}
+
+ConnectorFailure InProcessPort::Open(const v1::OpenRequest& request, v1::OpenResponse*,
+                                     BrokerEndpoint& broker) {
+  if (source_ == nullptr) return NotAlive();
+  EndpointClient client(broker);
+  adapter::Context ctx(adapter::CallKind::kOpen, request.now_ns(), client);
+  adapter::OpenInfo info;
+  info.incarnation = request.incarnation();
+  info.restore = request.restore();
+  info.checkpoint_id = request.checkpoint_id();
+  info.checkpoint_state = request.checkpoint_state();
+  info.redelivery_horizon_ns = request.redelivery_horizon_ns();
+  grpc::Status st = source_->Open(info, ctx);
+  if (!st.ok()) return Misuse("Open", absl::StrCat("answered ", st.error_code(), " ", st.error_message()));
+  return {};
+}
+
+ConnectorFailure InProcessPort::Advance(const v1::AdvanceRequest& request,
+                                        v1::AdvanceResponse* response, BrokerEndpoint& broker) {
+  if (source_ == nullptr) return NotAlive();
+  EndpointClient client(broker);
+  adapter::Context ctx(adapter::CallKind::kAdvance, request.now_ns(), client);
+  source_->Advance(ctx);
+  if (!ctx.misuse().empty()) return Misuse("Advance", ctx.misuse());
+  ctx.WriteStep(response);
+  return {};
+}
+
+ConnectorFailure InProcessPort::Checkpoint(const v1::CheckpointRequest& request,
+                                           v1::CheckpointResponse* response, BrokerEndpoint& broker) {
+  if (source_ == nullptr) return NotAlive();
+  EndpointClient client(broker);
+  adapter::Context ctx(adapter::CallKind::kCheckpoint, request.now_ns(), client);
+  response->set_state(source_->Checkpoint(request.checkpoint_id(), ctx));
+  if (!ctx.misuse().empty()) return Misuse("Checkpoint", ctx.misuse());
+  return {};
+}
+
+ConnectorFailure InProcessPort::Committed(const v1::CommittedRequest& request,
+                                          v1::CommittedResponse*, BrokerEndpoint& broker) {
+  if (source_ == nullptr) return NotAlive();
+  EndpointClient client(broker);
+  adapter::Context ctx(adapter::CallKind::kCommitted, request.now_ns(), client);
+  source_->Committed(request.checkpoint_id(), ctx);
+  if (!ctx.misuse().empty()) return Misuse("Committed", ctx.misuse());
+  return {};
+}
+
+absl::StatusOr<RunOutput> RunInProcess(const RunSpec& spec, const InProcessPort::Factory& factory) {
+  InProcessPort port(factory);
+  return RunWithPort(spec, port);
+}
+
+absl::StatusOr<v1::SuiteReport> CertifyInProcess(const std::string& suite_path,
+                                                 const InProcessPort::Factory& factory, unsigned jobs) {
+  auto suite = LoadSuite(suite_path);
+  if (!suite.ok()) return suite.status();
+  CertifyOptions options;
+  options.connector_argv = {"(in-process)"};
+  options.jobs = jobs;
+  options.runner = [&factory](const RunSpec& spec) { return RunInProcess(spec, factory); };
+  return Certify(*suite, options);
+}
+
+}  // namespace weir

@@ -1,0 +1,67 @@
+// File: certify.h
+//
+// Runs a suite: every (scenario, seed) pair of this shard, several at a time,
+// each with its own broker server, connector process and sockets. Produces the
+// SuiteReport (runs in pair order, whatever order they finished in) and the
+// per-invariant summary. Stops launching new runs after `max_failures` failed
+// runs, or when `stop` becomes true (a signal); the report then says why and
+// is marked incomplete.
+//
+// Sharding: pair i (scenario-major, then seed) belongs to shard i % count.
+//
+// Thread safety: Certify() blocks; `progress` is called from worker threads
+// under an internal lock.
+#pragma once
+
+#include <atomic>
+#include <cstdint>
+#include <functional>
+#include <optional>
+#include <string>
+#include <vector>
+
+#include "absl/status/statusor.h"
+#include "harness/edge/grpc_run.h"
+#include "harness/suite/suite_file.h"
+#include "weir/v1/suite.pb.h"
+
+namespace weir {
+
+struct ShardSpec {
+  std::uint32_t index = 0;
+  std::uint32_t count = 1;
+};
+
+struct CertifyOptions {
+  std::vector<std::string> connector_argv;
+  std::string connector_sha256;  // of the binary argv[0] resolves to
+  unsigned jobs = 1;
+  std::uint64_t max_failures = 0;  // 0: no limit
+  ShardSpec shard;
+  Transport transport = Transport::kTcp;
+  std::optional<v1::Profile> profile;  // overrides every scenario's profile
+  std::string profile_path;            // for replay lines
+  const std::atomic<bool>* stop = nullptr;
+  // Runs one pair; default RunOverGrpc. An in-process host passes its own.
+  std::function<absl::StatusOr<RunOutput>(const RunSpec&)> runner;
+  struct Progress {
+    std::uint64_t done = 0;
+    std::uint64_t total = 0;
+    std::uint64_t failed = 0;
+  };
+  std::function<void(const Progress&, const v1::RunRecord&)> progress;
+};
+
+// Errors are harness faults that prevent any run (none so far); per-run
+// harness faults are recorded in the run's harness_error.
+[[nodiscard]] absl::StatusOr<v1::SuiteReport> Certify(const LoadedSuite& suite,
+                                                      const CertifyOptions& options);
+
+// Recomputes the per-invariant summary from the runs (used by merge too).
+void Summarize(v1::SuiteReport* report);
+
+// "weir run --scenario … --seed … --connector '…'" for one pair.
+std::string ReplayLine(const std::string& scenario_path, std::uint64_t seed, Transport transport,
+                       const std::string& profile_path, const std::vector<std::string>& argv);
+
+}  // namespace weir

@@ -1,0 +1,52 @@
+#include "harness/suite/suite_file.h"
+
+#include <filesystem>
+
+#include "absl/strings/str_cat.h"
+#include "harness/scenario/scenario_file.h"
+#include "harness/scenario/text_file.h"
+#include "harness/trace/trace_format.h"
+
+namespace weir {
+
+absl::StatusOr<LoadedSuite> LoadSuite(const std::string& path) {
+  LoadedSuite out;
+  out.path = path;
+  std::string text;
+  if (absl::Status st = ReadWholeFile(path, &text); !st.ok()) return st;
+  TextFile f(path);
+  if (absl::Status st = f.ParseText(text, &out.suite); !st.ok()) return st;
+  const v1::Suite& s = out.suite;
+  f.Require(s.scenarios_size() > 0, {"scenarios"}, "expected at least one scenarios: \"FILE\"");
+  f.Require(s.seeds() >= 1 && s.seeds() <= 1000000, {"seeds"},
+            absl::StrCat("seeds is ", s.seeds(), "; expected 1 ..1000000"));
+  if (absl::Status st = f.status(); !st.ok()) return st;
+  if (out.suite.first_seed() == 0) out.suite.set_first_seed(1);
+
+  Sha256 digest;
+  auto feed = [&digest](const std::string& bytes) {
+    digest.Update(absl::StrCat(bytes.size(), ":"));
+    digest.Update(bytes);
+  };
+  feed(text);
+  const std::filesystem::path base = std::filesystem::path(path).parent_path();
+  for (int i = 0; i < s.scenarios_size(); ++i) {
+    const std::string resolved = (base / s.scenarios(i)).lexically_normal().string();
+    std::string scenario_text;
+    if (absl::Status st = ReadWholeFile(resolved, &scenario_text); !st.ok()) {
+      TextFile g(path);
+      g.Require(false, {absl::StrCat("scenarios[", i, "]")},
+                absl::StrCat("scenario '", s.scenarios(i), "' cannot be read (", st.message(), ")"));
+      return g.status();
+    }
+    auto scenario = ParseScenario(resolved, scenario_text);
+    if (!scenario.ok()) return scenario.status();
+    feed(scenario_text);
+    out.scenario_paths.push_back(resolved);
+    out.scenarios.push_back(std::move(*scenario));
+  }
+  out.digest = digest.HexDigest();
+  return out;
+}
+
+}  // namespace weir

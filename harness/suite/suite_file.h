@@ -1,0 +1,31 @@
+// File: suite_file.h
+//
+// Suite files: a weir.v1.Suite in Protobuf text format naming scenarios (paths
+// relative to the suite file), a seed budget and optionally a profile. Loading
+// reads and validates every scenario it names, and computes the suite digest:
+// SHA-256 over the suite file's bytes and each scenario file's bytes, in order,
+// each preceded by its length — so a certificate names exactly what was run.
+#pragma once
+
+#include <string>
+#include <vector>
+
+#include "absl/status/statusor.h"
+#include "weir/v1/scenario.pb.h"
+#include "weir/v1/suite.pb.h"
+
+namespace weir {
+
+struct LoadedSuite {
+  v1::Suite suite;
+  std::string path;
+  std::string digest;                    // "sha256:…"
+  std::vector<std::string> scenario_paths;  // resolved, as they open from here
+  std::vector<v1::Scenario> scenarios;      // validated, defaults filled
+  std::uint64_t pairs() const { return scenarios.size() * suite.seeds(); }
+};
+
+// Errors: file:line:column of the suite or of the scenario that is wrong.
+[[nodiscard]] absl::StatusOr<LoadedSuite> LoadSuite(const std::string& path);
+
+}  // namespace weir

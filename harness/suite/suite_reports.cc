@@ -1,0 +1,217 @@
+#include "harness/suite/suite_reports.h"
+
+#include <google/protobuf/io/coded_stream.h>
+#include <google/protobuf/io/zero_copy_stream_impl_lite.h>
+#include <google/protobuf/util/json_util.h>
+
+#include "absl/status/status.h"
+#include "absl/strings/str_cat.h"
+#include "absl/strings/str_format.h"
+#include "harness/trace/trace_format.h"
+
+namespace weir {
+namespace {
+
+std::string ToJson(const google::protobuf::Message& m) {
+  std::string out;
+  google::protobuf::util::JsonPrintOptions options;
+  options.add_whitespace = true;
+  options.preserve_proto_field_names = true;
+  options.always_print_primitive_fields = true;
+  (void)google::protobuf::util::MessageToJsonString(m, &out, options);
+  return out;
+}
+
+absl::Status FromJson(std::string_view text, google::protobuf::Message* m) {
+  google::protobuf::util::JsonParseOptions options;
+  auto st = google::protobuf::util::JsonStringToMessage(
+      google::protobuf::StringPiece(text.data(), text.size()), m, options);
+  if (!st.ok()) return absl::InvalidArgumentError(std::string(st.message()));
+  return absl::OkStatus();
+}
+
+}  // namespace
+
+std::string XmlEscape(std::string_view text) {
+  std::string out;
+  out.reserve(text.size());
+  for (std::size_t i = 0; i < text.size(); ++i) {
+    const unsigned char c = static_cast<unsigned char>(text[i]);
+    switch (c) {
+      case '&': out += "&amp;"; continue;
+      case '<': out += "&lt;"; continue;
+      case '>': out += "&gt;"; continue;
+      case '"': out += "&quot;"; continue;
+      case '\'': out += "&#39;"; continue;
+      default: break;
+    }
+    if (c < 0x20 && c != '\t' && c != '\n' && c != '\r') {
+      out += "\xEF\xBF\xBD";
+      continue;
+    }
+    if (c < 0x80) {
+      out.push_back(static_cast<char>(c));
+      continue;
+    }
+    // Pass through well-formed UTF-8 sequences, replace anything else.
+    const int len = (c >> 5) == 0x6 ? 2 : (c >> 4) == 0xE ? 3 : (c >> 3) == 0x1E ? 4 : 0;
+    bool ok = len > 0 && i + static_cast<std::size_t>(len) <= text.size();
+    for (int k = 1; ok && k < len; ++k) {
+      ok = (static_cast<unsigned char>(text[i + static_cast<std::size_t>(k)]) >> 6) == 0x2;
+    }
+    if (!ok) {
+      out += "\xEF\xBF\xBD";
+      continue;
+    }
+    out.append(text.substr(i, static_cast<std::size_t>(len)));
+    i += static_cast<std::size_t>(len) - 1;
+  }
+  return out;
+}
+
+std::string SuiteReportJson(const v1::SuiteReport& report) { return ToJson(report); }
+
+absl::StatusOr<v1::SuiteReport> ParseSuiteReportJson(std::string_view text) {
+  v1::SuiteReport r;
+  if (absl::Status st = FromJson(text, &r); !st.ok()) return st;
+  return r;
+}
+
+std::string SuiteJUnitXml(const v1::SuiteReport& report, const std::string& timestamp,
+                          const std::string& hostname) {
+  std::uint64_t failures = 0, errors = 0;
+  double time = 0;
+  for (const auto& run : report.runs()) {
+    if (!run.harness_error().empty()) {
+      ++errors;
+    } else if (!run.passed()) {
+      ++failures;
+    }
+    time += run.wall_seconds();
+  }
+  const std::string name = report.suite_name().empty() ? "weir" : report.suite_name();
+  std::string out = "<?xml version=\"1.0\" encoding=\"UTF-8\"?>\n";
+  absl::StrAppend(&out, "<testsuite name=\"", XmlEscape(name), "\" timestamp=\"", XmlEscape(timestamp),
+                  "\" hostname=\"", XmlEscape(hostname.empty() ? "localhost" : hostname),
+                  "\" tests=\"", report.runs_size(), "\" failures=\"", failures, "\" errors=\"",
+                  errors, "\" time=\"", absl::StrFormat("%.3f", time), "\">\n");
+  out += "  <properties>\n";
+  auto property = [&out](const std::string& k, const std::string& v) {
+    absl::StrAppend(&out, "    <property name=\"", XmlEscape(k), "\" value=\"", XmlEscape(v), "\"/>\n");
+  };
+  property("suite_digest", report.suite_digest());
+  property("weir_version", report.weir_version());
+  property("connector_sha256", report.connector_sha256());
+  property("shard", absl::StrCat(report.shard_index(), "/", report.shard_count()));
+  property("complete", report.complete() ? "true" : "false");
+  out += "  </properties>\n";
+  for (const auto& run : report.runs()) {
+    absl::StrAppend(&out, "  <testcase name=\"", XmlEscape(absl::StrCat("seed ", run.seed())),
+                    "\" classname=\"", XmlEscape(run.scenario()), "\" time=\"",
+                    absl::StrFormat("%.3f", run.wall_seconds()), "\"");
+    if (run.passed()) {
+      out += "/>\n";
+      continue;
+    }
+    out += ">\n";
+    if (!run.harness_error().empty()) {
+      absl::StrAppend(&out, "    <error type=\"harness-fault\" message=\"", XmlEscape(run.harness_error()),
+                      "\">", XmlEscape(absl::StrCat(run.harness_error(), "\nreplay: ", run.replay())),
+                      "</error>\n");
+    } else {
+      std::string invariants;
+      for (const auto& inv : run.failed_invariants()) {
+        if (!invariants.empty()) invariants += ", ";
+        invariants += inv;
+      }
+      absl::StrAppend(&out, "    <failure type=\"", XmlEscape(invariants), "\" message=\"",
+                      XmlEscape(run.first_violation()), "\">",
+                      XmlEscape(absl::StrCat("failed: ", invariants, "\n", run.first_violation(),
+                                             "\nreplay: ", run.replay())),
+                      "</failure>\n");
+    }
+    out += "  </testcase>\n";
+  }
+  out += "  <system-out></system-out>\n  <system-err></system-err>\n</testsuite>\n";
+  return out;
+}
+
+std::string SuiteSummaryText(const v1::SuiteReport& report) {
+  std::uint64_t failed = 0;
+  for (const auto& run : report.runs()) failed += run.passed() ? 0 : 1;
+  std::string out = absl::StrFormat("%-22s %8s %8s  %s\n", "invariant", "passed", "failed",
+                                    "first failing seed");
+  for (const auto& s : report.invariants()) {
+    absl::StrAppend(&out, absl::StrFormat("%-22s %8d %8d  %s\n", s.invariant(), s.runs_passed(),
+                                          s.runs_failed(),
+                                          s.runs_failed() == 0
+                                              ? std::string("-")
+                                              : absl::StrCat(s.first_failing_scenario(), " seed ",
+                                                             s.first_failing_seed())));
+  }
+  for (const auto& s : report.invariants()) {
+    if (s.runs_failed() > 0) {
+      absl::StrAppend(&out, "\nfirst ", s.invariant(), " failure:\n  replay: ", s.first_failing_replay(),
+                      "\n");
+    }
+  }
+  for (const auto& run : report.runs()) {
+    if (!run.harness_error().empty()) {
+      absl::StrAppend(&out, "\nharness fault in ", run.scenario(), " seed ", run.seed(), ": ",
+                      run.harness_error(), "\n");
+      break;
+    }
+  }
+  absl::StrAppend(&out, "\n", report.runs_size(), " runs, ", report.runs_size() - static_cast<int>(failed),
+                  " passed, ", failed, " failed", report.complete() ? "" : " (INCOMPLETE: ",
+                  report.complete() ? "" : report.stopped_because(), report.complete() ? "" : ")", "\n");
+  return out;
+}
+
+std::string CertificateSeal(const v1::Certificate& certificate) {
+  v1::Certificate copy = certificate;
+  copy.clear_seal();
+  std::string bytes;
+  {
+    google::protobuf::io::StringOutputStream stream(&bytes);
+    google::protobuf::io::CodedOutputStream coded(&stream);
+    coded.SetSerializationDeterministic(true);
+    copy.SerializeToCodedStream(&coded);
+  }
+  Sha256 h;
+  h.Update(bytes);
+  return h.HexDigest();
+}
+
+v1::Certificate MakeCertificate(const v1::SuiteReport& report) {
+  v1::Certificate c;
+  c.set_suite_name(report.suite_name());
+  c.set_suite_digest(report.suite_digest());
+  c.set_weir_version(report.weir_version());
+  *c.mutable_connector_argv() = report.connector_argv();
+  c.set_connector_sha256(report.connector_sha256());
+  std::uint64_t passed = 0;
+  std::string verdicts;
+  for (const auto& run : report.runs()) {
+    passed += run.passed() ? 1 : 0;
+    verdicts.push_back(run.passed() ? 'P' : 'F');
+  }
+  c.set_runs(static_cast<std::uint64_t>(report.runs_size()));
+  c.set_runs_passed(passed);
+  c.set_runs_failed(c.runs() - passed);
+  c.set_verdicts(verdicts);
+  c.set_certified(report.complete() && report.shard_count() <= 1 && c.runs() == report.pairs_total() &&
+                  c.runs_failed() == 0);
+  c.set_seal(CertificateSeal(c));
+  return c;
+}
+
+std::string CertificateJson(const v1::Certificate& certificate) { return ToJson(certificate); }
+
+absl::StatusOr<v1::Certificate> ParseCertificateJson(std::string_view text) {
+  v1::Certificate c;
+  if (absl::Status st = FromJson(text, &c); !st.ok()) return st;
+  return c;
+}
+
+}  // namespace weir

@@ -1,0 +1,163 @@
+#!/usr/bin/env bash
+# detection_matrix.sh: runs the reference connector and every mutant of the zoo
+# (fixtures/connectors/mutant_*.cc) over the bundled scenarios with a fixed
+# seed budget and prints the detection matrix: per mutant the invariant expected
+# to catch it, whether it was caught with it, the runs up to the first such
+# detection (scenario, seed) and every invariant seen failing.
+#
+# Usage: scripts/detection_matrix.sh [--build DIR] [--seeds N] [--jobs N]
+#                                    [--scenarios 'GLOB'] [--keep DIR]
+#   --seeds N     seeds 1..N per (connector, scenario)          (default 5)
+#   --jobs N      runs in parallel                              (default 2)
+#   --scenarios   scenario files                      (default fixtures/scenarios/*.scenario)
+#   --keep DIR    keep every run's output in DIR
+# Exit code: 0 when the reference passed every run and every mutant failed at
+# least one run with its expected invariant among the reasons; 1 otherwise; 2 on
+# bad usage. A mutant whose expected invariant the oracle does not check yet
+# (absent from the verdict table) is shown as "pending" and does not fail.
+set -euo pipefail
+
+root="$(cd "$(dirname "${BASH_SOURCE[0]}")/.." && pwd)"
+build="$root/build"
+seeds=5
+jobs=2
+scenario_glob="$root/fixtures/scenarios/*.scenario"
+keep=""
+while [[ $# -gt 0 ]]; do
+  case "$1" in
+    --build) build="$2"; shift 2 ;;
+    --seeds) seeds="$2"; shift 2 ;;
+    --jobs) jobs="$2"; shift 2 ;;
+    --scenarios) scenario_glob="$2"; shift 2 ;;
+    --keep) keep="$2"; shift 2 ;;
+    *) echo "detection_matrix.sh: unknown argument '$1'" >&2; exit 2 ;;
+  esac
+done
+[[ "$seeds" =~ ^[1-9][0-9]*$ ]] || { echo "detection_matrix.sh: --seeds needs a positive count" >&2; exit 2; }
+
+weir="$build/harness/weir"
+bin="$build/fixtures/connectors"
+[[ -x "$weir" ]] || { echo "detection_matrix.sh: $weir not built" >&2; exit 2; }
+
+# Mutant -> the invariant expected to catch it (from each file's top comment).
+expected_of() {
+  sed -n 's/^\/\/ Expected to be caught by: \([a-z-]*\)\..*/\1/p' \
+    "$root/fixtures/connectors/$1.cc" | head -n 1
+}
+
+mutants=()
+for f in "$root"/fixtures/connectors/mutant_*.cc; do
+  m="$(basename "$f" .cc)"
+  [[ -x "$bin/$m" ]] || { echo "detection_matrix.sh: $bin/$m not built" >&2; exit 2; }
+  mutants+=("$m")
+done
+connectors=(reference_connector "${mutants[@]}")
+# shellcheck disable=SC2206
+scenarios=($scenario_glob)
+
+out="${keep:-$(mktemp -d)}"
+mkdir -p "$out"
+[[ -n "$keep" ]] || trap 'rm -rf "$out"' EXIT
+
+# One job line per run: connector scenario seed (scenario-major, then seed).
+jobs_file="$out/jobs"
+: >"$jobs_file"
+for c in "${connectors[@]}"; do
+  for s in "${scenarios[@]}"; do
+    for ((n = 1; n <= seeds; n++)); do
+      echo "$c $s $n" >>"$jobs_file"
+    done
+  done
+done
+
+run_one() {
+  local c="$1" s="$2" n="$3"
+  local tag
+  tag="$c.$(basename "$s" .scenario).$n"
+  local rc=0
+  timeout 300 "$WEIR" run --scenario "$s" --seed "$n" --connector "$BIN/$c" >"$OUT/$tag.out" 2>&1 || rc=$?
+  local failed
+  failed="$(sed -n 's/^FAILED \([a-z-]*\).*/\1/p' "$OUT/$tag.out" | sort -u | tr '\n' ',' | sed 's/,$//')"
+  echo "$c $s $n $rc ${failed:--}" >"$OUT/$tag.result"
+}
+export -f run_one
+export WEIR="$weir" BIN="$bin" OUT="$out"
+xargs -P "$jobs" -L 1 bash -c 'run_one "$@"' _ <"$jobs_file"
+
+# Invariants the oracle checks: the verdict table of the first reference run.
+first_ref="$out/reference_connector.$(basename "${scenarios[0]}" .scenario).1.out"
+known="$(awk '/^invariant +verdict/{t=1; next} t && NF==0{t=0} t{print $1}' "$first_ref" | tr '\n' ' ')"
+
+result_of() { cat "$out/$1.$(basename "$2" .scenario).$3.result"; }
+
+status=0
+total=$(( ${#scenarios[@]} * seeds ))
+ref_failures=0
+ref_failed_runs=""
+for s in "${scenarios[@]}"; do
+  for ((n = 1; n <= seeds; n++)); do
+    read -r _ _ _ rc failed <<<"$(result_of reference_connector "$s" "$n")"
+    if [[ "$rc" != 0 ]]; then
+      ref_failures=$((ref_failures + 1))
+      ref_failed_runs+="  $(basename "$s" .scenario) seed $n: exit $rc, failed: $failed"$'\n'
+    fi
+  done
+done
+
+echo "detection matrix: ${#scenarios[@]} scenarios x seeds 1..$seeds = $total runs per connector"
+echo
+if [[ $ref_failures -eq 0 ]]; then
+  echo "reference_connector: passed all $total runs"
+else
+  echo "reference_connector: FAILED $ref_failures of $total runs"
+  printf '%s' "$ref_failed_runs"
+  status=1
+fi
+echo
+printf '| %-30s | %-20s | %-8s | %-50s | %s |\n' mutant expected detected "first detection (runs, scenario, seed)" "invariants seen (runs failed)"
+printf '|%s|%s|%s|%s|%s|\n' "$(printf -- '-%.0s' {1..32})" "$(printf -- '-%.0s' {1..22})" \
+  "$(printf -- '-%.0s' {1..10})" "$(printf -- '-%.0s' {1..52})" "$(printf -- '-%.0s' {1..31})"
+for m in "${mutants[@]}"; do
+  exp="$(expected_of "$m")"
+  count=0
+  first=""
+  failed_runs=0
+  declare -A seen=()
+  for s in "${scenarios[@]}"; do
+    for ((n = 1; n <= seeds; n++)); do
+      count=$((count + 1))
+      read -r _ _ _ rc failed <<<"$(result_of "$m" "$s" "$n")"
+      [[ "$rc" != 0 ]] && failed_runs=$((failed_runs + 1))
+      if [[ "$failed" != "-" ]]; then
+        IFS=',' read -ra names <<<"$failed"
+        for x in "${names[@]}"; do seen[$x]=$(( ${seen[$x]:-0} + 1 )); done
+      elif [[ "$rc" != 0 ]]; then
+        seen["exit-$rc"]=$(( ${seen["exit-$rc"]:-0} + 1 ))
+      fi
+      if [[ -z "$first" && ",$failed," == *",$exp,"* ]]; then
+        first="$count, $(basename "$s" .scenario), seed $n"
+      fi
+    done
+  done
+  seen_list=""
+  for x in $(printf '%s\n' "${!seen[@]}" | sort); do seen_list+="$x (${seen[$x]}) "; done
+  if [[ -n "$first" ]]; then
+    detected=yes
+  elif [[ " $known " != *" $exp "* ]]; then
+    detected=pending
+    first="oracle does not check $exp yet"
+  else
+    detected=NO
+    first="-"
+    status=1
+  fi
+  printf '| %-30s | %-20s | %-8s | %-50s | %s|\n' "$m" "$exp" "$detected" "$first" "${seen_list:-none }"
+  unset seen
+done
+echo
+if [[ $status -eq 0 ]]; then
+  echo "PASSED: the reference passed every run; every mutant was caught by its expected invariant (or is pending)."
+else
+  echo "FAILED: see the rows above."
+fi
+exit "$status"
