@@ -1,5 +1,5 @@
 // weir: the command line. Subcommands: run (one seeded run against a
-// connector). Exit codes: 0 every invariant held, 1 an invariant failed,
+// connector), replay and explain (a saved trace), lint, and the suite commands. Exit codes: 0 every invariant held, 1 an invariant failed,
 // 2 usage or input error, 3 harness fault.
 #include <unistd.h>
 
@@ -18,6 +18,8 @@
 #include "harness/cli/command_line.h"
 #include "harness/cli/suite_commands.h"
 #include "harness/edge/grpc_run.h"
+#include "harness/replay/explain.h"
+#include "harness/replay/replay.h"
 #include "harness/report/text_report.h"
 #include "harness/scenario/plan_file.h"
 #include "harness/scenario/profile_file.h"
@@ -218,6 +220,60 @@ int LintCommand(const std::vector<std::string>& files) {
   return bad == 0 ? kExitPassed : kExitUsage;
 }
 
+// Input errors (bad trace file) exit 2; anything else is a harness fault.
+int StatusExit(const absl::Status& st) {
+  std::fprintf(stderr, "weir: %s\n", std::string(st.message()).c_str());
+  return absl::IsInvalidArgument(st) || absl::IsNotFound(st) ? kExitUsage : kExitHarness;
+}
+
+// weir replay TRACE: reruns the run from the trace's header and compares
+// event by event. 0 identical, 1 diverged (nondeterministic connector).
+int ReplayCommand(const std::string& trace, const std::string& transport, const std::string& connector) {
+  ReplayOptions options;
+  if (transport == "unix") {
+    options.transport = Transport::kUnix;
+  } else if (transport != "tcp") {
+    return UsageError("--transport is '" + transport + "'; expected tcp or unix");
+  }
+  if (!connector.empty()) {
+    auto split = SplitCommandLine(connector);
+    if (!split.ok()) return UsageError(absl::StrCat("--connector ", split.status().message()));
+    options.connector_argv = std::move(*split);
+  }
+  auto r = ReplayTrace(trace, options);
+  if (!r.ok()) return StatusExit(r.status());
+  if (r->weir_version != WeirVersion()) {
+    std::printf("note: the trace was written by weir %s; this is weir %s\n", r->weir_version.c_str(),
+                WeirVersion());
+  }
+  if (r->identical) {
+    std::printf("weir replay: reproduced identically (digest %s, %llu events)\n",
+                r->rerun_digest.c_str(), static_cast<unsigned long long>(r->rerun_events));
+    return kExitPassed;
+  }
+  std::printf(
+      "weir replay: diverged at event #%llu: expected %s, got %s\n"
+      "  expected: %s\n  got:      %s\n"
+      "saved   %s (%llu events)\nrerun   %s (%llu events)\n"
+      "the connector is nondeterministic: '%s' answered the same scenario, seed and fault plan "
+      "differently (wall clock, unseeded randomness or racing threads?)\n",
+      static_cast<unsigned long long>(r->diverged_at), r->expected_what.c_str(), r->got_what.c_str(),
+      r->expected_line.empty() ? "(end of the run)" : r->expected_line.c_str(),
+      r->got_line.empty() ? "(end of the run)" : r->got_line.c_str(), r->saved_digest.c_str(),
+      static_cast<unsigned long long>(r->saved_events), r->rerun_digest.c_str(),
+      static_cast<unsigned long long>(r->rerun_events), ShellJoin(r->connector_argv).c_str());
+  return kExitFailed;
+}
+
+// weir explain TRACE: the timeline around each violation. Exit 0 either way
+// (1 only for a failed run would hide the explanation's own errors).
+int ExplainCommand(const std::string& trace) {
+  auto r = ExplainTrace(trace);
+  if (!r.ok()) return StatusExit(r.status());
+  std::printf("%s", r->text.c_str());
+  return kExitPassed;
+}
+
 }  // namespace
 }  // namespace weir
 
@@ -251,6 +307,16 @@ int main(int argc, char** argv) {
   CLI::App* lint = app.add_subcommand("lint", "Validate scenario (.scenario) and plan (.plan) files");
   lint->add_option("files", lint_files, "Files to check")->required();
 
+  std::string replay_trace, replay_transport = "tcp", replay_connector;
+  CLI::App* replay = app.add_subcommand("replay", "Rerun a saved trace's run and compare it event by event");
+  replay->add_option("trace", replay_trace, "Trace file (weir run --trace)")->required();
+  replay->add_option("--transport", replay_transport, "tcp (loopback, default) or unix");
+  replay->add_option("--connector", replay_connector,
+                     "Connector command replacing the trace header's: 'CMD ARGS…'");
+  std::string explain_trace;
+  CLI::App* explain = app.add_subcommand("explain", "Text timeline of a saved trace around each violation");
+  explain->add_option("trace", explain_trace, "Trace file (weir run --trace)")->required();
+
   try {
     app.parse(argc, argv);
   } catch (const CLI::ParseError& e) {
@@ -262,6 +328,8 @@ int main(int argc, char** argv) {
     return RunCommand(run_flags);
   }
   if (lint->parsed()) return LintCommand(lint_files);
+  if (replay->parsed()) return ReplayCommand(replay_trace, replay_transport, replay_connector);
+  if (explain->parsed()) return ExplainCommand(explain_trace);
   if (int rc = RunSuiteCommand(suite_commands); rc >= 0) return rc;
   return kExitUsage;
 }

@@ -63,14 +63,23 @@ void Oracle::Report(Invariant invariant, const std::string& sentence,
 }
 
 bool Oracle::IsCommitted(std::uint64_t id) const {
-  if (id < retired_.size() && retired_[id]) return true;
+  if (IsRetired(id)) return true;
   auto it = messages_.find(id);
   return it != messages_.end() && it->second.committed_records > 0;
 }
 
 void Oracle::Retire(std::uint64_t id) {
-  if (id >= retired_.size()) retired_.resize(std::max<std::size_t>(id + 1, retired_.size() * 2));
-  retired_[id] = true;
+  if (id == 0) {
+    retired_zero_ = true;
+  } else if (id - 1 >= retired_base_) {
+    const std::uint64_t i = id - 1 - retired_base_;
+    if (i / 64 >= retired_.size()) retired_.resize(i / 64 + 1, 0);
+    retired_[i / 64] |= std::uint64_t{1} << (i % 64);
+    while (!retired_.empty() && retired_.front() == ~std::uint64_t{0}) {
+      retired_.pop_front();
+      retired_base_ += 64;
+    }
+  }
   messages_.erase(id);
 }
 
@@ -233,7 +242,7 @@ void Oracle::OnEmitted(const TraceEvent& e) {
              {reported_ref_}, &e);
     }
   }
-  if (id < retired_.size() && retired_[id]) return;  // delivery history retired with it
+  if (IsRetired(id)) return;  // delivery history retired with it
   auto it = messages_.find(id);
   if (it == messages_.end() || it->second.delivered_in != e.incarnation()) {
     std::vector<EventRef> cited;

@@ -45,12 +45,13 @@
 //
 // Memory: per in-flight message one MessageState (which also holds the
 // per-incarnation delivery facts, so they go when the message retires), one
-// bit per retired id, the open and pending epochs, and O(1) else.
+// bit per retired id above the oldest id still in flight, the open and pending epochs, and O(1) else.
 //
 // Thread safety: none.
 #pragma once
 
 #include <cstdint>
+#include <deque>
 #include <optional>
 #include <string>
 #include <vector>
@@ -126,7 +127,21 @@ class Oracle : public TraceObserver {
   const VirtualDuration idle_max_lag_;
   Verdict verdict_;
   absl::flat_hash_map<std::uint64_t, MessageState> messages_;  // published, in flight
-  std::vector<bool> retired_;  // committed and acked: no longer in flight
+  // Retired ids (committed and acked: no longer in flight), one bit per id.
+  // Ids retire roughly in order, so the words below the oldest id still in
+  // flight are all ones: they are dropped and stand for "every id below
+  // retired_base_ is retired", which keeps memory flat over a long run. Bit
+  // i of the window is id retired_base_ + i; id 0 (never dense) has its own.
+  bool IsRetired(std::uint64_t id) const {
+    if (id == 0) return retired_zero_;
+    const std::uint64_t i = id - 1;
+    if (i < retired_base_) return true;
+    const std::uint64_t w = (i - retired_base_) / 64;
+    return w < retired_.size() && ((retired_[w] >> ((i - retired_base_) % 64)) & 1) != 0;
+  }
+  std::deque<std::uint64_t> retired_;
+  std::uint64_t retired_base_ = 0;  // multiple of 64 (for id - 1)
+  bool retired_zero_ = false;
   std::vector<PendingRecord> open_epoch_;
   absl::flat_hash_map<std::uint64_t, std::vector<PendingRecord>> pending_;  // by checkpoint id
   // Highest watermark of the live incarnation (or committed with its checkpoint).

@@ -1,0 +1,202 @@
+#include "harness/replay/explain.h"
+
+#include <algorithm>
+#include <cstdint>
+#include <optional>
+#include <set>
+#include <utility>
+#include <vector>
+
+#include "absl/container/flat_hash_map.h"
+#include "absl/strings/str_cat.h"
+#include "absl/strings/str_format.h"
+#include "harness/cli/command_line.h"
+#include "harness/core/virtual_time.h"
+#include "harness/oracle/oracle.h"
+#include "harness/replay/trace_reader.h"
+#include "harness/trace/describe.h"
+
+namespace weir {
+namespace {
+
+using v1::TraceEvent;
+
+constexpr std::uint64_t kWindowBefore = 25;  // events shown before a proving event
+constexpr std::uint64_t kWindowAfter = 8;    // and after it
+constexpr std::size_t kMaxLines = 80;        // per violation
+
+// The message an event is about, or 0.
+std::uint64_t MessageOf(const TraceEvent& e) {
+  switch (e.kind_case()) {
+    case TraceEvent::kPublished: return e.published().message_id();
+    case TraceEvent::kDelivered: return e.delivered().message_id();
+    case TraceEvent::kEmitted: return e.emitted().message_id();
+    case TraceEvent::kAcked: return e.acked().message_id();
+    case TraceEvent::kNacked: return e.nacked().message_id();
+    case TraceEvent::kLeaseExtended: return e.lease_extended().message_id();
+    case TraceEvent::kLeaseExpired: return e.lease_expired().message_id();
+    case TraceEvent::kAckIgnored: return e.ack_ignored().message_id();
+    default: return 0;
+  }
+}
+
+// Events that shape the run around a violation (shown inside the window).
+bool IsStructural(const TraceEvent& e) {
+  switch (e.kind_case()) {
+    case TraceEvent::kCheckpoint:
+    case TraceEvent::kCommitted:
+    case TraceEvent::kCommitFailed:
+    case TraceEvent::kCommitNotice:
+    case TraceEvent::kCrashed:
+    case TraceEvent::kOpened:
+    case TraceEvent::kExited:
+    case TraceEvent::kProtocolError:
+    case TraceEvent::kCallTimedOut:
+    case TraceEvent::kRunEnded:
+    case TraceEvent::kBrokerCallFailed:
+      return true;
+    default:
+      return false;
+  }
+}
+
+struct Section {
+  const Violation* violation = nullptr;
+  std::set<std::uint64_t> proving;   // seqs
+  std::set<std::uint64_t> messages;  // ids named by proving events
+  std::vector<std::pair<std::uint64_t, std::uint64_t>> windows;  // [lo, hi]
+  bool broker_calls = false;  // show broker calls in the window (throttle, retry)
+  std::string text;
+  std::size_t lines = 0;
+  std::size_t dropped = 0;
+  std::uint64_t last_incarnation = UINT64_MAX;
+
+  bool InWindow(std::uint64_t seq) const {
+    for (const auto& [lo, hi] : windows) {
+      if (seq >= lo && seq <= hi) return true;
+    }
+    return false;
+  }
+};
+
+template <typename F>
+absl::Status ForEachEvent(const std::string& path, F&& f) {
+  auto r = TraceReader::Open(path);
+  if (!r.ok()) return r.status();
+  while (true) {
+    auto next = (*r)->Next();
+    if (!next.ok()) return next.status();
+    if (!*next) return absl::OkStatus();
+    f((*r)->event());
+  }
+}
+
+}  // namespace
+
+absl::StatusOr<ExplainOutput> ExplainTrace(const std::string& path) {
+  auto reader = TraceReader::Open(path);
+  if (!reader.ok()) return reader.status();
+  const v1::TraceHeader header = (*reader)->header();
+  reader->reset();
+
+  // Pass 1: the oracle.
+  Oracle oracle(header.scenario().profile());
+  if (absl::Status st = ForEachEvent(path, [&](const TraceEvent& e) { oracle.OnEvent(e); }); !st.ok()) {
+    return st;
+  }
+  const Verdict verdict = oracle.Finish();
+
+  ExplainOutput out;
+  out.passed = verdict.passed();
+  std::vector<std::string> argv(header.connector_argv().begin(), header.connector_argv().end());
+  absl::StrAppend(&out.text, "trace      ", path, "\n", "scenario   ", header.scenario_path(), " (",
+                  header.scenario().name(), "), seed ", header.seed(), "\n", "connector  ",
+                  ShellJoin(argv), "\n");
+  std::vector<Section> sections;
+  for (int i = 0; i < kInvariantCount; ++i) {
+    const InvariantResult& r = verdict.results[i];
+    if (!r.checked || r.violations == 0) continue;
+    for (const Violation& v : r.first) {
+      Section s;
+      s.violation = &v;
+      for (const Evidence& ev : v.evidence) {
+        s.proving.insert(ev.seq);
+        s.windows.emplace_back(ev.seq > kWindowBefore ? ev.seq - kWindowBefore : 0, ev.seq + kWindowAfter);
+      }
+      s.broker_calls = v.invariant == Invariant::kThrottleViolation || v.invariant == Invariant::kRetryStorm;
+      sections.push_back(std::move(s));
+    }
+  }
+  if (sections.empty()) {
+    absl::StrAppend(&out.text, "\nno violations: every checked invariant held over ", verdict.events,
+                    " events\n");
+    return out;
+  }
+
+  // Pass 2: the messages the proving events name.
+  if (absl::Status st = ForEachEvent(path, [&](const TraceEvent& e) {
+        for (Section& s : sections) {
+          if (s.proving.contains(e.seq())) {
+            if (std::uint64_t m = MessageOf(e); m != 0) s.messages.insert(m);
+          }
+        }
+      });
+      !st.ok()) {
+    return st;
+  }
+
+  // Pass 3: the timelines.
+  absl::flat_hash_map<std::uint64_t, std::optional<std::int64_t>> watermark;  // per incarnation
+  if (absl::Status st = ForEachEvent(path, [&](const TraceEvent& e) {
+        bool moved = false;
+        if (e.has_stepped() && e.stepped().has_watermark_ns()) {
+          auto& w = watermark[e.incarnation()];
+          moved = !w.has_value() || *w != e.stepped().watermark_ns();
+          w = e.stepped().watermark_ns();
+        }
+        for (Section& s : sections) {
+          const bool proving = s.proving.contains(e.seq());
+          const std::uint64_t m = MessageOf(e);
+          bool show = proving || (m != 0 && s.messages.contains(m));
+          if (!show && s.InWindow(e.seq())) {
+            show = IsStructural(e) || moved || (s.broker_calls && e.has_broker_call());
+          }
+          if (!show) continue;
+          if (s.lines >= kMaxLines) {
+            ++s.dropped;
+            continue;
+          }
+          if (e.incarnation() != s.last_incarnation) {
+            absl::StrAppend(&s.text, "  incarnation ", e.incarnation(), "\n");
+            s.last_incarnation = e.incarnation();
+          }
+          absl::StrAppend(&s.text,
+                          absl::StrFormat("    %s #%-7d %12s  %s\n", proving ? "=>" : "  ", e.seq(),
+                                          FormatTime(e.t_ns()), DescribeEvent(e)));
+          ++s.lines;
+        }
+      });
+      !st.ok()) {
+    return st;
+  }
+
+  std::size_t n = 0;
+  for (const Section& s : sections) {
+    ++n;
+    absl::StrAppend(&out.text, "\nviolation ", n, " of ", sections.size(), ": ",
+                    InvariantName(s.violation->invariant), ": ", s.violation->sentence, "\n");
+    absl::StrAppend(&out.text, s.text);
+    if (s.dropped > 0) absl::StrAppend(&out.text, "    … ", s.dropped, " more events not shown\n");
+  }
+  std::uint64_t total = 0;
+  for (const auto& r : verdict.results) {
+    if (r.checked) total += r.violations;
+  }
+  if (total > sections.size()) {
+    absl::StrAppend(&out.text, "\n(", total, " violations in all; the first ", Oracle::kKeptViolations,
+                    " of each invariant are explained)\n");
+  }
+  return out;
+}
+
+}  // namespace weir

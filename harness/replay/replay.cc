@@ -1,0 +1,93 @@
+#include "harness/replay/replay.h"
+
+#include "absl/strings/str_cat.h"
+#include "harness/edge/private_dir.h"
+#include "harness/replay/trace_reader.h"
+#include "harness/trace/describe.h"
+
+namespace weir {
+namespace {
+
+std::string Chomp(std::string s) {
+  if (!s.empty() && s.back() == '\n') s.pop_back();
+  return s;
+}
+
+}  // namespace
+
+RunSpec SpecFromHeader(const v1::TraceHeader& header) {
+  RunSpec spec;
+  spec.scenario = header.scenario();
+  spec.scenario_path = header.scenario_path();
+  spec.seed = header.seed();
+  spec.connector_argv.assign(header.connector_argv().begin(), header.connector_argv().end());
+  // The faults the saved run applied, given exactly (as with --plan).
+  spec.plan = header.plan();
+  return spec;
+}
+
+absl::StatusOr<ReplayResult> ReplayTrace(const std::string& path, const ReplayOptions& options) {
+  if (absl::Status st = CheckTraceFile(path); !st.ok()) return st;
+  auto saved = TraceReader::Open(path);
+  if (!saved.ok()) return saved.status();
+
+  ReplayResult result;
+  result.weir_version = (*saved)->header().weir_version();
+  RunSpec spec = SpecFromHeader((*saved)->header());
+  if (!options.connector_argv.empty()) spec.connector_argv = options.connector_argv;
+  if (spec.connector_argv.empty()) {
+    return absl::InvalidArgumentError(absl::StrCat(path, ":1: the header names no connector command"));
+  }
+  result.connector_argv = spec.connector_argv;
+  spec.transport = options.transport;
+
+  auto dir = PrivateDir::Create();
+  if (!dir.ok()) return dir.status();
+  spec.trace_path = (*dir)->path() + "/rerun.jsonl";
+  auto out = RunOverGrpc(spec);
+  if (!out.ok()) return out.status();
+
+  auto rerun = TraceReader::Open(spec.trace_path);
+  if (!rerun.ok()) return rerun.status();
+  bool differs = false;
+  while (true) {
+    auto a = (*saved)->Next();
+    if (!a.ok()) return a.status();
+    auto b = (*rerun)->Next();
+    if (!b.ok()) return b.status();
+    if (!*a && !*b) break;
+    if (!differs && (*a != *b || (*saved)->line() != (*rerun)->line())) {
+      differs = true;
+      result.diverged_at = *a ? (*saved)->event().seq() : (*rerun)->event().seq();
+      result.expected_line = *a ? Chomp((*saved)->line()) : "";
+      result.got_line = *b ? Chomp((*rerun)->line()) : "";
+      result.expected_what = *a ? DescribeEvent((*saved)->event()) : "the end of the run";
+      result.got_what = *b ? DescribeEvent((*rerun)->event()) : "the end of the run";
+    }
+    // Drain whichever side goes on, so both footers are checked and counted.
+    if (!*a) {
+      while (true) {
+        auto more = (*rerun)->Next();
+        if (!more.ok()) return more.status();
+        if (!*more) break;
+      }
+      break;
+    }
+    if (!*b) {
+      while (true) {
+        auto more = (*saved)->Next();
+        if (!more.ok()) return more.status();
+        if (!*more) break;
+      }
+      break;
+    }
+  }
+  result.saved_digest = (*saved)->footer().digest();
+  result.saved_events = (*saved)->footer().events();
+  result.rerun_digest = (*rerun)->footer().digest();
+  result.rerun_events = (*rerun)->footer().events();
+  result.identical = !differs && result.saved_digest == result.rerun_digest;
+  return result;
+}
+
+}  // namespace weir

@@ -1,0 +1,56 @@
+// File: replay.h
+//
+// weir replay: reruns a run from a saved trace's header alone (embedded
+// scenario, seed, connector argv, and the header's fault plan applied as a
+// given plan, like --plan) and compares the rerun's events with the saved
+// ones, line by line. Equal lines mean equal events (trace_format.h), so the
+// first unequal line is the first event where the connector answered the same
+// inputs differently: a nondeterministic connector.
+//
+// Memory: the rerun writes its trace to a file in a private temporary
+// directory; the comparison streams both files and keeps only the first
+// difference.
+#pragma once
+
+#include <cstdint>
+#include <optional>
+#include <string>
+#include <vector>
+
+#include "absl/status/statusor.h"
+#include "harness/edge/grpc_run.h"
+
+namespace weir {
+
+struct ReplayOptions {
+  Transport transport = Transport::kTcp;
+  // Replaces the header's connector argv when not empty (the binary moved).
+  std::vector<std::string> connector_argv;
+};
+
+struct ReplayResult {
+  std::string saved_digest;
+  std::string rerun_digest;
+  std::uint64_t saved_events = 0;
+  std::uint64_t rerun_events = 0;
+  bool identical = false;
+  // First difference (identical == false): event index, and each side's line
+  // (without newline); empty when that side had ended.
+  std::uint64_t diverged_at = 0;
+  std::string expected_line;
+  std::string got_line;
+  std::string expected_what;  // DescribeEvent, or "the end of the run"
+  std::string got_what;
+  std::string weir_version;   // of the saved trace
+  std::vector<std::string> connector_argv;  // what was rerun
+};
+
+// Checks the saved trace first (InvalidArgument/NotFound "file:line: …" for a
+// bad file); other errors are harness faults (cannot start the connector…).
+[[nodiscard]] absl::StatusOr<ReplayResult> ReplayTrace(const std::string& path,
+                                                       const ReplayOptions& options);
+
+// Builds the RunSpec a trace header describes (no trace path set).
+RunSpec SpecFromHeader(const v1::TraceHeader& header);
+
+}  // namespace weir

@@ -1,0 +1,101 @@
+#!/usr/bin/env bash
+# replay_explain.sh (ctest, label e2e): weir replay and weir explain (issue 5).
+#   - replaying a failing run of a few mutants reproduces it identically;
+#   - the wall-clock mutant is reported as nondeterministic (exit 1) at a
+#     stepped event whose resume time differs;
+#   - explain names the violation and marks its proving events; a passing
+#     trace says "no violations";
+#   - bad trace files exit 2 naming file:line.
+# Usage: replay_explain.sh WEIR CONNECTOR_BIN_DIR SCENARIO_DIR
+set -euo pipefail
+weir="${1:?weir}"
+bin="${2:?connector bin dir}"
+scenarios="${3:?scenario dir}"
+tmp="$(mktemp -d)"
+trap 'rm -rf "$tmp"' EXIT
+fail() { echo "FAIL: $*" >&2; exit 1; }
+
+# A failing run of each mutant, then its replay.
+runs=(
+  "mutant_ack_on_pull steady_parcel_scanners 1 ack-before-commit"
+  "mutant_no_redelivery_dedup heavy_redelivery_bike_docks 1 duplicate-output"
+  "mutant_ignore_retry_after throttle_storm_toll_gantries 1 throttle-violation"
+)
+for r in "${runs[@]}"; do
+  read -r m s n inv <<<"$r"
+  rc=0
+  "$weir" run --scenario "$scenarios/$s.scenario" --seed "$n" --connector "$bin/$m" \
+    --trace "$tmp/$m.jsonl" >"$tmp/$m.run" 2>&1 || rc=$?
+  [[ $rc == 1 ]] || fail "$m on $s seed $n: expected a failing run (exit 1), got $rc"
+  digest="$(sed -n 's/^digest *//p' "$tmp/$m.run")"
+  rc=0
+  "$weir" replay "$tmp/$m.jsonl" >"$tmp/$m.replay" 2>&1 || rc=$?
+  [[ $rc == 0 ]] || { cat "$tmp/$m.replay" >&2; fail "replay of $m: exit $rc, expected 0"; }
+  grep -q "reproduced identically (digest $digest," "$tmp/$m.replay" ||
+    { cat "$tmp/$m.replay" >&2; fail "replay of $m: no 'reproduced identically' with $digest"; }
+
+  # explain: names the violation, marks proving events, exits 0.
+  "$weir" explain "$tmp/$m.jsonl" >"$tmp/$m.explain" 2>&1 ||
+    { cat "$tmp/$m.explain" >&2; fail "explain of $m exited non-zero"; }
+  grep -q "^violation 1 of [0-9]*: $inv: " "$tmp/$m.explain" ||
+    { cat "$tmp/$m.explain" >&2; fail "explain of $m does not name $inv"; }
+  grep -Eq '^    => #[0-9]+ ' "$tmp/$m.explain" || fail "explain of $m marks no proving event"
+  grep -q '^  incarnation [0-9]' "$tmp/$m.explain" || fail "explain of $m shows no incarnation"
+  echo "ok   $m: replay identical ($digest), explain names $inv"
+done
+
+# The wall-clock mutant: passes the oracle, but replay diverges at a stepped event.
+"$weir" run --scenario "$scenarios/steady_parcel_scanners.scenario" --seed 3 \
+  --connector "$bin/mutant_wall_clock" --trace "$tmp/wc.jsonl" >"$tmp/wc.run" 2>&1 ||
+  { cat "$tmp/wc.run" >&2; fail "wall-clock mutant run failed"; }
+rc=0
+"$weir" replay "$tmp/wc.jsonl" >"$tmp/wc.replay" 2>&1 || rc=$?
+cat "$tmp/wc.replay"
+[[ $rc == 1 ]] || fail "replay of the wall-clock mutant: exit $rc, expected 1"
+k="$(sed -n 's/^weir replay: diverged at event #\([0-9]*\): .*/\1/p' "$tmp/wc.replay")"
+[[ -n "$k" ]] || fail "no 'diverged at event #' line"
+grep -q "the connector is nondeterministic" "$tmp/wc.replay" || fail "not named nondeterministic"
+# The right event: the first event whose content depends on the wall clock is
+# the first where the mutant's saved trace differs from the reference
+# connector's trace of the same scenario and seed (the mutant is the reference
+# plus the wall-clock jitter).
+expected_line="$(sed -n 's/^  expected: //p' "$tmp/wc.replay")"
+got_line="$(sed -n 's/^  got:      //p' "$tmp/wc.replay")"
+[[ "$expected_line" == *'"stepped"'* && "$got_line" == *'"stepped"'* ]] ||
+  fail "divergence is not at a stepped event"
+[[ "$expected_line" == *"\"seq\":\"$k\""* ]] || fail "expected line is not event #$k"
+"$weir" run --scenario "$scenarios/steady_parcel_scanners.scenario" --seed 3 \
+  --connector "$bin/reference_connector" --trace "$tmp/ref.jsonl" >/dev/null 2>&1 ||
+  fail "reference run failed"
+want="$(paste -d '\n' <(tail -n +2 "$tmp/wc.jsonl") <(tail -n +2 "$tmp/ref.jsonl") |
+  awk 'NR % 2 == 1 { a = $0; next } a != $0 && d == "" { d = (NR / 2) - 1 } END { print d }')"
+[[ "$want" == "$k" ]] || fail "diverged at #$k, but the first wall-clock-dependent event is #$want"
+"$weir" explain "$tmp/wc.jsonl" >"$tmp/wc.explain" 2>&1 || fail "explain of a passing trace exited non-zero"
+grep -q '^no violations' "$tmp/wc.explain" || fail "explain of a passing trace: no 'no violations'"
+echo "ok   mutant_wall_clock: nondeterministic at event #$k"
+
+# Bad trace files: exit 2 with file:line.
+good="$tmp/mutant_ack_on_pull.jsonl"
+: >"$tmp/empty.jsonl"
+head -c 3000 "$good" >"$tmp/truncated.jsonl"
+head -n 50 "$good" >"$tmp/no_footer.jsonl"
+echo 'not json' >"$tmp/not_json.jsonl"
+tail -n +2 "$good" >"$tmp/no_header.jsonl"
+sed '3s/"incarnation":"1"/"incarnation":"2"/' "$good" >"$tmp/bad_digest.jsonl"
+cmp -s "$good" "$tmp/bad_digest.jsonl" && fail "could not alter the trace"
+check_bad() {  # FILE LINE TEXT
+  for cmd in replay explain; do
+    rc=0
+    "$weir" "$cmd" "$tmp/$1" >"$tmp/out" 2>&1 || rc=$?
+    [[ $rc == 2 ]] || { cat "$tmp/out" >&2; fail "$cmd $1: exit $rc, expected 2"; }
+    grep -q "$tmp/$1:$2: .*$3" "$tmp/out" || { cat "$tmp/out" >&2; fail "$cmd $1: no '$1:$2: …$3'"; }
+  done
+  echo "ok   $1 -> $(head -n 1 "$tmp/out")"
+}
+check_bad empty.jsonl 1 "empty file"
+check_bad truncated.jsonl "[0-9]*" "truncated"
+check_bad no_footer.jsonl 51 "expected more events or the trace footer"
+check_bad not_json.jsonl 1 "not a trace line"
+check_bad no_header.jsonl 1 "expected a trace header"
+check_bad bad_digest.jsonl "[0-9]*" "does not match the event lines"
+echo "PASSED: replay and explain"
