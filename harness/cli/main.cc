@@ -24,6 +24,7 @@
 #include "harness/scenario/plan_file.h"
 #include "harness/scenario/profile_file.h"
 #include "harness/scenario/scenario_file.h"
+#include "harness/scenario/text_file.h"
 
 namespace weir {
 namespace {
@@ -45,20 +46,6 @@ struct RunFlags {
   std::string save_plan;
   std::string profile;  // overrides the scenario's profile
 };
-
-// Writes "<path>.partial" and renames it, so a failed write leaves nothing.
-absl::Status WriteFileAtomically(const std::string& path, const std::string& text) {
-  const std::string partial = path + ".partial";
-  std::FILE* f = std::fopen(partial.c_str(), "wb");
-  bool ok = f != nullptr && std::fwrite(text.data(), 1, text.size(), f) == text.size();
-  if (f != nullptr && std::fclose(f) != 0) ok = false;
-  if (ok) ok = std::rename(partial.c_str(), path.c_str()) == 0;
-  if (!ok) {
-    std::remove(partial.c_str());
-    return absl::UnavailableError(absl::StrCat(path, ": cannot write"));
-  }
-  return absl::OkStatus();
-}
 
 int UsageError(const std::string& message) {
   std::fprintf(stderr, "weir: %s\n", message.c_str());

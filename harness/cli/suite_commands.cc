@@ -33,19 +33,6 @@ int Usage(const std::string& message) {
   return kUsage;
 }
 
-absl::Status WriteAtomically(const std::string& path, const std::string& text) {
-  const std::string partial = path + ".partial";
-  std::FILE* f = std::fopen(partial.c_str(), "wb");
-  bool ok = f != nullptr && std::fwrite(text.data(), 1, text.size(), f) == text.size();
-  if (f != nullptr && std::fclose(f) != 0) ok = false;
-  if (ok) ok = std::rename(partial.c_str(), path.c_str()) == 0;
-  if (!ok) {
-    std::remove(partial.c_str());
-    return absl::UnavailableError(absl::StrCat(path, ": cannot write"));
-  }
-  return absl::OkStatus();
-}
-
 absl::StatusOr<std::string> FileSha256(const std::string& path) {
   std::ifstream in(path, std::ios::binary);
   if (!in) return absl::NotFoundError(absl::StrCat(path, ": cannot open"));
@@ -213,7 +200,7 @@ int Certify(SuiteCommands& s) {
   int write_errors = 0;
   auto write = [&](const std::string& path, const std::string& text, const char* what) {
     if (path.empty()) return;
-    if (absl::Status st = WriteAtomically(path, text); !st.ok()) {
+    if (absl::Status st = WriteFileAtomically(path, text); !st.ok()) {
       std::fprintf(stderr, "weir: %s\n", std::string(st.message()).c_str());
       ++write_errors;
     } else {
@@ -324,7 +311,7 @@ int Merge(SuiteCommands& s) {
                                    std::pair{s.junit, SuiteJUnitXml(merged, stamp, host)},
                                    std::pair{s.certificate, CertificateJson(cert)}}) {
     if (path.empty()) continue;
-    if (absl::Status st = WriteAtomically(path, text); !st.ok()) {
+    if (absl::Status st = WriteFileAtomically(path, text); !st.ok()) {
       std::fprintf(stderr, "weir: %s\n", std::string(st.message()).c_str());
       return kHarness;
     }

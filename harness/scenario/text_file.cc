@@ -1,5 +1,6 @@
 #include "harness/scenario/text_file.h"
 
+#include <cstdio>
 #include <fstream>
 #include <sstream>
 
@@ -43,6 +44,19 @@ absl::Status ReadWholeFile(const std::string& path, std::string* out, std::size_
   out->assign(static_cast<std::size_t>(size), '\0');
   in.read(out->data(), size);
   if (!in) return absl::DataLossError(absl::StrCat(path, ": read failed"));
+  return absl::OkStatus();
+}
+
+absl::Status WriteFileAtomically(const std::string& path, const std::string& text) {
+  const std::string partial = path + ".partial";
+  std::FILE* f = std::fopen(partial.c_str(), "wb");
+  bool ok = f != nullptr && std::fwrite(text.data(), 1, text.size(), f) == text.size();
+  if (f != nullptr && std::fclose(f) != 0) ok = false;
+  if (ok) ok = std::rename(partial.c_str(), path.c_str()) == 0;
+  if (!ok) {
+    std::remove(partial.c_str());
+    return absl::UnavailableError(absl::StrCat(path, ": cannot write"));
+  }
   return absl::OkStatus();
 }
 

@@ -30,6 +30,10 @@ namespace weir {
 [[nodiscard]] absl::Status ReadWholeFile(const std::string& path, std::string* out,
                                          std::size_t max_bytes = 16u << 20);
 
+// Writes "<path>.partial" and renames it into place, so a failed write leaves
+// neither a partial file nor a damaged old one. Errors name the path.
+[[nodiscard]] absl::Status WriteFileAtomically(const std::string& path, const std::string& text);
+
 class TextFile {
  public:
   explicit TextFile(std::string path) : path_(std::move(path)) {}
