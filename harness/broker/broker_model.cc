@@ -61,12 +61,13 @@ void BrokerModel::Publish(const MessageSpec& spec) {
   Message m;
   m.publish_time = spec.publish_time;
   m.event_time = spec.event_time;
+  m.payload_crc32c = Crc32c(MessagePayload(seed_, spec.id, scenario_.workload().payload_bytes()));
   ++published_;
   auto& e = trace_.Append(spec.publish_time);
   auto* p = e.mutable_published();
   p->set_message_id(spec.id);
   p->set_event_time_ns(spec.event_time);
-  p->set_payload_crc32c(Crc32c(MessagePayload(seed_, spec.id, scenario_.workload().payload_bytes())));
+  p->set_payload_crc32c(m.payload_crc32c);
   trace_.Commit();
 
   const auto& cfg = faults_.config();
@@ -140,7 +141,7 @@ void BrokerModel::FillDelivery(std::uint64_t id, const Message& m,
   d->set_message_id(id);
   d->set_receipt(m.receipt);
   d->set_payload(MessagePayload(seed_, id, scenario_.workload().payload_bytes()));
-  d->set_payload_crc32c(Crc32c(d->payload()));
+  d->set_payload_crc32c(m.payload_crc32c);
   d->set_event_time_ns(m.event_time);
   d->set_publish_time_ns(m.publish_time);
   d->set_lease_deadline_ns(m.lease_deadline);

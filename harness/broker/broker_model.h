@@ -97,7 +97,9 @@ class BrokerModel {
     State state = State::kReady;
     std::uint64_t receipt = 0;  // newest receipt; 0 before the first delivery
     VirtualTime lease_deadline = 0;
-    std::uint32_t source_index = 0;
+    // CRC-32C of the payload, computed once at publish: deliveries regenerate
+    // the payload bytes but need not checksum them again.
+    std::uint32_t payload_crc32c = 0;
   };
   struct Lease {
     VirtualTime deadline;

@@ -22,6 +22,7 @@
 #include "harness/replay/replay.h"
 #include "harness/report/text_report.h"
 #include "harness/scenario/plan_file.h"
+#include "harness/suite/certify.h"
 #include "harness/scenario/profile_file.h"
 #include "harness/scenario/scenario_file.h"
 #include "harness/scenario/text_file.h"
@@ -52,31 +53,6 @@ int UsageError(const std::string& message) {
   return kExitUsage;
 }
 
-// argv[0] as posix_spawnp would find it: a path with '/', or a PATH search.
-bool IsExecutable(const std::string& program) {
-  if (program.find('/') != std::string::npos) return ::access(program.c_str(), X_OK) == 0;
-  const char* path = std::getenv("PATH");
-  std::string dirs = path != nullptr ? path : "/usr/bin:/bin";
-  std::size_t start = 0;
-  while (start <= dirs.size()) {
-    std::size_t end = dirs.find(':', start);
-    if (end == std::string::npos) end = dirs.size();
-    const std::string dir = end > start ? dirs.substr(start, end - start) : ".";
-    if (::access((dir + "/" + program).c_str(), X_OK) == 0) return true;
-    start = end + 1;
-  }
-  return false;
-}
-
-std::string ReplayLine(const RunFlags& flags, const std::vector<std::string>& argv) {
-  std::string line = absl::StrCat("weir run --scenario ", ShellQuote(flags.scenario), " --seed ",
-                                  flags.seed);
-  if (flags.transport != "tcp") absl::StrAppend(&line, " --transport ", flags.transport);
-  if (!flags.plan.empty()) absl::StrAppend(&line, " --plan ", ShellQuote(flags.plan));
-  if (!flags.profile.empty()) absl::StrAppend(&line, " --profile ", ShellQuote(flags.profile));
-  absl::StrAppend(&line, " --connector ", ShellQuote(ShellJoin(argv)));
-  return line;
-}
 
 int RunCommand(RunFlags& flags) {
   std::vector<std::string> argv;
@@ -93,7 +69,7 @@ int RunCommand(RunFlags& flags) {
     argv = flags.command;
   }
   if (argv.empty()) return UsageError("no connector command; expected --connector 'CMD ARGS…'");
-  if (!IsExecutable(argv[0])) {
+  if (!ResolveExecutable(argv[0]).has_value()) {
     return UsageError("--connector: '" + argv[0] + "' is not an executable file (nor found on PATH)");
   }
   Transport transport;
@@ -144,7 +120,8 @@ int RunCommand(RunFlags& flags) {
   spec.transport = transport;
   spec.trace_path = flags.trace;
   auto out = RunOverGrpc(spec);
-  const std::string replay = ReplayLine(flags, argv);
+  const std::string replay = ReplayLine(flags.scenario, flags.seed, transport, flags.plan,
+                                        flags.profile, argv);
   if (!out.ok()) {
     std::fprintf(stderr, "weir: harness fault: %s\nreplay: %s\n",
                  std::string(out.status().message()).c_str(), replay.c_str());

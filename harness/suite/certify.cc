@@ -11,9 +11,11 @@
 namespace weir {
 
 std::string ReplayLine(const std::string& scenario_path, std::uint64_t seed, Transport transport,
-                       const std::string& profile_path, const std::vector<std::string>& argv) {
+                       const std::string& plan_path, const std::string& profile_path,
+                       const std::vector<std::string>& argv) {
   std::string line = absl::StrCat("weir run --scenario ", ShellQuote(scenario_path), " --seed ", seed);
   if (transport == Transport::kUnix) absl::StrAppend(&line, " --transport unix");
+  if (!plan_path.empty()) absl::StrAppend(&line, " --plan ", ShellQuote(plan_path));
   if (!profile_path.empty()) absl::StrAppend(&line, " --profile ", ShellQuote(profile_path));
   absl::StrAppend(&line, " --connector ", ShellQuote(ShellJoin(argv)));
   return line;
@@ -109,7 +111,7 @@ absl::StatusOr<v1::SuiteReport> Certify(const LoadedSuite& suite, const CertifyO
       rec.set_seed(p.seed);
       rec.set_pair_index(p.index);
       rec.set_wall_seconds(wall);
-      rec.set_replay(ReplayLine(suite.scenario_paths[p.scenario], p.seed, options.transport,
+      rec.set_replay(ReplayLine(suite.scenario_paths[p.scenario], p.seed, options.transport, "",
                                 options.profile_path, options.connector_argv));
       if (!out.ok()) {
         rec.set_passed(false);

@@ -61,7 +61,9 @@ struct CertifyOptions {
 void Summarize(v1::SuiteReport* report);
 
 // "weir run --scenario … --seed … --connector '…'" for one pair.
+// plan_path and profile_path are left out when empty.
 std::string ReplayLine(const std::string& scenario_path, std::uint64_t seed, Transport transport,
-                       const std::string& profile_path, const std::vector<std::string>& argv);
+                       const std::string& plan_path, const std::string& profile_path,
+                       const std::vector<std::string>& argv);
 
 }  // namespace weir
