@@ -1,0 +1,18 @@
+"""weir's connector-side library for Python: turns a plain Source (open from a
+checkpoint, advance, checkpoint, committed) into a process that serves weir's
+Connector service, and gives connector code the helpers the trade expects:
+a watermark that never decreases, an idle rule, and capped exponential backoff
+with seeded jitter that honours retry-after. See docs/python.md.
+"""
+
+from .backoff import Backoff, BackoffPolicy, RetryGate, mix_seed
+from .serve import GrpcBrokerClient, serve, serve_forever
+from .source import (INT64_MAX, INT64_MIN, BrokerClient, BrokerStatus, Context, OpenInfo, Source,
+                     SourceError, clamp_int64)
+from .watermark import IdleRule, Watermark
+
+__all__ = [
+    "Backoff", "BackoffPolicy", "BrokerClient", "BrokerStatus", "Context", "GrpcBrokerClient",
+    "INT64_MAX", "INT64_MIN", "IdleRule", "OpenInfo", "RetryGate", "Source", "SourceError",
+    "Watermark", "clamp_int64", "mix_seed", "serve", "serve_forever",
+]

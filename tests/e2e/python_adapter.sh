@@ -1,0 +1,74 @@
+#!/usr/bin/env bash
+# End-to-end: the Python adapter (issue 7). The Python reference connector is
+# certified on the quick suite and gives the same trace digest as the C++
+# reference on every run (same broker calls at the same virtual times, jitter
+# included); each Python mutant fails its expected invariant with exit 1; a
+# connector started outside weir refuses with exit 2.
+# Usage: python_adapter.sh WEIR CPP_REFERENCE SOURCE_DIR PYTHON_DIR
+set -uo pipefail
+WEIR=$1 CPP_REF=$2 SRC=$3 PYDIR=$4
+PY=$SRC/fixtures/connectors/python
+SCEN=$SRC/fixtures/scenarios
+export PYTHONPATH=$PYDIR
+WORK=$(mktemp -d)
+trap 'rm -rf "$WORK"' EXIT
+failures=0
+check() {
+  local name=$1; shift
+  if "$@"; then echo "ok   $name"; else echo "FAIL $name"; failures=$((failures + 1)); fi
+}
+digests() { grep -o '"digest": "sha256:[0-9a-f]*"' "$1"; }
+
+# 1. The Python reference is certified on the quick suite (launched through its
+#    #!/usr/bin/python3 line, so the certificate names the script).
+start=$(date +%s%N)
+"$WEIR" certify --suite "$SRC/fixtures/suites/quick.suite" --connector "$PY/reference.py" \
+  --jobs 2 --progress none --json "$WORK/py.json" >"$WORK/py.out" 2>&1
+rc=$?
+end=$(date +%s%N)
+check "python reference certify exits 0 (got $rc)" test $rc -eq 0
+check "python reference is CERTIFIED" grep -q '^CERTIFIED' "$WORK/py.out"
+[ $rc -eq 0 ] || tail -n 40 "$WORK/py.out"
+echo "python reference: quick suite in $(( (end - start) / 1000000 )) ms"
+
+# 2. Same digests as the C++ reference, run by run.
+start=$(date +%s%N)
+"$WEIR" certify --suite "$SRC/fixtures/suites/quick.suite" --connector "$CPP_REF" \
+  --jobs 2 --progress none --json "$WORK/cpp.json" >"$WORK/cpp.out" 2>&1
+check "C++ reference certify exits 0" test $? -eq 0
+end=$(date +%s%N)
+echo "C++ reference: quick suite in $(( (end - start) / 1000000 )) ms"
+digests "$WORK/py.json" >"$WORK/py.digests"
+digests "$WORK/cpp.json" >"$WORK/cpp.digests"
+check "reports list 22 run digests" test "$(wc -l <"$WORK/py.digests")" -eq 22
+check "python and C++ references give identical traces on every run" \
+  cmp -s "$WORK/py.digests" "$WORK/cpp.digests"
+
+# 3. Every Python mutant is caught by its invariant (exit 1, the invariant FAILED).
+mutant() {  # mutant NAME SCENARIO INVARIANT
+  local out=$WORK/$1.out
+  "$WEIR" run --scenario "$SCEN/$2.scenario" --seed 1 --connector "$PY/mutant_$1.py" >"$out" 2>&1
+  local rc=$?
+  check "mutant_$1 on $2 exits 1 (got $rc)" test $rc -eq 1
+  check "mutant_$1 fails $3" grep -Eq "^$3 +FAILED" "$out"
+}
+mutant ack_on_pull broker_restart_greenhouse ack-before-commit
+mutant ack_on_checkpoint broker_restart_greenhouse ack-before-commit
+mutant no_redelivery_dedup broker_restart_greenhouse duplicate-output
+mutant latest_event_time_watermark broker_restart_greenhouse watermark-regression
+mutant ignore_retry_after throttle_storm_toll_gantries throttle-violation
+mutant no_idle_watermark idle_watermark_beehive_scales watermark-stall
+
+# 4. Outside weir, or with a bad flag: one clear line, exit 2.
+env -u WEIR_BROKER_ADDRESS "$PY/reference.py" >"$WORK/noenv.out" 2>&1
+check "no handshake environment exits 2 (got $?)" test $? -eq 2
+check "and says what is missing" grep -q 'WEIR_BROKER_ADDRESS is not set' "$WORK/noenv.out"
+"$PY/reference.py" --idle-lag-ms soon >"$WORK/flag.out" 2>&1
+check "a bad flag exits 2" test $? -eq 2
+check "and names the flag" grep -q "idle-lag-ms: 'soon' is not a millisecond count" "$WORK/flag.out"
+env PYTHONPATH= "$PY/reference.py" >"$WORK/nopath.out" 2>&1
+check "without the adapter on PYTHONPATH exits 2" test $? -eq 2
+check "and points at docs/python.md" grep -q 'docs/python.md' "$WORK/nopath.out"
+
+echo "$failures failure(s)"
+[ $failures -eq 0 ]
