@@ -1,5 +1,6 @@
 // weir: the command line. Subcommands: run (one seeded run against a
-// connector), replay and explain (a saved trace), lint, and the suite commands. Exit codes: 0 every invariant held, 1 an invariant failed,
+// connector), replay and explain (a saved trace), shrink (a failing run's
+// fault plan), lint, and the suite commands. Exit codes: 0 every invariant held, 1 an invariant failed,
 // 2 usage or input error, 3 harness fault.
 #include <unistd.h>
 
@@ -16,6 +17,7 @@
 #include "absl/strings/match.h"
 #include "absl/strings/str_cat.h"
 #include "harness/cli/command_line.h"
+#include "harness/cli/shrink_command.h"
 #include "harness/cli/suite_commands.h"
 #include "harness/edge/grpc_run.h"
 #include "harness/replay/explain.h"
@@ -53,6 +55,20 @@ int UsageError(const std::string& message) {
   return kExitUsage;
 }
 
+
+// What to do with a failing run, before its replay line (which stays last).
+std::string NextStepsHint(const std::string& trace, const std::string& replay) {
+  if (!trace.empty()) {
+    const std::string t = ShellQuote(trace);
+    return absl::StrCat("next: weir replay ", t, "    (rerun, compare event by event)\n",
+                        "      weir explain ", t, "   (timeline around each violation)\n",
+                        "      weir shrink ", t, " --out minimal.plan   (smallest fault plan that still fails)\n");
+  }
+  // "weir run …" → "weir shrink …": shrink takes the same flags.
+  return absl::StrCat("next: weir shrink", replay.substr(std::string("weir run").size()),
+                      " --out minimal.plan\n      (smallest fault plan that still fails; add --trace FILE "
+                      "to weir run for replay and explain)\n");
+}
 
 int RunCommand(RunFlags& flags) {
   std::vector<std::string> argv;
@@ -155,8 +171,9 @@ int RunCommand(RunFlags& flags) {
   std::printf("\n%s", FormatVerdictTable(out->verdict).c_str());
   std::printf("%s", FormatViolations(out->verdict).c_str());
   const bool passed = out->verdict.passed();
-  std::printf("\n%s\nreplay: %s\n", passed ? "PASSED: every invariant held." : "FAILED.",
-              replay.c_str());
+  std::printf("\n%s\n", passed ? "PASSED: every invariant held." : "FAILED.");
+  if (!passed) std::printf("%s", NextStepsHint(flags.trace, replay).c_str());
+  std::printf("replay: %s\n", replay.c_str());
   return passed ? kExitPassed : kExitFailed;
 }
 
@@ -266,6 +283,8 @@ int main(int argc, char** argv) {
 
   SuiteCommands suite_commands;
   AddSuiteCommands(app, suite_commands);
+  ShrinkFlags shrink_flags;
+  AddShrinkCommand(app, shrink_flags);
 
   std::vector<std::string> lint_files;
   CLI::App* lint = app.add_subcommand("lint", "Validate scenario (.scenario) and plan (.plan) files");
@@ -295,5 +314,6 @@ int main(int argc, char** argv) {
   if (replay->parsed()) return ReplayCommand(replay_trace, replay_transport, replay_connector);
   if (explain->parsed()) return ExplainCommand(explain_trace);
   if (int rc = RunSuiteCommand(suite_commands); rc >= 0) return rc;
+  if (int rc = RunShrinkCommand(shrink_flags); rc >= 0) return rc;
   return kExitUsage;
 }

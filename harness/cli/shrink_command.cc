@@ -1,0 +1,370 @@
+#include "harness/cli/shrink_command.h"
+
+#include <unistd.h>
+
+#include <chrono>
+#include <cstdio>
+#include <optional>
+
+#include <google/protobuf/util/message_differencer.h>
+
+#include "absl/strings/str_cat.h"
+#include "absl/strings/str_join.h"
+#include "harness/cli/command_line.h"
+#include "harness/edge/grpc_run.h"
+#include "harness/replay/replay.h"
+#include "harness/replay/trace_reader.h"
+#include "harness/scenario/plan_file.h"
+#include "harness/scenario/profile_file.h"
+#include "harness/scenario/scenario_file.h"
+#include "harness/scenario/text_file.h"
+#include "harness/shrink/shrink.h"
+#include "harness/suite/certify.h"
+
+namespace weir {
+namespace {
+
+constexpr int kShrunk = 0, kNondeterministic = 1, kUsage = 2, kHarness = 3;
+
+int Usage(const std::string& message) {
+  std::fprintf(stderr, "weir: %s\n", message.c_str());
+  return kUsage;
+}
+
+int InputError(const absl::Status& st) {
+  std::fprintf(stderr, "%s\n", std::string(st.message()).c_str());
+  return absl::IsInvalidArgument(st) || absl::IsNotFound(st) ? kUsage : kHarness;
+}
+
+RerunResult ToRerunResult(const RunOutput& out) {
+  RerunResult r;
+  for (int i = 0; i < kInvariantCount; ++i) {
+    const auto inv = static_cast<Invariant>(i);
+    if (out.verdict.at(inv).checked && out.verdict.at(inv).violations > 0) r.failed.push_back(inv);
+  }
+  r.digest = out.digest;
+  r.events = out.events;
+  r.steps = out.summary.steps;
+  return r;
+}
+
+std::string Names(const std::vector<Invariant>& invariants) {
+  std::vector<std::string> names;
+  for (Invariant i : invariants) names.push_back(InvariantName(i));
+  return names.empty() ? "none" : absl::StrJoin(names, ", ");
+}
+
+std::string DescribeDecision(const v1::FaultDecision& d) {
+  std::string at = absl::StrCat(v1::Site_Name(d.site()), " ", d.position(), ": ");
+  switch (d.fault_case()) {
+    case v1::FaultDecision::kLatencyMs: return absl::StrCat(at, "latency ", d.latency_ms(), " ms");
+    case v1::FaultDecision::kThrottleRetryAfterMs:
+      return absl::StrCat(at, "throttled, retry after ", d.throttle_retry_after_ms(), " ms");
+    case v1::FaultDecision::kTransient:
+      return absl::StrCat(at, v1::TransientCode_Name(d.transient().code()));
+    case v1::FaultDecision::kDuplicate: return at + "duplicate delivery";
+    case v1::FaultDecision::kLostAck: return at + "lost ack";
+    case v1::FaultDecision::kVisibilityDelayMs:
+      return absl::StrCat(at, "visible ", d.visibility_delay_ms(), " ms late");
+    case v1::FaultDecision::kReorder: return at + "reorder";
+    case v1::FaultDecision::kBrokerRestart: return at + "broker restart";
+    case v1::FaultDecision::kCommitFailure: return at + "commit failure";
+    case v1::FaultDecision::kCrash: {
+      std::string s = absl::StrCat(at, "crash ", v1::CrashPoint_Name(d.crash().point()));
+      const auto p = d.crash().point();
+      if (p == v1::IN_STEP_AFTER_BROKER_CALL || p == v1::IN_NOTICE_AFTER_ACK) {
+        absl::StrAppend(&s, " (after ", std::max<std::uint32_t>(1, d.crash().after_calls()), ")");
+      }
+      return s;
+    }
+    case v1::FaultDecision::FAULT_NOT_SET: break;
+  }
+  return at + "no fault";
+}
+
+std::string Decisions(int n) { return absl::StrCat(n, n == 1 ? " decision" : " decisions"); }
+
+std::optional<Invariant> ParseInvariant(const std::string& name) {
+  for (int i = 0; i < kInvariantCount; ++i) {
+    if (name == InvariantName(static_cast<Invariant>(i))) return static_cast<Invariant>(i);
+  }
+  return std::nullopt;
+}
+
+std::string AllInvariantNames() {
+  std::vector<std::string> names;
+  for (int i = 0; i < kInvariantCount; ++i) names.push_back(InvariantName(static_cast<Invariant>(i)));
+  return absl::StrJoin(names, ", ");
+}
+
+const char* PhaseName(ShrinkProgress::Phase p) {
+  switch (p) {
+    case ShrinkProgress::Phase::kReproducing: return "reproducing";
+    case ShrinkProgress::Phase::kRemoving: return "removing decisions";
+    case ShrinkProgress::Phase::kWeakening: return "weakening decisions";
+  }
+  return "";
+}
+
+}  // namespace
+
+void AddShrinkCommand(CLI::App& app, ShrinkFlags& f) {
+  CLI::App* c = app.add_subcommand(
+      "shrink", "Minimize a failing run's fault plan while the same invariant still fails");
+  f.command = c;
+  c->add_option("inputs", f.inputs,
+                "TRACE (a failing run's trace), or with --scenario: the connector command after --");
+  c->add_option("--scenario", f.scenario, "Scenario file, as for weir run (instead of a trace)");
+  c->add_option("--seed", f.seed, "Seed of the failing run (with --scenario)");
+  c->add_option("--plan", f.plan, "Fault plan of the failing run (with --scenario), as for weir run");
+  c->add_option("--profile", f.profile, "Profile file overriding the scenario's (with --scenario)");
+  c->add_option("--connector", f.connector,
+                "Connector command 'CMD ARGS…' (with a trace: replaces the header's)");
+  c->add_option("--transport", f.transport, "tcp (loopback, default) or unix");
+  c->add_option("--invariant", f.invariant,
+                "The invariant that must keep failing (default: the first the run failed)");
+  c->add_option("--out", f.out, "Where to write the minimal plan (default minimal.plan)");
+  c->add_option("--trace", f.trace, "Also write the trace of a run under the minimal plan");
+  c->add_option("--max-reruns", f.max_reruns, "Stop after this many reruns (default 500; 0: no limit)");
+  c->add_option("--max-seconds", f.max_seconds,
+                "Start no rerun after this many seconds of wall time (default 600; 0: no limit)");
+  c->add_option("--progress", f.progress, "auto (one updating line on a terminal), bar, lines or none");
+}
+
+int RunShrinkCommand(ShrinkFlags& f) {
+  if (f.command == nullptr || !f.command->parsed()) return -1;
+  const bool from_trace = f.scenario.empty();
+  const bool seed_given = f.command->count("--seed") > 0;
+
+  Transport transport;
+  if (f.transport == "tcp") {
+    transport = Transport::kTcp;
+  } else if (f.transport == "unix") {
+    transport = Transport::kUnix;
+  } else {
+    return Usage("--transport is '" + f.transport + "'; expected tcp or unix");
+  }
+  if (f.progress != "auto" && f.progress != "bar" && f.progress != "lines" && f.progress != "none") {
+    return Usage("--progress is '" + f.progress + "'; expected auto, bar, lines or none");
+  }
+  if (f.max_seconds < 0) return Usage("--max-seconds must be >= 0");
+  if (f.out.empty()) return Usage("--out is empty; expected a file name for the minimal plan");
+  std::optional<Invariant> wanted;
+  if (!f.invariant.empty()) {
+    wanted = ParseInvariant(f.invariant);
+    if (!wanted) {
+      return Usage(absl::StrCat("--invariant is '", f.invariant, "'; expected one of ", AllInvariantNames()));
+    }
+  }
+
+  RunSpec spec;
+  std::string saved_digest;  // from a trace
+  std::uint64_t saved_events = 0;
+  std::string profile_note;
+  if (from_trace) {
+    if (f.inputs.size() != 1) {
+      return Usage("expected one trace file (weir shrink TRACE), or --scenario, --seed and a connector");
+    }
+    if (seed_given || !f.plan.empty() || !f.profile.empty()) {
+      return Usage("--seed, --plan and --profile go with --scenario; a trace's header already holds them");
+    }
+    const std::string& path = f.inputs[0];
+    auto reader = TraceReader::Open(path);
+    if (!reader.ok()) return InputError(reader.status());
+    while (true) {
+      auto next = (*reader)->Next();
+      if (!next.ok()) return InputError(next.status());
+      if (!*next) break;
+    }
+    spec = SpecFromHeader((*reader)->header());
+    saved_digest = (*reader)->footer().digest();
+    saved_events = (*reader)->footer().events();
+    if (spec.connector_argv.empty() && f.connector.empty()) {
+      return Usage(path + ":1: the header names no connector command; give --connector");
+    }
+    // The replay line names the scenario file; say so when the run judged by
+    // the trace used another profile or an edited scenario.
+    auto on_disk = LoadScenario(spec.scenario_path);
+    if (!on_disk.ok() ||
+        !google::protobuf::util::MessageDifferencer::Equals(*on_disk, spec.scenario)) {
+      profile_note = absl::StrCat("note: ", spec.scenario_path,
+                                  " differs from the scenario embedded in the trace (edited, or run "
+                                  "with --profile); give the same --profile to weir run\n");
+    }
+  } else {
+    if (!seed_given) return Usage("--scenario needs --seed: the seed of the failing run");
+    auto scenario = LoadScenario(f.scenario);
+    if (!scenario.ok()) return InputError(scenario.status());
+    spec.scenario = std::move(*scenario);
+    spec.scenario_path = f.scenario;
+    spec.seed = f.seed;
+    if (!f.profile.empty()) {
+      auto profile = LoadProfile(f.profile);
+      if (!profile.ok()) return InputError(profile.status());
+      *spec.scenario.mutable_profile() = std::move(*profile);
+    }
+    if (!f.plan.empty()) {
+      auto plan = LoadFaultPlan(f.plan);
+      if (!plan.ok()) return InputError(plan.status());
+      spec.plan = std::move(*plan);
+    }
+  }
+  if (!f.connector.empty()) {
+    if (!from_trace && !f.inputs.empty()) {
+      return Usage("give the connector either as --connector 'CMD ARGS' or after --, not both");
+    }
+    auto split = SplitCommandLine(f.connector);
+    if (!split.ok()) return Usage(absl::StrCat("--connector ", split.status().message()));
+    spec.connector_argv = std::move(*split);
+  } else if (!from_trace) {
+    spec.connector_argv = f.inputs;
+  }
+  if (spec.connector_argv.empty()) return Usage("no connector command; expected --connector 'CMD ARGS…'");
+  if (!ResolveExecutable(spec.connector_argv[0]).has_value()) {
+    return Usage("--connector: '" + spec.connector_argv[0] + "' is not an executable file (nor found on PATH)");
+  }
+  spec.transport = transport;
+
+  std::printf("weir shrink: scenario %s, seed %llu, connector %s\n", spec.scenario_path.c_str(),
+              static_cast<unsigned long long>(spec.seed), ShellJoin(spec.connector_argv).c_str());
+  std::fflush(stdout);
+
+  // The failing run itself: drawn from the scenario's rates, or under the
+  // given plan (--plan, or the trace's).
+  auto original = RunOverGrpc(spec);
+  if (!original.ok()) {
+    std::fprintf(stderr, "weir: harness fault: %s\n", std::string(original.status().message()).c_str());
+    return kHarness;
+  }
+  const RerunResult first = ToRerunResult(*original);
+  if (from_trace && first.digest != saved_digest) {
+    std::printf(
+        "NONDETERMINISTIC: rerunning the trace's run gave digest %s (%llu events), the trace has %s "
+        "(%llu events); nothing shrunk. weir replay %s shows the first differing event.\n",
+        first.digest.c_str(), static_cast<unsigned long long>(first.events), saved_digest.c_str(),
+        static_cast<unsigned long long>(saved_events), ShellQuote(f.inputs[0]).c_str());
+    return kNondeterministic;
+  }
+  if (first.failed.empty()) {
+    std::fprintf(stderr, "weir: the run passed every invariant (digest %s); nothing to shrink\n",
+                 first.digest.c_str());
+    return kUsage;
+  }
+  if (wanted && !first.Fails(*wanted)) {
+    std::fprintf(stderr, "weir: the run did not fail %s; it failed %s (choose with --invariant)\n",
+                 InvariantName(*wanted), Names(first.failed).c_str());
+    return kUsage;
+  }
+  const Invariant target = wanted ? *wanted : first.failed.front();
+  const v1::FaultPlan start = original->plan;
+  std::printf("target     %s%s\n", InvariantName(target),
+              first.failed.size() > 1 ? absl::StrCat(" (the run failed ", Names(first.failed),
+                                                     "; choose with --invariant)")
+                                            .c_str()
+                                      : "");
+  std::printf("before     %s, %llu events, %llu steps (digest %s)\n", Decisions(start.decisions_size()).c_str(),
+              static_cast<unsigned long long>(first.events), static_cast<unsigned long long>(first.steps),
+              first.digest.c_str());
+  std::fflush(stdout);
+
+  const bool tty = f.progress == "bar" || (f.progress == "auto" && ::isatty(STDOUT_FILENO));
+  const bool quiet = f.progress == "none";
+  const auto t0 = std::chrono::steady_clock::now();
+  const auto elapsed = [&] {
+    return std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
+  };
+  double last_line = 0;
+  std::size_t last_size = static_cast<std::size_t>(start.decisions_size());
+  bool progress_shown = false;
+
+  ShrinkOptions options;
+  options.target = target;
+  options.max_reruns = f.max_reruns;
+  if (f.max_seconds > 0) options.stop = [&] { return elapsed() >= f.max_seconds; };
+  options.progress = [&](const ShrinkProgress& p) {
+    if (quiet) return;
+    const double now = elapsed();
+    if (tty) {
+      std::printf("\r\033[Kshrink: %llu reruns, %zu of %zu decisions left, %s, %.0f s",
+                  static_cast<unsigned long long>(p.reruns), p.current_decisions, p.original_decisions,
+                  PhaseName(p.phase), now);
+      progress_shown = true;
+    } else if (p.current_decisions != last_size || now - last_line >= 10) {
+      std::printf("shrink: %llu reruns, %zu of %zu decisions left, %s, %.0f s\n",
+                  static_cast<unsigned long long>(p.reruns), p.current_decisions, p.original_decisions,
+                  PhaseName(p.phase), now);
+      last_line = now;
+      last_size = p.current_decisions;
+    }
+    std::fflush(stdout);
+  };
+  const Rerun rerun = [&spec](const v1::FaultPlan& plan) -> absl::StatusOr<RerunResult> {
+    RunSpec s = spec;
+    s.plan = plan;
+    s.trace_path.clear();
+    auto out = RunOverGrpc(s);
+    if (!out.ok()) return out.status();
+    return ToRerunResult(*out);
+  };
+  auto r = ShrinkPlan(start, first.digest, rerun, options);
+  if (progress_shown) std::printf("\n");
+  if (!r.ok()) {
+    std::fprintf(stderr, "weir: harness fault: %s\n", std::string(r.status().message()).c_str());
+    return kHarness;
+  }
+  if (r->outcome == ShrinkOutcome::kNondeterministic) {
+    std::printf(
+        "NONDETERMINISTIC: %s; nothing shrunk. The connector answers the same scenario, seed and "
+        "fault plan differently (wall clock, unseeded randomness or racing threads?): a plan shrunk "
+        "against it would mean nothing. Save a trace (weir run --trace) and weir replay it to see the "
+        "first differing event.\n",
+        r->nondeterminism.c_str());
+    return kNondeterministic;
+  }
+
+  const std::string comment = absl::StrCat(
+      "Minimal fault plan (weir shrink) for ", InvariantName(target), ": scenario ", spec.scenario_path,
+      ", seed ", spec.seed, "; ", r->minimal.decisions_size(), " of ", start.decisions_size(),
+      " decisions", r->one_minimal ? ", 1-minimal." : ", not proven 1-minimal (budget reached).");
+  if (absl::Status st = WriteFileAtomically(f.out, FormatFaultPlan(r->minimal, comment)); !st.ok()) {
+    std::fprintf(stderr, "weir: %s\n", std::string(st.message()).c_str());
+    return kHarness;
+  }
+  const RerunResult& m = r->minimal_run;
+  std::printf("after      %s, %llu events, %llu steps (digest %s)\n", Decisions(r->minimal.decisions_size()).c_str(),
+              static_cast<unsigned long long>(m.events), static_cast<unsigned long long>(m.steps),
+              m.digest.c_str());
+  std::printf("reruns     %llu (%llu removals and %llu weakenings accepted, %.1f s)\n",
+              static_cast<unsigned long long>(r->reruns), static_cast<unsigned long long>(r->removal_steps),
+              static_cast<unsigned long long>(r->weakening_steps), elapsed());
+  for (const auto& d : r->minimal.decisions()) std::printf("  %s\n", DescribeDecision(d).c_str());
+  if (r->one_minimal) {
+    std::printf("1-minimal: %s still fails; without any one of these decisions it holds.\n",
+                InvariantName(target));
+  } else {
+    std::printf("budget reached (--max-reruns %llu, --max-seconds %g): the plan still fails %s but is "
+                "not proven 1-minimal; run weir shrink on it again to go on.\n",
+                static_cast<unsigned long long>(f.max_reruns), f.max_seconds, InvariantName(target));
+  }
+  std::printf("plan       %s\n", f.out.c_str());
+
+  if (!f.trace.empty()) {
+    RunSpec s = spec;
+    s.plan = r->minimal;
+    s.trace_path = f.trace;
+    auto out = RunOverGrpc(s);
+    if (!out.ok()) {
+      std::fprintf(stderr, "weir: harness fault: %s\n", std::string(out.status().message()).c_str());
+      return kHarness;
+    }
+    std::printf("trace      %s%s\n", f.trace.c_str(),
+                out->digest == m.digest ? "" : " (its digest differs: the connector is nondeterministic)");
+  }
+  std::printf("%sreplay: %s\n", profile_note.c_str(),
+              ReplayLine(spec.scenario_path, spec.seed, transport, f.out, from_trace ? "" : f.profile,
+                         spec.connector_argv)
+                  .c_str());
+  return kShrunk;
+}
+
+}  // namespace weir
