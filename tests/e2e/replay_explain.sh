@@ -1,6 +1,7 @@
 #!/usr/bin/env bash
 # replay_explain.sh (ctest, label e2e): weir replay and weir explain (issue 5).
-#   - replaying a failing run of a few mutants reproduces it identically;
+#   - replaying a failing run of every mutant reproduces it identically (same
+#     digest as the run printed);
 #   - the wall-clock mutant is reported as nondeterministic (exit 1) at a
 #     stepped event whose resume time differs;
 #   - explain names the violation and marks its proving events; a passing
@@ -15,12 +16,28 @@ tmp="$(mktemp -d)"
 trap 'rm -rf "$tmp"' EXIT
 fail() { echo "FAIL: $*" >&2; exit 1; }
 
-# A failing run of each mutant, then its replay.
+# A failing run of every mutant (the detection matrix's first detection, or
+# another failing pair), then its replay. The wall-clock mutant is below.
 runs=(
   "mutant_ack_on_pull steady_parcel_scanners 1 ack-before-commit"
-  "mutant_no_redelivery_dedup heavy_redelivery_bike_docks 1 duplicate-output"
+  "mutant_ack_on_checkpoint broker_restart_greenhouse 1 ack-before-commit"
+  "mutant_drop_batch_on_error flaky_acks_orchard_sensors 2 lost-message"
+  "mutant_exit_on_transient_error flaky_acks_orchard_sensors 1 unexpected-exit"
   "mutant_ignore_retry_after throttle_storm_toll_gantries 1 throttle-violation"
+  "mutant_latest_event_time_watermark broker_restart_greenhouse 1 watermark-regression"
+  "mutant_no_dedup_in_checkpoint crash_storm_weather_buoys 1 duplicate-output"
+  "mutant_no_idle_watermark idle_watermark_beehive_scales 1 watermark-stall"
+  "mutant_no_redelivery_dedup heavy_redelivery_bike_docks 1 duplicate-output"
+  "mutant_no_watermark_restore commit_failures_cold_chain 1 watermark-regression"
+  "mutant_receipt_as_message_id broker_restart_greenhouse 1 protocol-error"
+  "mutant_tight_retry_loop flaky_acks_orchard_sensors 1 retry-storm"
 )
+# Every mutant of the zoo but the wall-clock one is in the list.
+for f in "$bin"/mutant_*; do
+  m="$(basename "$f")"
+  [[ -x "$f" && "$m" != mutant_wall_clock ]] || continue
+  printf '%s\n' "${runs[@]}" | grep -q "^$m " || fail "$m has no failing run in this test"
+done
 for r in "${runs[@]}"; do
   read -r m s n inv <<<"$r"
   rc=0
@@ -37,7 +54,7 @@ for r in "${runs[@]}"; do
   # explain: names the violation, marks proving events, exits 0.
   "$weir" explain "$tmp/$m.jsonl" >"$tmp/$m.explain" 2>&1 ||
     { cat "$tmp/$m.explain" >&2; fail "explain of $m exited non-zero"; }
-  grep -q "^violation 1 of [0-9]*: $inv: " "$tmp/$m.explain" ||
+  grep -q "^violation [0-9]* of [0-9]*: $inv: " "$tmp/$m.explain" ||
     { cat "$tmp/$m.explain" >&2; fail "explain of $m does not name $inv"; }
   grep -Eq '^    => #[0-9]+ ' "$tmp/$m.explain" || fail "explain of $m marks no proving event"
   grep -q '^  incarnation [0-9]' "$tmp/$m.explain" || fail "explain of $m shows no incarnation"
