@@ -6,7 +6,7 @@ with seeded jitter that honours retry-after. See docs/python.md.
 """
 
 from .backoff import Backoff, BackoffPolicy, RetryGate, mix_seed
-from .serve import GrpcBrokerClient, serve, serve_forever
+from .server import GrpcBrokerClient, serve, serve_forever
 from .source import (INT64_MAX, INT64_MIN, BrokerClient, BrokerStatus, Context, OpenInfo, Source,
                      SourceError, clamp_int64)
 from .watermark import IdleRule, Watermark

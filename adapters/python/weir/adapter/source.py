@@ -1,7 +1,7 @@
 """The connector side of weir, for Python: the plain source interface.
 
 A source connector subclasses Source; a host drives it one call at a time and
-hands each call a Context. The host is serve() (serve.py: the Connector gRPC
+hands each call a Context. The host is serve() (server.py: the Connector gRPC
 service in its own process, what weir launches). This mirrors the C++ adapter
 (adapters/cpp/include/weir/adapter/source.h) call for call.
 
