@@ -9,6 +9,7 @@ packages=(
   libgrpc++-dev protobuf-compiler-grpc libprotobuf-dev protobuf-compiler
   libboost-dev libcli11-dev libgtest-dev libgmock-dev libbenchmark-dev
   librapidcheck-dev libxml2-utils libssl-dev
+  chromium
   python3 python3-grpcio python3-protobuf python3-pytest
 )
 

@@ -21,6 +21,7 @@
 #include "harness/cli/suite_commands.h"
 #include "harness/edge/grpc_run.h"
 #include "harness/replay/explain.h"
+#include "harness/report/html_timeline.h"
 #include "harness/replay/replay.h"
 #include "harness/report/text_report.h"
 #include "harness/scenario/plan_file.h"
@@ -248,10 +249,21 @@ int ReplayCommand(const std::string& trace, const std::string& transport, const 
 
 // weir explain TRACE: the timeline around each violation. Exit 0 either way
 // (1 only for a failed run would hide the explanation's own errors).
-int ExplainCommand(const std::string& trace) {
+// With --html FILE, also writes the page with the SVG timelines (atomically).
+int ExplainCommand(const std::string& trace, const std::string& html) {
   auto r = ExplainTrace(trace);
   if (!r.ok()) return StatusExit(r.status());
   std::printf("%s", r->text.c_str());
+  if (!html.empty()) {
+    const std::string page =
+        HtmlPage(absl::StrCat("weir explain: ", r->timelines.title),
+                 absl::StrCat("<h1>weir explain</h1>\n", RunTimelinesHtml(r->timelines)));
+    if (absl::Status st = WriteFileAtomically(html, page); !st.ok()) {
+      std::fprintf(stderr, "weir: %s\n", std::string(st.message()).c_str());
+      return kExitHarness;
+    }
+    std::printf("html       %s\n", html.c_str());
+  }
   return kExitPassed;
 }
 
@@ -299,6 +311,9 @@ int main(int argc, char** argv) {
   std::string explain_trace;
   CLI::App* explain = app.add_subcommand("explain", "Text timeline of a saved trace around each violation");
   explain->add_option("trace", explain_trace, "Trace file (weir run --trace)")->required();
+  std::string explain_html;
+  explain->add_option("--html", explain_html,
+                      "Also write a self-contained HTML page with SVG timelines to this file");
 
   try {
     app.parse(argc, argv);
@@ -312,7 +327,7 @@ int main(int argc, char** argv) {
   }
   if (lint->parsed()) return LintCommand(lint_files);
   if (replay->parsed()) return ReplayCommand(replay_trace, replay_transport, replay_connector);
-  if (explain->parsed()) return ExplainCommand(explain_trace);
+  if (explain->parsed()) return ExplainCommand(explain_trace, explain_html);
   if (int rc = RunSuiteCommand(suite_commands); rc >= 0) return rc;
   if (int rc = RunShrinkCommand(shrink_flags); rc >= 0) return rc;
   return kExitUsage;

@@ -15,6 +15,10 @@
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_split.h"
 #include "harness/cli/command_line.h"
+#include "harness/edge/private_dir.h"
+#include "harness/replay/explain.h"
+#include "harness/report/html_timeline.h"
+#include "harness/report/markup_escape.h"
 #include "harness/scenario/text_file.h"
 #include "harness/suite/certify.h"
 #include "harness/suite/suite_reports.h"
@@ -96,6 +100,38 @@ absl::StatusOr<ShardSpec> ResolveShard(const SuiteCommands& s) {
   return spec;
 }
 
+// The HTML report: the summary, then the timeline of the first failing run of
+// each failed invariant (from the traces certify kept), in table order.
+std::string SuiteHtml(const v1::SuiteReport& report, const FirstFailureTraces* traces) {
+  std::string body = absl::StrCat("<h1>weir certify</h1>\n", SuiteSummaryHtml(report));
+  const auto kept = traces != nullptr ? traces->First() : std::map<std::string, FirstFailureTraces::Kept>{};
+  for (const auto& inv : report.invariants()) {
+    if (inv.runs_failed() == 0) continue;
+    auto it = kept.find(inv.invariant());
+    if (it == kept.end()) {
+      absl::StrAppend(&body, "<p class=\"elided\">No timeline for ", EscapeMarkup(inv.invariant()),
+                      traces == nullptr ? ": merged reports carry no traces (see each shard's --html page)."
+                                        : ": its trace was not kept.",
+                      "</p>\n");
+      continue;
+    }
+    ExplainOptions options;
+    options.only_invariant = inv.invariant();
+    options.replay = it->second.replay;
+    auto explained = ExplainTrace(it->second.path, options);
+    if (!explained.ok()) {
+      absl::StrAppend(&body, "<p class=\"inv\">No timeline for ", EscapeMarkup(inv.invariant()), ": ",
+                      EscapeMarkup(std::string(explained.status().message())), "</p>\n");
+      continue;
+    }
+    explained->timelines.title = absl::StrCat("first ", inv.invariant(), " failure: ", it->second.scenario,
+                                              " seed ", it->second.seed);
+    explained->timelines.source.clear();  // a temporary file, gone after certify
+    absl::StrAppend(&body, RunTimelinesHtml(explained->timelines));
+  }
+  return HtmlPage(absl::StrCat("weir certify: ", report.suite_name()), body);
+}
+
 int Certify(SuiteCommands& s) {
   std::vector<std::string> argv;
   if (!s.connector.empty() && !s.command.empty()) {
@@ -137,6 +173,18 @@ int Certify(SuiteCommands& s) {
   options.shard = *shard;
   options.transport = transport;
   options.stop = &g_stop;
+  std::unique_ptr<PrivateDir> trace_dir;
+  std::unique_ptr<FirstFailureTraces> first_failures;
+  if (!s.html.empty()) {
+    auto dir = PrivateDir::Create();
+    if (!dir.ok()) {
+      std::fprintf(stderr, "weir: harness fault: %s\n", std::string(dir.status().message()).c_str());
+      return kHarness;
+    }
+    trace_dir = std::move(*dir);
+    first_failures = std::make_unique<FirstFailureTraces>(trace_dir->path());
+    options.first_failures = first_failures.get();
+  }
 
   const bool tty = s.progress == "bar" || (s.progress == "auto" && ::isatty(STDOUT_FILENO));
   const bool quiet = s.progress == "none";
@@ -210,6 +258,7 @@ int Certify(SuiteCommands& s) {
   write(s.json, SuiteReportJson(*report), "json report");
   write(s.junit, SuiteJUnitXml(*report, stamp, host), "junit");
   write(s.certificate, CertificateJson(cert), "certificate");
+  if (!s.html.empty()) write(s.html, SuiteHtml(*report, first_failures.get()), "html report");
 
   bool harness_faults = false, failed = false;
   for (const auto& run : report->runs()) {
@@ -309,7 +358,8 @@ int Merge(SuiteCommands& s) {
   ::gethostname(host, sizeof host - 1);
   for (const auto& [path, text] : {std::pair{s.json, SuiteReportJson(merged)},
                                    std::pair{s.junit, SuiteJUnitXml(merged, stamp, host)},
-                                   std::pair{s.certificate, CertificateJson(cert)}}) {
+                                   std::pair{s.certificate, CertificateJson(cert)},
+                                   std::pair{s.html, s.html.empty() ? std::string() : SuiteHtml(merged, nullptr)}}) {
     if (path.empty()) continue;
     if (absl::Status st = WriteFileAtomically(path, text); !st.ok()) {
       std::fprintf(stderr, "weir: %s\n", std::string(st.message()).c_str());
@@ -335,6 +385,8 @@ void AddSuiteCommands(CLI::App& app, SuiteCommands& s) {
   s.certify->add_option("--json", s.json, "Write the JSON report here");
   s.certify->add_option("--junit", s.junit, "Write JUnit XML here");
   s.certify->add_option("--certificate", s.certificate, "Write the certificate here");
+  s.certify->add_option("--html", s.html,
+                        "Write an HTML report here: summary and a timeline of each invariant's first failure");
   s.certify->add_option("--transport", s.transport, "tcp (default) or unix");
   s.certify->add_option("--progress", s.progress, "auto (bar on a terminal), bar, lines or none");
 
@@ -347,6 +399,7 @@ void AddSuiteCommands(CLI::App& app, SuiteCommands& s) {
   s.merge->add_option("--json", s.json, "Write the merged JSON report here");
   s.merge->add_option("--junit", s.junit, "Write merged JUnit XML here");
   s.merge->add_option("--certificate", s.certificate, "Write the certificate here");
+  s.merge->add_option("--html", s.html, "Write the merged HTML summary here");
 }
 
 int RunSuiteCommand(SuiteCommands& s) {

@@ -25,7 +25,7 @@ struct SuiteCommands {
   std::uint64_t max_failures = 0;
   std::string shard;
   std::uint32_t shard_count_for_index = 0;
-  std::string json, junit, certificate;
+  std::string json, junit, certificate, html;
   std::string transport = "tcp";
   std::string progress = "auto";
   // verify

@@ -24,6 +24,8 @@ using v1::TraceEvent;
 constexpr std::uint64_t kWindowBefore = 25;  // events shown before a proving event
 constexpr std::uint64_t kWindowAfter = 8;    // and after it
 constexpr std::size_t kMaxLines = 80;        // per violation
+constexpr std::uint64_t kDrawBefore = 60;    // events drawn before a proving event
+constexpr std::uint64_t kDrawAfter = 20;     // and after it
 
 // The message an event is about, or 0.
 std::uint64_t MessageOf(const TraceEvent& e) {
@@ -65,18 +67,24 @@ struct Section {
   std::set<std::uint64_t> proving;   // seqs
   std::set<std::uint64_t> messages;  // ids named by proving events
   std::vector<std::pair<std::uint64_t, std::uint64_t>> windows;  // [lo, hi]
+  std::vector<std::pair<std::uint64_t, std::uint64_t>> draw_windows;
   bool broker_calls = false;  // show broker calls in the window (throttle, retry)
   std::string text;
   std::size_t lines = 0;
   std::size_t dropped = 0;
   std::uint64_t last_incarnation = UINT64_MAX;
+  // The HTML timeline (only for the first violation of each invariant).
+  bool drawn = false;
+  ViolationTimeline timeline;
 
-  bool InWindow(std::uint64_t seq) const {
-    for (const auto& [lo, hi] : windows) {
+  static bool In(const std::vector<std::pair<std::uint64_t, std::uint64_t>>& w, std::uint64_t seq) {
+    for (const auto& [lo, hi] : w) {
       if (seq >= lo && seq <= hi) return true;
     }
     return false;
   }
+  bool InWindow(std::uint64_t seq) const { return In(windows, seq); }
+  bool InDrawWindow(std::uint64_t seq) const { return In(draw_windows, seq); }
 };
 
 template <typename F>
@@ -93,43 +101,82 @@ absl::Status ForEachEvent(const std::string& path, F&& f) {
 
 }  // namespace
 
-absl::StatusOr<ExplainOutput> ExplainTrace(const std::string& path) {
+absl::StatusOr<ExplainOutput> ExplainTrace(const std::string& path, const ExplainOptions& options) {
   auto reader = TraceReader::Open(path);
   if (!reader.ok()) return reader.status();
   const v1::TraceHeader header = (*reader)->header();
   reader->reset();
 
-  // Pass 1: the oracle.
+  // Pass 1: the oracle, and the overview's commits and crashes.
+  ExplainOutput out;
+  RunTimelines& tl = out.timelines;
   Oracle oracle(header.scenario().profile());
-  if (absl::Status st = ForEachEvent(path, [&](const TraceEvent& e) { oracle.OnEvent(e); }); !st.ok()) {
+  if (absl::Status st = ForEachEvent(path, [&](const TraceEvent& e) {
+        oracle.OnEvent(e);
+        tl.overview.end_ns = e.t_ns();
+        if (e.has_committed()) {
+          if (tl.overview.commits.size() < kMaxOverviewMarks) {
+            tl.overview.commits.push_back({e.seq(), e.t_ns()});
+          } else {
+            ++tl.overview.commits_elided;
+          }
+        }
+        if (e.has_crashed()) {
+          if (tl.overview.crashes.size() < kMaxOverviewMarks) {
+            tl.overview.crashes.push_back({e.seq(), e.t_ns()});
+          } else {
+            ++tl.overview.crashes_elided;
+          }
+        }
+      });
+      !st.ok()) {
     return st;
   }
   const Verdict verdict = oracle.Finish();
 
-  ExplainOutput out;
   out.passed = verdict.passed();
   std::vector<std::string> argv(header.connector_argv().begin(), header.connector_argv().end());
   absl::StrAppend(&out.text, "trace      ", path, "\n", "scenario   ", header.scenario_path(), " (",
                   header.scenario().name(), "), seed ", header.seed(), "\n", "connector  ",
                   ShellJoin(argv), "\n");
+  tl.title = absl::StrCat(header.scenario().name(), ", seed ", header.seed());
+  tl.source = path;
+  tl.scenario = absl::StrCat(header.scenario_path(), " (", header.scenario().name(), ")");
+  tl.seed = header.seed();
+  tl.connector = ShellJoin(argv);
+  tl.replay = options.replay.empty() ? absl::StrCat("weir replay ", ShellQuote(path)) : options.replay;
+  tl.passed = verdict.passed();
+  tl.overview.events = verdict.events;
+
   std::vector<Section> sections;
   for (int i = 0; i < kInvariantCount; ++i) {
     const InvariantResult& r = verdict.results[i];
     if (!r.checked || r.violations == 0) continue;
+    const char* name = InvariantName(static_cast<Invariant>(i));
+    if (!options.only_invariant.empty() && options.only_invariant != name) continue;
     for (const Violation& v : r.first) {
       Section s;
       s.violation = &v;
       for (const Evidence& ev : v.evidence) {
         s.proving.insert(ev.seq);
         s.windows.emplace_back(ev.seq > kWindowBefore ? ev.seq - kWindowBefore : 0, ev.seq + kWindowAfter);
+        s.draw_windows.emplace_back(ev.seq > kDrawBefore ? ev.seq - kDrawBefore : 0, ev.seq + kDrawAfter);
       }
       s.broker_calls = v.invariant == Invariant::kThrottleViolation || v.invariant == Invariant::kRetryStorm;
+      s.drawn = &v == &r.first.front();
+      s.timeline.invariant = name;
+      s.timeline.sentence = v.sentence;
       sections.push_back(std::move(s));
     }
+    tl.violations_not_drawn += r.violations - 1;
   }
   if (sections.empty()) {
-    absl::StrAppend(&out.text, "\nno violations: every checked invariant held over ", verdict.events,
-                    " events\n");
+    if (verdict.passed() || options.only_invariant.empty()) {
+      absl::StrAppend(&out.text, "\nno violations: every checked invariant held over ", verdict.events,
+                      " events\n");
+    } else {
+      absl::StrAppend(&out.text, "\nno violations of ", options.only_invariant, "\n");
+    }
     return out;
   }
 
@@ -147,7 +194,18 @@ absl::StatusOr<ExplainOutput> ExplainTrace(const std::string& path) {
 
   // Pass 3: the timelines.
   absl::flat_hash_map<std::uint64_t, std::optional<std::int64_t>> watermark;  // per incarnation
+  // Drawn records whose epoch is still open: (section, event index).
+  std::vector<std::pair<std::size_t, std::size_t>> open_epoch;
   if (absl::Status st = ForEachEvent(path, [&](const TraceEvent& e) {
+        if (e.has_checkpoint()) {
+          // The checkpoint closes the epoch of its incarnation; a record of
+          // an earlier incarnation was discarded with its epoch at the crash.
+          for (const auto& [si, ei] : open_epoch) {
+            TimelineEvent& te = sections[si].timeline.events[ei];
+            if (te.event.incarnation() == e.incarnation()) te.epoch_checkpoint = e.checkpoint().checkpoint_id();
+          }
+          open_epoch.clear();
+        }
         bool moved = false;
         if (e.has_stepped() && e.stepped().has_watermark_ns()) {
           auto& w = watermark[e.incarnation()];
@@ -157,9 +215,18 @@ absl::StatusOr<ExplainOutput> ExplainTrace(const std::string& path) {
         for (Section& s : sections) {
           const bool proving = s.proving.contains(e.seq());
           const std::uint64_t m = MessageOf(e);
-          bool show = proving || (m != 0 && s.messages.contains(m));
+          const bool about = proving || (m != 0 && s.messages.contains(m));
+          bool show = about;
           if (!show && s.InWindow(e.seq())) {
             show = IsStructural(e) || moved || (s.broker_calls && e.has_broker_call());
+          }
+          if (s.drawn && (show || (s.InDrawWindow(e.seq()) && (!e.has_broker_call() || s.broker_calls)))) {
+            if (s.timeline.events.size() < kMaxDrawnEvents) {
+              if (e.has_emitted()) open_epoch.emplace_back(static_cast<std::size_t>(&s - sections.data()), s.timeline.events.size());
+              s.timeline.events.push_back(TimelineEvent{e, proving, 0});
+            } else {
+              ++s.timeline.elided;
+            }
           }
           if (!show) continue;
           if (s.lines >= kMaxLines) {
@@ -180,6 +247,9 @@ absl::StatusOr<ExplainOutput> ExplainTrace(const std::string& path) {
     return st;
   }
 
+  for (Section& s : sections) {
+    if (s.drawn) tl.violations.push_back(std::move(s.timeline));
+  }
   std::size_t n = 0;
   for (const Section& s : sections) {
     ++n;

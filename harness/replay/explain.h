@@ -10,22 +10,42 @@
 //   - within a window around each proving event: checkpoints, commits, commit
 //     failures, notices, crashes, opens, exits, throttles and broker errors,
 //     protocol errors, and steps that moved the watermark.
+// The same pass also selects, for the first violation of each failed
+// invariant, the events an HTML timeline draws (html_timeline.h): the text's
+// events plus every other event in a wider window (deliveries, records, acks,
+// steps), at most kMaxDrawnEvents, and the whole run's commits and crashes
+// for the overview, at most kMaxOverviewMarks each. What is left out is
+// counted so the page can say so.
 // The trace is read three times as a stream; memory is bounded by the
-// oracle's in-flight state and kMaxLines per violation.
+// oracle's in-flight state and these per-violation bounds.
 #pragma once
 
+#include <cstddef>
 #include <string>
 
 #include "absl/status/statusor.h"
+#include "harness/report/html_timeline.h"
 
 namespace weir {
+
+struct ExplainOptions {
+  // Explain only this invariant (its name, e.g. "lost-message"); empty: all.
+  std::string only_invariant;
+  // The replay line shown on the HTML page; empty: "weir replay TRACE".
+  std::string replay;
+};
 
 struct ExplainOutput {
   std::string text;
   bool passed = true;  // no checked invariant failed
+  RunTimelines timelines;  // for RunTimelinesHtml
 };
 
+inline constexpr std::size_t kMaxDrawnEvents = 240;      // per violation timeline
+inline constexpr std::size_t kMaxOverviewMarks = 2000;   // commits, and crashes, per run
+
 // Errors: a bad trace file (InvalidArgument/NotFound "file:line: …").
-[[nodiscard]] absl::StatusOr<ExplainOutput> ExplainTrace(const std::string& path);
+[[nodiscard]] absl::StatusOr<ExplainOutput> ExplainTrace(const std::string& path,
+                                                         const ExplainOptions& options = {});
 
 }  // namespace weir

@@ -101,6 +101,7 @@ absl::StatusOr<v1::SuiteReport> Certify(const LoadedSuite& suite, const CertifyO
       spec.seed = p.seed;
       spec.connector_argv = options.connector_argv;
       spec.transport = options.transport;
+      if (options.first_failures != nullptr) spec.trace_path = options.first_failures->PathFor(p.index);
       const auto start = std::chrono::steady_clock::now();
       auto out = options.runner ? options.runner(spec) : RunOverGrpc(spec);
       const double wall =
@@ -129,6 +130,7 @@ absl::StatusOr<v1::SuiteReport> Certify(const LoadedSuite& suite, const CertifyO
           }
         }
       }
+      if (options.first_failures != nullptr) options.first_failures->Offer(rec);
       std::lock_guard<std::mutex> lock(mu);
       ++done;
       if (!rec.passed()) ++failed;

@@ -22,6 +22,7 @@
 
 #include "absl/status/statusor.h"
 #include "harness/edge/grpc_run.h"
+#include "harness/suite/first_failures.h"
 #include "harness/suite/suite_file.h"
 #include "weir/v1/suite.pb.h"
 
@@ -44,6 +45,9 @@ struct CertifyOptions {
   const std::atomic<bool>* stop = nullptr;
   // Runs one pair; default RunOverGrpc. An in-process host passes its own.
   std::function<absl::StatusOr<RunOutput>(const RunSpec&)> runner;
+  // Given: every run writes its trace there, and the first failing run of
+  // each invariant keeps it (for the HTML report). Not owned.
+  FirstFailureTraces* first_failures = nullptr;
   struct Progress {
     std::uint64_t done = 0;
     std::uint64_t total = 0;

@@ -7,6 +7,7 @@
 #include "absl/status/status.h"
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_format.h"
+#include "harness/report/markup_escape.h"
 #include "harness/trace/trace_format.h"
 
 namespace weir {
@@ -32,43 +33,6 @@ absl::Status FromJson(std::string_view text, google::protobuf::Message* m) {
 
 }  // namespace
 
-std::string XmlEscape(std::string_view text) {
-  std::string out;
-  out.reserve(text.size());
-  for (std::size_t i = 0; i < text.size(); ++i) {
-    const unsigned char c = static_cast<unsigned char>(text[i]);
-    switch (c) {
-      case '&': out += "&amp;"; continue;
-      case '<': out += "&lt;"; continue;
-      case '>': out += "&gt;"; continue;
-      case '"': out += "&quot;"; continue;
-      case '\'': out += "&#39;"; continue;
-      default: break;
-    }
-    if (c < 0x20 && c != '\t' && c != '\n' && c != '\r') {
-      out += "\xEF\xBF\xBD";
-      continue;
-    }
-    if (c < 0x80) {
-      out.push_back(static_cast<char>(c));
-      continue;
-    }
-    // Pass through well-formed UTF-8 sequences, replace anything else.
-    const int len = (c >> 5) == 0x6 ? 2 : (c >> 4) == 0xE ? 3 : (c >> 3) == 0x1E ? 4 : 0;
-    bool ok = len > 0 && i + static_cast<std::size_t>(len) <= text.size();
-    for (int k = 1; ok && k < len; ++k) {
-      ok = (static_cast<unsigned char>(text[i + static_cast<std::size_t>(k)]) >> 6) == 0x2;
-    }
-    if (!ok) {
-      out += "\xEF\xBF\xBD";
-      continue;
-    }
-    out.append(text.substr(i, static_cast<std::size_t>(len)));
-    i += static_cast<std::size_t>(len) - 1;
-  }
-  return out;
-}
-
 std::string SuiteReportJson(const v1::SuiteReport& report) { return ToJson(report); }
 
 absl::StatusOr<v1::SuiteReport> ParseSuiteReportJson(std::string_view text) {
@@ -91,13 +55,13 @@ std::string SuiteJUnitXml(const v1::SuiteReport& report, const std::string& time
   }
   const std::string name = report.suite_name().empty() ? "weir" : report.suite_name();
   std::string out = "<?xml version=\"1.0\" encoding=\"UTF-8\"?>\n";
-  absl::StrAppend(&out, "<testsuite name=\"", XmlEscape(name), "\" timestamp=\"", XmlEscape(timestamp),
-                  "\" hostname=\"", XmlEscape(hostname.empty() ? "localhost" : hostname),
+  absl::StrAppend(&out, "<testsuite name=\"", EscapeMarkup(name), "\" timestamp=\"", EscapeMarkup(timestamp),
+                  "\" hostname=\"", EscapeMarkup(hostname.empty() ? "localhost" : hostname),
                   "\" tests=\"", report.runs_size(), "\" failures=\"", failures, "\" errors=\"",
                   errors, "\" time=\"", absl::StrFormat("%.3f", time), "\">\n");
   out += "  <properties>\n";
   auto property = [&out](const std::string& k, const std::string& v) {
-    absl::StrAppend(&out, "    <property name=\"", XmlEscape(k), "\" value=\"", XmlEscape(v), "\"/>\n");
+    absl::StrAppend(&out, "    <property name=\"", EscapeMarkup(k), "\" value=\"", EscapeMarkup(v), "\"/>\n");
   };
   property("suite_digest", report.suite_digest());
   property("weir_version", report.weir_version());
@@ -106,8 +70,8 @@ std::string SuiteJUnitXml(const v1::SuiteReport& report, const std::string& time
   property("complete", report.complete() ? "true" : "false");
   out += "  </properties>\n";
   for (const auto& run : report.runs()) {
-    absl::StrAppend(&out, "  <testcase name=\"", XmlEscape(absl::StrCat("seed ", run.seed())),
-                    "\" classname=\"", XmlEscape(run.scenario()), "\" time=\"",
+    absl::StrAppend(&out, "  <testcase name=\"", EscapeMarkup(absl::StrCat("seed ", run.seed())),
+                    "\" classname=\"", EscapeMarkup(run.scenario()), "\" time=\"",
                     absl::StrFormat("%.3f", run.wall_seconds()), "\"");
     if (run.passed()) {
       out += "/>\n";
@@ -115,8 +79,8 @@ std::string SuiteJUnitXml(const v1::SuiteReport& report, const std::string& time
     }
     out += ">\n";
     if (!run.harness_error().empty()) {
-      absl::StrAppend(&out, "    <error type=\"harness-fault\" message=\"", XmlEscape(run.harness_error()),
-                      "\">", XmlEscape(absl::StrCat(run.harness_error(), "\nreplay: ", run.replay())),
+      absl::StrAppend(&out, "    <error type=\"harness-fault\" message=\"", EscapeMarkup(run.harness_error()),
+                      "\">", EscapeMarkup(absl::StrCat(run.harness_error(), "\nreplay: ", run.replay())),
                       "</error>\n");
     } else {
       std::string invariants;
@@ -124,9 +88,9 @@ std::string SuiteJUnitXml(const v1::SuiteReport& report, const std::string& time
         if (!invariants.empty()) invariants += ", ";
         invariants += inv;
       }
-      absl::StrAppend(&out, "    <failure type=\"", XmlEscape(invariants), "\" message=\"",
-                      XmlEscape(run.first_violation()), "\">",
-                      XmlEscape(absl::StrCat("failed: ", invariants, "\n", run.first_violation(),
+      absl::StrAppend(&out, "    <failure type=\"", EscapeMarkup(invariants), "\" message=\"",
+                      EscapeMarkup(run.first_violation()), "\">",
+                      EscapeMarkup(absl::StrCat("failed: ", invariants, "\n", run.first_violation(),
                                              "\nreplay: ", run.replay())),
                       "</failure>\n");
     }
@@ -165,6 +129,53 @@ std::string SuiteSummaryText(const v1::SuiteReport& report) {
   absl::StrAppend(&out, "\n", report.runs_size(), " runs, ", report.runs_size() - static_cast<int>(failed),
                   " passed, ", failed, " failed", report.complete() ? "" : " (INCOMPLETE: ",
                   report.complete() ? "" : report.stopped_because(), report.complete() ? "" : ")", "\n");
+  return out;
+}
+
+std::string SuiteSummaryHtml(const v1::SuiteReport& report) {
+  std::uint64_t failed = 0;
+  const v1::RunRecord* harness_fault = nullptr;
+  for (const auto& run : report.runs()) {
+    failed += run.passed() ? 0 : 1;
+    if (harness_fault == nullptr && !run.harness_error().empty()) harness_fault = &run;
+  }
+  const v1::Certificate cert = MakeCertificate(report);
+  std::string connector;
+  for (const auto& a : report.connector_argv()) absl::StrAppend(&connector, connector.empty() ? "" : " ", a);
+  std::string out = "<section class=\"summary\">\n";
+  absl::StrAppend(&out, "<h2>Suite ", EscapeMarkup(report.suite_name()), " &#8212; ",
+                  report.shard_count() > 1 ? (failed == 0 ? "shard passed" : "shard FAILED")
+                                           : (cert.certified() ? "CERTIFIED" : "NOT CERTIFIED"),
+                  "</h2>\n<table class=\"facts\">\n");
+  auto fact = [&out](const char* k, const std::string& v) {
+    absl::StrAppend(&out, "<tr><th>", k, "</th><td><code>", EscapeMarkup(v), "</code></td></tr>\n");
+  };
+  fact("suite digest", report.suite_digest());
+  fact("connector", connector);
+  fact("connector sha256", report.connector_sha256());
+  fact("weir", report.weir_version());
+  fact("shard", absl::StrCat(report.shard_index(), "/", report.shard_count()));
+  fact("runs", absl::StrCat(report.runs_size(), " of ", report.pairs_total(), " pairs: ",
+                            report.runs_size() - static_cast<int>(failed), " passed, ", failed, " failed",
+                            report.complete() ? "" : absl::StrCat(" (INCOMPLETE: ", report.stopped_because(), ")")));
+  out += "</table>\n<table class=\"invariants\">\n<tr><th>invariant</th><th>runs passed</th><th>runs failed</th>"
+         "<th>first failing seed</th><th>replay</th></tr>\n";
+  for (const auto& s : report.invariants()) {
+    const bool bad = s.runs_failed() > 0;
+    absl::StrAppend(&out, "<tr><td>", EscapeMarkup(s.invariant()), "</td><td>", s.runs_passed(),
+                    "</td><td class=\"", bad ? "failed" : "passed", "\">", s.runs_failed(), "</td><td>",
+                    bad ? EscapeMarkup(absl::StrCat(s.first_failing_scenario(), " seed ", s.first_failing_seed()))
+                        : std::string("&#8211;"),
+                    "</td><td>",
+                    bad ? absl::StrCat("<code>", EscapeMarkup(s.first_failing_replay()), "</code>") : "",
+                    "</td></tr>\n");
+  }
+  out += "</table>\n";
+  if (harness_fault != nullptr) {
+    absl::StrAppend(&out, "<p class=\"inv\">Harness fault in ", EscapeMarkup(harness_fault->scenario()), " seed ",
+                    harness_fault->seed(), ": ", EscapeMarkup(harness_fault->harness_error()), "</p>\n");
+  }
+  out += "</section>\n";
   return out;
 }
 

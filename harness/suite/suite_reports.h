@@ -24,6 +24,11 @@ std::string SuiteJUnitXml(const v1::SuiteReport& report, const std::string& time
 // Per invariant: runs passed / failed, first failing seed and its replay line.
 std::string SuiteSummaryText(const v1::SuiteReport& report);
 
+// The same summary as an HTML <section> (suite facts, then one row per
+// invariant: runs passed / failed, first failing seed, replay line); every
+// string escaped. For HtmlPage (harness/report/html_timeline.h).
+std::string SuiteSummaryHtml(const v1::SuiteReport& report);
+
 // The certificate of a report: sealed, `certified` only when the report is
 // complete, covers every pair of the suite and every run passed.
 v1::Certificate MakeCertificate(const v1::SuiteReport& report);
@@ -32,9 +37,5 @@ v1::Certificate MakeCertificate(const v1::SuiteReport& report);
 std::string CertificateSeal(const v1::Certificate& certificate);
 std::string CertificateJson(const v1::Certificate& certificate);
 [[nodiscard]] absl::StatusOr<v1::Certificate> ParseCertificateJson(std::string_view text);
-
-// Text escaped for XML/HTML text and attribute values; bytes that are not
-// valid in XML 1.0 become U+FFFD.
-std::string XmlEscape(std::string_view text);
 
 }  // namespace weir

@@ -86,4 +86,34 @@ printf 'name: "x"\nseeds: 0\n' >"$WORK/bad.suite"
 check "bad suite exits 2" test $? -eq 2
 check "bad suite error names file:line" grep -q 'bad.suite:' "$WORK/bad.out"
 
+# 7. The HTML report (issue 6): summary plus one timeline per failed invariant,
+#    escaped (the connector's path holds <script>, & and quotes), well-formed,
+#    and it opens in headless Chromium without console messages.
+HOSTILE="$WORK/mut<script>alert(1)<!--&\"x\""
+cp "$MUTANT" "$HOSTILE"
+"$WEIR" certify --suite "$SUITE" --progress none --jobs 2 --json "$WORK/h.json" --html "$WORK/h.html" \
+  -- "$HOSTILE" >"$WORK/h.out" 2>&1
+check "hostile-named mutant certify --html exits 1" test $? -eq 1
+check "the HTML report is well-formed" xmllint --noout "$WORK/h.html"
+check "no script element in the report" test "$(xmllint --xpath "count(//*[local-name()='script'])" "$WORK/h.html" 2>/dev/null)" = 0
+check "the connector path is shown escaped" grep -q 'mut&lt;script&gt;alert(1)&lt;!--&amp;&quot;x&quot;' "$WORK/h.html"
+failed_invariants=$(/usr/bin/python3 -c 'import json,sys; r=json.load(open(sys.argv[1])); print(sum(1 for i in r["invariants"] if int(i["runs_failed"]) > 0))' "$WORK/h.json")
+timelines=$(xmllint --xpath "count(//*[local-name()='section'][@class='run'])" "$WORK/h.html" 2>/dev/null)
+drawn=$(xmllint --xpath "count(//*[local-name()='section'][@class='run']//*[local-name()='svg'][@class='timeline'])" "$WORK/h.html" 2>/dev/null)
+check "one timeline per failed invariant ($timelines sections, $drawn drawn, $failed_invariants failed)" \
+  test "$failed_invariants" -gt 0 -a "$timelines" = "$failed_invariants" -a "$drawn" = "$failed_invariants"
+rows=$(xmllint --xpath "count(//*[local-name()='table'][@class='invariants']//*[local-name()='td'][@class='failed'])" "$WORK/h.html" 2>/dev/null)
+check "the summary table marks $failed_invariants failed invariants ($rows)" test "$rows" = "$failed_invariants"
+check "the summary carries the replay line" grep -q '<code>weir run --scenario' "$WORK/h.html"
+profile=$(mktemp -d "$WORK/chrome.XXXXXX")
+timeout 90 chromium --headless --no-sandbox --disable-gpu --disable-quic --no-first-run \
+  --disable-background-networking --disable-component-update --disable-sync --user-data-dir="$profile" \
+  --enable-logging=stderr --v=0 --dump-dom "file://$WORK/h.html" >"$WORK/h.dom" 2>"$WORK/h.chrome"
+check "chromium renders the report" grep -q 'class="timeline"' "$WORK/h.dom"
+check "no script element in Chromium's DOM" bash -c "! grep -qi '<script' '$WORK/h.dom'"
+check "no console messages" bash -c "! grep -Eq 'CONSOLE|Uncaught|Refused' '$WORK/h.chrome'"
+"$WEIR" merge "$WORK/flag-0.json" "$WORK/flag-1.json" "$WORK/flag-2.json" --html "$WORK/merged.html" >/dev/null 2>&1
+check "merge --html writes a well-formed summary" xmllint --noout "$WORK/merged.html"
+check "the merged summary says CERTIFIED" grep -q 'CERTIFIED' "$WORK/merged.html"
+
 if ((failures > 0)); then echo "--- reference output"; cat "$WORK/ref.out"; exit 1; fi
