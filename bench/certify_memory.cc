@@ -1,0 +1,159 @@
+// Certify's peak memory against the number of runs (issue 6: a 10,000-run
+// certify stays flat).
+//
+// Runs one certify over a tiny scenario with RUNS seeds, in-process (the
+// reference source, or with --failing the ack-on-pull mutant so every run
+// fails and the first-failure trace keeping of `certify --html` is exercised
+// on every run). The runs go through the same Certify() as over gRPC — the
+// scheduling, RunRecords, summary and trace keeping are shared; only the
+// runner differs (no connector process) — so the aggregation's memory is what
+// is measured here. Prints the peak resident set size (VmHWM) when 10 %, 20 %,
+// 50 % and 100 % of the runs are done, then after building the JSON, JUnit and
+// HTML reports, and the growth per run between the first and the last mark.
+//
+// usage: certify_memory RUNS [--failing] [--jobs N]
+//   build/bench/certify_memory 10000 --failing
+#include <cstdio>
+#include <cstdlib>
+#include <cstring>
+#include <fstream>
+#include <memory>
+#include <mutex>
+#include <string>
+#include <vector>
+
+#include "absl/strings/str_cat.h"
+#include "fixtures/connectors/reference_source.h"
+#include "harness/edge/private_dir.h"
+#include "harness/inprocess/in_process_port.h"
+#include "harness/report/html_timeline.h"
+#include "harness/suite/certify.h"
+#include "harness/suite/first_failures.h"
+#include "harness/suite/suite_file.h"
+#include "harness/suite/suite_reports.h"
+
+namespace {
+
+// A few messages, one checkpoint interval, one crash chance: about as small
+// as a run that still exercises the runtime gets.
+constexpr char kScenario[] = R"(
+name: "memory-bench-beehive-scales"
+description: "Three hive scales, six readings; a crash now and then."
+workload { messages: 6 publish_interval_ms: 100 sources: ["hive-a", "hive-b", "hive-c"] }
+broker { lease_ms: 20000 max_pull: 32 redelivery_horizon_ms: 120000 }
+runtime { checkpoint_every_records: 3 checkpoint_interval_ms: 1000 drain_bound_ms: 60000 }
+faults { crash_rate: 0.02 }
+profile { guarantee: EXACTLY_ONCE }
+)";
+
+// Peak resident set size of this process, in KiB (from /proc/self/status).
+long PeakRssKib() {
+  std::ifstream in("/proc/self/status");
+  std::string line;
+  while (std::getline(in, line)) {
+    if (line.rfind("VmHWM:", 0) == 0) return std::atol(line.c_str() + 6);
+  }
+  return -1;
+}
+
+}  // namespace
+
+int main(int argc, char** argv) {
+  using namespace weir;
+  if (argc < 2 || std::atoll(argv[1]) <= 0) {
+    std::fprintf(stderr, "usage: %s RUNS [--failing] [--jobs N]\n", argv[0]);
+    return 2;
+  }
+  const std::uint64_t runs = static_cast<std::uint64_t>(std::atoll(argv[1]));
+  bool failing = false;
+  unsigned jobs = 1;
+  for (int i = 2; i < argc; ++i) {
+    if (std::strcmp(argv[i], "--failing") == 0) {
+      failing = true;
+    } else if (std::strcmp(argv[i], "--jobs") == 0 && i + 1 < argc) {
+      jobs = static_cast<unsigned>(std::atoi(argv[++i]));
+    } else {
+      std::fprintf(stderr, "unknown argument %s\n", argv[i]);
+      return 2;
+    }
+  }
+
+  auto dir = PrivateDir::Create();
+  if (!dir.ok()) {
+    std::fprintf(stderr, "%s\n", std::string(dir.status().message()).c_str());
+    return 3;
+  }
+  const std::string scenario_path = (*dir)->path() + "/bench.scenario";
+  const std::string suite_path = (*dir)->path() + "/bench.suite";
+  std::ofstream(scenario_path) << kScenario;
+  std::ofstream(suite_path) << "name: \"memory-bench\"\nscenarios: [\"bench.scenario\"]\nseeds: " << runs
+                            << "\nfirst_seed: 1\n";
+  auto suite = LoadSuite(suite_path);
+  if (!suite.ok()) {
+    std::fprintf(stderr, "%s\n", std::string(suite.status().message()).c_str());
+    return 3;
+  }
+  auto traces_dir = PrivateDir::Create();
+  if (!traces_dir.ok()) return 3;
+  FirstFailureTraces traces((*traces_dir)->path());
+
+  fixtures::Bugs bugs;
+  bugs.ack_on_pull = failing;
+  CertifyOptions options;
+  options.connector_argv = {failing ? "(in-process ack-on-pull mutant)" : "(in-process reference)"};
+  options.jobs = jobs;
+  options.first_failures = &traces;
+  options.runner = [bugs](const RunSpec& spec) {
+    return RunInProcess(spec, [bugs] { return std::make_unique<fixtures::ReferenceSource>(bugs); });
+  };
+  const std::vector<std::uint64_t> marks = {std::max<std::uint64_t>(1, runs / 10), std::max<std::uint64_t>(1, runs / 5),
+                                            std::max<std::uint64_t>(1, runs / 2), runs};
+  std::size_t next_mark = 0;
+  std::vector<std::pair<std::uint64_t, long>> seen;
+  options.progress = [&](const CertifyOptions::Progress& p, const v1::RunRecord&) {
+    while (next_mark < marks.size() && p.done >= marks[next_mark]) {
+      seen.emplace_back(p.done, PeakRssKib());
+      std::printf("after %6llu runs (%llu failed): peak RSS %6ld KiB\n", static_cast<unsigned long long>(p.done),
+                  static_cast<unsigned long long>(p.failed), seen.back().second);
+      std::fflush(stdout);
+      ++next_mark;
+    }
+  };
+  std::printf("certify in-process, %llu runs of %s, --jobs %u, first-failure traces kept; start: peak RSS %ld KiB\n",
+              static_cast<unsigned long long>(runs), failing ? "the ack-on-pull mutant" : "the reference source",
+              jobs, PeakRssKib());
+  auto report = Certify(*suite, options);
+  if (!report.ok()) {
+    std::fprintf(stderr, "%s\n", std::string(report.status().message()).c_str());
+    return 3;
+  }
+  std::uint64_t failed = 0;
+  for (const auto& r : report->runs()) failed += r.passed() ? 0 : 1;
+  if (static_cast<std::uint64_t>(report->runs_size()) != runs || (failing && failed != runs) ||
+      (!failing && failed != 0)) {
+    std::fprintf(stderr, "unexpected outcome: %d runs, %llu failed\n", report->runs_size(),
+                 static_cast<unsigned long long>(failed));
+    return 1;
+  }
+  const auto kept = traces.First();
+  if (failing && kept.empty()) {
+    std::fprintf(stderr, "no first-failure trace kept\n");
+    return 1;
+  }
+  const std::string json = SuiteReportJson(*report);
+  const std::string junit = SuiteJUnitXml(*report, "2026-01-01T00:00:00", "bench");
+  const std::string html = HtmlPage("bench", SuiteSummaryHtml(*report));
+  std::printf("after the reports (json %zu B, junit %zu B, html summary %zu B): peak RSS %ld KiB\n", json.size(),
+              junit.size(), html.size(), PeakRssKib());
+  std::printf("first-failure traces kept: %zu (one per failed invariant)\n", kept.size());
+  if (seen.size() >= 2 && seen.back().first > seen.front().first) {
+    const double per_run = static_cast<double>(seen.back().second - seen.front().second) * 1024.0 /
+                           static_cast<double>(seen.back().first - seen.front().first);
+    std::printf("growth from %llu to %llu runs: %ld KiB (%.0f bytes per run); peak at the end / at the first mark "
+                "= %.2f\n",
+                static_cast<unsigned long long>(seen.front().first), static_cast<unsigned long long>(seen.back().first),
+                seen.back().second - seen.front().second, per_run,
+                static_cast<double>(seen.back().second) / static_cast<double>(seen.front().second));
+  }
+  return 0;
+}
