@@ -23,6 +23,7 @@
 #include "absl/strings/str_cat.h"
 #include "fixtures/connectors/reference_source.h"
 #include "harness/inprocess/in_process_port.h"
+#include "harness/scenario/plan_file.h"
 #include "harness/scenario/scenario_file.h"
 #include "harness/shrink/shrink.h"
 
@@ -46,7 +47,21 @@ struct Mutant {
   std::uint64_t seed;
   Invariant invariant;
   bool over_grpc = false;
+  // When set, the failing run applies this plan instead of drawing from the
+  // scenario's rates (whose idle scenarios draw no faults at all).
+  const char* plan = nullptr;
 };
+
+// Faults of every kind that the idle scenario's stall does not need.
+constexpr char kIdleBystanders[] = R"(
+decisions { site: PULL position: 2 latency_ms: 300 }
+decisions { site: PULL position: 5 duplicate: true }
+decisions { site: PUBLISH position: 3 visibility_delay_ms: 2000 }
+decisions { site: ACK position: 2 lost_ack: true }
+decisions { site: STEP position: 12 crash { point: BEFORE_STEP } }
+decisions { site: CHECKPOINT position: 4 commit_failure: true }
+decisions { site: PULL position: 20 transient { code: UNAVAILABLE } }
+)";
 
 void PrintTo(const Mutant& m, std::ostream* os) { *os << m.name; }
 
@@ -66,7 +81,7 @@ const Mutant kZoo[] = {
     {"mutant_no_dedup_in_checkpoint", [](fixtures::Bugs& b) { b.no_dedup_in_checkpoint = true; },
      "crash_storm_weather_buoys", 1, Invariant::kDuplicateOutput},
     {"mutant_no_idle_watermark", [](fixtures::Bugs& b) { b.no_idle_watermark = true; },
-     "idle_watermark_beehive_scales", 1, Invariant::kWatermarkStall},
+     "idle_watermark_beehive_scales", 1, Invariant::kWatermarkStall, false, kIdleBystanders},
     {"mutant_no_redelivery_dedup", [](fixtures::Bugs& b) { b.no_redelivery_dedup = true; },
      "broker_restart_greenhouse", 1, Invariant::kDuplicateOutput},
     {"mutant_no_watermark_restore", [](fixtures::Bugs& b) { b.no_watermark_restore = true; },
@@ -113,8 +128,13 @@ TEST_P(ShrinkZoo, MinimalPlanStillFailsAndIsOneMinimal) {
   ASSERT_TRUE(scenario.ok()) << scenario.status();
   spec.scenario = *scenario;
   spec.seed = m.seed;
+  if (m.plan != nullptr) {
+    auto plan = ParseFaultPlan("kIdleBystanders", m.plan);
+    ASSERT_TRUE(plan.ok()) << plan.status();
+    spec.plan = *plan;
+  }
 
-  auto original = RunMutant(m, spec);  // draws its faults from the scenario's rates
+  auto original = RunMutant(m, spec);  // faults drawn from the scenario's rates, or m.plan
   ASSERT_TRUE(original.ok()) << original.status();
   ASSERT_TRUE(FailsWith(*original, m.invariant))
       << m.scenario << " seed " << m.seed << " no longer fails " << InvariantName(m.invariant);
