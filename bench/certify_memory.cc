@@ -40,8 +40,8 @@ constexpr char kScenario[] = R"(
 name: "memory-bench-beehive-scales"
 description: "Three hive scales, six readings; a crash now and then."
 workload { messages: 6 publish_interval_ms: 100 sources: ["hive-a", "hive-b", "hive-c"] }
-broker { lease_ms: 20000 max_pull: 32 redelivery_horizon_ms: 120000 }
-runtime { checkpoint_every_records: 3 checkpoint_interval_ms: 1000 drain_bound_ms: 60000 }
+broker { lease_ms: 2000 max_pull: 32 redelivery_horizon_ms: 120000 }
+runtime { checkpoint_every_records: 3 checkpoint_interval_ms: 1000 drain_bound_ms: 600000 }
 faults { crash_rate: 0.02 }
 profile { guarantee: EXACTLY_ONCE }
 )";
@@ -133,6 +133,12 @@ int main(int argc, char** argv) {
       (!failing && failed != 0)) {
     std::fprintf(stderr, "unexpected outcome: %d runs, %llu failed\n", report->runs_size(),
                  static_cast<unsigned long long>(failed));
+    int shown = 0;
+    for (const auto& r : report->runs()) {
+      if (r.passed() != failing || shown++ >= 5) continue;
+      std::fprintf(stderr, "  seed %llu: %s\n", static_cast<unsigned long long>(r.seed()),
+                   r.first_violation().empty() ? r.harness_error().c_str() : r.first_violation().c_str());
+    }
     return 1;
   }
   const auto kept = traces.First();
