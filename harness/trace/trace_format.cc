@@ -2,19 +2,163 @@
 
 #include <openssl/evp.h>
 
+#include <cstdio>
+#include <string_view>
+#include <vector>
+
 #include <google/protobuf/util/json_util.h>
 
 #include "absl/status/status.h"
 
 namespace weir {
 
-std::string EncodeTraceLine(const v1::TraceLine& line) {
+std::string EncodeTraceLineWithJsonPrinter(const v1::TraceLine& line) {
   std::string out;
   google::protobuf::util::JsonPrintOptions options;
   options.preserve_proto_field_names = true;
   (void)google::protobuf::util::MessageToJsonString(line, &out, options);
   out.push_back('\n');
   return out;
+}
+
+namespace {
+
+using google::protobuf::FieldDescriptor;
+using google::protobuf::Message;
+using google::protobuf::Reflection;
+
+// Characters Protobuf's JSON printer writes as they are. Anything else (quotes,
+// backslash, <, >, &, =, ', control and non-ASCII bytes) sends the whole line
+// to the printer itself. trace_encoding_test checks this set against it.
+bool PlainJsonChar(unsigned char c) {
+  if (c < 0x20 || c > 0x7e) return false;
+  switch (c) {
+    case '"': case '\\': case '<': case '>': case '&': case '=': case '\'':
+      return false;
+    default:
+      return true;
+  }
+}
+
+void AppendQuotedDecimal(std::string* out, std::string_view digits) {
+  out->push_back('"');
+  out->append(digits);
+  out->push_back('"');
+}
+
+// Appends one value of `field` (index < 0: singular). False: not handled here.
+bool AppendValue(const Message& m, const Reflection& r, const FieldDescriptor& f, int index,
+                 std::string* out);
+
+// Appends `m` as Protobuf's JSON printer does with preserve_proto_field_names
+// (fields in number order, default scalars omitted unless they have presence,
+// 64-bit integers quoted, enums by name). Returns false on anything it does
+// not handle (floating point, bytes, maps, well-known types, escaped strings,
+// unnamed enum values); *out is then garbage and the caller falls back.
+bool AppendMessage(const Message& m, std::string* out) {
+  const Reflection& r = *m.GetReflection();
+  if (m.GetDescriptor()->file()->package() == "google.protobuf") return false;
+  std::vector<const FieldDescriptor*> fields;
+  r.ListFields(m, &fields);
+  out->push_back('{');
+  bool first = true;
+  for (const FieldDescriptor* f : fields) {
+    if (f->is_map() || f->is_extension()) return false;
+    if (!first) out->push_back(',');
+    first = false;
+    out->push_back('"');
+    out->append(f->name());
+    out->append("\":");
+    if (f->is_repeated()) {
+      out->push_back('[');
+      const int n = r.FieldSize(m, f);
+      for (int i = 0; i < n; ++i) {
+        if (i > 0) out->push_back(',');
+        if (!AppendValue(m, r, *f, i, out)) return false;
+      }
+      out->push_back(']');
+    } else if (!AppendValue(m, r, *f, -1, out)) {
+      return false;
+    }
+  }
+  out->push_back('}');
+  return true;
+}
+
+bool AppendValue(const Message& m, const Reflection& r, const FieldDescriptor& f, int index,
+                 std::string* out) {
+  const bool rep = index >= 0;
+  char buf[32];
+  switch (f.cpp_type()) {
+    case FieldDescriptor::CPPTYPE_INT32: {
+      const std::int32_t v = rep ? r.GetRepeatedInt32(m, &f, index) : r.GetInt32(m, &f);
+      out->append(buf, static_cast<std::size_t>(std::snprintf(buf, sizeof buf, "%d", v)));
+      return true;
+    }
+    case FieldDescriptor::CPPTYPE_UINT32: {
+      const std::uint32_t v = rep ? r.GetRepeatedUInt32(m, &f, index) : r.GetUInt32(m, &f);
+      out->append(buf, static_cast<std::size_t>(std::snprintf(buf, sizeof buf, "%u", v)));
+      return true;
+    }
+    case FieldDescriptor::CPPTYPE_INT64: {
+      const std::int64_t v = rep ? r.GetRepeatedInt64(m, &f, index) : r.GetInt64(m, &f);
+      AppendQuotedDecimal(out, std::string_view(buf, static_cast<std::size_t>(std::snprintf(
+                                                         buf, sizeof buf, "%lld",
+                                                         static_cast<long long>(v)))));
+      return true;
+    }
+    case FieldDescriptor::CPPTYPE_UINT64: {
+      const std::uint64_t v = rep ? r.GetRepeatedUInt64(m, &f, index) : r.GetUInt64(m, &f);
+      AppendQuotedDecimal(out, std::string_view(buf, static_cast<std::size_t>(std::snprintf(
+                                                         buf, sizeof buf, "%llu",
+                                                         static_cast<unsigned long long>(v)))));
+      return true;
+    }
+    case FieldDescriptor::CPPTYPE_BOOL: {
+      const bool v = rep ? r.GetRepeatedBool(m, &f, index) : r.GetBool(m, &f);
+      out->append(v ? "true" : "false");
+      return true;
+    }
+    case FieldDescriptor::CPPTYPE_ENUM: {
+      const int v = rep ? r.GetRepeatedEnumValue(m, &f, index) : r.GetEnumValue(m, &f);
+      const auto* value = f.enum_type()->FindValueByNumber(v);
+      if (value == nullptr) return false;
+      out->push_back('"');
+      out->append(value->name());
+      out->push_back('"');
+      return true;
+    }
+    case FieldDescriptor::CPPTYPE_STRING: {
+      if (f.type() == FieldDescriptor::TYPE_BYTES) return false;
+      std::string scratch;
+      const std::string& v =
+          rep ? r.GetRepeatedStringReference(m, &f, index, &scratch) : r.GetStringReference(m, &f, &scratch);
+      for (const char c : v) {
+        if (!PlainJsonChar(static_cast<unsigned char>(c))) return false;
+      }
+      out->push_back('"');
+      out->append(v);
+      out->push_back('"');
+      return true;
+    }
+    case FieldDescriptor::CPPTYPE_MESSAGE:
+      return AppendMessage(rep ? r.GetRepeatedMessage(m, &f, index) : r.GetMessage(m, &f), out);
+    case FieldDescriptor::CPPTYPE_FLOAT:
+    case FieldDescriptor::CPPTYPE_DOUBLE:
+      return false;
+  }
+  return false;
+}
+
+}  // namespace
+
+std::string EncodeTraceLine(const v1::TraceLine& line) {
+  std::string out;
+  if (AppendMessage(line, &out)) {
+    out.push_back('\n');
+    return out;
+  }
+  return EncodeTraceLineWithJsonPrinter(line);
 }
 
 absl::StatusOr<v1::TraceLine> DecodeTraceLine(std::string_view line) {
@@ -58,11 +202,17 @@ std::string Sha256::HexDigest() {
 }
 
 void TraceEncoder::OnEvent(const v1::TraceEvent& event) {
-  *line_.mutable_event() = event;
-  const std::string text = EncodeTraceLine(line_);
-  digest_.Update(text);
+  // {"event":…} without copying the event into a TraceLine.
+  text_.assign("{\"event\":");
+  if (AppendMessage(event, &text_)) {
+    text_.append("}\n");
+  } else {
+    *line_.mutable_event() = event;
+    text_ = EncodeTraceLineWithJsonPrinter(line_);
+  }
+  digest_.Update(text_);
   ++events_;
-  if (sink_ != nullptr) sink_->WriteLine(text);
+  if (sink_ != nullptr) sink_->WriteLine(text_);
 }
 
 }  // namespace weir

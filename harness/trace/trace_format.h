@@ -18,8 +18,14 @@
 namespace weir {
 
 // One JSON line (with trailing '\n') for a trace line. Field order and spelling
-// are fixed by the schema, so equal lines mean equal events.
+// are fixed by the schema, so equal lines mean equal events. The bytes are
+// exactly those of Protobuf's JSON printer (EncodeTraceLineWithJsonPrinter),
+// which traces and their digests were defined by; lines it cannot reproduce
+// byte for byte (escaped strings, floating point…) go through the printer.
 std::string EncodeTraceLine(const v1::TraceLine& line);
+// The same through Protobuf's JSON printer (MessageToJsonString with the
+// proto field names): the definition, several times slower.
+std::string EncodeTraceLineWithJsonPrinter(const v1::TraceLine& line);
 
 // Parses one line. Errors name the cause; the caller adds file:line.
 [[nodiscard]] absl::StatusOr<v1::TraceLine> DecodeTraceLine(std::string_view line);
@@ -59,7 +65,8 @@ class TraceEncoder : public TraceObserver {
  private:
   LineSink* sink_;
   Sha256 digest_;
-  v1::TraceLine line_;
+  v1::TraceLine line_;  // for lines the printer must encode
+  std::string text_;    // the current line, reused
   std::uint64_t events_ = 0;
 };
 
