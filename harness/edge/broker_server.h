@@ -1,8 +1,9 @@
 // File: broker_server.h
 //
 // The gRPC edge of the broker: serves the Broker service on loopback TCP (an
-// OS-assigned port) or on a Unix socket, and relays every call onto the
-// simulation thread through a CallRelay. Answers carry the virtual now; a
+// OS-assigned port) or on a Unix socket, and runs every call through a
+// CallRelay (on the gRPC thread, while the simulation thread waits in a
+// connector call). Answers carry the virtual now; a
 // failed call carries it in trailing metadata "weir-now-ns", and a throttled
 // one "retry-after-ms" plus a weir.v1.RetryAfter status detail.
 //
@@ -25,6 +26,7 @@ class BrokerServer {
   // REQUIRES: relay outlives the server.
   [[nodiscard]] static absl::StatusOr<std::unique_ptr<BrokerServer>> Start(
       const std::string& listen, CallRelay& relay, std::chrono::milliseconds call_bound);
+  // call_bound: how long a call whose answer a crash point holds back may wait.
   ~BrokerServer();
 
   // The address a client should dial ("127.0.0.1:40123" or "unix:/path").

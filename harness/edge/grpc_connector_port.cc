@@ -1,7 +1,6 @@
 #include "harness/edge/grpc_connector_port.h"
 
-#include <condition_variable>
-#include <mutex>
+#include <signal.h>
 
 #include "absl/strings/match.h"
 #include "absl/strings/str_cat.h"
@@ -83,53 +82,37 @@ ConnectorFailure GrpcConnectorPort::Start(std::uint64_t incarnation) {
   return {};
 }
 
-template <typename Request, typename Response, typename Starter>
+template <typename Request, typename Response, typename Method>
 ConnectorFailure GrpcConnectorPort::Invoke(const char* name, const Request& request,
                                            Response* response, BrokerEndpoint& broker,
-                                           Starter start) {
+                                           Method method) {
   if (stub_ == nullptr) {
     return ConnectorFailure{ConnectorFailure::Kind::kExited, "no live incarnation", "", ""};
   }
-  for (const std::string& method : relay_.TakeStrayCalls()) broker.OnStrayCall(method);
+  for (const std::string& method_name : relay_.TakeStrayCalls()) broker.OnStrayCall(method_name);
 
+  // A blocking call on this thread: while it waits, the connector's broker
+  // calls run on gRPC's server threads through the relay, and nothing else
+  // touches the models.
   grpc::ClientContext context;
-  const auto wall_deadline = std::chrono::steady_clock::now() + options_.call_timeout;
-  context.set_deadline(std::chrono::system_clock::now() + options_.call_timeout +
-                       std::chrono::milliseconds(1000));
-  std::mutex mu;
-  std::condition_variable cv;
-  bool completed = false;
-  grpc::Status status;
-
-  relay_.Open(broker);
-  start(&context, &request, response, [&](grpc::Status s) {
-    {
-      std::lock_guard<std::mutex> lock(mu);
-      status = std::move(s);
-      completed = true;
-    }
-    cv.notify_all();
-    relay_.Done();
+  context.set_deadline(std::chrono::system_clock::now() + options_.call_timeout);
+  const pid_t group = child_->pid();
+  relay_.Open(broker, [group, &context] {
+    // A crash point, on the gRPC thread that served the broker call: the
+    // process group dies while that call's answer is held in the relay.
+    ::kill(-group, SIGKILL);
+    context.TryCancel();
   });
-  const CallRelay::Served served = relay_.ServeUntilDone(wall_deadline);
-  const bool crash = served == CallRelay::Served::kCrashRequested;
-  // A crash point: SIGKILL the process group while the broker answer is still
-  // held in the relay, so the connector dies without seeing it.
-  if (crash && child_ != nullptr) child_->Kill();
-  relay_.Close();
-  if (served != CallRelay::Served::kDone) context.TryCancel();
-  {
-    // The callback refers to this frame: it must have run before we return.
-    std::unique_lock<std::mutex> lock(mu);
-    cv.wait(lock, [&] { return completed; });
-  }
-  if (crash) {
+  const grpc::Status status = (stub_.get()->*method)(&context, request, response);
+  if (relay_.crash_requested()) {
+    child_->Kill();  // reaped before the held answer is released
+    relay_.Close();
     Kill();  // drop the channel and the reaped child: no incarnation is alive
     return ConnectorFailure{ConnectorFailure::Kind::kCrashed,
                             absl::StrCat("killed during ", name, " at a crash point"), "", ""};
   }
-  if (served == CallRelay::Served::kDeadline ||
-      status.error_code() == grpc::StatusCode::DEADLINE_EXCEEDED) {
+  relay_.Close();
+  if (status.error_code() == grpc::StatusCode::DEADLINE_EXCEEDED) {
     if (auto how = child_->TryReap(std::chrono::milliseconds(0)); how.has_value()) {
       return ExitedOr(ConnectorFailure::Kind::kExited, absl::StrCat("died during ", name));
     }
@@ -157,32 +140,24 @@ ConnectorFailure GrpcConnectorPort::Invoke(const char* name, const Request& requ
 
 ConnectorFailure GrpcConnectorPort::Open(const v1::OpenRequest& request,
                                          v1::OpenResponse* response, BrokerEndpoint& broker) {
-  return Invoke("Open", request, response, broker, [&](auto* c, auto* rq, auto* rs, auto cb) {
-    stub_->async()->Open(c, rq, rs, std::move(cb));
-  });
+  return Invoke("Open", request, response, broker, &v1::Connector::Stub::Open);
 }
 
 ConnectorFailure GrpcConnectorPort::Advance(const v1::AdvanceRequest& request,
                                             v1::AdvanceResponse* response, BrokerEndpoint& broker) {
-  return Invoke("Advance", request, response, broker, [&](auto* c, auto* rq, auto* rs, auto cb) {
-    stub_->async()->Advance(c, rq, rs, std::move(cb));
-  });
+  return Invoke("Advance", request, response, broker, &v1::Connector::Stub::Advance);
 }
 
 ConnectorFailure GrpcConnectorPort::Checkpoint(const v1::CheckpointRequest& request,
                                                v1::CheckpointResponse* response,
                                                BrokerEndpoint& broker) {
-  return Invoke("Checkpoint", request, response, broker, [&](auto* c, auto* rq, auto* rs, auto cb) {
-    stub_->async()->Checkpoint(c, rq, rs, std::move(cb));
-  });
+  return Invoke("Checkpoint", request, response, broker, &v1::Connector::Stub::Checkpoint);
 }
 
 ConnectorFailure GrpcConnectorPort::Committed(const v1::CommittedRequest& request,
                                               v1::CommittedResponse* response,
                                               BrokerEndpoint& broker) {
-  return Invoke("Committed", request, response, broker, [&](auto* c, auto* rq, auto* rs, auto cb) {
-    stub_->async()->Committed(c, rq, rs, std::move(cb));
-  });
+  return Invoke("Committed", request, response, broker, &v1::Connector::Stub::Committed);
 }
 
 }  // namespace weir

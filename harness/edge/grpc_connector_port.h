@@ -3,9 +3,10 @@
 // ConnectorPort over gRPC to a child process. Start() launches the connector
 // command (argv, own process group) with the handshake environment of
 // connector.proto, waits (bounded) for the address it listens on, and dials
-// it. Each call is asynchronous on the wire while the simulation thread serves
-// the connector's broker calls through the CallRelay; every call has a
-// wall-clock bound. Kill() ends the process group and reaps it.
+// it. Each call is a blocking gRPC call on the simulation thread with a
+// wall-clock deadline; meanwhile the connector's broker calls are served on
+// gRPC's threads through the CallRelay, whose window is open only for the
+// duration of the call. Kill() ends the process group and reaps it.
 //
 // Thread safety: the simulation thread only.
 #pragma once
@@ -51,9 +52,9 @@ class GrpcConnectorPort : public ConnectorPort {
   void Kill() override;
 
  private:
-  template <typename Request, typename Response, typename Starter>
+  template <typename Request, typename Response, typename Method>
   ConnectorFailure Invoke(const char* name, const Request& request, Response* response,
-                          BrokerEndpoint& broker, Starter start);
+                          BrokerEndpoint& broker, Method method);
   ConnectorFailure ExitedOr(ConnectorFailure::Kind kind, std::string detail);
 
   const Options options_;
