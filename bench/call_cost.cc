@@ -1,0 +1,396 @@
+// What one call through weir costs against the physical limit, the bare gRPC
+// round trip, measured in the same run (issue 9, benchmarks 1, 2 and 6):
+//
+//   1. echo: a bare unary echo (100-byte payload) between this process and a
+//      child process (this binary with --echo-server), over loopback TCP and a
+//      Unix socket, one call outstanding: round trips per second.
+//   2. weir: a run of the steady scenario with the reference connector over
+//      gRPC on both transports, counting every connector call (Open, Advance,
+//      Checkpoint, Committed) and every broker call the connector made.
+//      Per-call cost = (run wall time - time spent starting and killing
+//      incarnations) / calls; the ratio to the echo round trip of the same
+//      transport is the figure the target (at most 1.5x) is about. The same
+//      scenario in-process (no gRPC) shows what the simulation itself costs.
+//   3. restart: median wall time of Kill + Start + Open of an incarnation.
+//
+// usage: call_cost CONNECTOR SCENARIO [ECHO_CALLS [RESTARTS]]
+//   defaults: 20000 echo calls per transport, 30 restarts.
+// Prints one human line per measurement, then `result NAME VALUE` lines for
+// bench/run_all.sh. Exits 1 if a weir run does not pass.
+#include <fcntl.h>
+#include <unistd.h>
+
+#include <algorithm>
+#include <chrono>
+#include <cstdio>
+#include <cstdlib>
+#include <cstring>
+#include <string>
+#include <vector>
+
+#include <grpcpp/grpcpp.h>
+
+#include "echo.grpc.pb.h"  // generated from bench/echo.proto
+#include "fixtures/connectors/reference_source.h"
+#include "harness/edge/broker_server.h"
+#include "harness/edge/call_relay.h"
+#include "harness/edge/child_process.h"
+#include "harness/edge/grpc_connector_port.h"
+#include "harness/edge/grpc_run.h"
+#include "harness/edge/private_dir.h"
+#include "harness/inprocess/in_process_port.h"
+#include "harness/scenario/scenario_file.h"
+
+namespace weir {
+namespace {
+
+using Clock = std::chrono::steady_clock;
+
+double Seconds(Clock::duration d) { return std::chrono::duration<double>(d).count(); }
+
+double Median(std::vector<double> v) {
+  if (v.empty()) return 0;
+  std::sort(v.begin(), v.end());
+  return v[v.size() / 2];
+}
+
+double Percentile(std::vector<double> v, double p) {
+  if (v.empty()) return 0;
+  std::sort(v.begin(), v.end());
+  return v[std::min(v.size() - 1, static_cast<std::size_t>(p * static_cast<double>(v.size())))];
+}
+
+[[noreturn]] void Fail(const std::string& what) {
+  std::fprintf(stderr, "call_cost: %s\n", what.c_str());
+  std::exit(1);
+}
+
+// --- the child: a sync echo server, started with weir's handshake ---------
+
+class EchoService final : public bench::Echo::Service {
+  grpc::Status Echo(grpc::ServerContext*, const bench::EchoMessage* request,
+                    bench::EchoMessage* response) override {
+    response->set_payload(request->payload());
+    return grpc::Status::OK;
+  }
+};
+
+int ServeEcho() {
+  const char* listen = std::getenv("WEIR_LISTEN_ADDRESS");
+  if (listen == nullptr) return 2;
+  EchoService service;
+  grpc::ServerBuilder builder;
+  builder.AddChannelArgument(GRPC_ARG_ALLOW_REUSEPORT, 0);
+  int port = 0;
+  builder.AddListeningPort(listen, grpc::InsecureServerCredentials(), &port);
+  builder.RegisterService(&service);
+  auto server = builder.BuildAndStart();
+  if (server == nullptr) return 2;
+  std::string address = listen;
+  if (address.rfind("unix:", 0) != 0) {
+    address = address.substr(0, address.rfind(':')) + ":" + std::to_string(port);
+  }
+  address += "\n";
+  if (::write(3, address.data(), address.size()) != static_cast<ssize_t>(address.size())) return 2;
+  ::close(3);
+  server->Wait();
+  return 0;
+}
+
+// --- 1. the bare round trip -------------------------------------------------
+
+struct Listen {
+  std::unique_ptr<PrivateDir> dir;
+  std::string address;
+};
+
+Listen ListenAddress(Transport transport, const char* name) {
+  Listen l;
+  if (transport == Transport::kTcp) {
+    l.address = "127.0.0.1:0";
+    return l;
+  }
+  auto dir = PrivateDir::Create();
+  if (!dir.ok()) Fail(std::string(dir.status().message()));
+  l.dir = std::move(*dir);
+  l.address = "unix:" + l.dir->path() + "/" + name + ".sock";
+  return l;
+}
+
+const char* Name(Transport t) { return t == Transport::kTcp ? "tcp" : "unix"; }
+
+// Mean microseconds per round trip.
+double MeasureEcho(const std::string& self, Transport transport, int calls) {
+  Listen listen = ListenAddress(transport, "echo");
+  ChildProcess::Options spawn;
+  spawn.argv = {self, "--echo-server"};
+  spawn.env["WEIR_LISTEN_ADDRESS"] = listen.address;
+  auto child = ChildProcess::Spawn(spawn);
+  if (!child.ok()) Fail(std::string(child.status().message()));
+  auto line = (*child)->ReadReadyLine(std::chrono::milliseconds(10000));
+  if (!line.ok()) Fail("echo server: " + std::string(line.status().message()));
+  grpc::ChannelArguments args;
+  args.SetInt(GRPC_ARG_ENABLE_RETRIES, 0);
+  auto channel = grpc::CreateCustomChannel(*line, grpc::InsecureChannelCredentials(), args);
+  if (!channel->WaitForConnected(std::chrono::system_clock::now() + std::chrono::seconds(10))) {
+    Fail("cannot connect to the echo server at " + *line);
+  }
+  auto stub = bench::Echo::NewStub(channel);
+  bench::EchoMessage request;
+  request.set_payload(std::string(100, 'x'));
+  std::vector<double> us;
+  us.reserve(static_cast<std::size_t>(calls));
+  const int warm_up = std::max(1, calls / 20);
+  const auto start = Clock::now();
+  Clock::time_point measured_from = start;
+  for (int i = 0; i < warm_up + calls; ++i) {
+    if (i == warm_up) measured_from = Clock::now();
+    grpc::ClientContext context;
+    context.set_deadline(std::chrono::system_clock::now() + std::chrono::seconds(10));
+    bench::EchoMessage response;
+    const auto t0 = Clock::now();
+    const grpc::Status status = stub->Echo(&context, request, &response);
+    if (!status.ok() || response.payload().size() != 100) Fail("echo call failed: " + status.error_message());
+    if (i >= warm_up) us.push_back(Seconds(Clock::now() - t0) * 1e6);
+  }
+  const double wall = Seconds(Clock::now() - measured_from);
+  const double mean = wall * 1e6 / calls;
+  std::printf("echo %-4s  %d calls, one outstanding: mean %.1f us, p50 %.1f us, p99 %.1f us = %.0f round trips/s\n",
+              Name(transport), calls, mean, Median(us), Percentile(us, 0.99), calls / wall);
+  (*child)->Kill();
+  return mean;
+}
+
+// --- 2. calls through weir ---------------------------------------------------
+
+class CountingBroker : public BrokerEndpoint {
+ public:
+  CountingBroker(BrokerEndpoint& inner, std::uint64_t& calls) : inner_(inner), calls_(calls) {}
+  CallStatus Pull(const v1::PullRequest& rq, v1::PullResponse* rs) override {
+    ++calls_;
+    return inner_.Pull(rq, rs);
+  }
+  CallStatus Ack(const v1::AckRequest& rq, v1::AckResponse* rs) override {
+    ++calls_;
+    return inner_.Ack(rq, rs);
+  }
+  CallStatus Nack(const v1::NackRequest& rq, v1::NackResponse* rs) override {
+    ++calls_;
+    return inner_.Nack(rq, rs);
+  }
+  CallStatus ExtendLease(const v1::ExtendLeaseRequest& rq, v1::ExtendLeaseResponse* rs) override {
+    ++calls_;
+    return inner_.ExtendLease(rq, rs);
+  }
+  void OnStrayCall(const std::string& method) override { inner_.OnStrayCall(method); }
+  bool CrashRequested() const override { return inner_.CrashRequested(); }
+
+ private:
+  BrokerEndpoint& inner_;
+  std::uint64_t& calls_;
+};
+
+// Counts connector and broker calls and the wall time spent starting and
+// killing incarnations, around any port.
+class CountingPort : public ConnectorPort {
+ public:
+  explicit CountingPort(ConnectorPort& inner) : inner_(inner) {}
+  ConnectorFailure Start(std::uint64_t incarnation) override {
+    const auto t0 = Clock::now();
+    ConnectorFailure f = inner_.Start(incarnation);
+    lifecycle_ += Clock::now() - t0;
+    return f;
+  }
+  ConnectorFailure Open(const v1::OpenRequest& rq, v1::OpenResponse* rs, BrokerEndpoint& b) override {
+    ++connector_calls;
+    CountingBroker counting(b, broker_calls);
+    return inner_.Open(rq, rs, counting);
+  }
+  ConnectorFailure Advance(const v1::AdvanceRequest& rq, v1::AdvanceResponse* rs,
+                           BrokerEndpoint& b) override {
+    ++connector_calls;
+    CountingBroker counting(b, broker_calls);
+    return inner_.Advance(rq, rs, counting);
+  }
+  ConnectorFailure Checkpoint(const v1::CheckpointRequest& rq, v1::CheckpointResponse* rs,
+                              BrokerEndpoint& b) override {
+    ++connector_calls;
+    CountingBroker counting(b, broker_calls);
+    return inner_.Checkpoint(rq, rs, counting);
+  }
+  ConnectorFailure Committed(const v1::CommittedRequest& rq, v1::CommittedResponse* rs,
+                             BrokerEndpoint& b) override {
+    ++connector_calls;
+    CountingBroker counting(b, broker_calls);
+    return inner_.Committed(rq, rs, counting);
+  }
+  void Kill() override {
+    const auto t0 = Clock::now();
+    inner_.Kill();
+    lifecycle_ += Clock::now() - t0;
+  }
+  double lifecycle_seconds() const { return Seconds(lifecycle_); }
+
+  std::uint64_t connector_calls = 0;
+  std::uint64_t broker_calls = 0;
+
+ private:
+  ConnectorPort& inner_;
+  Clock::duration lifecycle_{};
+};
+
+struct WeirFigures {
+  double per_call_us = 0;
+  double steps_per_s = 0;
+};
+
+WeirFigures Report(const char* name, const RunOutput& out, const CountingPort& counted,
+                   double wall, double baseline_us) {
+  if (!out.verdict.passed()) Fail(std::string(name) + ": the reference connector did not pass");
+  const double calls = static_cast<double>(counted.connector_calls + counted.broker_calls);
+  const double busy = wall - counted.lifecycle_seconds();
+  WeirFigures f;
+  f.per_call_us = busy * 1e6 / calls;
+  f.steps_per_s = static_cast<double>(out.summary.steps) / busy;
+  std::printf("weir %-8s %llu steps, %llu connector + %llu broker calls in %.3f s (%.3f s starting/killing): "
+              "%.0f steps/s, %.1f us per call",
+              name, static_cast<unsigned long long>(out.summary.steps),
+              static_cast<unsigned long long>(counted.connector_calls),
+              static_cast<unsigned long long>(counted.broker_calls), wall,
+              counted.lifecycle_seconds(), f.steps_per_s, f.per_call_us);
+  if (baseline_us > 0) std::printf(" = %.2fx the echo round trip", f.per_call_us / baseline_us);
+  std::printf("\n");
+  return f;
+}
+
+RunSpec SpecFor(const v1::Scenario& scenario, const std::string& path, const std::string& connector) {
+  RunSpec spec;
+  spec.scenario = scenario;
+  spec.scenario_path = path;
+  spec.seed = 1;
+  spec.connector_argv = {connector};
+  return spec;
+}
+
+// The edge as RunOverGrpc wires it, with a CountingPort around the real port.
+WeirFigures MeasureWeir(const RunSpec& spec, Transport transport, double baseline_us) {
+  Listen broker_listen = ListenAddress(transport, "broker");
+  Listen connector_listen = ListenAddress(transport, "connector");
+  const auto bound = std::chrono::milliseconds(spec.scenario.runtime().call_timeout_wall_ms());
+  CallRelay relay;
+  auto server = BrokerServer::Start(broker_listen.address, relay, bound);
+  if (!server.ok()) Fail(std::string(server.status().message()));
+  GrpcConnectorPort::Options options;
+  options.argv = spec.connector_argv;
+  options.broker_address = (*server)->address();
+  options.listen_address = connector_listen.address;
+  options.call_timeout = bound;
+  GrpcConnectorPort port(options, relay);
+  CountingPort counted(port);
+  const auto t0 = Clock::now();
+  auto out = RunWithPort(spec, counted);
+  const double wall = Seconds(Clock::now() - t0);
+  if (!out.ok()) Fail(std::string(out.status().message()));
+  return Report(Name(transport), *out, counted, wall, baseline_us);
+}
+
+WeirFigures MeasureInProcess(const RunSpec& spec) {
+  InProcessPort port([] { return std::make_unique<fixtures::ReferenceSource>(); });
+  CountingPort counted(port);
+  const auto t0 = Clock::now();
+  auto out = RunWithPort(spec, counted);
+  const double wall = Seconds(Clock::now() - t0);
+  if (!out.ok()) Fail(std::string(out.status().message()));
+  return Report("in-proc", *out, counted, wall, 0);
+}
+
+// --- 3. restart cost ---------------------------------------------------------
+
+class NoBroker : public BrokerEndpoint {
+  CallStatus Pull(const v1::PullRequest&, v1::PullResponse*) override { return {}; }
+  CallStatus Ack(const v1::AckRequest&, v1::AckResponse*) override { return {}; }
+  CallStatus Nack(const v1::NackRequest&, v1::NackResponse*) override { return {}; }
+  CallStatus ExtendLease(const v1::ExtendLeaseRequest&, v1::ExtendLeaseResponse*) override { return {}; }
+  void OnStrayCall(const std::string&) override {}
+};
+
+// Median milliseconds of Kill + Start + Open of an incarnation over TCP.
+double MeasureRestart(const std::string& connector, int restarts) {
+  CallRelay relay;
+  auto server = BrokerServer::Start("127.0.0.1:0", relay, std::chrono::milliseconds(10000));
+  if (!server.ok()) Fail(std::string(server.status().message()));
+  GrpcConnectorPort::Options options;
+  options.argv = {connector};
+  options.broker_address = (*server)->address();
+  options.listen_address = "127.0.0.1:0";
+  GrpcConnectorPort port(options, relay);
+  NoBroker broker;
+  std::vector<double> ms;
+  for (int i = 0; i <= restarts; ++i) {
+    const auto t0 = Clock::now();
+    port.Kill();
+    if (ConnectorFailure f = port.Start(static_cast<std::uint64_t>(i + 1)); !f.ok()) Fail("start: " + f.detail);
+    v1::OpenRequest request;
+    request.set_incarnation(static_cast<std::uint64_t>(i + 1));
+    v1::OpenResponse response;
+    if (ConnectorFailure f = port.Open(request, &response, broker); !f.ok()) Fail("open: " + f.detail);
+    if (i > 0) ms.push_back(Seconds(Clock::now() - t0) * 1e3);  // the first start has nothing to kill
+  }
+  port.Kill();
+  const double median = Median(ms);
+  std::printf("restart   median %.1f ms to kill an incarnation, start the next and answer Open "
+              "(%d restarts, min %.1f ms, max %.1f ms)\n",
+              median, restarts, *std::min_element(ms.begin(), ms.end()),
+              *std::max_element(ms.begin(), ms.end()));
+  return median;
+}
+
+std::string SelfPath() {
+  char buf[4096];
+  const ssize_t n = ::readlink("/proc/self/exe", buf, sizeof buf - 1);
+  if (n <= 0) Fail("cannot read /proc/self/exe");
+  return std::string(buf, static_cast<std::size_t>(n));
+}
+
+}  // namespace
+}  // namespace weir
+
+int main(int argc, char** argv) {
+  using namespace weir;
+  if (argc == 2 && std::strcmp(argv[1], "--echo-server") == 0) return ServeEcho();
+  if (argc < 3) {
+    std::fprintf(stderr, "usage: %s CONNECTOR SCENARIO [ECHO_CALLS [RESTARTS]]\n", argv[0]);
+    return 2;
+  }
+  const std::string connector = argv[1];
+  const int echo_calls = argc > 3 ? std::atoi(argv[3]) : 20000;
+  const int restarts = argc > 4 ? std::atoi(argv[4]) : 30;
+  auto scenario = LoadScenario(argv[2]);
+  if (!scenario.ok()) {
+    std::fprintf(stderr, "%s\n", std::string(scenario.status().message()).c_str());
+    return 2;
+  }
+  const RunSpec spec = SpecFor(*scenario, argv[2], connector);
+  const std::string self = SelfPath();
+
+  const double echo_tcp = MeasureEcho(self, Transport::kTcp, echo_calls);
+  const double echo_unix = MeasureEcho(self, Transport::kUnix, echo_calls);
+  const WeirFigures weir_tcp = MeasureWeir(spec, Transport::kTcp, echo_tcp);
+  const WeirFigures weir_unix = MeasureWeir(spec, Transport::kUnix, echo_unix);
+  const WeirFigures in_process = MeasureInProcess(spec);
+  const double restart_ms = MeasureRestart(connector, restarts);
+
+  std::printf("result echo_tcp_us %.2f\n", echo_tcp);
+  std::printf("result echo_unix_us %.2f\n", echo_unix);
+  std::printf("result echo_tcp_rps %.0f\n", 1e6 / echo_tcp);
+  std::printf("result echo_unix_rps %.0f\n", 1e6 / echo_unix);
+  std::printf("result weir_tcp_us %.2f\n", weir_tcp.per_call_us);
+  std::printf("result weir_unix_us %.2f\n", weir_unix.per_call_us);
+  std::printf("result weir_tcp_ratio %.2f\n", weir_tcp.per_call_us / echo_tcp);
+  std::printf("result weir_unix_ratio %.2f\n", weir_unix.per_call_us / echo_unix);
+  std::printf("result weir_tcp_steps_per_s %.0f\n", weir_tcp.steps_per_s);
+  std::printf("result weir_unix_steps_per_s %.0f\n", weir_unix.steps_per_s);
+  std::printf("result inprocess_us %.2f\n", in_process.per_call_us);
+  std::printf("result restart_ms %.2f\n", restart_ms);
+  return 0;
+}

@@ -1,0 +1,167 @@
+#!/usr/bin/env bash
+# run_all.sh: every benchmark of docs/performance.md, repeated, and one table of
+# medians with the targets.
+#
+# Usage: bash bench/run_all.sh [--repeats N] [--tiny] [--build-dir DIR]
+#   --repeats N   run each benchmark N times (default 3) and report the median
+#   --tiny        tiny sizes, one repeat: checks that everything builds and runs
+#                 (the ctest bench_run_all_tiny); its figures mean nothing
+#   --build-dir   where the build is (default $WEIR_BUILD_DIR or build/)
+#
+# Ratios are taken inside one run of one benchmark (weir against the bare gRPC
+# round trip, in-process against gRPC), so a loaded machine skews them less than
+# the absolute figures. The raw output of every run is kept in
+# $BENCH_OUT (default: a temporary directory, printed at the end).
+#
+# Needs: the targets weir, reference_connector, call_cost, oracle_bench and
+# suite_throughput (`ninja -C build weir reference_connector call_cost
+# oracle_bench suite_throughput`).
+set -euo pipefail
+ROOT=$(cd "$(dirname "$0")/.." && pwd)
+BUILD=${WEIR_BUILD_DIR:-build}
+REPEATS=3
+TINY=0
+while (($#)); do
+  case $1 in
+    --repeats) REPEATS=$2; shift 2 ;;
+    --tiny) TINY=1; REPEATS=1; shift ;;
+    --build-dir) BUILD=$2; shift 2 ;;
+    *) echo "run_all.sh: unknown argument '$1' (known: --repeats N, --tiny, --build-dir DIR)" >&2; exit 2 ;;
+  esac
+done
+[[ $BUILD = /* ]] || BUILD=$ROOT/$BUILD
+if ! [[ $REPEATS =~ ^[1-9][0-9]*$ ]]; then
+  echo "run_all.sh: --repeats is '$REPEATS'; expected a positive integer" >&2
+  exit 2
+fi
+
+WEIR=$BUILD/harness/weir
+CONNECTOR=$BUILD/fixtures/connectors/reference_connector
+for exe in "$WEIR" "$CONNECTOR" "$BUILD/bench/call_cost" "$BUILD/bench/oracle_bench" \
+           "$BUILD/bench/suite_throughput"; do
+  if [[ ! -x $exe ]]; then
+    echo "run_all.sh: $exe is missing; build it first (see the top of this script)" >&2
+    exit 2
+  fi
+done
+
+if ((TINY)); then
+  STEADY=$ROOT/fixtures/scenarios/steady_parcel_scanners.scenario
+  ECHO_CALLS=200 RESTARTS=3
+  IDLE=$ROOT/bench/idle_tiny.scenario
+  ORACLE_EVENTS=100000
+  SUITE=$ROOT/tests/e2e/tiny.suite
+else
+  STEADY=$ROOT/bench/steady_calls.scenario
+  ECHO_CALLS=20000 RESTARTS=30
+  IDLE=$ROOT/bench/idle_hour.scenario
+  ORACLE_EVENTS=10000000
+  SUITE=$ROOT/fixtures/suites/quick.suite
+fi
+
+OUT=${BENCH_OUT:-$(mktemp -d "${TMPDIR:-/tmp}/weir-bench-XXXXXX")}
+mkdir -p "$OUT"
+if ((TINY)) && [[ -z ${BENCH_OUT:-} ]]; then trap 'rm -rf "$OUT"' EXIT; fi
+VALUES=$OUT/values  # "name value" lines, one per benchmark run
+: >"$VALUES"
+
+# run NAME LOG CMD...: runs CMD with output into LOG; stops everything if it fails.
+run() {
+  local name=$1 log=$2
+  shift 2
+  if ! "$@" >"$log" 2>&1; then
+    echo "run_all.sh: $name failed; its output ($log):" >&2
+    tail -n 30 "$log" >&2
+    exit 1
+  fi
+}
+# pick LOG SED_EXPR NAME: extracts one number from LOG into VALUES.
+pick() {
+  local v
+  v=$(sed -n "$2" "$1" | head -n 1)
+  if [[ -z $v ]]; then
+    echo "run_all.sh: no '$3' in $1" >&2
+    exit 1
+  fi
+  echo "$3 $v" >>"$VALUES"
+}
+
+for ((i = 1; i <= REPEATS; i++)); do
+  echo "repeat $i of $REPEATS…" >&2
+  log=$OUT/call_cost.$i.log
+  run call_cost "$log" "$BUILD/bench/call_cost" "$CONNECTOR" "$STEADY" "$ECHO_CALLS" "$RESTARTS"
+  grep '^result ' "$log" | cut -d' ' -f2- >>"$VALUES"
+
+  log=$OUT/idle_hour.$i.log
+  run idle_hour "$log" bash "$ROOT/bench/idle_hour.sh" "$WEIR" "$CONNECTOR" "$IDLE"
+  pick "$log" 's/.* = \([0-9.]*\) virtual s per wall s.*/\1/p' idle_vps
+  pick "$log" 's/.*: \([0-9.]*\) virtual s in .*/\1/p' idle_virtual_s
+
+  log=$OUT/oracle.$i.log
+  run oracle_bench "$log" "$BUILD/bench/oracle_bench" "$ORACLE_EVENTS"
+  pick "$log" 's/^generation+oracle: .*(raw \([0-9.]*\) M events.*/\1/p' oracle_raw_meps
+  pick "$log" 's/^oracle only: .*(\([0-9.]*\) M events.*/\1/p' oracle_only_meps
+  pick "$log" 's/^VmHWM at end: *\([0-9]*\) kB/\1/p' oracle_hwm_end_kb
+  if grep -q 'VmHWM after   1.0M' "$log"; then
+    pick "$log" 's/^VmHWM after   1.0M events: \([0-9]*\) kB/\1/p' oracle_hwm_1m_kb
+  fi
+
+  log=$OUT/suite.$i.log
+  run suite_throughput "$log" "$BUILD/bench/suite_throughput" "$SUITE" "$CONNECTOR" 2
+  pick "$log" 's/^over gRPC .* \([0-9.]*\) runs\/min$/\1/p' suite_grpc_rpm
+  pick "$log" 's/^in-process .* \([0-9.]*\) runs\/min$/\1/p' suite_inproc_rpm
+  pick "$log" 's/^in-process \/ gRPC = \([0-9.]*\)x.*/\1/p' suite_ratio
+done
+
+# median NAME: the median of NAME's values (lower middle for an even count).
+median() {
+  awk -v k="$1" '$1 == k { print $2 }' "$VALUES" | sort -g |
+    awk '{ v[NR] = $1 } END { if (NR == 0) print "?"; else print v[int((NR + 1) / 2)] }'
+}
+# verdict VALUE OP LIMIT: "met" or "NOT met".
+verdict() {
+  awk -v v="$1" -v op="$2" -v l="$3" \
+    'BEGIN { ok = (op == "<=") ? v + 0 <= l + 0 : v + 0 >= l + 0; print ok ? "met" : "NOT met" }'
+}
+
+hwm_1m=$(median oracle_hwm_1m_kb)
+hwm_end=$(median oracle_hwm_end_kb)
+oracle_only=$(median oracle_only_meps)
+tcp_ratio=$(median weir_tcp_ratio)
+unix_ratio=$(median weir_unix_ratio)
+idle=$(median idle_vps)
+suite_ratio=$(median suite_ratio)
+
+echo
+echo "weir benchmarks: median of $REPEATS run(s)$( ((TINY)) && echo ', TINY sizes: figures mean nothing')"
+echo "machine: $(nproc) cores, $(sed -n 's/^model name[[:space:]]*: //p' /proc/cpuinfo | head -n 1), load average $(cut -d' ' -f1-3 /proc/loadavg)"
+printf '%s\n' "| # | benchmark | median | target | status |" "|---|---|---|---|---|"
+printf '| 1 | bare gRPC unary echo, loopback TCP, one call outstanding | %s round trips/s (%s us) | baseline | |\n' \
+  "$(median echo_tcp_rps)" "$(median echo_tcp_us)"
+printf '| 1 | bare gRPC unary echo, Unix socket, one call outstanding | %s round trips/s (%s us) | baseline | |\n' \
+  "$(median echo_unix_rps)" "$(median echo_unix_us)"
+printf '| 2 | weir steps/s, reference connector, %s, TCP | %s steps/s | | |\n' \
+  "$(basename "$STEADY")" "$(median weir_tcp_steps_per_s)"
+printf '| 2 | weir cost per call / bare round trip, TCP | %s us = %sx | <= 1.5x | %s |\n' \
+  "$(median weir_tcp_us)" "$tcp_ratio" "$(verdict "$tcp_ratio" '<=' 1.5)"
+printf '| 2 | weir cost per call / bare round trip, Unix socket | %s us = %sx | <= 1.5x | %s |\n' \
+  "$(median weir_unix_us)" "$unix_ratio" "$(verdict "$unix_ratio" '<=' 1.5)"
+printf '| 2 | simulation alone (in-process), per call | %s us | | |\n' "$(median inprocess_us)"
+printf '| 3 | virtual s per wall s, %s (%s virtual s) | %s | >= 10000 | %s |\n' \
+  "$(basename "$IDLE")" "$(median idle_virtual_s)" "$idle" "$(verdict "$idle" '>=' 10000)"
+printf '| 4 | oracle, %s synthetic events: M events/s (oracle only; with generation) | %s (%s) | >= 5 | %s |\n' \
+  "$ORACLE_EVENTS" "$oracle_only" "$(median oracle_raw_meps)" "$(verdict "$oracle_only" '>=' 5)"
+if [[ $hwm_1m != "?" ]]; then
+  flat=$(awk -v a="$hwm_1m" -v b="$hwm_end" 'BEGIN { print (b <= a * 1.1 + 1024) ? "met" : "NOT met" }')
+  printf '| 4 | oracle peak memory (VmHWM) after 1M events, at the end | %s kB, %s kB | flat | %s |\n' \
+    "$hwm_1m" "$hwm_end" "$flat"
+else
+  printf '| 4 | oracle peak memory (VmHWM) at the end | %s kB | flat | (run too short) |\n' "$hwm_end"
+fi
+printf '| 5 | suite %s --jobs 2: seed-runs/min over gRPC, in-process | %s, %s | | |\n' \
+  "$(basename "$SUITE")" "$(median suite_grpc_rpm)" "$(median suite_inproc_rpm)"
+printf '| 5 | in-process / gRPC suite throughput | %sx | >= 20x | %s |\n' \
+  "$suite_ratio" "$(verdict "$suite_ratio" '>=' 20)"
+printf '| 6 | restart: kill + start + Open of an incarnation, median | %s ms | | |\n' "$(median restart_ms)"
+echo
+((TINY)) || echo "raw output: $OUT"
