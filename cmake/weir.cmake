@@ -17,3 +17,17 @@ function(weir_add_test name)
   set_tests_properties(${name} PROPERTIES LABELS "${T_LABELS}" TIMEOUT 600
     ENVIRONMENT "WEIR_SOURCE_DIR=${PROJECT_SOURCE_DIR};WEIR_BINARY_DIR=${PROJECT_BINARY_DIR}")
 endfunction()
+
+# weir_link_static_grpc(target): link `target` against the static gRPC,
+# Protobuf and Abseil libraries instead of the shared ones (glibc stays
+# shared), through cmake/link_static_grpc.sh. A connector process then starts
+# several times faster (docs/performance.md: restart cost), which is what
+# crash-heavy suites spend their time on. Off with -DWEIR_STATIC_GRPC=OFF, and
+# under WEIR_SANITIZE. Only for executables none of whose libraries also reach
+# the shared gRPC (one copy of gRPC's globals per process).
+function(weir_link_static_grpc target)
+  if(WEIR_STATIC_GRPC AND NOT WEIR_SANITIZE)
+    set_property(TARGET ${target} PROPERTY RULE_LAUNCH_LINK
+      "bash ${PROJECT_SOURCE_DIR}/cmake/link_static_grpc.sh")
+  endif()
+endfunction()
