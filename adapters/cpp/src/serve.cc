@@ -16,6 +16,8 @@
 
 #include <grpcpp/grpcpp.h>
 
+#include "absl/synchronization/mutex.h"
+
 #include "grpc_broker_client.h"
 #include "weir/v1/connector.grpc.pb.h"
 
@@ -170,6 +172,9 @@ int Serve(Source& source) {
   int ready_fd = -1;
   if (!ParseReadyFd(ready_fd_text, &ready_fd, &error)) return StartupError(error);
 
+  // Debian builds Abseil without NDEBUG, so every lock gRPC takes would also
+  // feed Abseil's deadlock detector: a few per cent of each call.
+  absl::SetMutexDeadlockDetectionMode(absl::OnDeadlockCycle::kIgnore);
   internal::GrpcBrokerClient broker(broker_address,
                                     std::chrono::seconds(kBrokerCallWallTimeoutSeconds));
   ConnectorService service(source, broker);
