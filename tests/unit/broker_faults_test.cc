@@ -4,6 +4,7 @@
 // a given plan applies exactly its decisions; the token bucket follows
 // RFC 2697; duplicates of acked messages stay within the redelivery horizon.
 #include <algorithm>
+#include <cstdlib>
 #include <filesystem>
 #include <map>
 #include <memory>
@@ -564,7 +565,12 @@ TEST(FaultValidation, NamesEachBadFieldWithItsLine) {
 }
 
 TEST(FaultValidation, BundledScenariosAreClean) {
-  const auto dir = std::filesystem::path(__FILE__).parent_path() / "../../fixtures/scenarios";
+  // WEIR_SOURCE_DIR (set by weir_add_test): __FILE__ is relative when ccache
+  // rewrites paths under its base_dir.
+  const char* source = std::getenv("WEIR_SOURCE_DIR");
+  const auto dir = source != nullptr
+                       ? std::filesystem::path(source) / "fixtures/scenarios"
+                       : std::filesystem::path(__FILE__).parent_path() / "../../fixtures/scenarios";
   int seen = 0;
   for (const auto& entry : std::filesystem::directory_iterator(dir)) {
     if (entry.path().extension() != ".scenario") continue;
