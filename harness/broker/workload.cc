@@ -6,7 +6,6 @@ namespace weir {
 
 Workload::Workload(const v1::Workload& config, std::uint64_t seed)
     : config_(config),
-      seed_(seed),
       arrivals_(PrngStream::Derive(seed, "workload.arrivals")),
       skew_(PrngStream::Derive(seed, "workload.skew")) {
   Workload dry = *this;

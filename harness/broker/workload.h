@@ -42,7 +42,6 @@ class Workload {
   void Generate();
 
   const v1::Workload config_;
-  const std::uint64_t seed_;
   PrngStream arrivals_;
   PrngStream skew_;
   MessageSpec next_;

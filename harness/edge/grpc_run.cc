@@ -85,6 +85,7 @@ absl::StatusOr<RunOutput> RunWithPort(const RunSpec& spec, ConnectorPort& port) 
   TraceEncoder encoder(file.get());
   trace.AddObserver(&encoder);
   trace.AddObserver(&oracle);
+  for (TraceObserver* observer : spec.observers) trace.AddObserver(observer);
 
   FaultSource faults = spec.plan.has_value()
                            ? FaultSource(*spec.plan, spec.seed, trace)

@@ -16,6 +16,7 @@
 #include "harness/oracle/verdict.h"
 #include "harness/runtime/connector_port.h"
 #include "harness/runtime/runtime_model.h"
+#include "harness/trace/trace_log.h"
 #include "weir/v1/faults.pb.h"
 #include "weir/v1/scenario.pb.h"
 
@@ -32,6 +33,9 @@ struct RunSpec {
   std::string trace_path;  // empty: no trace file
   // Given: apply exactly this plan instead of drawing from the scenario's rates.
   std::optional<v1::FaultPlan> plan;
+  // Also shown every event, after the trace file and the oracle (benchmarks,
+  // live comparisons). Not owned; REQUIRES: they outlive the run.
+  std::vector<TraceObserver*> observers;
 };
 
 struct RunOutput {

@@ -10,10 +10,14 @@
 namespace weir {
 
 absl::StatusOr<LoadedSuite> LoadSuite(const std::string& path) {
-  LoadedSuite out;
-  out.path = path;
   std::string text;
   if (absl::Status st = ReadWholeFile(path, &text); !st.ok()) return st;
+  return ParseSuite(path, text);
+}
+
+absl::StatusOr<LoadedSuite> ParseSuite(const std::string& path, std::string_view text) {
+  LoadedSuite out;
+  out.path = path;
   TextFile f(path);
   if (absl::Status st = f.ParseText(text, &out.suite); !st.ok()) return st;
   const v1::Suite& s = out.suite;
@@ -24,7 +28,7 @@ absl::StatusOr<LoadedSuite> LoadSuite(const std::string& path) {
   if (out.suite.first_seed() == 0) out.suite.set_first_seed(1);
 
   Sha256 digest;
-  auto feed = [&digest](const std::string& bytes) {
+  auto feed = [&digest](std::string_view bytes) {
     digest.Update(absl::StrCat(bytes.size(), ":"));
     digest.Update(bytes);
   };

@@ -8,6 +8,7 @@
 #pragma once
 
 #include <string>
+#include <string_view>
 #include <vector>
 
 #include "absl/status/statusor.h"
@@ -27,5 +28,8 @@ struct LoadedSuite {
 
 // Errors: file:line:column of the suite or of the scenario that is wrong.
 [[nodiscard]] absl::StatusOr<LoadedSuite> LoadSuite(const std::string& path);
+// Same, from the suite's text in memory; scenarios still open relative to
+// `path`'s directory.
+[[nodiscard]] absl::StatusOr<LoadedSuite> ParseSuite(const std::string& path, std::string_view text);
 
 }  // namespace weir
