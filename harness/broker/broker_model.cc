@@ -1,6 +1,7 @@
 #include "harness/broker/broker_model.h"
 
 #include <algorithm>
+#include <string_view>
 
 #include "harness/core/crc32c.h"
 
@@ -275,6 +276,7 @@ BrokerModel::Message* BrokerModel::Holder(std::uint64_t receipt, VirtualTime /*n
 
 void BrokerModel::TraceIgnored(VirtualTime now, const char* call, std::uint64_t receipt,
                                std::uint64_t message_id, const char* reason) {
+  if (std::string_view(reason).rfind("lost by a fault", 0) != 0) ++ignored_receipts_;
   auto& e = trace_.Append(now);
   auto* x = e.mutable_ack_ignored();
   x->set_receipt(receipt);

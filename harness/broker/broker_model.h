@@ -71,6 +71,10 @@ class BrokerModel {
 
   std::uint64_t total_messages() const { return workload_.total(); }
   std::uint64_t published() const { return published_; }
+  // Acks, nacks and extensions the broker ignored because their receipt held
+  // no message (never issued, expired, superseded, already acked); lost-ack
+  // faults are not counted.
+  std::uint64_t ignored_receipts() const { return ignored_receipts_; }
   bool all_published() const { return workload_.Peek() == nullptr; }
   VirtualTime last_publish_time() const { return workload_.last_publish_time(); }
   // Messages published and not yet acked.
@@ -160,6 +164,7 @@ class BrokerModel {
   std::map<std::uint64_t, Ghost> ghosts_;  // by receipt; ordered so pruning is deterministic
   std::uint64_t published_ = 0;
   std::uint64_t last_receipt_ = 0;
+  std::uint64_t ignored_receipts_ = 0;
 };
 
 }  // namespace weir

@@ -120,6 +120,8 @@ bool BrokerSession::Enter(const char* method, v1::Site site, CallStatus* status,
     return false;
   }
   ++calls_in_window_;
+  ++calls_total_;
+  max_calls_in_window_ = std::max(max_calls_in_window_, calls_in_window_);
   const std::uint64_t k = ++calls_[site];
   *position = k;
   {

@@ -46,6 +46,10 @@ class BrokerSession : public BrokerEndpoint {
   bool in_call() const { return in_call_; }
   // Broker calls made in the current (or last) window.
   std::uint64_t calls_in_window() const { return calls_in_window_; }
+  // Broker calls made in every window so far, and the most in any one window:
+  // the figures that show a connector flooding the broker.
+  std::uint64_t calls_total() const { return calls_total_; }
+  std::uint64_t max_calls_in_window() const { return max_calls_in_window_; }
 
   CallStatus Pull(const v1::PullRequest& request, v1::PullResponse* response) override;
   CallStatus Ack(const v1::AckRequest& request, v1::AckResponse* response) override;
@@ -72,6 +76,8 @@ class BrokerSession : public BrokerEndpoint {
   bool in_call_ = false;
   VirtualTime now_ = 0;
   std::uint64_t calls_in_window_ = 0;
+  std::uint64_t calls_total_ = 0;
+  std::uint64_t max_calls_in_window_ = 0;
   std::uint64_t calls_[5] = {0, 0, 0, 0, 0};  // by v1::Site (PULL..EXTEND_LEASE)
   // Token bucket: tokens held, and the refill ticks counted so far.
   std::int64_t tokens_ = -1;  // -1: not yet initialized (full at time 0)

@@ -1,10 +1,13 @@
 #include "harness/cli/command_line.h"
 
 #include "absl/status/status.h"
+#include <sys/stat.h>
 #include <unistd.h>
 
 #include <cctype>
+#include <cerrno>
 #include <cstdlib>
+#include <cstring>
 
 #include "absl/strings/str_cat.h"
 
@@ -100,6 +103,26 @@ std::string ShellJoin(const std::vector<std::string>& argv) {
     out += ShellQuote(a);
   }
   return out;
+}
+
+absl::Status CheckOutputPath(std::string_view flag_name, const std::string& path) {
+  const std::string flag(flag_name);
+  if (path.empty()) return absl::OkStatus();
+  const std::size_t slash = path.rfind('/');
+  const std::string dir = slash == std::string::npos ? "." : slash == 0 ? "/" : path.substr(0, slash);
+  struct stat st {};
+  if (::stat(dir.c_str(), &st) != 0 || !S_ISDIR(st.st_mode)) {
+    return absl::InvalidArgumentError(
+        absl::StrCat(flag, " ", path, ": directory '", dir, "' does not exist; expected an existing directory"));
+  }
+  if (::access(dir.c_str(), W_OK) != 0) {
+    return absl::InvalidArgumentError(absl::StrCat(flag, " ", path, ": directory '", dir,
+                                                   "' is not writable (", std::strerror(errno), ")"));
+  }
+  if (::stat(path.c_str(), &st) == 0 && S_ISDIR(st.st_mode)) {
+    return absl::InvalidArgumentError(absl::StrCat(flag, " ", path, ": is a directory; expected a file name"));
+  }
+  return absl::OkStatus();
 }
 
 }  // namespace weir

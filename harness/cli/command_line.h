@@ -26,4 +26,10 @@ std::string ShellQuote(std::string_view word);
 std::optional<std::string> ResolveExecutable(const std::string& program);
 std::string ShellJoin(const std::vector<std::string>& argv);
 
+// Checks, before any work, that an output file named by `flag` can be
+// written: its directory exists and is writable, and it is not a directory.
+// Error: InvalidArgument("--json out/r.json: directory 'out' does not exist").
+// An empty path (flag not given) is fine.
+[[nodiscard]] absl::Status CheckOutputPath(std::string_view flag, const std::string& path);
+
 }  // namespace weir

@@ -1,7 +1,7 @@
 // weir: the command line. Subcommands: run (one seeded run against a
 // connector), replay and explain (a saved trace), shrink (a failing run's
 // fault plan), lint, and the suite commands. Exit codes: 0 every invariant held, 1 an invariant failed,
-// 2 usage or input error, 3 harness fault.
+// 2 usage or input error, 3 harness fault, 4 interrupted (SIGINT/SIGTERM).
 #include <unistd.h>
 
 #include <cstdio>
@@ -18,6 +18,7 @@
 #include "absl/strings/str_cat.h"
 #include "harness/cli/command_line.h"
 #include "harness/cli/shrink_command.h"
+#include "harness/cli/stop_signal.h"
 #include "harness/cli/suite_commands.h"
 #include "harness/edge/grpc_run.h"
 #include "harness/replay/explain.h"
@@ -97,6 +98,9 @@ int RunCommand(RunFlags& flags) {
   } else {
     return UsageError("--transport is '" + flags.transport + "'; expected tcp or unix");
   }
+  for (const auto& [flag, path] : {std::pair{"--trace", flags.trace}, std::pair{"--save-plan", flags.save_plan}}) {
+    if (absl::Status st = CheckOutputPath(flag, path); !st.ok()) return UsageError(std::string(st.message()));
+  }
   if (!flags.seed_given) flags.seed = std::random_device{}() * 65536ULL + std::random_device{}() % 65536;
 
   // The seed comes first, so it is on screen even if the run never ends well.
@@ -136,9 +140,17 @@ int RunCommand(RunFlags& flags) {
   spec.connector_argv = argv;
   spec.transport = transport;
   spec.trace_path = flags.trace;
+  spec.stop = InstallStopSignals();
   auto out = RunOverGrpc(spec);
   const std::string replay = ReplayLine(flags.scenario, flags.seed, transport, flags.plan,
                                         flags.profile, argv);
+  if (absl::IsCancelled(out.status())) {
+    std::fprintf(stderr,
+                 "weir: interrupted by signal %d: the connector was killed, no trace or plan "
+                 "written\nreplay: %s\n",
+                 StopSignal(), replay.c_str());
+    return kExitInterrupted;
+  }
   if (!out.ok()) {
     std::fprintf(stderr, "weir: harness fault: %s\nreplay: %s\n",
                  std::string(out.status().message()).c_str(), replay.c_str());
@@ -164,6 +176,10 @@ int RunCommand(RunFlags& flags) {
       static_cast<unsigned long long>(s.incarnations), static_cast<unsigned long long>(s.crashes),
       static_cast<unsigned long long>(s.steps),
       static_cast<unsigned long long>(s.checkpoints), static_cast<unsigned long long>(out->events));
+  std::printf("broker     %llu calls (at most %llu in one connector call), %llu receipts ignored\n",
+              static_cast<unsigned long long>(s.broker_calls),
+              static_cast<unsigned long long>(s.max_broker_calls_in_one_call),
+              static_cast<unsigned long long>(s.ignored_receipts));
   std::printf("digest     %s\n", out->digest.c_str());
   std::printf("faults     %d applied%s\n", out->plan.decisions_size(),
               flags.plan.empty() ? " (drawn from the scenario's rates)" : " (from the given plan)");
@@ -279,7 +295,8 @@ int main(int argc, char** argv) {
   CLI::App* run = app.add_subcommand("run", "One seeded run of a connector against a scenario");
   run->add_option("--scenario", run_flags.scenario, "Scenario file (Protobuf text format)")
       ->required();
-  run->add_option("--seed", run_flags.seed, "Seed (default: a random one, printed first)");
+  run->add_option("--seed", run_flags.seed, "Seed (default: a random one, printed first)")
+      ->check(WholeNumber());
   run->add_option("--connector", run_flags.connector,
                   "Connector command, split into argv without a shell: 'CMD ARGS…'");
   run->add_option("--trace", run_flags.trace, "Write the trace (JSON lines) to this file");

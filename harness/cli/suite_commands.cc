@@ -15,6 +15,7 @@
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_split.h"
 #include "harness/cli/command_line.h"
+#include "harness/cli/stop_signal.h"
 #include "harness/edge/private_dir.h"
 #include "harness/replay/explain.h"
 #include "harness/report/html_timeline.h"
@@ -27,10 +28,7 @@
 namespace weir {
 namespace {
 
-constexpr int kPassed = 0, kFailed = 1, kUsage = 2, kHarness = 3, kInterrupted = 4;
-
-std::atomic<bool> g_stop{false};
-extern "C" void OnStopSignal(int) { g_stop.store(true); }
+constexpr int kPassed = 0, kFailed = 1, kUsage = 2, kHarness = 3, kInterrupted = kExitInterrupted;
 
 int Usage(const std::string& message) {
   std::fprintf(stderr, "weir: %s\n", message.c_str());
@@ -155,6 +153,16 @@ int Certify(SuiteCommands& s) {
   } else if (s.transport != "tcp") {
     return Usage("--transport is '" + s.transport + "'; expected tcp or unix");
   }
+  if (s.progress != "auto" && s.progress != "bar" && s.progress != "lines" && s.progress != "none") {
+    return Usage("--progress is '" + s.progress + "'; expected auto, bar, lines or none");
+  }
+  if (s.certify->count("--jobs") > 0 && (s.jobs < 1 || s.jobs > 1024)) {
+    return Usage(absl::StrCat("--jobs is ", s.jobs, "; expected 1 ..1024 runs at a time"));
+  }
+  for (const auto& [flag, path] : {std::pair{"--json", s.json}, std::pair{"--junit", s.junit},
+                                   std::pair{"--certificate", s.certificate}}) {
+    if (absl::Status st = CheckOutputPath(flag, path); !st.ok()) return Usage(std::string(st.message()));
+  }
   auto shard = ResolveShard(s);
   if (!shard.ok()) return Usage(std::string(shard.status().message()));
   auto suite = LoadSuite(s.suite);
@@ -172,7 +180,8 @@ int Certify(SuiteCommands& s) {
   options.max_failures = s.max_failures;
   options.shard = *shard;
   options.transport = transport;
-  options.stop = &g_stop;
+  const std::atomic<bool>* stop = InstallStopSignals();
+  options.stop = stop;
   std::unique_ptr<PrivateDir> trace_dir;
   std::unique_ptr<FirstFailureTraces> first_failures;
   if (!s.html.empty()) {
@@ -219,12 +228,6 @@ int Certify(SuiteCommands& s) {
     std::fflush(stdout);
   };
 
-  struct sigaction sa {};
-  sa.sa_handler = OnStopSignal;
-  sigemptyset(&sa.sa_mask);
-  sigaction(SIGINT, &sa, nullptr);
-  sigaction(SIGTERM, &sa, nullptr);
-
   std::printf("weir certify: suite %s (%s), %llu pairs, shard %u/%u, %u jobs\nconnector %s (%s)\n",
               s.suite.c_str(), suite->digest.c_str(), static_cast<unsigned long long>(suite->pairs()),
               options.shard.index, options.shard.count, options.jobs, ShellJoin(argv).c_str(),
@@ -265,7 +268,11 @@ int Certify(SuiteCommands& s) {
     harness_faults |= !run.harness_error().empty();
     failed |= !run.passed() && run.harness_error().empty();
   }
-  if (g_stop.load()) return kInterrupted;
+  if (stop->load()) {
+    std::printf("INTERRUPTED by signal %d: %d finished run(s) reported; every connector was killed.\n",
+                StopSignal(), report->runs_size());
+    return kInterrupted;
+  }
   if (write_errors > 0 || harness_faults) return kHarness;
   if (failed) return kFailed;
   if (options.shard.count <= 1) {
@@ -377,11 +384,14 @@ void AddSuiteCommands(CLI::App& app, SuiteCommands& s) {
   s.certify->add_option("--connector", s.connector, "Connector command 'CMD ARGS…' (no shell)");
   s.certify->add_option("command", s.command, "Connector command after --");
   s.certify->add_option("--jobs", s.jobs, "Runs at a time (default: one per core)")
-      ->multi_option_policy(CLI::MultiOptionPolicy::TakeLast);
-  s.certify->add_option("--max-failures", s.max_failures, "Stop launching runs after N failed runs");
+      ->multi_option_policy(CLI::MultiOptionPolicy::TakeLast)
+      ->check(WholeNumber());
+  s.certify->add_option("--max-failures", s.max_failures, "Stop launching runs after N failed runs")
+      ->check(WholeNumber());
   s.certify->add_option("--shard", s.shard, "Run shard I of N (I/N); default from GTEST_*/TEST_* sharding variables");
   s.certify->add_option("--shard-count", s.shard_count_for_index,
-                        "Total shards when the index comes from JOB_COMPLETION_INDEX");
+                        "Total shards when the index comes from JOB_COMPLETION_INDEX")
+      ->check(WholeNumber());
   s.certify->add_option("--json", s.json, "Write the JSON report here");
   s.certify->add_option("--junit", s.junit, "Write JUnit XML here");
   s.certify->add_option("--certificate", s.certificate, "Write the certificate here");

@@ -35,6 +35,19 @@ struct SuiteCommands {
   std::vector<std::string> reports;
 };
 
+// A flag validator: a whole number >= 0 in decimal digits (CLI11 would
+// otherwise wrap "-4" around into a huge unsigned value).
+inline CLI::Validator WholeNumber() {
+  return CLI::Validator(
+      [](std::string& text) -> std::string {
+        if (text.empty() || text.find_first_not_of("0123456789") != std::string::npos) {
+          return "'" + text + "' is not a whole number; expected decimal digits (0, 1, 2, …)";
+        }
+        return std::string();
+      },
+      "UINT", "WholeNumber");
+}
+
 void AddSuiteCommands(CLI::App& app, SuiteCommands& state);
 // Runs whichever suite command was parsed; -1 when none was.
 int RunSuiteCommand(SuiteCommands& state);

@@ -86,6 +86,13 @@ absl::StatusOr<std::unique_ptr<BrokerServer>> BrokerServer::Start(
   grpc::ServerBuilder builder;
   builder.AddChannelArgument(GRPC_ARG_ALLOW_REUSEPORT, 0);
   builder.SetMaxReceiveMessageSize(4 << 20);
+  // A connector that floods the broker gets bounded resources: a few streams
+  // per connection and a fixed pool of server threads, each running one call
+  // through the relay; calls beyond it are refused by gRPC (RESOURCE_EXHAUSTED).
+  builder.AddChannelArgument(GRPC_ARG_MAX_CONCURRENT_STREAMS, 16);
+  grpc::ResourceQuota quota("weir-broker");
+  quota.SetMaxThreads(kMaxServerThreads);
+  builder.SetResourceQuota(quota);
   int port = 0;
   builder.AddListeningPort(listen, grpc::InsecureServerCredentials(), &port);
   builder.RegisterService(server->service_.get());

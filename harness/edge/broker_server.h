@@ -22,6 +22,9 @@ namespace weir {
 
 class BrokerServer {
  public:
+  // gRPC server threads at most (each runs one broker call through the relay).
+  static constexpr int kMaxServerThreads = 32;
+
   // listen: "127.0.0.1:0" (or another loopback host:port) or "unix:/path".
   // REQUIRES: relay outlives the server.
   [[nodiscard]] static absl::StatusOr<std::unique_ptr<BrokerServer>> Start(

@@ -144,7 +144,8 @@ std::string ChildProcess::OutputTail() {
   return tail_.substr(tail_.size() - tail_bytes_);
 }
 
-absl::StatusOr<std::string> ChildProcess::ReadReadyLine(std::chrono::milliseconds timeout) {
+absl::StatusOr<std::string> ChildProcess::ReadReadyLine(std::chrono::milliseconds timeout,
+                                                        const std::atomic<bool>* stop) {
   if (ready_fd_ < 0) return absl::FailedPreconditionError("no ready pipe");
   const auto deadline = std::chrono::steady_clock::now() + timeout;
   for (;;) {
@@ -157,6 +158,7 @@ absl::StatusOr<std::string> ChildProcess::ReadReadyLine(std::chrono::millisecond
     if (ready_buffer_.size() > 4096) {
       return absl::InvalidArgumentError("handshake line longer than 4096 bytes");
     }
+    if (stop != nullptr && stop->load()) return absl::CancelledError("interrupted");
     const auto left = std::chrono::duration_cast<std::chrono::milliseconds>(
         deadline - std::chrono::steady_clock::now());
     if (left.count() <= 0) {

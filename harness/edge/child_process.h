@@ -48,7 +48,9 @@ class ChildProcess {
   // Reads one line from the ready pipe, waiting at most `timeout` (wall).
   // Errors: DEADLINE_EXCEEDED on timeout, UNAVAILABLE when the pipe closed
   // (the child exited or closed it) before a newline.
-  [[nodiscard]] absl::StatusOr<std::string> ReadReadyLine(std::chrono::milliseconds timeout);
+  // CANCELLED when `stop` (if given) becomes true first.
+  [[nodiscard]] absl::StatusOr<std::string> ReadReadyLine(std::chrono::milliseconds timeout,
+                                                          const std::atomic<bool>* stop = nullptr);
 
   // If the process has ended, reaps it and returns how ("exit code 3",
   // "signal 9 (SIGKILL)"); waits at most `wait` for it to end.

@@ -2,10 +2,28 @@
 
 #include <signal.h>
 
+#include "absl/status/status.h"
 #include "absl/strings/match.h"
 #include "absl/strings/str_cat.h"
+#include "harness/edge/stop_watch.h"
 
 namespace weir {
+
+namespace {
+
+// The canonical name of a gRPC status code (grpc/status.h).
+std::string CodeName(grpc::StatusCode code) {
+  static constexpr const char* kNames[] = {
+      "OK",        "CANCELLED",           "UNKNOWN",           "INVALID_ARGUMENT",
+      "DEADLINE_EXCEEDED", "NOT_FOUND",   "ALREADY_EXISTS",    "PERMISSION_DENIED",
+      "RESOURCE_EXHAUSTED", "FAILED_PRECONDITION", "ABORTED", "OUT_OF_RANGE",
+      "UNIMPLEMENTED", "INTERNAL",        "UNAVAILABLE",       "DATA_LOSS",
+      "UNAUTHENTICATED"};
+  const int i = static_cast<int>(code);
+  return i >= 0 && i < 17 ? kNames[i] : absl::StrCat("code ", i);
+}
+
+}  // namespace
 
 bool IsLocalAddress(const std::string& address) {
   if (absl::StartsWith(address, "unix:")) return address.size() > 5;
@@ -35,12 +53,21 @@ ConnectorFailure GrpcConnectorPort::ExitedOr(ConnectorFailure::Kind kind, std::s
   f.detail = std::move(detail);
   if (child_ != nullptr) {
     if (auto how = child_->TryReap(std::chrono::milliseconds(200)); how.has_value()) {
-      f.kind = kind == ConnectorFailure::Kind::kStartFailed ? kind : ConnectorFailure::Kind::kExited;
+      f.kind = ConnectorFailure::Kind::kExited;
       f.exit_status = *how;
     }
     f.stderr_tail = child_->OutputTail();
   }
   return f;
+}
+
+bool GrpcConnectorPort::Stopping() const {
+  return options_.stop != nullptr && options_.stop->load();
+}
+
+ConnectorFailure GrpcConnectorPort::Interrupted() {
+  Kill();
+  return ConnectorFailure{ConnectorFailure::Kind::kInterrupted, "weir was interrupted", "", ""};
 }
 
 ConnectorFailure GrpcConnectorPort::Start(std::uint64_t incarnation) {
@@ -57,16 +84,19 @@ ConnectorFailure GrpcConnectorPort::Start(std::uint64_t incarnation) {
                             std::string(child.status().message()), "", ""};
   }
   child_ = std::move(*child);
-  auto line = child_->ReadReadyLine(options_.start_timeout);
+  auto line = child_->ReadReadyLine(options_.start_timeout, options_.stop);
+  if (absl::IsCancelled(line.status())) return Interrupted();
   if (!line.ok()) {
-    return ExitedOr(ConnectorFailure::Kind::kStartFailed,
+    // Alive but silent: it hangs in start-up. Gone: it exited.
+    const bool silent = absl::IsDeadlineExceeded(line.status());
+    return ExitedOr(silent ? ConnectorFailure::Kind::kTimeout : ConnectorFailure::Kind::kCallFailed,
                     absl::StrCat("the connector never reported its address: ",
                                  line.status().message()));
   }
   std::string address = *line;
   while (!address.empty() && (address.back() == '\r' || address.back() == ' ')) address.pop_back();
   if (!IsLocalAddress(address)) {
-    return ExitedOr(ConnectorFailure::Kind::kStartFailed,
+    return ExitedOr(ConnectorFailure::Kind::kCallFailed,
                     absl::StrCat("the connector reported address '", address.substr(0, 200),
                                  "', which is neither loopback nor a Unix socket"));
   }
@@ -74,9 +104,18 @@ ConnectorFailure GrpcConnectorPort::Start(std::uint64_t incarnation) {
   args.SetMaxReceiveMessageSize(static_cast<int>(options_.max_message_bytes));
   args.SetInt(GRPC_ARG_ENABLE_RETRIES, 0);
   channel_ = grpc::CreateCustomChannel(address, grpc::InsecureChannelCredentials(), args);
-  if (!channel_->WaitForConnected(std::chrono::system_clock::now() + options_.start_timeout)) {
-    return ExitedOr(ConnectorFailure::Kind::kStartFailed,
-                    absl::StrCat("cannot connect to the connector at ", address));
+  const auto connect_by = std::chrono::steady_clock::now() + options_.start_timeout;
+  bool connected = false;
+  while (!connected && std::chrono::steady_clock::now() < connect_by) {
+    if (Stopping()) return Interrupted();
+    connected = channel_->WaitForConnected(std::chrono::system_clock::now() +
+                                           std::chrono::milliseconds(100));
+  }
+  if (!connected) {
+    return ExitedOr(ConnectorFailure::Kind::kCallFailed,
+                    absl::StrCat("the connector reported address ", address,
+                                 ", but nothing accepted a connection there within ",
+                                 options_.start_timeout.count(), " ms"));
   }
   stub_ = v1::Connector::NewStub(channel_);
   return {};
@@ -90,6 +129,7 @@ ConnectorFailure GrpcConnectorPort::Invoke(const char* name, const Request& requ
     return ConnectorFailure{ConnectorFailure::Kind::kExited, "no live incarnation", "", ""};
   }
   for (const std::string& method_name : relay_.TakeStrayCalls()) broker.OnStrayCall(method_name);
+  if (Stopping()) return Interrupted();
 
   // A blocking call on this thread: while it waits, the connector's broker
   // calls run on gRPC's server threads through the relay, and nothing else
@@ -103,7 +143,17 @@ ConnectorFailure GrpcConnectorPort::Invoke(const char* name, const Request& requ
     ::kill(-group, SIGKILL);
     context.TryCancel();
   });
-  const grpc::Status status = (stub_.get()->*method)(&context, request, response);
+  grpc::Status status;
+  if (options_.stop != nullptr) {
+    // A signal ends the call at once rather than at its deadline.
+    StopWatch::Guard watch(options_.stop, [group, &context] {
+      ::kill(-group, SIGKILL);
+      context.TryCancel();
+    });
+    status = (stub_.get()->*method)(&context, request, response);
+  } else {
+    status = (stub_.get()->*method)(&context, request, response);
+  }
   if (relay_.crash_requested()) {
     child_->Kill();  // reaped before the held answer is released
     relay_.Close();
@@ -112,6 +162,7 @@ ConnectorFailure GrpcConnectorPort::Invoke(const char* name, const Request& requ
                             absl::StrCat("killed during ", name, " at a crash point"), "", ""};
   }
   relay_.Close();
+  if (Stopping()) return Interrupted();
   if (status.error_code() == grpc::StatusCode::DEADLINE_EXCEEDED) {
     if (auto how = child_->TryReap(std::chrono::milliseconds(0)); how.has_value()) {
       return ExitedOr(ConnectorFailure::Kind::kExited, absl::StrCat("died during ", name));
@@ -130,8 +181,16 @@ ConnectorFailure GrpcConnectorPort::Invoke(const char* name, const Request& requ
       if (f.kind == ConnectorFailure::Kind::kExited) f.detail = absl::StrCat("died during ", name);
       return f;
     }
+    // gRPC's wording when the answer's bytes do not parse as the response.
+    if (status.error_code() == grpc::StatusCode::UNIMPLEMENTED &&
+        status.error_message() == "No message returned for unary request") {
+      return ConnectorFailure{ConnectorFailure::Kind::kCallFailed,
+                              absl::StrCat(name, " answered no message, or bytes that are not a ",
+                                           response->GetDescriptor()->full_name(), " message"),
+                              "", ""};
+    }
     return ConnectorFailure{ConnectorFailure::Kind::kCallFailed,
-                            absl::StrCat(name, " answered ", status.error_code(), " ",
+                            absl::StrCat(name, " answered ", CodeName(status.error_code()), ": ",
                                          status.error_message()),
                             "", ""};
   }

@@ -13,6 +13,7 @@
 
 #include <grpcpp/grpcpp.h>
 
+#include <atomic>
 #include <chrono>
 #include <memory>
 #include <string>
@@ -34,6 +35,9 @@ class GrpcConnectorPort : public ConnectorPort {
     std::chrono::milliseconds call_timeout{10000};
     std::chrono::milliseconds start_timeout{10000};
     std::size_t max_message_bytes = 16u << 20;
+    // When it becomes true, every wait ends within ~100 ms, the incarnation is
+    // killed and calls return Kind::kInterrupted.
+    const std::atomic<bool>* stop = nullptr;
   };
 
   // REQUIRES: relay outlives the port.
@@ -56,6 +60,9 @@ class GrpcConnectorPort : public ConnectorPort {
   ConnectorFailure Invoke(const char* name, const Request& request, Response* response,
                           BrokerEndpoint& broker, Method method);
   ConnectorFailure ExitedOr(ConnectorFailure::Kind kind, std::string detail);
+  bool Stopping() const;
+  // Kills the incarnation; the failure every call returns once stopping.
+  ConnectorFailure Interrupted();
 
   const Options options_;
   CallRelay& relay_;

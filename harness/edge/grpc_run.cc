@@ -101,6 +101,9 @@ absl::StatusOr<RunOutput> RunWithPort(const RunSpec& spec, ConnectorPort& port) 
   out.digest = encoder.FinishDigest();
   out.events = encoder.events();
   out.plan = faults.plan();
+  if (spec.stop != nullptr && spec.stop->load()) {
+    return absl::CancelledError("interrupted by a signal; the run was abandoned");
+  }
   if (file != nullptr) {
     v1::TraceLine header;
     auto* h = header.mutable_header();
@@ -142,6 +145,7 @@ absl::StatusOr<RunOutput> RunOverGrpc(const RunSpec& spec) {
   port_options.broker_address = (*server)->address();
   port_options.listen_address = connector_listen;
   port_options.call_timeout = call_timeout;
+  port_options.stop = spec.stop;
   port_options.start_timeout =
       std::chrono::milliseconds(spec.scenario.runtime().start_timeout_wall_ms());
   GrpcConnectorPort port(port_options, relay);

@@ -7,6 +7,7 @@
 // half-written trace is ever left under the requested name.
 #pragma once
 
+#include <atomic>
 #include <cstdint>
 #include <optional>
 #include <string>
@@ -36,6 +37,10 @@ struct RunSpec {
   // Also shown every event, after the trace file and the oracle (benchmarks,
   // live comparisons). Not owned; REQUIRES: they outlive the run.
   std::vector<TraceObserver*> observers;
+  // When it becomes true (a signal), the run is abandoned within ~100 ms: its
+  // connector is killed and reaped, no trace file is left, and the run
+  // returns CANCELLED.
+  const std::atomic<bool>* stop = nullptr;
 };
 
 struct RunOutput {
@@ -49,7 +54,8 @@ struct RunOutput {
 
 // One run against any ConnectorPort (the gRPC edge, or an in-process host):
 // the same broker, runtime, oracle and trace. Kills the port's incarnation at
-// the end. Errors are harness faults (cannot write the trace…).
+// the end. Errors are harness faults (cannot write the trace…), or CANCELLED
+// when spec.stop became true.
 [[nodiscard]] absl::StatusOr<RunOutput> RunWithPort(const RunSpec& spec, ConnectorPort& port);
 
 // Errors are harness faults (cannot listen, cannot write the trace…), never

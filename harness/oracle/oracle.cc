@@ -155,13 +155,19 @@ void Oracle::OnEvent(const TraceEvent& e) {
                                       e.exited().stderr_tail().empty()
                                           ? std::string()
                                           : absl::StrCat("; stderr ends with: ",
-                                                         e.exited().stderr_tail())));
+                                                         ReportTail(e.exited().stderr_tail()))));
       break;
     case TraceEvent::kCallTimedOut:
       OnConnectorFailure(e, e.call_timed_out().call(), Invariant::kStepTimeout,
-                         absl::StrCat("The connector did not answer ", e.call_timed_out().call(),
-                                      " within ", e.call_timed_out().bound_wall_ms(),
-                                      " ms of wall time."));
+                         e.call_timed_out().call() == "Start"
+                             ? absl::StrCat("The connector did not report its address on "
+                                            "WEIR_READY_FD within ",
+                                            e.call_timed_out().bound_wall_ms(),
+                                            " ms of wall time after it was started.")
+                             : absl::StrCat("The connector did not answer ",
+                                            e.call_timed_out().call(), " within ",
+                                            e.call_timed_out().bound_wall_ms(),
+                                            " ms of wall time."));
       break;
     case TraceEvent::kProtocolError:
       OnConnectorFailure(e, e.protocol_error().call(), Invariant::kProtocolError,
@@ -180,6 +186,17 @@ void Oracle::OnEvent(const TraceEvent& e) {
     default:
       break;
   }
+}
+
+// The end of a connector's output as a report shows it: at most the last
+// kReportTailBytes, from a line start when there is one (the trace keeps more).
+std::string Oracle::ReportTail(const std::string& tail) {
+  constexpr std::size_t kReportTailBytes = 1024;
+  if (tail.size() <= kReportTailBytes) return tail;
+  std::size_t from = tail.size() - kReportTailBytes;
+  const std::size_t nl = tail.find('\n', from);
+  if (nl != std::string::npos && nl + 1 < tail.size()) from = nl + 1;
+  return absl::StrCat("[", from, " bytes before] ", tail.substr(from));
 }
 
 void Oracle::OnConnectorFailure(const TraceEvent& e, const std::string& call, Invariant invariant,
@@ -266,8 +283,9 @@ bool Oracle::TimeInRange(const TraceEvent& e, const char* what, std::int64_t val
   const VirtualTime now = e.t_ns();
   if (value <= SaturatingAdd(now, kTimeRange) && value >= now - kTimeRange) return true;
   Report(Invariant::kProtocolError,
-         absl::StrCat("Step ", e.stepped().step(), " reported a ", what, " of ", FormatTime(value),
-                      ", more than 100 years away from virtual now ", FormatTime(now), "."),
+         absl::StrCat("Step ", e.stepped().step(), " reported a ", what, " of ", value, " ns (",
+                      FormatTime(value), "), more than 100 years away from virtual now ",
+                      FormatTime(now), "."),
          {}, &e);
   return false;
 }

@@ -112,6 +112,7 @@ class Oracle : public TraceObserver {
            m.committed_records == 0;
   }
   void EndIdle() { idle_ = false; }
+  static std::string ReportTail(const std::string& tail);
   void OnConnectorFailure(const v1::TraceEvent& e, const std::string& call, Invariant invariant,
                           const std::string& sentence);
   void OnRunEnded(const v1::TraceEvent& e);

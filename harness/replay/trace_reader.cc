@@ -25,6 +25,7 @@ absl::StatusOr<std::unique_ptr<TraceReader>> TraceReader::Open(const std::string
   if (!r->ReadLine()) {
     return r->Error("empty file; expected a trace header line (weir run --trace FILE writes one)");
   }
+  if (r->overlong_) return r->Error(r->OverlongMessage());
   auto line = DecodeTraceLine(r->text_);
   if (!line.ok()) {
     return r->Error(absl::StrCat(FirstLine(std::string(line.status().message())), "; expected a trace header line"));
@@ -41,10 +42,20 @@ bool TraceReader::ReadLine() {
   while (std::fgets(buf, sizeof buf, file_) != nullptr) {
     any = true;
     text_ += buf;
+    // No trace line is this long (the header holds a scenario and a plan):
+    // stop reading so a damaged or hostile file cannot exhaust memory.
+    if (text_.size() > kMaxLineBytes) {
+      overlong_ = true;
+      break;
+    }
     if (!text_.empty() && text_.back() == '\n') break;
   }
   if (any) ++line_no_;
   return any;
+}
+
+std::string TraceReader::OverlongMessage() const {
+  return absl::StrCat("line longer than ", kMaxLineBytes, " bytes; expected a trace line");
 }
 
 absl::Status TraceReader::Error(const std::string& what) const {
@@ -58,6 +69,7 @@ absl::StatusOr<bool> TraceReader::Next() {
     return Error(absl::StrCat("truncated: expected more events or the trace footer after ", events_,
                               " event(s)"));
   }
+  if (overlong_) return Error(OverlongMessage());
   if (text_.back() != '\n') return Error("truncated line (no newline); expected a complete JSON line");
   auto line = DecodeTraceLine(text_);
   if (!line.ok()) return Error(absl::StrCat(FirstLine(std::string(line.status().message())), "; expected an event or the footer"));

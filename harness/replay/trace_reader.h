@@ -54,6 +54,8 @@ class TraceReader {
   const std::string& path() const { return path_; }
 
  private:
+  static constexpr std::size_t kMaxLineBytes = 32u << 20;
+  std::string OverlongMessage() const;
   explicit TraceReader(std::string path) : path_(std::move(path)) {}
   // Reads one line into text_; false at end of file.
   bool ReadLine();
@@ -65,6 +67,7 @@ class TraceReader {
   std::uint64_t line_no_ = 0;
   std::uint64_t events_ = 0;
   bool done_ = false;
+  bool overlong_ = false;  // the last line read exceeded kMaxLineBytes
   v1::TraceHeader header_;
   v1::TraceEvent event_;
   v1::TraceFooter footer_;

@@ -34,6 +34,7 @@ struct ConnectorFailure {
     kExited,       // the process ended during or before the call
     kCallFailed,   // answered the call with an error status
     kCrashed,      // killed by the port because broker.CrashRequested(): a crash point, not a fault
+    kInterrupted,  // weir itself is stopping (a signal): the incarnation was killed
   };
   Kind kind = Kind::kNone;
   std::string detail;       // what happened, for the report

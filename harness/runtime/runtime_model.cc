@@ -1,6 +1,7 @@
 #include "harness/runtime/runtime_model.h"
 
 #include <algorithm>
+#include <string_view>
 #include <utility>
 
 namespace weir {
@@ -36,6 +37,7 @@ const char* FailureKindName(ConnectorFailure::Kind kind) {
     case ConnectorFailure::Kind::kExited: return "exited";
     case ConnectorFailure::Kind::kCallFailed: return "call failed";
     case ConnectorFailure::Kind::kCrashed: return "crashed at a crash point";
+    case ConnectorFailure::Kind::kInterrupted: return "interrupted";
   }
   return "unknown";
 }
@@ -62,12 +64,16 @@ ConnectorFailure RuntimeModel::Call(Method method, Request& request, Response* r
 }
 
 void RuntimeModel::TraceFailure(const char* call, const ConnectorFailure& failure) {
+  // weir is stopping: not the connector's doing, and the run is discarded.
+  if (failure.kind == ConnectorFailure::Kind::kInterrupted) return;
   auto& e = trace_.Append(now_);
   switch (failure.kind) {
     case ConnectorFailure::Kind::kTimeout: {
       auto* x = e.mutable_call_timed_out();
       x->set_call(call);
-      x->set_bound_wall_ms(scenario_.runtime().call_timeout_wall_ms());
+      x->set_bound_wall_ms(std::string_view(call) == "Start"
+                               ? scenario_.runtime().start_timeout_wall_ms()
+                               : scenario_.runtime().call_timeout_wall_ms());
       break;
     }
     case ConnectorFailure::Kind::kStartFailed:
@@ -81,6 +87,7 @@ void RuntimeModel::TraceFailure(const char* call, const ConnectorFailure& failur
     }
     case ConnectorFailure::Kind::kCallFailed:
     case ConnectorFailure::Kind::kCrashed:  // without the gate firing: a port bug
+    case ConnectorFailure::Kind::kInterrupted:
     case ConnectorFailure::Kind::kNone: {
       auto* x = e.mutable_protocol_error();
       x->set_call(call);
@@ -408,6 +415,9 @@ RunSummary RuntimeModel::Run() {
   summary.published = broker_.published();
   summary.committed_messages = store_.committed_messages();
   summary.duplicate_records = store_.duplicate_records();
+  summary.broker_calls = session_.calls_total();
+  summary.max_broker_calls_in_one_call = session_.max_calls_in_window();
+  summary.ignored_receipts = broker_.ignored_receipts();
 
   auto& e = trace_.Append(now_);
   auto* x = e.mutable_run_ended();

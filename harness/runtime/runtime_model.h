@@ -66,6 +66,11 @@ struct RunSummary {
   std::uint64_t published = 0;
   std::uint64_t committed_messages = 0;
   std::uint64_t duplicate_records = 0;
+  // Broker calls in the whole run, the most within one connector call, and
+  // receipts the broker ignored (see BrokerModel::ignored_receipts).
+  std::uint64_t broker_calls = 0;
+  std::uint64_t max_broker_calls_in_one_call = 0;
+  std::uint64_t ignored_receipts = 0;
 };
 
 class RuntimeModel {

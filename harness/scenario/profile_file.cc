@@ -44,6 +44,10 @@ absl::StatusOr<v1::Profile> ParseProfile(const std::string& path, std::string_vi
   TextFile f(path);
   v1::Profile p;
   if (absl::Status st = f.ParseText(text, &p); !st.ok()) return st;
+  // A profile file is a claim: an empty one is surely a mistake.
+  f.Require(p.guarantee() != v1::Profile::GUARANTEE_UNSPECIFIED, {"guarantee"},
+            "expected guarantee: AT_LEAST_ONCE or EXACTLY_ONCE (a profile file must state its "
+            "delivery guarantee)");
   ValidateProfile(f, p, /*in_scenario=*/false);
   if (absl::Status st = f.status(); !st.ok()) return st;
   return p;

@@ -1,6 +1,10 @@
 #include "harness/scenario/text_file.h"
 
+#include <sys/stat.h>
+
+#include <cerrno>
 #include <cstdio>
+#include <cstring>
 #include <fstream>
 #include <sstream>
 
@@ -31,8 +35,15 @@ class Collector : public google::protobuf::io::ErrorCollector {
 }  // namespace
 
 absl::Status ReadWholeFile(const std::string& path, std::string* out, std::size_t max_bytes) {
+  struct stat st {};
+  if (::stat(path.c_str(), &st) != 0) {
+    return absl::NotFoundError(absl::StrCat(path, ": cannot open file (", std::strerror(errno), ")"));
+  }
+  if (S_ISDIR(st.st_mode)) {
+    return absl::InvalidArgumentError(absl::StrCat(path, ": is a directory; expected a file"));
+  }
   std::ifstream in(path, std::ios::binary);
-  if (!in) return absl::NotFoundError(absl::StrCat(path, ": cannot open file"));
+  if (!in) return absl::NotFoundError(absl::StrCat(path, ": cannot open file (", std::strerror(errno), ")"));
   in.seekg(0, std::ios::end);
   const std::streamoff size = in.tellg();
   if (size < 0) return absl::InvalidArgumentError(absl::StrCat(path, ": not a regular file"));

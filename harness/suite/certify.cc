@@ -4,6 +4,7 @@
 #include <mutex>
 #include <thread>
 
+#include "absl/status/status.h"
 #include "absl/strings/str_cat.h"
 #include "harness/cli/command_line.h"
 #include "harness/oracle/verdict.h"
@@ -102,10 +103,17 @@ absl::StatusOr<v1::SuiteReport> Certify(const LoadedSuite& suite, const CertifyO
       spec.connector_argv = options.connector_argv;
       spec.transport = options.transport;
       if (options.first_failures != nullptr) spec.trace_path = options.first_failures->PathFor(p.index);
+      spec.stop = options.stop;
       const auto start = std::chrono::steady_clock::now();
       auto out = options.runner ? options.runner(spec) : RunOverGrpc(spec);
       const double wall =
           std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
+      if (absl::IsCancelled(out.status())) {
+        // Abandoned half-way by a signal: not a finished run, so not reported.
+        std::lock_guard<std::mutex> lock(mu);
+        if (stopped.empty()) stopped = "interrupted by a signal";
+        return;
+      }
 
       v1::RunRecord rec;
       rec.set_scenario(scenario_path);
@@ -120,13 +128,20 @@ absl::StatusOr<v1::SuiteReport> Certify(const LoadedSuite& suite, const CertifyO
       } else {
         rec.set_digest(out->digest);
         rec.set_passed(out->verdict.passed());
+        // The first violation is the one detected earliest in the trace (a
+        // connector that died is named before the messages it then lost).
+        std::uint64_t first_seq = ~std::uint64_t{0};
         for (int i = 0; i < kInvariantCount; ++i) {
           const InvariantResult& r = out->verdict.results[i];
           if (!r.checked || r.violations == 0) continue;
           rec.add_failed_invariants(InvariantName(static_cast<Invariant>(i)));
-          if (rec.first_violation().empty() && !r.first.empty()) {
-            rec.set_first_violation(absl::StrCat(InvariantName(static_cast<Invariant>(i)), ": ",
-                                                 r.first.front().sentence));
+          if (r.first.empty()) continue;
+          const Violation& v = r.first.front();
+          const std::uint64_t seq = v.evidence.empty() ? ~std::uint64_t{0} - 1 : v.evidence.back().seq;
+          if (rec.first_violation().empty() || seq < first_seq) {
+            first_seq = seq;
+            rec.set_first_violation(
+                absl::StrCat(InvariantName(static_cast<Invariant>(i)), ": ", v.sentence));
           }
         }
       }

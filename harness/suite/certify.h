@@ -5,7 +5,8 @@
 // SuiteReport (runs in pair order, whatever order they finished in) and the
 // per-invariant summary. Stops launching new runs after `max_failures` failed
 // runs, or when `stop` becomes true (a signal); the report then says why and
-// is marked incomplete.
+// is marked incomplete. On `stop` the runs in progress are abandoned too
+// (connectors killed and reaped) and left out of the report.
 //
 // Sharding: pair i (scenario-major, then seed) belongs to shard i % count.
 //

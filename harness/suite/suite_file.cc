@@ -1,5 +1,6 @@
 #include "harness/suite/suite_file.h"
 
+#include <algorithm>
 #include <filesystem>
 
 #include "absl/strings/str_cat.h"
@@ -38,10 +39,19 @@ absl::StatusOr<LoadedSuite> ParseSuite(const std::string& path, std::string_view
     const std::string resolved = (base / s.scenarios(i)).lexically_normal().string();
     std::string scenario_text;
     if (absl::Status st = ReadWholeFile(resolved, &scenario_text); !st.ok()) {
-      TextFile g(path);
-      g.Require(false, {absl::StrCat("scenarios[", i, "]")},
-                absl::StrCat("scenario '", s.scenarios(i), "' cannot be read (", st.message(), ")"));
-      return g.status();
+      const std::string what =
+          absl::StrCat("scenario '", s.scenarios(i), "' cannot be read (", st.message(), ")");
+      // The text parser keeps one location per list: find the element itself.
+      const std::size_t at = text.find(absl::StrCat("\"", s.scenarios(i), "\""));
+      if (at == std::string::npos) {
+        f.Require(false, {absl::StrCat("scenarios[", i, "]")}, what);
+        return f.status();
+      }
+      const std::size_t line_start = text.rfind('\n', at);
+      const std::size_t line = 1 + static_cast<std::size_t>(
+                                       std::count(text.begin(), text.begin() + static_cast<std::ptrdiff_t>(at), '\n'));
+      const std::size_t column = line_start == std::string::npos ? at + 1 : at - line_start;
+      return absl::InvalidArgumentError(absl::StrCat(path, ":", line, ":", column, ": ", what));
     }
     auto scenario = ParseScenario(resolved, scenario_text);
     if (!scenario.ok()) return scenario.status();

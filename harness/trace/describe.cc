@@ -78,6 +78,10 @@ std::string DescribeEvent(const v1::TraceEvent& e) {
     case TraceEvent::kRunEnded:
       return absl::StrCat("run ended: ", e.run_ended().reason());
     case TraceEvent::kCallTimedOut:
+      if (e.call_timed_out().call() == "Start") {
+        return absl::StrCat("the connector reported no address within ",
+                            e.call_timed_out().bound_wall_ms(), " ms of wall time");
+      }
       return absl::StrCat(e.call_timed_out().call(), " did not answer within ",
                           e.call_timed_out().bound_wall_ms(), " ms of wall time");
     case TraceEvent::kBrokerCallFailed: {

@@ -1,0 +1,3 @@
+guarantee: EXACTLY_ONCE
+watermark_policy: BOUNDED_LATENESS
+allowed_lateness_ms: -100

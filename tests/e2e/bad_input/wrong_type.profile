@@ -1,0 +1,2 @@
+guarantee: EXACTLY_ONCE
+min_backoff_ms: 1e3
