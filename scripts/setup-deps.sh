@@ -11,6 +11,7 @@ packages=(
   librapidcheck-dev libxml2-utils libssl-dev
   chromium
   python3 python3-grpcio python3-protobuf python3-pytest
+  clang libclang-rt-14-dev llvm-14
 )
 
 missing=()
