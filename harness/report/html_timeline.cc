@@ -21,7 +21,6 @@ constexpr int kLeft = 96;   // lane labels
 constexpr int kCol = 16;    // one column per event
 constexpr int kRight = 24;
 constexpr int kLaneY[3] = {62, 106, 150};  // broker, connector, runtime
-constexpr int kLaneHalf = 18;
 constexpr int kWmTop = 196, kWmBottom = 316;  // watermark panel
 constexpr int kHeight = 340;
 // Overview geometry.
