@@ -26,6 +26,19 @@ wait_for() {
   for _ in $(seq $(($2 * 10))); do alive "$1" && return 0; sleep 0.1; done
   return 1
 }
+# seen_processes TAG N SECONDS: waits until N distinct processes whose argv
+# carries TAG have been seen alive (polled every 50 ms), at most SECONDS.
+seen_processes() {
+  local seen=" " n=0 p
+  for _ in $(seq $(($3 * 20))); do
+    for p in $(pgrep -f "$1"); do
+      case "$seen" in *" $p "*) ;; *) seen="$seen$p " n=$((n + 1)) ;; esac
+    done
+    [ "$n" -ge "$2" ] && return 0
+    sleep 0.05
+  done
+  return 1
+}
 tmp_clean() { test -z "$(ls -A "$TMPDIR")"; }
 
 # 1. certify, interrupted: ack_twice passes its runs (each ~0.1 s); after a
@@ -36,8 +49,10 @@ for sig in INT TERM; do
     --connector "$BIN/hostile_ack_twice $tag" --json "$WORK/$sig.json" --junit "$WORK/$sig.xml" \
     >"$WORK/certify-$sig.out" 2>&1 &
   pid=$!
-  wait_for "$tag" 20
-  sleep 1.5
+  # Signal once a few runs have finished: three connector processes seen
+  # (plus weir itself, whose argv carries the tag too), however slow the
+  # machine or the build (sanitizers) is.
+  seen_processes "$tag" 4 120
   started=$(date +%s%N)
   kill -"$sig" "$pid"
   wait "$pid"
