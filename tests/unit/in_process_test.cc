@@ -8,18 +8,13 @@
 
 #include "fixtures/connectors/reference_source.h"
 #include "harness/scenario/scenario_file.h"
+#include "tests/unit/test_support.h"
 
 namespace weir {
 namespace {
 
-std::string SourceDir() {
-  const char* dir = std::getenv("WEIR_SOURCE_DIR");
-  return dir != nullptr ? dir : ".";
-}
-std::string BinaryDir() {
-  const char* dir = std::getenv("WEIR_BINARY_DIR");
-  return dir != nullptr ? dir : "build";
-}
+using testing::BinaryDir;
+using testing::SourceDir;
 
 InProcessPort::Factory Reference(fixtures::Bugs bugs = {}) {
   return [bugs] { return std::make_unique<fixtures::ReferenceSource>(bugs); };

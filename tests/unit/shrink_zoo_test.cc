@@ -26,18 +26,13 @@
 #include "harness/scenario/plan_file.h"
 #include "harness/scenario/scenario_file.h"
 #include "harness/shrink/shrink.h"
+#include "tests/unit/test_support.h"
 
 namespace weir {
 namespace {
 
-std::string SourceDir() {
-  const char* dir = std::getenv("WEIR_SOURCE_DIR");
-  return dir != nullptr ? dir : ".";
-}
-std::string BinaryDir() {
-  const char* dir = std::getenv("WEIR_BINARY_DIR");
-  return dir != nullptr ? dir : "build";
-}
+using testing::BinaryDir;
+using testing::SourceDir;
 
 struct Mutant {
   const char* name;
@@ -118,7 +113,7 @@ bool FailsWith(const RunOutput& out, Invariant invariant) {
   return out.verdict.at(invariant).checked && out.verdict.at(invariant).violations > 0;
 }
 
-class ShrinkZoo : public testing::TestWithParam<Mutant> {};
+class ShrinkZoo : public ::testing::TestWithParam<Mutant> {};
 
 TEST_P(ShrinkZoo, MinimalPlanStillFailsAndIsOneMinimal) {
   const Mutant& m = GetParam();
@@ -182,13 +177,13 @@ TEST_P(ShrinkZoo, MinimalPlanStillFailsAndIsOneMinimal) {
                     r->minimal_run.events, r->reruns});
 }
 
-INSTANTIATE_TEST_SUITE_P(EveryMutantButTheWallClockOne, ShrinkZoo, testing::ValuesIn(kZoo),
-                         [](const testing::TestParamInfo<Mutant>& info) {
+INSTANTIATE_TEST_SUITE_P(EveryMutantButTheWallClockOne, ShrinkZoo, ::testing::ValuesIn(kZoo),
+                         [](const ::testing::TestParamInfo<Mutant>& info) {
                            return std::string(info.param.name).substr(std::string("mutant_").size());
                          });
 
 // Prints the table and the median reduction once every mutant has run.
-class ZooReport : public testing::Environment {
+class ZooReport : public ::testing::Environment {
  public:
   void TearDown() override {
     if (Rows().empty()) return;
@@ -213,7 +208,7 @@ class ZooReport : public testing::Environment {
                 median, n);
   }
 };
-const testing::Environment* const kReport = testing::AddGlobalTestEnvironment(new ZooReport);
+const ::testing::Environment* const kReport = ::testing::AddGlobalTestEnvironment(new ZooReport);
 
 }  // namespace
 }  // namespace weir

@@ -1,6 +1,9 @@
-// Helpers shared by weir's unit tests: a trace recorder and scenario builders.
+// Helpers shared by weir's unit tests: source and build directories, a trace
+// recorder and scenario builders.
 #pragma once
 
+#include <cstdlib>
+#include <string>
 #include <vector>
 
 #include "harness/trace/trace_log.h"
@@ -8,6 +11,17 @@
 #include "weir/v1/trace.pb.h"
 
 namespace weir::testing {
+
+// The source and build trees, as CTest passes them (weir_add_test); the
+// defaults fit a run from the source root.
+inline std::string SourceDir() {
+  const char* dir = std::getenv("WEIR_SOURCE_DIR");
+  return dir != nullptr ? dir : ".";
+}
+inline std::string BinaryDir() {
+  const char* dir = std::getenv("WEIR_BINARY_DIR");
+  return dir != nullptr ? dir : "build";
+}
 
 // Keeps every event of a trace, for tests only.
 class TraceRecorder : public TraceObserver {
