@@ -136,10 +136,20 @@ void ChildProcess::ReadOutput() {
     }
     if (stopping) break;
   }
+  {
+    std::lock_guard<std::mutex> lock(tail_mu_);
+    output_eof_ = true;
+  }
+  output_ended_.notify_all();
 }
 
 std::string ChildProcess::OutputTail() {
-  std::lock_guard<std::mutex> lock(tail_mu_);
+  std::unique_lock<std::mutex> lock(tail_mu_);
+  // A reaped process's group was killed, so the pipe reaches EOF promptly
+  // unless a descendant escaped the group; the wait is bounded either way.
+  if (reaped_) {
+    output_ended_.wait_for(lock, std::chrono::milliseconds(200), [this] { return output_eof_; });
+  }
   if (tail_.size() <= tail_bytes_) return tail_;
   return tail_.substr(tail_.size() - tail_bytes_);
 }

@@ -13,6 +13,7 @@
 
 #include <atomic>
 #include <chrono>
+#include <condition_variable>
 #include <map>
 #include <mutex>
 #include <optional>
@@ -59,7 +60,9 @@ class ChildProcess {
   // SIGKILL to the process group, then reaps. Idempotent.
   void Kill();
 
-  // The last bytes the process wrote to stdout/stderr.
+  // The last bytes the process wrote to stdout/stderr. Once the process has
+  // been reaped, first waits (at most 200 ms wall) until the reader has seen
+  // the end of the pipe, so text written just before exiting is not missed.
   std::string OutputTail();
 
  private:
@@ -75,6 +78,8 @@ class ChildProcess {
   std::thread reader_;
   std::atomic<bool> stop_reader_{false};
   std::mutex tail_mu_;
+  std::condition_variable output_ended_;
+  bool output_eof_ = false;  // guarded by tail_mu_; reader finished
   std::string tail_;
   std::size_t tail_bytes_ = 8192;
 };
