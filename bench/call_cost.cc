@@ -35,7 +35,6 @@
 #include "echo.grpc.pb.h"  // generated from bench/echo.proto
 #include "fixtures/connectors/reference_source.h"
 #include "harness/edge/broker_server.h"
-#include "harness/edge/call_relay.h"
 #include "harness/edge/child_process.h"
 #include "harness/edge/grpc_connector_port.h"
 #include "harness/edge/grpc_run.h"
@@ -279,15 +278,14 @@ WeirFigures MeasureWeir(const RunSpec& spec, Transport transport, double baselin
   Listen broker_listen = ListenAddress(transport, "broker");
   Listen connector_listen = ListenAddress(transport, "connector");
   const auto bound = std::chrono::milliseconds(spec.scenario.runtime().call_timeout_wall_ms());
-  CallRelay relay;
-  auto server = BrokerServer::Start(broker_listen.address, relay, bound);
+  auto server = BrokerServer::Start(broker_listen.address);
   if (!server.ok()) Fail(std::string(server.status().message()));
   GrpcConnectorPort::Options options;
   options.argv = spec.connector_argv;
   options.broker_address = (*server)->address();
   options.listen_address = connector_listen.address;
   options.call_timeout = bound;
-  GrpcConnectorPort port(options, relay);
+  GrpcConnectorPort port(options, **server);
   CountingPort counted(port);
   const auto t0 = Clock::now();
   auto out = RunWithPort(spec, counted);
@@ -318,14 +316,13 @@ class NoBroker : public BrokerEndpoint {
 
 // Median milliseconds of Kill + Start + Open of an incarnation over TCP.
 double MeasureRestart(const std::string& connector, int restarts) {
-  CallRelay relay;
-  auto server = BrokerServer::Start("127.0.0.1:0", relay, std::chrono::milliseconds(10000));
+  auto server = BrokerServer::Start("127.0.0.1:0");
   if (!server.ok()) Fail(std::string(server.status().message()));
   GrpcConnectorPort::Options options;
   options.argv = {connector};
   options.broker_address = (*server)->address();
   options.listen_address = "127.0.0.1:0";
-  GrpcConnectorPort port(options, relay);
+  GrpcConnectorPort port(options, **server);
   NoBroker broker;
   std::vector<double> ms;
   for (int i = 0; i <= restarts; ++i) {

@@ -5,7 +5,6 @@
 #include "absl/status/status.h"
 #include "absl/strings/match.h"
 #include "absl/strings/str_cat.h"
-#include "harness/edge/stop_watch.h"
 
 namespace weir {
 
@@ -35,8 +34,8 @@ bool IsLocalAddress(const std::string& address) {
   return absl::StartsWith(host, "127.");
 }
 
-GrpcConnectorPort::GrpcConnectorPort(Options options, CallRelay& relay)
-    : options_(std::move(options)), relay_(relay) {}
+GrpcConnectorPort::GrpcConnectorPort(Options options, BrokerServer& broker)
+    : options_(std::move(options)), server_(broker) {}
 
 GrpcConnectorPort::~GrpcConnectorPort() { Kill(); }
 
@@ -117,51 +116,65 @@ ConnectorFailure GrpcConnectorPort::Start(std::uint64_t incarnation) {
                                  ", but nothing accepted a connection there within ",
                                  options_.start_timeout.count(), " ms"));
   }
-  stub_ = v1::Connector::NewStub(channel_);
+  stub_ = std::make_unique<grpc::GenericStub>(channel_);
   return {};
 }
 
-template <typename Request, typename Response, typename Method>
-ConnectorFailure GrpcConnectorPort::Invoke(const char* name, const Request& request,
-                                           Response* response, BrokerEndpoint& broker,
-                                           Method method) {
+ConnectorFailure GrpcConnectorPort::Invoke(const char* name,
+                                           const google::protobuf::Message& request,
+                                           google::protobuf::Message* response,
+                                           BrokerEndpoint& broker) {
   if (stub_ == nullptr) {
     return ConnectorFailure{ConnectorFailure::Kind::kExited, "no live incarnation", "", ""};
   }
-  for (const std::string& method_name : relay_.TakeStrayCalls()) broker.OnStrayCall(method_name);
+  // Broker calls made between two connector calls are refused as stray.
+  server_.RefuseQueued();
+  for (const std::string& method_name : server_.TakeStrayCalls()) broker.OnStrayCall(method_name);
   if (Stopping()) return Interrupted();
 
-  // A blocking call on this thread: while it waits, the connector's broker
-  // calls run on gRPC's server threads through the relay, and nothing else
-  // touches the models.
+  // The call goes out on the broker server's queue; this thread then serves
+  // the connector's broker calls from that queue until the answer is there.
   grpc::ClientContext context;
   context.set_deadline(std::chrono::system_clock::now() + options_.call_timeout);
   const pid_t group = child_->pid();
-  relay_.Open(broker, [group, &context] {
-    // A crash point, on the gRPC thread that served the broker call: the
-    // process group dies while that call's answer is held in the relay.
+  auto kill_and_cancel = [group, &context] {
     ::kill(-group, SIGKILL);
     context.TryCancel();
-  });
-  grpc::Status status;
-  if (options_.stop != nullptr) {
-    // A signal ends the call at once rather than at its deadline.
-    StopWatch::Guard watch(options_.stop, [group, &context] {
-      ::kill(-group, SIGKILL);
-      context.TryCancel();
-    });
-    status = (stub_.get()->*method)(&context, request, response);
-  } else {
-    status = (stub_.get()->*method)(&context, request, response);
+  };
+  grpc::ByteBuffer request_bytes;
+  {
+    bool own_buffer = false;
+    const grpc::Status st = grpc::GenericSerialize<grpc::ProtoBufferWriter, google::protobuf::Message>(
+        request, &request_bytes, &own_buffer);
+    if (!st.ok()) {
+      return ConnectorFailure{ConnectorFailure::Kind::kCallFailed,
+                              absl::StrCat("cannot encode the ", name, " request: ", st.error_message()),
+                              "", ""};
+    }
   }
-  if (relay_.crash_requested()) {
-    child_->Kill();  // reaped before the held answer is released
-    relay_.Close();
-    Kill();  // drop the channel and the reaped child: no incarnation is alive
+  grpc::Status status;
+  grpc::ByteBuffer answer;
+  DoneTag answered;
+  auto rpc = stub_->PrepareUnaryCall(&context, absl::StrCat("/weir.v1.Connector/", name),
+                                     request_bytes, server_.queue());
+  rpc->StartCall();
+  rpc->Finish(&answer, &status, &answered);
+  // A crash point kills the process group while that broker call's answer is
+  // held back; a signal ends the call at once rather than at its deadline.
+  BrokerServer::Window window{broker, kill_and_cancel};
+  bool stop_seen = false;
+  server_.Serve(window, [&] {
+    if (!stop_seen && Stopping()) {
+      stop_seen = true;
+      kill_and_cancel();
+    }
+    return answered.fired;
+  });
+  if (window.crashed) {
+    Kill();  // reap the killed group and drop the channel: no incarnation is alive
     return ConnectorFailure{ConnectorFailure::Kind::kCrashed,
                             absl::StrCat("killed during ", name, " at a crash point"), "", ""};
   }
-  relay_.Close();
   if (Stopping()) return Interrupted();
   if (status.error_code() == grpc::StatusCode::DEADLINE_EXCEEDED) {
     if (auto how = child_->TryReap(std::chrono::milliseconds(0)); how.has_value()) {
@@ -181,17 +194,19 @@ ConnectorFailure GrpcConnectorPort::Invoke(const char* name, const Request& requ
       if (f.kind == ConnectorFailure::Kind::kExited) f.detail = absl::StrCat("died during ", name);
       return f;
     }
-    // gRPC's wording when the answer's bytes do not parse as the response.
-    if (status.error_code() == grpc::StatusCode::UNIMPLEMENTED &&
-        status.error_message() == "No message returned for unary request") {
-      return ConnectorFailure{ConnectorFailure::Kind::kCallFailed,
-                              absl::StrCat(name, " answered no message, or bytes that are not a ",
-                                           response->GetDescriptor()->full_name(), " message"),
-                              "", ""};
-    }
     return ConnectorFailure{ConnectorFailure::Kind::kCallFailed,
                             absl::StrCat(name, " answered ", CodeName(status.error_code()), ": ",
                                          status.error_message()),
+                            "", ""};
+  }
+  // The answer must be exactly one message of the response type (an empty
+  // message is one); a missing answer or bytes that do not parse are not.
+  if (!answer.Valid() ||
+      !grpc::GenericDeserialize<grpc::ProtoBufferReader, google::protobuf::Message>(&answer, response)
+           .ok()) {
+    return ConnectorFailure{ConnectorFailure::Kind::kCallFailed,
+                            absl::StrCat(name, " answered no message, or bytes that are not a ",
+                                         response->GetDescriptor()->full_name(), " message"),
                             "", ""};
   }
   return {};
@@ -199,24 +214,24 @@ ConnectorFailure GrpcConnectorPort::Invoke(const char* name, const Request& requ
 
 ConnectorFailure GrpcConnectorPort::Open(const v1::OpenRequest& request,
                                          v1::OpenResponse* response, BrokerEndpoint& broker) {
-  return Invoke("Open", request, response, broker, &v1::Connector::Stub::Open);
+  return Invoke("Open", request, response, broker);
 }
 
 ConnectorFailure GrpcConnectorPort::Advance(const v1::AdvanceRequest& request,
                                             v1::AdvanceResponse* response, BrokerEndpoint& broker) {
-  return Invoke("Advance", request, response, broker, &v1::Connector::Stub::Advance);
+  return Invoke("Advance", request, response, broker);
 }
 
 ConnectorFailure GrpcConnectorPort::Checkpoint(const v1::CheckpointRequest& request,
                                                v1::CheckpointResponse* response,
                                                BrokerEndpoint& broker) {
-  return Invoke("Checkpoint", request, response, broker, &v1::Connector::Stub::Checkpoint);
+  return Invoke("Checkpoint", request, response, broker);
 }
 
 ConnectorFailure GrpcConnectorPort::Committed(const v1::CommittedRequest& request,
                                               v1::CommittedResponse* response,
                                               BrokerEndpoint& broker) {
-  return Invoke("Committed", request, response, broker, &v1::Connector::Stub::Committed);
+  return Invoke("Committed", request, response, broker);
 }
 
 }  // namespace weir

@@ -3,14 +3,15 @@
 // ConnectorPort over gRPC to a child process. Start() launches the connector
 // command (argv, own process group) with the handshake environment of
 // connector.proto, waits (bounded) for the address it listens on, and dials
-// it. Each call is a blocking gRPC call on the simulation thread with a
-// wall-clock deadline; meanwhile the connector's broker calls are served on
-// gRPC's threads through the CallRelay, whose window is open only for the
-// duration of the call. Kill() ends the process group and reaps it.
+// it. Each call is an asynchronous gRPC call on the broker server's queue,
+// with a wall-clock deadline; the simulation thread then serves the
+// connector's broker calls from that queue (BrokerServer::Serve) until the
+// answer arrives. Kill() ends the process group and reaps it.
 //
 // Thread safety: the simulation thread only.
 #pragma once
 
+#include <grpcpp/generic/generic_stub.h>
 #include <grpcpp/grpcpp.h>
 
 #include <atomic>
@@ -19,7 +20,7 @@
 #include <string>
 #include <vector>
 
-#include "harness/edge/call_relay.h"
+#include "harness/edge/broker_server.h"
 #include "harness/edge/child_process.h"
 #include "harness/runtime/connector_port.h"
 #include "weir/v1/connector.grpc.pb.h"
@@ -40,8 +41,8 @@ class GrpcConnectorPort : public ConnectorPort {
     const std::atomic<bool>* stop = nullptr;
   };
 
-  // REQUIRES: relay outlives the port.
-  GrpcConnectorPort(Options options, CallRelay& relay);
+  // REQUIRES: broker outlives the port.
+  GrpcConnectorPort(Options options, BrokerServer& broker);
   ~GrpcConnectorPort() override;
 
   ConnectorFailure Start(std::uint64_t incarnation) override;
@@ -56,19 +57,20 @@ class GrpcConnectorPort : public ConnectorPort {
   void Kill() override;
 
  private:
-  template <typename Request, typename Response, typename Method>
-  ConnectorFailure Invoke(const char* name, const Request& request, Response* response,
-                          BrokerEndpoint& broker, Method method);
+  ConnectorFailure Invoke(const char* name, const google::protobuf::Message& request,
+                          google::protobuf::Message* response, BrokerEndpoint& broker);
   ConnectorFailure ExitedOr(ConnectorFailure::Kind kind, std::string detail);
   bool Stopping() const;
   // Kills the incarnation; the failure every call returns once stopping.
   ConnectorFailure Interrupted();
 
   const Options options_;
-  CallRelay& relay_;
+  BrokerServer& server_;
   std::unique_ptr<ChildProcess> child_;
   std::shared_ptr<grpc::Channel> channel_;
-  std::unique_ptr<v1::Connector::Stub> stub_;
+  // Generic, so that an answer that is no message at all, or bytes that do
+  // not parse, can be told apart from an empty answer.
+  std::unique_ptr<grpc::GenericStub> stub_;
 };
 
 // True for addresses weir may talk to without an explicit opt-in: loopback

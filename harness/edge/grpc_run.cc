@@ -7,7 +7,6 @@
 #include "harness/broker/broker_model.h"
 #include "harness/broker/broker_session.h"
 #include "harness/edge/broker_server.h"
-#include "harness/edge/call_relay.h"
 #include "harness/edge/grpc_connector_port.h"
 #include "harness/edge/private_dir.h"
 #include "harness/faults/fault_source.h"
@@ -137,8 +136,7 @@ absl::StatusOr<RunOutput> RunOverGrpc(const RunSpec& spec) {
     connector_listen = "unix:" + dir->path() + "/connector.sock";
   }
   const auto call_timeout = std::chrono::milliseconds(spec.scenario.runtime().call_timeout_wall_ms());
-  CallRelay relay;
-  auto server = BrokerServer::Start(broker_listen, relay, call_timeout);
+  auto server = BrokerServer::Start(broker_listen);
   if (!server.ok()) return server.status();
   GrpcConnectorPort::Options port_options;
   port_options.argv = spec.connector_argv;
@@ -148,7 +146,7 @@ absl::StatusOr<RunOutput> RunOverGrpc(const RunSpec& spec) {
   port_options.stop = spec.stop;
   port_options.start_timeout =
       std::chrono::milliseconds(spec.scenario.runtime().start_timeout_wall_ms());
-  GrpcConnectorPort port(port_options, relay);
+  GrpcConnectorPort port(port_options, **server);
   return RunWithPort(spec, port);
 }
 

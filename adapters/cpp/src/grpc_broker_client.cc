@@ -55,8 +55,25 @@ std::shared_ptr<grpc::Channel> MakeChannel(const std::string& target) {
 
 }  // namespace
 
-GrpcBrokerClient::GrpcBrokerClient(const std::string& target, std::chrono::seconds call_timeout)
-    : call_timeout_(call_timeout), stub_(v1::Broker::NewStub(MakeChannel(target))) {}
+GrpcBrokerClient::GrpcBrokerClient(const std::string& target, std::chrono::seconds call_timeout,
+                                   CallQueue& queue)
+    : call_timeout_(call_timeout), queue_(queue), stub_(v1::Broker::NewStub(MakeChannel(target))) {}
+
+template <typename Request, typename Response, typename Start>
+grpc::Status GrpcBrokerClient::Call(grpc::ClientContext* call, const Request& request,
+                                    Response* response, Start start) {
+  grpc::Status status;
+  DoneTag answered;
+  auto rpc = (stub_.get()->*start)(call, request, queue_.queue());
+  rpc->StartCall();
+  rpc->Finish(response, &status, &answered);
+  queue_.WaitFor(answered);
+  if (!answered.fired) {
+    // The queue was shut down under the call: the process is ending.
+    return grpc::Status(grpc::StatusCode::CANCELLED, "the connector is shutting down");
+  }
+  return status;
+}
 
 void GrpcBrokerClient::Prepare(grpc::ClientContext* call) const {
   // Wall time bounds the call only; virtual time comes from the broker's answer.
@@ -71,7 +88,7 @@ BrokerStatus GrpcBrokerClient::Pull(std::uint32_t max, std::vector<v1::Delivery>
   v1::PullRequest request;
   request.set_max_messages(max);
   v1::PullResponse response;
-  grpc::Status status = stub_->Pull(&call, request, &response);
+  grpc::Status status = Call(&call, request, &response, &v1::Broker::Stub::PrepareAsyncPull);
   if (!status.ok()) return Failed(call, status);
   out->reserve(static_cast<std::size_t>(response.deliveries_size()));
   for (v1::Delivery& d : *response.mutable_deliveries()) out->push_back(std::move(d));
@@ -84,7 +101,7 @@ BrokerStatus GrpcBrokerClient::Ack(const std::vector<std::uint64_t>& receipts) {
   v1::AckRequest request;
   request.mutable_receipts()->Add(receipts.begin(), receipts.end());
   v1::AckResponse response;
-  grpc::Status status = stub_->Ack(&call, request, &response);
+  grpc::Status status = Call(&call, request, &response, &v1::Broker::Stub::PrepareAsyncAck);
   if (!status.ok()) return Failed(call, status);
   return Succeeded(response.now_ns());
 }
@@ -95,7 +112,7 @@ BrokerStatus GrpcBrokerClient::Nack(const std::vector<std::uint64_t>& receipts) 
   v1::NackRequest request;
   request.mutable_receipts()->Add(receipts.begin(), receipts.end());
   v1::NackResponse response;
-  grpc::Status status = stub_->Nack(&call, request, &response);
+  grpc::Status status = Call(&call, request, &response, &v1::Broker::Stub::PrepareAsyncNack);
   if (!status.ok()) return Failed(call, status);
   return Succeeded(response.now_ns());
 }
@@ -110,7 +127,7 @@ BrokerStatus GrpcBrokerClient::ExtendLease(const std::vector<std::uint64_t>& rec
   request.mutable_receipts()->Add(receipts.begin(), receipts.end());
   request.set_extension_ns(extension_ns);
   v1::ExtendLeaseResponse response;
-  grpc::Status status = stub_->ExtendLease(&call, request, &response);
+  grpc::Status status = Call(&call, request, &response, &v1::Broker::Stub::PrepareAsyncExtendLease);
   if (!status.ok()) return Failed(call, status);
   rejected->assign(response.rejected_receipts().begin(), response.rejected_receipts().end());
   return Succeeded(response.now_ns());

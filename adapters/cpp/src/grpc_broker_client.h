@@ -1,18 +1,20 @@
 // File: grpc_broker_client.h  (internal to the adapter)
 //
-// BrokerClient over gRPC: a synchronous stub on a channel to weir's Broker
-// service. Every call carries a wall-clock deadline so a wedged harness cannot
+// BrokerClient over gRPC: asynchronous calls on a channel to weir's Broker
+// service, completed on the adapter's CallQueue, which the calling thread
+// polls until the answer is there (call_queue.h). Every call carries a wall-clock deadline so a wedged harness cannot
 // hang the connector; the answer's virtual now comes from the response's now_ns
 // or, on failure, from the trailing metadata key "weir-now-ns"; a throttle's
 // hint from "retry-after-ms".
 //
-// Thread safety: the stub is thread-safe; Serve uses it from one call at a time.
+// Thread safety: the CallQueue's thread only.
 #pragma once
 
 #include <chrono>
 #include <memory>
 #include <string>
 
+#include "call_queue.h"
 #include "weir/adapter/source.h"
 #include "weir/v1/broker.grpc.pb.h"
 
@@ -23,7 +25,8 @@ inline constexpr char kRetryAfterMetadataKey[] = "retry-after-ms";
 
 class GrpcBrokerClient final : public BrokerClient {
  public:
-  GrpcBrokerClient(const std::string& target, std::chrono::seconds call_timeout);
+  // REQUIRES: queue outlives the client.
+  GrpcBrokerClient(const std::string& target, std::chrono::seconds call_timeout, CallQueue& queue);
 
   BrokerStatus Pull(std::uint32_t max, std::vector<v1::Delivery>* out) override;
   BrokerStatus Ack(const std::vector<std::uint64_t>& receipts) override;
@@ -33,8 +36,13 @@ class GrpcBrokerClient final : public BrokerClient {
 
  private:
   void Prepare(grpc::ClientContext* call) const;
+  // Starts the call on the queue and polls it until the answer is there.
+  template <typename Request, typename Response, typename Start>
+  grpc::Status Call(grpc::ClientContext* call, const Request& request, Response* response,
+                    Start start);
 
   const std::chrono::seconds call_timeout_;
+  CallQueue& queue_;
   std::unique_ptr<v1::Broker::Stub> stub_;
 };
 

@@ -10,7 +10,6 @@
 #include <cstring>
 #include <exception>
 #include <memory>
-#include <mutex>
 #include <string>
 #include <string_view>
 
@@ -18,6 +17,7 @@
 
 #include "absl/synchronization/mutex.h"
 
+#include "call_queue.h"
 #include "grpc_broker_client.h"
 #include "weir/v1/connector.grpc.pb.h"
 
@@ -49,29 +49,25 @@ grpc::Status Guarded(const char* call, Context& ctx, Body body) {
   return grpc::Status::OK;
 }
 
-// The Connector service. gRPC's sync server may run handlers on several
-// threads; mu_ makes the source see one call at a time.
-class ConnectorService final : public v1::Connector::Service {
+// The Connector service's calls, run against the source. CallQueue runs one
+// at a time on the serving thread, so the source sees one call at a time.
+class ConnectorCalls {
  public:
-  ConnectorService(Source& source, BrokerClient& broker) : source_(source), broker_(broker) {}
+  ConnectorCalls(Source& source, BrokerClient& broker) : source_(source), broker_(broker) {}
 
-  grpc::Status Open(grpc::ServerContext*, const v1::OpenRequest* request,
-                    v1::OpenResponse*) override {
-    std::lock_guard<std::mutex> lock(mu_);
-    Context ctx(CallKind::kOpen, request->now_ns(), broker_);
+  grpc::Status Open(const v1::OpenRequest& request, v1::OpenResponse*) {
+    Context ctx(CallKind::kOpen, request.now_ns(), broker_);
     OpenInfo info;
-    info.incarnation = request->incarnation();
-    info.restore = request->restore();
-    info.checkpoint_id = request->checkpoint_id();
-    info.checkpoint_state = request->checkpoint_state();
-    info.redelivery_horizon_ns = request->redelivery_horizon_ns();
+    info.incarnation = request.incarnation();
+    info.restore = request.restore();
+    info.checkpoint_id = request.checkpoint_id();
+    info.checkpoint_state = request.checkpoint_state();
+    info.redelivery_horizon_ns = request.redelivery_horizon_ns();
     return Guarded("Open", ctx, [&] { return source_.Open(info, ctx); });
   }
 
-  grpc::Status Advance(grpc::ServerContext*, const v1::AdvanceRequest* request,
-                       v1::AdvanceResponse* response) override {
-    std::lock_guard<std::mutex> lock(mu_);
-    Context ctx(CallKind::kAdvance, request->now_ns(), broker_);
+  grpc::Status Advance(const v1::AdvanceRequest& request, v1::AdvanceResponse* response) {
+    Context ctx(CallKind::kAdvance, request.now_ns(), broker_);
     grpc::Status status = Guarded("Advance", ctx, [&] {
       source_.Advance(ctx);
       return grpc::Status::OK;
@@ -80,30 +76,85 @@ class ConnectorService final : public v1::Connector::Service {
     return status;
   }
 
-  grpc::Status Checkpoint(grpc::ServerContext*, const v1::CheckpointRequest* request,
-                          v1::CheckpointResponse* response) override {
-    std::lock_guard<std::mutex> lock(mu_);
-    Context ctx(CallKind::kCheckpoint, request->now_ns(), broker_);
+  grpc::Status Checkpoint(const v1::CheckpointRequest& request, v1::CheckpointResponse* response) {
+    Context ctx(CallKind::kCheckpoint, request.now_ns(), broker_);
     return Guarded("Checkpoint", ctx, [&] {
-      response->set_state(source_.Checkpoint(request->checkpoint_id(), ctx));
+      response->set_state(source_.Checkpoint(request.checkpoint_id(), ctx));
       return grpc::Status::OK;
     });
   }
 
-  grpc::Status Committed(grpc::ServerContext*, const v1::CommittedRequest* request,
-                         v1::CommittedResponse*) override {
-    std::lock_guard<std::mutex> lock(mu_);
-    Context ctx(CallKind::kCommitted, request->now_ns(), broker_);
+  grpc::Status Committed(const v1::CommittedRequest& request, v1::CommittedResponse*) {
+    Context ctx(CallKind::kCommitted, request.now_ns(), broker_);
     return Guarded("Committed", ctx, [&] {
-      source_.Committed(request->checkpoint_id(), ctx);
+      source_.Committed(request.checkpoint_id(), ctx);
       return grpc::Status::OK;
     });
   }
 
  private:
-  std::mutex mu_;
   Source& source_;
   BrokerClient& broker_;
+};
+
+template <typename Request, typename Response>
+using RequestFn = void (v1::Connector::AsyncService::*)(grpc::ServerContext*, Request*,
+                                                        grpc::ServerAsyncResponseWriter<Response>*,
+                                                        grpc::CompletionQueue*,
+                                                        grpc::ServerCompletionQueue*, void*);
+template <typename Request, typename Response>
+using HandlerFn = grpc::Status (ConnectorCalls::*)(const Request&, Response*);
+
+// One connector call of one method, from the moment it is awaited until its
+// answer has been sent. When it arrives, the next call of the method is
+// awaited at once and this one goes to the CallQueue to run.
+template <typename Request, typename Response>
+class MethodCall final : public internal::QueueTag, public internal::ArrivedCall {
+ public:
+  struct Method {
+    RequestFn<Request, Response> request;
+    HandlerFn<Request, Response> handle;
+  };
+  struct Shared {
+    v1::Connector::AsyncService& service;
+    grpc::ServerCompletionQueue* queue;
+    internal::CallQueue& calls;
+    ConnectorCalls& handlers;
+  };
+
+  MethodCall(const Shared& shared, const Method& method)
+      : shared_(shared), method_(method), responder_(&context_) {
+    (shared_.service.*method_.request)(&context_, &request_, &responder_, shared_.queue,
+                                        shared_.queue, this);
+  }
+
+  void Proceed(bool ok) override {
+    if (!answered_ && ok) {
+      new MethodCall(shared_, method_);
+      shared_.calls.Arrived(this);
+      return;
+    }
+    delete this;  // answer sent, or the server is shutting down
+  }
+
+  void Run() override {
+    const grpc::Status status = (shared_.handlers.*method_.handle)(request_, &response_);
+    answered_ = true;
+    if (status.ok()) {
+      responder_.Finish(response_, status, this);
+    } else {
+      responder_.FinishWithError(status, this);
+    }
+  }
+
+ private:
+  const Shared shared_;
+  const Method method_;
+  bool answered_ = false;
+  grpc::ServerContext context_;
+  Request request_;
+  Response response_;
+  grpc::ServerAsyncResponseWriter<Response> responder_;
 };
 
 // The value of a required environment variable, or nullptr (after *error is set).
@@ -175,10 +226,7 @@ int Serve(Source& source) {
   // Debian builds Abseil without NDEBUG, so every lock gRPC takes would also
   // feed Abseil's deadlock detector: a few per cent of each call.
   absl::SetMutexDeadlockDetectionMode(absl::OnDeadlockCycle::kIgnore);
-  internal::GrpcBrokerClient broker(broker_address,
-                                    std::chrono::seconds(kBrokerCallWallTimeoutSeconds));
-  ConnectorService service(source, broker);
-
+  v1::Connector::AsyncService service;
   grpc::ServerBuilder builder;
   int selected_port = 0;
   builder.AddListeningPort(listen_address, grpc::InsecureServerCredentials(), &selected_port);
@@ -187,18 +235,42 @@ int Serve(Source& source) {
   builder.SetMaxReceiveMessageSize(-1);
   builder.SetMaxSendMessageSize(-1);
   builder.RegisterService(&service);
+  std::unique_ptr<grpc::ServerCompletionQueue> queue = builder.AddCompletionQueue();
   std::unique_ptr<grpc::Server> server = builder.BuildAndStart();
   if (server == nullptr || selected_port == 0) {
     return StartupError(std::string("cannot listen on WEIR_LISTEN_ADDRESS \"") + listen_address +
                         "\"");
   }
 
+  // Everything from here on runs on this thread, from one queue; the calls
+  // are awaited before the address is announced.
+  internal::CallQueue calls(queue.get());
+  internal::GrpcBrokerClient broker(broker_address,
+                                    std::chrono::seconds(kBrokerCallWallTimeoutSeconds), calls);
+  ConnectorCalls handlers(source, broker);
+  using Svc = v1::Connector::AsyncService;
+  new MethodCall<v1::OpenRequest, v1::OpenResponse>(
+      {service, queue.get(), calls, handlers}, {&Svc::RequestOpen, &ConnectorCalls::Open});
+  new MethodCall<v1::AdvanceRequest, v1::AdvanceResponse>(
+      {service, queue.get(), calls, handlers}, {&Svc::RequestAdvance, &ConnectorCalls::Advance});
+  new MethodCall<v1::CheckpointRequest, v1::CheckpointResponse>(
+      {service, queue.get(), calls, handlers},
+      {&Svc::RequestCheckpoint, &ConnectorCalls::Checkpoint});
+  new MethodCall<v1::CommittedRequest, v1::CommittedResponse>(
+      {service, queue.get(), calls, handlers},
+      {&Svc::RequestCommitted, &ConnectorCalls::Committed});
+
   if (!WriteAll(ready_fd, ListenedAddress(listen_address, selected_port) + "\n", &error)) {
+    // gRPC requires the awaited calls back before the queue goes.
+    server->Shutdown();
+    queue->Shutdown();
+    calls.Run();
     return StartupError(error);
   }
   ::close(ready_fd);
 
-  server->Wait();
+  // Until weir kills the process.
+  calls.Run();
   return 0;
 }
 
