@@ -13,8 +13,10 @@
 //      scenario in-process (no gRPC) shows what the simulation itself costs.
 //   3. restart: median wall time of Kill + Start + Open of an incarnation.
 //
-// usage: call_cost CONNECTOR SCENARIO [ECHO_CALLS [RESTARTS]]
-//   defaults: 20000 echo calls per transport, 30 restarts.
+// usage: call_cost CONNECTOR SCENARIO [ECHO_CALLS [RESTARTS [ROUNDS]]]
+//   defaults: 20000 echo calls per transport, 30 restarts, 5 rounds. A round
+//   is echo TCP, weir TCP, echo Unix, weir Unix, back to back; figures are
+//   medians over rounds and ratios medians of the per-round ratios.
 // Prints one human line per measurement, then `result NAME VALUE` lines for
 // bench/run_all.sh. Exits 1 if a weir run does not pass.
 #include <fcntl.h>
@@ -361,12 +363,13 @@ int main(int argc, char** argv) {
   absl::SetMutexDeadlockDetectionMode(absl::OnDeadlockCycle::kIgnore);
   if (argc == 2 && std::strcmp(argv[1], "--echo-server") == 0) return ServeEcho();
   if (argc < 3) {
-    std::fprintf(stderr, "usage: %s CONNECTOR SCENARIO [ECHO_CALLS [RESTARTS]]\n", argv[0]);
+    std::fprintf(stderr, "usage: %s CONNECTOR SCENARIO [ECHO_CALLS [RESTARTS [ROUNDS]]]\n", argv[0]);
     return 2;
   }
   const std::string connector = argv[1];
   const int echo_calls = argc > 3 ? std::atoi(argv[3]) : 20000;
   const int restarts = argc > 4 ? std::atoi(argv[4]) : 30;
+  const int rounds = argc > 5 ? std::max(1, std::atoi(argv[5])) : 5;
   auto scenario = LoadScenario(argv[2]);
   if (!scenario.ok()) {
     std::fprintf(stderr, "%s\n", std::string(scenario.status().message()).c_str());
@@ -375,23 +378,41 @@ int main(int argc, char** argv) {
   const RunSpec spec = SpecFor(*scenario, argv[2], connector);
   const std::string self = SelfPath();
 
-  const double echo_tcp = MeasureEcho(self, Transport::kTcp, echo_calls);
-  const double echo_unix = MeasureEcho(self, Transport::kUnix, echo_calls);
-  const WeirFigures weir_tcp = MeasureWeir(spec, Transport::kTcp, echo_tcp);
-  const WeirFigures weir_unix = MeasureWeir(spec, Transport::kUnix, echo_unix);
+  // Rounds interleave the echo and weir on each transport, so that both see
+  // the same machine load; each figure is the median over rounds, and each
+  // ratio the median of the per-round ratios.
+  std::vector<double> echo_tcp, echo_unix, weir_tcp, weir_unix, ratio_tcp, ratio_unix, steps_tcp,
+      steps_unix;
+  for (int round = 1; round <= rounds; ++round) {
+    std::printf("-- round %d of %d\n", round, rounds);
+    echo_tcp.push_back(MeasureEcho(self, Transport::kTcp, echo_calls));
+    const WeirFigures wt = MeasureWeir(spec, Transport::kTcp, echo_tcp.back());
+    echo_unix.push_back(MeasureEcho(self, Transport::kUnix, echo_calls));
+    const WeirFigures wu = MeasureWeir(spec, Transport::kUnix, echo_unix.back());
+    weir_tcp.push_back(wt.per_call_us);
+    weir_unix.push_back(wu.per_call_us);
+    ratio_tcp.push_back(wt.per_call_us / echo_tcp.back());
+    ratio_unix.push_back(wu.per_call_us / echo_unix.back());
+    steps_tcp.push_back(wt.steps_per_s);
+    steps_unix.push_back(wu.steps_per_s);
+  }
   const WeirFigures in_process = MeasureInProcess(spec);
   const double restart_ms = MeasureRestart(connector, restarts);
+  std::printf("median of %d rounds: echo %.1f us TCP, %.1f us Unix; weir %.1f us per call TCP (%.2fx), "
+              "%.1f us Unix (%.2fx)\n",
+              rounds, Median(echo_tcp), Median(echo_unix), Median(weir_tcp), Median(ratio_tcp),
+              Median(weir_unix), Median(ratio_unix));
 
-  std::printf("result echo_tcp_us %.2f\n", echo_tcp);
-  std::printf("result echo_unix_us %.2f\n", echo_unix);
-  std::printf("result echo_tcp_rps %.0f\n", 1e6 / echo_tcp);
-  std::printf("result echo_unix_rps %.0f\n", 1e6 / echo_unix);
-  std::printf("result weir_tcp_us %.2f\n", weir_tcp.per_call_us);
-  std::printf("result weir_unix_us %.2f\n", weir_unix.per_call_us);
-  std::printf("result weir_tcp_ratio %.2f\n", weir_tcp.per_call_us / echo_tcp);
-  std::printf("result weir_unix_ratio %.2f\n", weir_unix.per_call_us / echo_unix);
-  std::printf("result weir_tcp_steps_per_s %.0f\n", weir_tcp.steps_per_s);
-  std::printf("result weir_unix_steps_per_s %.0f\n", weir_unix.steps_per_s);
+  std::printf("result echo_tcp_us %.2f\n", Median(echo_tcp));
+  std::printf("result echo_unix_us %.2f\n", Median(echo_unix));
+  std::printf("result echo_tcp_rps %.0f\n", 1e6 / Median(echo_tcp));
+  std::printf("result echo_unix_rps %.0f\n", 1e6 / Median(echo_unix));
+  std::printf("result weir_tcp_us %.2f\n", Median(weir_tcp));
+  std::printf("result weir_unix_us %.2f\n", Median(weir_unix));
+  std::printf("result weir_tcp_ratio %.2f\n", Median(ratio_tcp));
+  std::printf("result weir_unix_ratio %.2f\n", Median(ratio_unix));
+  std::printf("result weir_tcp_steps_per_s %.0f\n", Median(steps_tcp));
+  std::printf("result weir_unix_steps_per_s %.0f\n", Median(steps_unix));
   std::printf("result inprocess_us %.2f\n", in_process.per_call_us);
   std::printf("result restart_ms %.2f\n", restart_ms);
   return 0;

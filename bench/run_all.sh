@@ -47,13 +47,13 @@ done
 
 if ((TINY)); then
   STEADY=$ROOT/fixtures/scenarios/steady_parcel_scanners.scenario
-  ECHO_CALLS=200 RESTARTS=3
+  ECHO_CALLS=200 RESTARTS=3 ROUNDS=1
   IDLE=$ROOT/bench/idle_tiny.scenario
   ORACLE_EVENTS=100000
   SUITE=$ROOT/tests/e2e/tiny.suite
 else
   STEADY=$ROOT/bench/steady_calls.scenario
-  ECHO_CALLS=20000 RESTARTS=30
+  ECHO_CALLS=5000 RESTARTS=30 ROUNDS=5
   IDLE=$ROOT/bench/idle_hour.scenario
   ORACLE_EVENTS=10000000
   SUITE=$ROOT/fixtures/suites/quick.suite
@@ -89,7 +89,7 @@ pick() {
 for ((i = 1; i <= REPEATS; i++)); do
   echo "repeat $i of $REPEATS…" >&2
   log=$OUT/call_cost.$i.log
-  run call_cost "$log" "$BUILD/bench/call_cost" "$CONNECTOR" "$STEADY" "$ECHO_CALLS" "$RESTARTS"
+  run call_cost "$log" "$BUILD/bench/call_cost" "$CONNECTOR" "$STEADY" "$ECHO_CALLS" "$RESTARTS" "$ROUNDS"
   grep '^result ' "$log" | cut -d' ' -f2- >>"$VALUES"
 
   log=$OUT/idle_hour.$i.log

@@ -238,7 +238,13 @@ int ReplayCommand(const std::string& trace, const std::string& transport, const 
     if (!split.ok()) return UsageError(absl::StrCat("--connector ", split.status().message()));
     options.connector_argv = std::move(*split);
   }
+  options.stop = InstallStopSignals();
   auto r = ReplayTrace(trace, options);
+  if (absl::IsCancelled(r.status())) {
+    std::fprintf(stderr, "weir: interrupted by signal %d: the connector was killed, nothing compared\n",
+                 StopSignal());
+    return kExitInterrupted;
+  }
   if (!r.ok()) return StatusExit(r.status());
   if (r->weir_version != WeirVersion()) {
     std::printf("note: the trace was written by weir %s; this is weir %s\n", r->weir_version.c_str(),

@@ -11,6 +11,7 @@
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_join.h"
 #include "harness/cli/command_line.h"
+#include "harness/cli/stop_signal.h"
 #include "harness/edge/grpc_run.h"
 #include "harness/replay/replay.h"
 #include "harness/replay/trace_reader.h"
@@ -229,9 +230,20 @@ int RunShrinkCommand(ShrinkFlags& f) {
               static_cast<unsigned long long>(spec.seed), ShellJoin(spec.connector_argv).c_str());
   std::fflush(stdout);
 
+  // A signal ends the rerun in flight (connector killed and reaped); the
+  // search then stops with the smallest failing plan found so far.
+  const std::atomic<bool>* stop = InstallStopSignals();
+  spec.stop = stop;
+  auto interrupted = [] {
+    std::fprintf(stderr, "weir: interrupted by signal %d: the connector was killed, nothing written\n",
+                 StopSignal());
+    return kExitInterrupted;
+  };
+
   // The failing run itself: drawn from the scenario's rates, or under the
   // given plan (--plan, or the trace's).
   auto original = RunOverGrpc(spec);
+  if (absl::IsCancelled(original.status())) return interrupted();
   if (!original.ok()) {
     std::fprintf(stderr, "weir: harness fault: %s\n", std::string(original.status().message()).c_str());
     return kHarness;
@@ -280,7 +292,7 @@ int RunShrinkCommand(ShrinkFlags& f) {
   ShrinkOptions options;
   options.target = target;
   options.max_reruns = f.max_reruns;
-  if (f.max_seconds > 0) options.stop = [&] { return elapsed() >= f.max_seconds; };
+  options.stop = [&] { return stop->load() || (f.max_seconds > 0 && elapsed() >= f.max_seconds); };
   options.progress = [&](const ShrinkProgress& p) {
     if (quiet) return;
     const double now = elapsed();
@@ -312,6 +324,7 @@ int RunShrinkCommand(ShrinkFlags& f) {
     std::fprintf(stderr, "weir: harness fault: %s\n", std::string(r.status().message()).c_str());
     return kHarness;
   }
+  if (stop->load() && r->minimal.decisions_size() == start.decisions_size()) return interrupted();
   if (r->outcome == ShrinkOutcome::kNondeterministic) {
     std::printf(
         "NONDETERMINISTIC: %s; nothing shrunk. The connector answers the same scenario, seed and "
@@ -338,7 +351,11 @@ int RunShrinkCommand(ShrinkFlags& f) {
               static_cast<unsigned long long>(r->reruns), static_cast<unsigned long long>(r->removal_steps),
               static_cast<unsigned long long>(r->weakening_steps), elapsed());
   for (const auto& d : r->minimal.decisions()) std::printf("  %s\n", DescribeDecision(d).c_str());
-  if (r->one_minimal) {
+  if (stop->load()) {
+    std::printf("interrupted by signal %d: the plan still fails %s but is not proven 1-minimal; run "
+                "weir shrink on it again to go on.\n",
+                StopSignal(), InvariantName(target));
+  } else if (r->one_minimal) {
     std::printf("1-minimal: %s still fails; without any one of these decisions it holds.\n",
                 InvariantName(target));
   } else {
@@ -352,19 +369,23 @@ int RunShrinkCommand(ShrinkFlags& f) {
     RunSpec s = spec;
     s.plan = r->minimal;
     s.trace_path = f.trace;
-    auto out = RunOverGrpc(s);
-    if (!out.ok()) {
+    auto out = stop->load() ? absl::StatusOr<RunOutput>(absl::CancelledError("interrupted"))
+                            : RunOverGrpc(s);
+    if (absl::IsCancelled(out.status())) {
+      std::printf("trace      not written (interrupted)\n");
+    } else if (!out.ok()) {
       std::fprintf(stderr, "weir: harness fault: %s\n", std::string(out.status().message()).c_str());
       return kHarness;
+    } else {
+      std::printf("trace      %s%s\n", f.trace.c_str(),
+                  out->digest == m.digest ? "" : " (its digest differs: the connector is nondeterministic)");
     }
-    std::printf("trace      %s%s\n", f.trace.c_str(),
-                out->digest == m.digest ? "" : " (its digest differs: the connector is nondeterministic)");
   }
   std::printf("%sreplay: %s\n", profile_note.c_str(),
               ReplayLine(spec.scenario_path, spec.seed, transport, f.out, from_trace ? "" : f.profile,
                          spec.connector_argv)
                   .c_str());
-  return kShrunk;
+  return stop->load() ? kExitInterrupted : kShrunk;
 }
 
 }  // namespace weir

@@ -40,6 +40,7 @@ absl::StatusOr<ReplayResult> ReplayTrace(const std::string& path, const ReplayOp
   }
   result.connector_argv = spec.connector_argv;
   spec.transport = options.transport;
+  spec.stop = options.stop;
 
   auto dir = PrivateDir::Create();
   if (!dir.ok()) return dir.status();

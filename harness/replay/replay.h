@@ -12,6 +12,8 @@
 // difference.
 #pragma once
 
+#include <atomic>
+
 #include <cstdint>
 #include <optional>
 #include <string>
@@ -26,6 +28,9 @@ struct ReplayOptions {
   Transport transport = Transport::kTcp;
   // Replaces the header's connector argv when not empty (the binary moved).
   std::vector<std::string> connector_argv;
+  // When it becomes true the rerun is abandoned (connector killed and
+  // reaped) and ReplayTrace returns CANCELLED. Not owned.
+  const std::atomic<bool>* stop = nullptr;
 };
 
 struct ReplayResult {

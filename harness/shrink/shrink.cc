@@ -5,6 +5,7 @@
 #include <optional>
 #include <utility>
 
+#include "absl/status/status.h"
 #include "absl/strings/str_cat.h"
 
 namespace weir {
@@ -89,6 +90,10 @@ class Search {
       return nullptr;
     }
     auto r = rerun_(ToPlan(d));
+    if (absl::IsCancelled(r.status())) {
+      budget_reached_ = true;  // interrupted: this rerun has no result
+      return nullptr;
+    }
     ++reruns_;
     if (!r.ok()) {
       error_ = r.status();

@@ -76,6 +76,8 @@ struct ShrinkOptions {
   Invariant target = Invariant::kCount;  // REQUIRES: a real invariant
   std::uint64_t max_reruns = 0;          // 0: no limit
   // Polled before every rerun; true stops the search (e.g. wall time is up).
+  // A rerun that returns CANCELLED (abandoned by a signal) stops it the same
+  // way: the search ends with the smallest failing plan found so far.
   std::function<bool()> stop;
   // Called after every counted rerun.
   std::function<void(const ShrinkProgress&)> progress;

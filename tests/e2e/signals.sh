@@ -109,7 +109,39 @@ check "run SIGTERM: no trace or plan left" bash -c "! compgen -G '$WORK/run.json
 check "run SIGTERM: no process survives" none_alive "$tag"
 check "run SIGTERM: TMPDIR clean" tmp_clean
 
-# 4. Normal exit and error exit leave TMPDIR clean too.
+# 4. weir replay and weir shrink, interrupted while a connector hangs in a
+#    step: exit 4, connector killed, nothing written, TMPDIR clean.
+"$WEIR" run --scenario "$DIR/patient.scenario" --seed 3 --transport unix \
+  --connector "$BIN/hostile_ack_twice $MARK-saved" --trace "$WORK/saved.jsonl" >"$WORK/saved.out" 2>&1
+tag=$MARK-replay
+"$WEIR" replay "$WORK/saved.jsonl" --transport unix --connector "$BIN/hostile_hang_in_step $tag" \
+  >"$WORK/replay.out" 2>&1 &
+pid=$!
+wait_for "$tag" 20
+sleep 0.5
+kill -INT "$pid"
+wait "$pid"
+rc=$?
+check "replay SIGINT: exit 4 (got $rc)" test "$rc" -eq 4
+check "replay SIGINT: says interrupted" grep -q 'interrupted by signal 2' "$WORK/replay.out"
+check "replay SIGINT: no process survives" none_alive "$tag"
+check "replay SIGINT: TMPDIR clean" tmp_clean
+tag=$MARK-shrink
+"$WEIR" shrink --scenario "$DIR/patient.scenario" --seed 3 --transport unix --out "$WORK/min.plan" \
+  -- "$BIN/hostile_hang_in_step" "$tag" >"$WORK/shrink.out" 2>&1 &
+pid=$!
+wait_for "$tag" 20
+sleep 0.5
+kill -TERM "$pid"
+wait "$pid"
+rc=$?
+check "shrink SIGTERM: exit 4 (got $rc)" test "$rc" -eq 4
+check "shrink SIGTERM: says interrupted" grep -q 'interrupted by signal 15' "$WORK/shrink.out"
+check "shrink SIGTERM: no plan written" bash -c "! compgen -G '$WORK/min.plan*' >/dev/null"
+check "shrink SIGTERM: no process survives" none_alive "$tag"
+check "shrink SIGTERM: TMPDIR clean" tmp_clean
+
+# 5. Normal exit and error exit leave TMPDIR clean too.
 "$WEIR" run --scenario "$DIR/hostile.scenario" --seed 1 --transport unix \
   --connector "$BIN/hostile_ack_twice $MARK-normal" >"$WORK/normal.out" 2>&1
 rc=$?
