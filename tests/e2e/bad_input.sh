@@ -9,11 +9,7 @@ set -uo pipefail
 WEIR=$1 REF=$2 BAD=$3 SCEN=$4
 WORK=$(mktemp -d)
 trap 'rm -rf "$WORK"' EXIT
-failures=0
-check() {
-  local name=$1; shift
-  if "$@"; then echo "ok   $name"; else echo "FAIL $name"; failures=$((failures + 1)); fi
-}
+source "$(dirname "${BASH_SOURCE[0]}")/lib.sh"
 GOOD=$SCEN/steady_parcel_scanners.scenario
 OUTS=("$WORK/out.jsonl" "$WORK/out.plan" "$WORK/out.json" "$WORK/out.xml" "$WORK/out.cert")
 no_outputs() {

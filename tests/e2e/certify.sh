@@ -8,11 +8,7 @@ SUITE=$HERE/tiny.suite
 XSD=$HERE/junit/strict-testsuite.xsd
 WORK=$(mktemp -d)
 trap 'rm -rf "$WORK"' EXIT
-failures=0
-check() {
-  local name=$1; shift
-  if "$@"; then echo "ok   $name"; else echo "FAIL $name"; failures=$((failures + 1)); fi
-}
+source "$(dirname "${BASH_SOURCE[0]}")/lib.sh"
 certify() { "$WEIR" certify --suite "$SUITE" --progress lines --jobs 2 "$@"; }
 
 # 1. The reference connector is certified; the certificate verifies.

@@ -6,12 +6,7 @@ WEIR=$1 REF=$2 ACK_ON_PULL=$3 SCEN=$4
 STEADY=$SCEN/steady_parcel_scanners.scenario
 WORK=$(mktemp -d)
 trap 'rm -rf "$WORK"' EXIT
-failures=0
-
-check() {  # check NAME CONDITION...
-  local name=$1; shift
-  if "$@"; then echo "ok   $name"; else echo "FAIL $name"; failures=$((failures + 1)); fi
-}
+source "$(dirname "${BASH_SOURCE[0]}")/lib.sh"
 
 # 1. The reference connector passes; the seed is printed first.
 "$WEIR" run --scenario "$STEADY" --seed 7 --connector "$REF" >"$WORK/ref.out" 2>&1

@@ -9,12 +9,7 @@ set -uo pipefail
 WEIR=$1 REF=$2 SCENARIO=$3
 WORK=$(mktemp -d)
 trap 'rm -rf "$WORK"' EXIT
-failures=0
-
-check() {  # check NAME COMMAND...
-  local name=$1; shift
-  if "$@"; then echo "ok   $name"; else echo "FAIL $name"; failures=$((failures + 1)); fi
-}
+source "$(dirname "${BASH_SOURCE[0]}")/lib.sh"
 count() {  # count PATTERN FILE: matching lines (0 when none)
   grep -c -- "$1" "$2" || true
 }

@@ -14,13 +14,7 @@ mkdir -p "$TMPDIR"
 MARK=weir-hostile-$$-$RANDOM
 trap 'pkill -KILL -f "$MARK" 2>/dev/null; rm -rf "$WORK"' EXIT
 SCENARIO=$DIR/hostile.scenario
-failures=0
-check() {
-  local name=$1; shift
-  if "$@"; then echo "ok   $name"; else echo "FAIL $name"; failures=$((failures + 1)); fi
-}
-# True when no process has PATTERN in its command line (pgrep skips itself).
-none_alive() { ! pgrep -f -- "$1" >/dev/null; }
+source "$(dirname "${BASH_SOURCE[0]}")/lib.sh"
 
 # hostile CASE EXIT INVARIANT MESSAGE [TRANSPORT [SCENARIO]]: one run, checked.
 hostile() {

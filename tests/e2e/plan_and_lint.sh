@@ -5,11 +5,7 @@ set -uo pipefail
 WEIR=$1 REF=$2 SCEN=$3
 WORK=$(mktemp -d)
 trap 'rm -rf "$WORK"' EXIT
-failures=0
-check() {
-  local name=$1; shift
-  if "$@"; then echo "ok   $name"; else echo "FAIL $name"; failures=$((failures + 1)); fi
-}
+source "$(dirname "${BASH_SOURCE[0]}")/lib.sh"
 digest() { grep '^digest' "$1" | awk '{print $2}'; }
 
 # 1. Every bundled scenario lints clean.

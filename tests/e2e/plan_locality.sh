@@ -13,11 +13,7 @@ set -uo pipefail
 WEIR=$1 REF=$2 SCEN=$3
 WORK=$(mktemp -d)
 trap 'rm -rf "$WORK"' EXIT
-failures=0
-check() {
-  local name=$1; shift
-  if "$@"; then echo "ok   $name"; else echo "FAIL $name"; failures=$((failures + 1)); fi
-}
+source "$(dirname "${BASH_SOURCE[0]}")/lib.sh"
 # Event lines only: the header (line 1) holds the plan, the footer the digest.
 events() { sed '1d;$d' "$1"; }
 # 1-based index of the first line where files $1 and $2 differ; 0 when identical.

@@ -14,11 +14,7 @@ SCEN=$SRC/fixtures/scenarios
 export PYTHONPATH=$PYDIR
 WORK=$(mktemp -d)
 trap 'rm -rf "$WORK"' EXIT
-failures=0
-check() {
-  local name=$1; shift
-  if "$@"; then echo "ok   $name"; else echo "FAIL $name"; failures=$((failures + 1)); fi
-}
+source "$(dirname "${BASH_SOURCE[0]}")/lib.sh"
 digests() { grep -o '"digest": "sha256:[0-9a-f]*"' "$1"; }
 
 if [ "$PART" = reference ]; then

@@ -13,19 +13,7 @@ export TMPDIR=$WORK/tmp
 mkdir -p "$TMPDIR"
 MARK=weir-signals-$$-$RANDOM
 trap 'pkill -KILL -f "$MARK" 2>/dev/null; rm -rf "$WORK"' EXIT
-failures=0
-check() {
-  local name=$1; shift
-  if "$@"; then echo "ok   $name"; else echo "FAIL $name"; failures=$((failures + 1)); fi
-}
-alive() { pgrep -f -- "$1" >/dev/null; }
-# True when no process has PATTERN in its command line (pgrep skips itself).
-none_alive() { ! pgrep -f -- "$1" >/dev/null; }
-# wait_for PATTERN SECONDS: until a process matching PATTERN runs.
-wait_for() {
-  for _ in $(seq $(($2 * 10))); do alive "$1" && return 0; sleep 0.1; done
-  return 1
-}
+source "$(dirname "${BASH_SOURCE[0]}")/lib.sh"
 # seen_processes TAG N SECONDS: waits until N distinct processes whose argv
 # carries TAG have been seen alive (polled every 50 ms), at most SECONDS.
 seen_processes() {
