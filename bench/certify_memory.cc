@@ -8,8 +8,11 @@
 // scheduling, RunRecords, summary and trace keeping are shared; only the
 // runner differs (no connector process) — so the aggregation's memory is what
 // is measured here. Prints the peak resident set size (VmHWM) when 10 %, 20 %,
-// 50 % and 100 % of the runs are done, then after building the JSON, JUnit and
-// HTML reports, and the growth per run between the first and the last mark.
+// 50 % and 100 % of the runs are done, then after writing each report (JSON
+// and JUnit streamed from the run log into files, the certificate, the HTML
+// summary), and the growth per run between the first and the last mark. The
+// run log itself is a file: on a tmpfs $TMPDIR its pages are the kernel's
+// page cache, not this process's resident set.
 //
 // usage: certify_memory RUNS [--failing] [--jobs N]
 //   build/bench/certify_memory 10000 --failing
@@ -31,6 +34,7 @@
 #include "harness/suite/first_failures.h"
 #include "harness/suite/suite_file.h"
 #include "harness/suite/suite_reports.h"
+#include "harness/suite/suite_tally.h"
 
 namespace {
 
@@ -122,20 +126,20 @@ int main(int argc, char** argv) {
   std::printf("certify in-process, %llu runs of %s, --jobs %u, first-failure traces kept; start: peak RSS %ld KiB\n",
               static_cast<unsigned long long>(runs), failing ? "the ack-on-pull mutant" : "the reference source",
               jobs, PeakRssKib());
-  auto report = Certify(*suite, options);
-  if (!report.ok()) {
-    std::fprintf(stderr, "%s\n", std::string(report.status().message()).c_str());
+  auto result = Certify(*suite, options);
+  if (!result.ok()) {
+    std::fprintf(stderr, "%s\n", std::string(result.status().message()).c_str());
     return 3;
   }
-  std::uint64_t failed = 0;
-  for (const auto& r : report->runs()) failed += r.passed() ? 0 : 1;
-  if (static_cast<std::uint64_t>(report->runs_size()) != runs || (failing && failed != runs) ||
-      (!failing && failed != 0)) {
-    std::fprintf(stderr, "unexpected outcome: %d runs, %llu failed\n", report->runs_size(),
-                 static_cast<unsigned long long>(failed));
-    int shown = 0;
-    for (const auto& r : report->runs()) {
-      if (r.passed() != failing || shown++ >= 5) continue;
+  const SuiteTally& tally = result->tally;
+  if (tally.runs() != runs || (failing && tally.failed() != runs) || (!failing && tally.failed() != 0)) {
+    std::fprintf(stderr, "unexpected outcome: %llu runs, %llu failed\n", static_cast<unsigned long long>(tally.runs()),
+                 static_cast<unsigned long long>(tally.failed()));
+    auto reader = result->runs->Read();
+    v1::RunRecord r;
+    for (int shown = 0; shown < 5 && reader->Next(&r).value_or(false);) {
+      if (r.passed() != failing) continue;
+      ++shown;
       std::fprintf(stderr, "  seed %llu: %s\n", static_cast<unsigned long long>(r.seed()),
                    r.first_violation().empty() ? r.harness_error().c_str() : r.first_violation().c_str());
     }
@@ -146,14 +150,39 @@ int main(int argc, char** argv) {
     std::fprintf(stderr, "no first-failure trace kept\n");
     return 1;
   }
-  // The reports certify writes, one at a time as the CLI does.
-  std::size_t bytes = SuiteReportJson(*report).size();
-  std::printf("after the JSON report (%zu B): peak RSS %ld KiB\n", bytes, PeakRssKib());
-  bytes = SuiteJUnitXml(*report, "2026-01-01T00:00:00", "bench").size();
-  std::printf("after the JUnit report (%zu B): peak RSS %ld KiB\n", bytes, PeakRssKib());
-  bytes = HtmlPage("bench", SuiteSummaryHtml(*report)).size();
-  std::printf("after the HTML summary (%zu B): peak RSS %ld KiB\n", bytes, PeakRssKib());
+  std::printf("run log: %llu runs, %llu B on disk\n", static_cast<unsigned long long>(result->runs->size()),
+              static_cast<unsigned long long>(result->runs->bytes()));
+  // The reports certify writes, one at a time as the CLI does: JSON and JUnit
+  // streamed from the run log into files, each written atomically.
+  auto write = [&](const char* what, const std::string& name, absl::FunctionRef<absl::Status(TextOut)> text) {
+    const std::string path = (*dir)->path() + "/" + name;
+    if (absl::Status st = WriteFileAtomically(path, text); !st.ok()) {
+      std::fprintf(stderr, "%s\n", std::string(st.message()).c_str());
+      std::exit(3);
+    }
+    std::ifstream in(path, std::ios::binary | std::ios::ate);
+    std::printf("after the %s (%lld B written): peak RSS %ld KiB\n", what, static_cast<long long>(in.tellg()),
+                PeakRssKib());
+  };
+  write("JSON report", "report.json", [&](TextOut out) {
+    auto reader = result->runs->Read();
+    return WriteSuiteReportJson(result->head, *reader, out);
+  });
+  write("JUnit report", "report.xml", [&](TextOut out) {
+    auto reader = result->runs->Read();
+    return WriteSuiteJUnitXml(result->head, tally, *reader, "2026-01-01T00:00:00", "bench", out);
+  });
+  write("certificate", "report.cert", [&](TextOut out) {
+    out(CertificateJson(MakeCertificate(result->head, tally)));
+    return absl::OkStatus();
+  });
+  write("HTML summary", "report.html", [&](TextOut out) {
+    out(HtmlPage("bench", SuiteSummaryHtml(result->head, tally)));
+    return absl::OkStatus();
+  });
   std::printf("first-failure traces kept: %zu (one per failed invariant)\n", kept.size());
+  const long end = PeakRssKib();
+  std::printf("peak RSS with every report written: %ld KiB\n", end);
   if (seen.size() >= 2 && seen.back().first > seen.front().first) {
     const double per_run = static_cast<double>(seen.back().second - seen.front().second) * 1024.0 /
                            static_cast<double>(seen.back().first - seen.front().first);
@@ -162,6 +191,7 @@ int main(int argc, char** argv) {
                 static_cast<unsigned long long>(seen.front().first), static_cast<unsigned long long>(seen.back().first),
                 seen.back().second - seen.front().second, per_run,
                 static_cast<double>(seen.back().second) / static_cast<double>(seen.front().second));
+    std::printf("with every report written: %ld KiB above the first mark\n", end - seen.front().second);
   }
   return 0;
 }

@@ -27,17 +27,16 @@ int main(int argc, char** argv) {
   auto measure = [&](const char* name, CertifyOptions options) -> double {
     options.jobs = jobs;
     const auto start = std::chrono::steady_clock::now();
-    auto report = Certify(*suite, options);
+    auto result = Certify(*suite, options);
     const double wall = std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
-    if (!report.ok()) {
-      std::fprintf(stderr, "%s: %s\n", name, std::string(report.status().message()).c_str());
+    if (!result.ok()) {
+      std::fprintf(stderr, "%s: %s\n", name, std::string(result.status().message()).c_str());
       std::exit(3);
     }
-    int passed = 0;
-    for (const auto& r : report->runs()) passed += r.passed() ? 1 : 0;
-    const double rate = report->runs_size() / wall;
-    std::printf("%-12s %6d runs %6d passed %9.2f s %10.1f runs/s %10.0f runs/min\n", name,
-                report->runs_size(), passed, wall, rate, rate * 60);
+    const auto runs = static_cast<unsigned long long>(result->tally.runs());
+    const double rate = static_cast<double>(runs) / wall;
+    std::printf("%-12s %6llu runs %6llu passed %9.2f s %10.1f runs/s %10.0f runs/min\n", name, runs,
+                static_cast<unsigned long long>(result->tally.passed()), wall, rate, rate * 60);
     return rate;
   };
   std::printf("suite %s, %llu pairs, --jobs %u\n", argv[1],

@@ -3,12 +3,14 @@
 #include <signal.h>
 #include <unistd.h>
 
+#include <algorithm>
 #include <atomic>
 #include <chrono>
 #include <cstdio>
 #include <cstdlib>
 #include <fstream>
 #include <map>
+#include <memory>
 #include <thread>
 
 #include "absl/strings/numbers.h"
@@ -22,6 +24,7 @@
 #include "harness/report/markup_escape.h"
 #include "harness/scenario/text_file.h"
 #include "harness/suite/certify.h"
+#include "harness/suite/run_log.h"
 #include "harness/suite/suite_reports.h"
 #include "harness/trace/trace_format.h"
 
@@ -100,10 +103,10 @@ absl::StatusOr<ShardSpec> ResolveShard(const SuiteCommands& s) {
 
 // The HTML report: the summary, then the timeline of the first failing run of
 // each failed invariant (from the traces certify kept), in table order.
-std::string SuiteHtml(const v1::SuiteReport& report, const FirstFailureTraces* traces) {
-  std::string body = absl::StrCat("<h1>weir certify</h1>\n", SuiteSummaryHtml(report));
+std::string SuiteHtml(const v1::SuiteReport& head, const SuiteTally& tally, const FirstFailureTraces* traces) {
+  std::string body = absl::StrCat("<h1>weir certify</h1>\n", SuiteSummaryHtml(head, tally));
   const auto kept = traces != nullptr ? traces->First() : std::map<std::string, FirstFailureTraces::Kept>{};
-  for (const auto& inv : report.invariants()) {
+  for (const auto& inv : head.invariants()) {
     if (inv.runs_failed() == 0) continue;
     auto it = kept.find(inv.invariant());
     if (it == kept.end()) {
@@ -127,7 +130,58 @@ std::string SuiteHtml(const v1::SuiteReport& report, const FirstFailureTraces* t
     explained->timelines.source.clear();  // a temporary file, gone after certify
     absl::StrAppend(&body, RunTimelinesHtml(explained->timelines));
   }
-  return HtmlPage(absl::StrCat("weir certify: ", report.suite_name()), body);
+  return HtmlPage(absl::StrCat("weir certify: ", head.suite_name()), body);
+}
+
+// Now, as JUnit's timestamp wants it: "YYYY-MM-DDTHH:MM:SS", UTC, no zone.
+std::string UtcTimestamp() {
+  char stamp[32];
+  const std::time_t t = std::time(nullptr);
+  std::tm tm{};
+  ::gmtime_r(&t, &tm);
+  std::strftime(stamp, sizeof stamp, "%Y-%m-%dT%H:%M:%S", &tm);
+  return stamp;
+}
+
+std::string HostName() {
+  char host[256] = "localhost";
+  ::gethostname(host, sizeof host - 1);
+  return host;
+}
+
+// Writes each report asked for (--json, --junit, --certificate, --html) from
+// `result`, the JSON and JUnit ones streamed from its run log, each file
+// atomically. Prints each error; with `announce`, a line per file written.
+// Returns the number of reports that could not be written.
+int WriteReports(const SuiteCommands& s, const SuiteResult& result, const v1::Certificate& cert,
+                 const FirstFailureTraces* traces, bool announce) {
+  int errors = 0;
+  auto write = [&](const std::string& path, const char* what, absl::FunctionRef<absl::Status(TextOut)> text) {
+    if (path.empty()) return;
+    if (absl::Status st = WriteFileAtomically(path, text); !st.ok()) {
+      std::fprintf(stderr, "weir: %s\n", std::string(st.message()).c_str());
+      ++errors;
+    } else if (announce) {
+      std::printf("%-12s %s\n", what, path.c_str());
+    }
+  };
+  write(s.json, "json report", [&](TextOut out) {
+    auto runs = result.runs->Read();
+    return WriteSuiteReportJson(result.head, *runs, out);
+  });
+  write(s.junit, "junit", [&](TextOut out) {
+    auto runs = result.runs->Read();
+    return WriteSuiteJUnitXml(result.head, result.tally, *runs, UtcTimestamp(), HostName(), out);
+  });
+  write(s.certificate, "certificate", [&](TextOut out) {
+    out(CertificateJson(cert));
+    return absl::OkStatus();
+  });
+  write(s.html, "html report", [&](TextOut out) {
+    out(SuiteHtml(result.head, result.tally, traces));
+    return absl::OkStatus();
+  });
+  return errors;
 }
 
 int Certify(SuiteCommands& s) {
@@ -233,48 +287,23 @@ int Certify(SuiteCommands& s) {
               options.shard.index, options.shard.count, options.jobs, ShellJoin(argv).c_str(),
               sha->c_str());
   std::fflush(stdout);
-  auto report = weir::Certify(*suite, options);
-  if (!report.ok()) {
-    std::fprintf(stderr, "weir: harness fault: %s\n", std::string(report.status().message()).c_str());
+  auto result = weir::Certify(*suite, options);
+  if (!result.ok()) {
+    std::fprintf(stderr, "weir: harness fault: %s\n", std::string(result.status().message()).c_str());
     return kHarness;
   }
-  const v1::Certificate cert = MakeCertificate(*report);
-  std::printf("\n%s", SuiteSummaryText(*report).c_str());
+  const SuiteTally& tally = result->tally;
+  const v1::Certificate cert = MakeCertificate(result->head, tally);
+  std::printf("\n%s", SuiteSummaryText(result->head, tally).c_str());
+  const int write_errors = WriteReports(s, *result, cert, first_failures.get(), /*announce=*/true);
 
-  char host[256] = "localhost";
-  ::gethostname(host, sizeof host - 1);
-  char stamp[32];
-  const std::time_t t = std::time(nullptr);
-  std::tm tm{};
-  ::gmtime_r(&t, &tm);
-  std::strftime(stamp, sizeof stamp, "%Y-%m-%dT%H:%M:%S", &tm);
-  int write_errors = 0;
-  auto write = [&](const std::string& path, const std::string& text, const char* what) {
-    if (path.empty()) return;
-    if (absl::Status st = WriteFileAtomically(path, text); !st.ok()) {
-      std::fprintf(stderr, "weir: %s\n", std::string(st.message()).c_str());
-      ++write_errors;
-    } else {
-      std::printf("%-12s %s\n", what, path.c_str());
-    }
-  };
-  write(s.json, SuiteReportJson(*report), "json report");
-  write(s.junit, SuiteJUnitXml(*report, stamp, host), "junit");
-  write(s.certificate, CertificateJson(cert), "certificate");
-  if (!s.html.empty()) write(s.html, SuiteHtml(*report, first_failures.get()), "html report");
-
-  bool harness_faults = false, failed = false;
-  for (const auto& run : report->runs()) {
-    harness_faults |= !run.harness_error().empty();
-    failed |= !run.passed() && run.harness_error().empty();
-  }
   if (stop->load()) {
-    std::printf("INTERRUPTED by signal %d: %d finished run(s) reported; every connector was killed.\n",
-                StopSignal(), report->runs_size());
+    std::printf("INTERRUPTED by signal %d: %llu finished run(s) reported; every connector was killed.\n",
+                StopSignal(), static_cast<unsigned long long>(tally.runs()));
     return kInterrupted;
   }
-  if (write_errors > 0 || harness_faults) return kHarness;
-  if (failed) return kFailed;
+  if (write_errors > 0 || tally.harness_faults() > 0) return kHarness;
+  if (tally.invariant_failures() > 0) return kFailed;
   if (options.shard.count <= 1) {
     std::printf("%s\n", cert.certified() ? "CERTIFIED: every run of the suite passed."
                                          : "NOT CERTIFIED: the suite did not run to completion.");
@@ -315,64 +344,93 @@ int Verify(SuiteCommands& s) {
   return kPassed;
 }
 
+// Each shard's runs go to a run log of their own, sorted, one shard parsed at
+// a time; the logs are then merged in pair order into the merged result's
+// log. So merge holds one shard's parsed report at a time, not every shard's.
 int Merge(SuiteCommands& s) {
-  std::vector<v1::SuiteReport> shards;
-  for (const auto& path : s.reports) {
+  auto harness_fault = [](const absl::Status& st) {
+    std::fprintf(stderr, "weir: harness fault: %s\n", std::string(st.message()).c_str());
+    return kHarness;
+  };
+  v1::SuiteReport first;
+  std::map<std::uint32_t, bool> seen;
+  std::vector<std::unique_ptr<RunLog>> shard_runs;
+  bool complete = true;
+  std::string stopped;
+  for (std::size_t i = 0; i < s.reports.size(); ++i) {
+    const std::string& path = s.reports[i];
     std::string text;
     if (absl::Status st = ReadWholeFile(path, &text); !st.ok()) return Usage(std::string(st.message()));
     auto r = ParseSuiteReportJson(text);
     if (!r.ok()) return Usage(absl::StrCat(path, ": not a suite report: ", r.status().message()));
-    shards.push_back(std::move(*r));
-  }
-  const v1::SuiteReport& first = shards.front();
-  std::map<std::uint32_t, bool> seen;
-  for (std::size_t i = 0; i < shards.size(); ++i) {
-    const auto& r = shards[i];
-    if (r.suite_digest() != first.suite_digest() || r.connector_sha256() != first.connector_sha256() ||
-        r.shard_count() != first.shard_count() || r.pairs_total() != first.pairs_total()) {
-      return Usage(absl::StrCat(s.reports[i], ": belongs to another suite, connector or sharding than ",
-                                s.reports[0]));
+    text.clear();
+    text.shrink_to_fit();
+    if (i == 0) {
+      first = *r;
+      first.clear_runs();
+    } else if (r->suite_digest() != first.suite_digest() || r->connector_sha256() != first.connector_sha256() ||
+               r->shard_count() != first.shard_count() || r->pairs_total() != first.pairs_total()) {
+      return Usage(absl::StrCat(path, ": belongs to another suite, connector or sharding than ", s.reports[0]));
     }
-    if (seen[r.shard_index()]) return Usage(absl::StrCat(s.reports[i], ": shard ", r.shard_index(), " given twice"));
-    seen[r.shard_index()] = true;
-  }
-  v1::SuiteReport merged = first;
-  merged.clear_runs();
-  bool complete = seen.size() == first.shard_count();
-  std::string stopped;
-  std::vector<v1::RunRecord> runs;
-  for (const auto& r : shards) {
-    complete &= r.complete();
-    if (!r.stopped_because().empty()) stopped = r.stopped_because();
-    for (const auto& run : r.runs()) runs.push_back(run);
-  }
-  std::sort(runs.begin(), runs.end(),
-            [](const v1::RunRecord& a, const v1::RunRecord& b) { return a.pair_index() < b.pair_index(); });
-  for (auto& run : runs) *merged.add_runs() = std::move(run);
-  merged.set_shard_index(0);
-  merged.set_shard_count(1);
-  merged.set_complete(complete && static_cast<std::uint64_t>(merged.runs_size()) == merged.pairs_total());
-  merged.set_stopped_because(complete ? "" : (stopped.empty() ? "shards missing" : stopped));
-  Summarize(&merged);
-  const v1::Certificate cert = MakeCertificate(merged);
-  std::printf("%s", SuiteSummaryText(merged).c_str());
-  char stamp[32];
-  const std::time_t t = std::time(nullptr);
-  std::tm tm{};
-  ::gmtime_r(&t, &tm);
-  std::strftime(stamp, sizeof stamp, "%Y-%m-%dT%H:%M:%S", &tm);
-  char host[256] = "localhost";
-  ::gethostname(host, sizeof host - 1);
-  for (const auto& [path, text] : {std::pair{s.json, SuiteReportJson(merged)},
-                                   std::pair{s.junit, SuiteJUnitXml(merged, stamp, host)},
-                                   std::pair{s.certificate, CertificateJson(cert)},
-                                   std::pair{s.html, s.html.empty() ? std::string() : SuiteHtml(merged, nullptr)}}) {
-    if (path.empty()) continue;
-    if (absl::Status st = WriteFileAtomically(path, text); !st.ok()) {
-      std::fprintf(stderr, "weir: %s\n", std::string(st.message()).c_str());
-      return kHarness;
+    if (seen[r->shard_index()]) return Usage(absl::StrCat(path, ": shard ", r->shard_index(), " given twice"));
+    seen[r->shard_index()] = true;
+    complete &= r->complete();
+    if (!r->stopped_because().empty()) stopped = r->stopped_because();
+    auto* runs = r->mutable_runs();
+    std::sort(runs->pointer_begin(), runs->pointer_end(),
+              [](const v1::RunRecord* a, const v1::RunRecord* b) { return a->pair_index() < b->pair_index(); });
+    auto log = RunLog::Create();
+    if (!log.ok()) return harness_fault(log.status());
+    for (const v1::RunRecord& run : *runs) {
+      if (absl::Status st = (*log)->Append(run); !st.ok()) return harness_fault(st);
     }
+    if (absl::Status st = (*log)->Finish(); !st.ok()) return harness_fault(st);
+    shard_runs.push_back(std::move(*log));
   }
+  complete &= seen.size() == first.shard_count();
+
+  SuiteResult merged;
+  auto log = RunLog::Create();
+  if (!log.ok()) return harness_fault(log.status());
+  merged.runs = std::move(*log);
+  struct Cursor {
+    std::unique_ptr<RunReader> reader;
+    v1::RunRecord run;
+    bool more = false;
+  };
+  std::vector<Cursor> cursors(shard_runs.size());
+  auto advance = [](Cursor& c) -> absl::Status {
+    absl::StatusOr<bool> more = c.reader->Next(&c.run);
+    if (!more.ok()) return more.status();
+    c.more = *more;
+    return absl::OkStatus();
+  };
+  for (std::size_t i = 0; i < shard_runs.size(); ++i) {
+    cursors[i].reader = shard_runs[i]->Read();
+    if (absl::Status st = advance(cursors[i]); !st.ok()) return harness_fault(st);
+  }
+  for (;;) {
+    Cursor* lowest = nullptr;
+    for (Cursor& c : cursors) {
+      if (c.more && (lowest == nullptr || c.run.pair_index() < lowest->run.pair_index())) lowest = &c;
+    }
+    if (lowest == nullptr) break;
+    merged.tally.Add(lowest->run);
+    if (absl::Status st = merged.runs->Append(lowest->run); !st.ok()) return harness_fault(st);
+    if (absl::Status st = advance(*lowest); !st.ok()) return harness_fault(st);
+  }
+  if (absl::Status st = merged.runs->Finish(); !st.ok()) return harness_fault(st);
+
+  v1::SuiteReport& head = merged.head;
+  head = first;
+  head.set_shard_index(0);
+  head.set_shard_count(1);
+  head.set_complete(complete && merged.tally.runs() == head.pairs_total());
+  head.set_stopped_because(complete ? "" : (stopped.empty() ? "shards missing" : stopped));
+  *head.mutable_invariants() = merged.tally.invariants();
+  const v1::Certificate cert = MakeCertificate(head, merged.tally);
+  std::printf("%s", SuiteSummaryText(head, merged.tally).c_str());
+  if (WriteReports(s, merged, cert, nullptr, /*announce=*/false) > 0) return kHarness;
   return cert.certified() ? kPassed : kFailed;
 }
 

@@ -135,7 +135,9 @@ absl::StatusOr<v1::SuiteReport> CertifyInProcess(const std::string& suite_path,
   options.connector_argv = {"(in-process)"};
   options.jobs = jobs;
   options.runner = [&factory](const RunSpec& spec) { return RunInProcess(spec, factory); };
-  return Certify(*suite, options);
+  auto result = Certify(*suite, options);
+  if (!result.ok()) return result.status();
+  return LoadReport(*result);
 }
 
 }  // namespace weir

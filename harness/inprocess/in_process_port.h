@@ -56,7 +56,10 @@ class InProcessPort : public ConnectorPort {
 [[nodiscard]] absl::StatusOr<RunOutput> RunInProcess(const RunSpec& spec,
                                                      const InProcessPort::Factory& factory);
 
-// A whole suite in-process, `jobs` runs at a time (each with its own sources).
+// A whole suite in-process, `jobs` runs at a time (each with its own sources),
+// as one report in memory. For a suite of many thousand runs, call Certify()
+// with a runner that calls RunInProcess and write the reports from its run log
+// (bench/certify_memory.cc does), so memory stays flat.
 [[nodiscard]] absl::StatusOr<v1::SuiteReport> CertifyInProcess(const std::string& suite_path,
                                                                const InProcessPort::Factory& factory,
                                                                unsigned jobs = 1);

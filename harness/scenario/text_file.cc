@@ -59,16 +59,32 @@ absl::Status ReadWholeFile(const std::string& path, std::string* out, std::size_
 }
 
 absl::Status WriteFileAtomically(const std::string& path, const std::string& text) {
+  return WriteFileAtomically(path, [&text](TextOut out) {
+    out(text);
+    return absl::OkStatus();
+  });
+}
+
+absl::Status WriteFileAtomically(const std::string& path, absl::FunctionRef<absl::Status(TextOut)> write) {
   const std::string partial = path + ".partial";
   std::FILE* f = std::fopen(partial.c_str(), "wb");
-  bool ok = f != nullptr && std::fwrite(text.data(), 1, text.size(), f) == text.size();
-  if (f != nullptr && std::fclose(f) != 0) ok = false;
-  if (ok) ok = std::rename(partial.c_str(), path.c_str()) == 0;
-  if (!ok) {
-    std::remove(partial.c_str());
-    return absl::UnavailableError(absl::StrCat(path, ": cannot write"));
-  }
-  return absl::OkStatus();
+  if (f == nullptr) return absl::UnavailableError(absl::StrCat(path, ": cannot write: ", std::strerror(errno)));
+  bool failed = false;
+  int error = 0;
+  auto fail = [&failed, &error] {
+    failed = true;
+    error = errno;
+  };
+  const absl::Status produced = write([f, &failed, &fail](std::string_view piece) {
+    if (!failed && std::fwrite(piece.data(), 1, piece.size(), f) != piece.size()) fail();
+  });
+  if (std::fclose(f) != 0 && !failed) fail();
+  if (produced.ok() && !failed && std::rename(partial.c_str(), path.c_str()) != 0) fail();
+  if (produced.ok() && !failed) return absl::OkStatus();
+  std::remove(partial.c_str());
+  if (!produced.ok()) return absl::Status(produced.code(), absl::StrCat(path, ": ", produced.message()));
+  return absl::UnavailableError(
+      absl::StrCat(path, ": cannot write: ", error != 0 ? std::strerror(error) : "short write"));
 }
 
 absl::Status TextFile::Parse(google::protobuf::Message* message) {

@@ -3,6 +3,8 @@
 // Reads weir's input files written in Protobuf text format (scenarios, fault
 // plans, profiles, suites) and reports every problem as
 // "file:line:column: what was expected". Lines and columns are 1-based.
+// Also the whole-file helpers every command uses: read a file, write one
+// atomically (whole, or streamed piece by piece).
 //
 // Example:
 //   TextFile file("s.scenario");
@@ -22,6 +24,7 @@
 #include <google/protobuf/message.h>
 #include <google/protobuf/text_format.h>
 
+#include "absl/functional/function_ref.h"
 #include "absl/status/status.h"
 
 namespace weir {
@@ -33,6 +36,18 @@ namespace weir {
 // Writes "<path>.partial" and renames it into place, so a failed write leaves
 // neither a partial file nor a damaged old one. Errors name the path.
 [[nodiscard]] absl::Status WriteFileAtomically(const std::string& path, const std::string& text);
+
+// Receives an output's text piece by piece.
+using TextOut = absl::FunctionRef<void(std::string_view)>;
+
+// The streaming form, for outputs too large to build as one string: `write`
+// gets a TextOut into "<path>.partial" and returns OK or why it stopped. The
+// partial file is renamed into place only when `write` returned OK and every
+// byte reached the file; otherwise it is removed and an old `path` is left as
+// it was. Error: write's own status (its message after "path: "), or
+// Unavailable("path: cannot write: …").
+[[nodiscard]] absl::Status WriteFileAtomically(const std::string& path,
+                                               absl::FunctionRef<absl::Status(TextOut)> write);
 
 class TextFile {
  public:

@@ -8,6 +8,7 @@
 #include "absl/strings/str_cat.h"
 #include "harness/cli/command_line.h"
 #include "harness/oracle/verdict.h"
+#include "harness/suite/reorder_buffer.h"
 
 namespace weir {
 
@@ -22,67 +23,45 @@ std::string ReplayLine(const std::string& scenario_path, std::uint64_t seed, Tra
   return line;
 }
 
-void Summarize(v1::SuiteReport* report) {
-  report->clear_invariants();
-  for (int i = 0; i < kInvariantCount; ++i) {
-    v1::InvariantSummary* s = report->add_invariants();
-    s->set_invariant(InvariantName(static_cast<Invariant>(i)));
-  }
-  for (const v1::RunRecord& run : report->runs()) {
-    for (v1::InvariantSummary& s : *report->mutable_invariants()) {
-      bool failed = false;
-      for (const auto& name : run.failed_invariants()) failed |= name == s.invariant();
-      if (!failed) {
-        if (run.harness_error().empty()) s.set_runs_passed(s.runs_passed() + 1);
-        continue;
-      }
-      if (s.runs_failed() == 0) {
-        s.set_first_failing_scenario(run.scenario());
-        s.set_first_failing_seed(run.seed());
-        s.set_first_failing_replay(run.replay());
-      }
-      s.set_runs_failed(s.runs_failed() + 1);
-    }
-  }
-}
+absl::StatusOr<SuiteResult> Certify(const LoadedSuite& suite, const CertifyOptions& options) {
+  // Pair k of this shard is pair index + k * count of the suite (scenario-major,
+  // then seed); computed when launched, so nothing is kept per pair.
+  const std::uint64_t seeds = suite.suite.seeds();
+  const std::uint64_t total = suite.pairs();
+  const std::uint64_t mine_total =
+      options.shard.index < total ? (total - options.shard.index + options.shard.count - 1) / options.shard.count : 0;
 
-absl::StatusOr<v1::SuiteReport> Certify(const LoadedSuite& suite, const CertifyOptions& options) {
-  struct Pair {
-    std::uint64_t index;
-    std::size_t scenario;
-    std::uint64_t seed;
-  };
-  std::vector<Pair> pairs;
-  std::uint64_t index = 0;
-  for (std::size_t s = 0; s < suite.scenarios.size(); ++s) {
-    for (std::uint64_t k = 0; k < suite.suite.seeds(); ++k, ++index) {
-      if (index % options.shard.count != options.shard.index) continue;
-      pairs.push_back(Pair{index, s, suite.suite.first_seed() + k});
-    }
-  }
+  auto log = RunLog::Create();
+  if (!log.ok()) return log.status();
+  SuiteResult result;
+  result.runs = std::move(*log);
+  v1::SuiteReport& head = result.head;
+  head.set_suite_name(suite.suite.name());
+  head.set_suite_digest(suite.digest);
+  head.set_weir_version(WeirVersion());
+  for (const auto& a : options.connector_argv) head.add_connector_argv(a);
+  head.set_connector_sha256(options.connector_sha256);
+  head.set_pairs_total(total);
+  head.set_shard_index(options.shard.index);
+  head.set_shard_count(options.shard.count);
 
-  v1::SuiteReport report;
-  report.set_suite_name(suite.suite.name());
-  report.set_suite_digest(suite.digest);
-  report.set_weir_version(WeirVersion());
-  for (const auto& a : options.connector_argv) report.add_connector_argv(a);
-  report.set_connector_sha256(options.connector_sha256);
-  report.set_pairs_total(suite.pairs());
-  report.set_shard_index(options.shard.index);
-  report.set_shard_count(options.shard.count);
-
-  std::vector<std::optional<v1::RunRecord>> results(pairs.size());
   std::mutex mu;
-  std::size_t next = 0;
+  std::uint64_t next = 0;
   std::uint64_t done = 0, failed = 0;
   std::string stopped;
+  ReorderBuffer<v1::RunRecord> order;
+  absl::Status log_status;
+  auto in_order = [&](v1::RunRecord rec) {  // REQUIRES: mu held
+    result.tally.Add(rec);
+    if (log_status.ok()) log_status = result.runs->Append(rec);
+  };
 
   auto worker = [&] {
     for (;;) {
-      std::size_t mine;
+      std::uint64_t mine;
       {
         std::lock_guard<std::mutex> lock(mu);
-        if (!stopped.empty() || next >= pairs.size()) return;
+        if (!stopped.empty() || !log_status.ok() || next >= mine_total) return;
         if (options.stop != nullptr && options.stop->load()) {
           stopped = "interrupted by a signal";
           return;
@@ -93,16 +72,18 @@ absl::StatusOr<v1::SuiteReport> Certify(const LoadedSuite& suite, const CertifyO
         }
         mine = next++;
       }
-      const Pair& p = pairs[mine];
-      const std::string& scenario_path = suite.suite.scenarios(static_cast<int>(p.scenario));
+      const std::uint64_t index = options.shard.index + mine * options.shard.count;
+      const std::size_t scenario = static_cast<std::size_t>(index / seeds);
+      const std::uint64_t seed = suite.suite.first_seed() + index % seeds;
+      const std::string& scenario_path = suite.suite.scenarios(static_cast<int>(scenario));
       RunSpec spec;
-      spec.scenario = suite.scenarios[p.scenario];
+      spec.scenario = suite.scenarios[scenario];
       if (options.profile.has_value()) *spec.scenario.mutable_profile() = *options.profile;
-      spec.scenario_path = suite.scenario_paths[p.scenario];
-      spec.seed = p.seed;
+      spec.scenario_path = suite.scenario_paths[scenario];
+      spec.seed = seed;
       spec.connector_argv = options.connector_argv;
       spec.transport = options.transport;
-      if (options.first_failures != nullptr) spec.trace_path = options.first_failures->PathFor(p.index);
+      if (options.first_failures != nullptr) spec.trace_path = options.first_failures->PathFor(index);
       spec.stop = options.stop;
       const auto start = std::chrono::steady_clock::now();
       auto out = options.runner ? options.runner(spec) : RunOverGrpc(spec);
@@ -112,15 +93,16 @@ absl::StatusOr<v1::SuiteReport> Certify(const LoadedSuite& suite, const CertifyO
         // Abandoned half-way by a signal: not a finished run, so not reported.
         std::lock_guard<std::mutex> lock(mu);
         if (stopped.empty()) stopped = "interrupted by a signal";
+        order.Put(mine, std::nullopt, in_order);
         return;
       }
 
       v1::RunRecord rec;
       rec.set_scenario(scenario_path);
-      rec.set_seed(p.seed);
-      rec.set_pair_index(p.index);
+      rec.set_seed(seed);
+      rec.set_pair_index(index);
       rec.set_wall_seconds(wall);
-      rec.set_replay(ReplayLine(suite.scenario_paths[p.scenario], p.seed, options.transport, "",
+      rec.set_replay(ReplayLine(suite.scenario_paths[scenario], seed, options.transport, "",
                                 options.profile_path, options.connector_argv));
       if (!out.ok()) {
         rec.set_passed(false);
@@ -149,8 +131,8 @@ absl::StatusOr<v1::SuiteReport> Certify(const LoadedSuite& suite, const CertifyO
       std::lock_guard<std::mutex> lock(mu);
       ++done;
       if (!rec.passed()) ++failed;
-      if (options.progress) options.progress({done, pairs.size(), failed}, rec);
-      results[mine] = std::move(rec);
+      if (options.progress) options.progress({done, mine_total, failed}, rec);
+      order.Put(mine, std::move(rec), in_order);
     }
   };
 
@@ -159,12 +141,26 @@ absl::StatusOr<v1::SuiteReport> Certify(const LoadedSuite& suite, const CertifyO
   for (unsigned j = 0; j < jobs; ++j) threads.emplace_back(worker);
   for (auto& t : threads) t.join();
 
-  for (auto& r : results) {
-    if (r.has_value()) *report.add_runs() = std::move(*r);
+  // Every launched run was put (finished or abandoned), so nothing waits.
+  if (log_status.ok()) log_status = result.runs->Finish();
+  if (!log_status.ok()) return log_status;
+  head.set_complete(stopped.empty() && result.tally.runs() == mine_total);
+  head.set_stopped_because(stopped);
+  *head.mutable_invariants() = result.tally.invariants();
+  return result;
+}
+
+absl::StatusOr<v1::SuiteReport> LoadReport(const SuiteResult& result) {
+  v1::SuiteReport report = result.head;
+  report.clear_runs();
+  auto reader = result.runs->Read();
+  for (;;) {
+    v1::RunRecord* run = report.add_runs();
+    absl::StatusOr<bool> more = reader->Next(run);
+    if (!more.ok()) return more.status();
+    if (!*more) break;
   }
-  report.set_complete(stopped.empty() && static_cast<std::size_t>(report.runs_size()) == pairs.size());
-  report.set_stopped_because(stopped);
-  Summarize(&report);
+  report.mutable_runs()->RemoveLast();
   return report;
 }
 

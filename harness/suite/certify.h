@@ -1,12 +1,18 @@
 // File: certify.h
 //
 // Runs a suite: every (scenario, seed) pair of this shard, several at a time,
-// each with its own broker server, connector process and sockets. Produces the
-// SuiteReport (runs in pair order, whatever order they finished in) and the
-// per-invariant summary. Stops launching new runs after `max_failures` failed
-// runs, or when `stop` becomes true (a signal); the report then says why and
-// is marked incomplete. On `stop` the runs in progress are abandoned too
-// (connectors killed and reaped) and left out of the report.
+// each with its own broker server, connector process and sockets. Produces a
+// SuiteResult: the report's head with the per-invariant summary, the tally,
+// and the runs in pair order (whatever order they finished in) in a RunLog on
+// disk. Stops launching new runs after `max_failures` failed runs, or when
+// `stop` becomes true (a signal); the report then says why and is marked
+// incomplete. On `stop` the runs in progress are abandoned too (connectors
+// killed and reaped) and left out of the report.
+//
+// Memory: a finished run's record waits in memory only until every run before
+// it in pair order has finished (with --jobs N, what finished while the oldest
+// unfinished run was still going); then it goes to the RunLog and into the
+// tally. So memory stays flat however many runs the suite has.
 //
 // Sharding: pair i (scenario-major, then seed) belongs to shard i % count.
 //
@@ -17,6 +23,7 @@
 #include <atomic>
 #include <cstdint>
 #include <functional>
+#include <memory>
 #include <optional>
 #include <string>
 #include <vector>
@@ -24,7 +31,9 @@
 #include "absl/status/statusor.h"
 #include "harness/edge/grpc_run.h"
 #include "harness/suite/first_failures.h"
+#include "harness/suite/run_log.h"
 #include "harness/suite/suite_file.h"
+#include "harness/suite/suite_tally.h"
 #include "weir/v1/suite.pb.h"
 
 namespace weir {
@@ -57,13 +66,25 @@ struct CertifyOptions {
   std::function<void(const Progress&, const v1::RunRecord&)> progress;
 };
 
-// Errors are harness faults that prevent any run (none so far); per-run
-// harness faults are recorded in the run's harness_error.
-[[nodiscard]] absl::StatusOr<v1::SuiteReport> Certify(const LoadedSuite& suite,
-                                                      const CertifyOptions& options);
+// A finished suite: the parts of its report (see suite_reports.h).
+struct SuiteResult {
+  // Every SuiteReport field but `runs`; `invariants` summarized from the tally.
+  v1::SuiteReport head;
+  SuiteTally tally;
+  // The runs in pair order; finished (readable). Never null.
+  std::unique_ptr<RunLog> runs;
+};
 
-// Recomputes the per-invariant summary from the runs (used by merge too).
-void Summarize(v1::SuiteReport* report);
+// Errors are harness faults that leave no usable report: the run log could
+// not be created or written (then the runs in progress are finished, no new
+// one is started). Per-run harness faults are recorded in the run's
+// harness_error.
+[[nodiscard]] absl::StatusOr<SuiteResult> Certify(const LoadedSuite& suite, const CertifyOptions& options);
+
+// The whole report in memory: the head plus every run, read back from the
+// log. For small suites and tests; a large suite's reports are written from
+// the log (suite_reports.h). Error: the log could not be read.
+[[nodiscard]] absl::StatusOr<v1::SuiteReport> LoadReport(const SuiteResult& result);
 
 // "weir run --scenario … --seed … --connector '…'" for one pair.
 // plan_path and profile_path are left out when empty.

@@ -35,32 +35,39 @@ absl::Status FromJson(std::string_view text, google::protobuf::Message* m) {
 
 }  // namespace
 
-// The runs are printed one at a time and spliced in: converting the whole
-// report at once costs about ten times the JSON's size in transient memory,
-// which a 10,000-run report would feel.
-std::string SuiteReportJson(const v1::SuiteReport& report) {
+// The head is printed without its runs, and the runs are printed one at a
+// time into the place of its empty list: converting a whole report at once
+// costs about ten times the JSON's size in transient memory.
+absl::Status WriteSuiteReportJson(const v1::SuiteReport& head, RunReader& runs, TextOut out) {
   google::protobuf::FieldMask mask;
   const google::protobuf::Descriptor* d = v1::SuiteReport::descriptor();
   for (int i = 0; i < d->field_count(); ++i) {
     if (d->field(i)->number() != v1::SuiteReport::kRunsFieldNumber) mask.add_paths(d->field(i)->name());
   }
-  v1::SuiteReport head;
-  google::protobuf::util::FieldMaskUtil::MergeMessageTo(report, mask, {}, &head);
-  std::string out = ToJson(head);
+  v1::SuiteReport without_runs;
+  google::protobuf::util::FieldMaskUtil::MergeMessageTo(head, mask, {}, &without_runs);
+  const std::string text = ToJson(without_runs);
   // With primitive fields always printed, the empty list is in the text; no
   // string value can contain it (its quotes would be escaped).
   constexpr std::string_view kEmpty = "\"runs\": []";
-  const std::size_t at = out.find(kEmpty);
-  if (at == std::string::npos || report.runs().empty()) return out;
-  std::string runs = "\"runs\": [";
-  for (int i = 0; i < report.runs_size(); ++i) {
-    std::string one = ToJson(report.runs(i));
+  const std::size_t at = text.find(kEmpty);
+  if (at == std::string::npos) return absl::InternalError("suite report: the JSON printer left out \"runs\"");
+  out(std::string_view(text).substr(0, at));
+  bool any = false;
+  v1::RunRecord run;
+  for (;;) {
+    absl::StatusOr<bool> more = runs.Next(&run);
+    if (!more.ok()) return more.status();
+    if (!*more) break;
+    std::string one = ToJson(run);
     while (!one.empty() && one.back() == '\n') one.pop_back();
-    absl::StrAppend(&runs, i == 0 ? "\n" : ",\n", one);
+    out(any ? ",\n" : "\"runs\": [\n");
+    out(one);
+    any = true;
   }
-  runs += "\n]";
-  out.replace(at, kEmpty.size(), runs);
-  return out;
+  out(any ? std::string_view("\n]") : kEmpty);
+  out(std::string_view(text).substr(at + kEmpty.size()));
+  return absl::OkStatus();
 }
 
 absl::StatusOr<v1::SuiteReport> ParseSuiteReportJson(std::string_view text) {
@@ -69,45 +76,40 @@ absl::StatusOr<v1::SuiteReport> ParseSuiteReportJson(std::string_view text) {
   return r;
 }
 
-std::string SuiteJUnitXml(const v1::SuiteReport& report, const std::string& timestamp,
-                          const std::string& hostname) {
-  std::uint64_t failures = 0, errors = 0;
-  double time = 0;
-  for (const auto& run : report.runs()) {
-    if (!run.harness_error().empty()) {
-      ++errors;
-    } else if (!run.passed()) {
-      ++failures;
-    }
-    time += run.wall_seconds();
-  }
-  const std::string name = report.suite_name().empty() ? "weir" : report.suite_name();
-  std::string out = "<?xml version=\"1.0\" encoding=\"UTF-8\"?>\n";
-  absl::StrAppend(&out, "<testsuite name=\"", EscapeMarkup(name), "\" timestamp=\"", EscapeMarkup(timestamp),
-                  "\" hostname=\"", EscapeMarkup(hostname.empty() ? "localhost" : hostname),
-                  "\" tests=\"", report.runs_size(), "\" failures=\"", failures, "\" errors=\"",
-                  errors, "\" time=\"", absl::StrFormat("%.3f", time), "\">\n");
-  out += "  <properties>\n";
+absl::Status WriteSuiteJUnitXml(const v1::SuiteReport& head, const SuiteTally& tally, RunReader& runs,
+                                const std::string& timestamp, const std::string& hostname, TextOut out) {
+  const std::string name = head.suite_name().empty() ? "weir" : head.suite_name();
+  out("<?xml version=\"1.0\" encoding=\"UTF-8\"?>\n");
+  out(absl::StrCat("<testsuite name=\"", EscapeMarkup(name), "\" timestamp=\"", EscapeMarkup(timestamp),
+                   "\" hostname=\"", EscapeMarkup(hostname.empty() ? "localhost" : hostname), "\" tests=\"",
+                   tally.runs(), "\" failures=\"", tally.invariant_failures(), "\" errors=\"",
+                   tally.harness_faults(), "\" time=\"", absl::StrFormat("%.3f", tally.wall_seconds()), "\">\n"));
+  out("  <properties>\n");
   auto property = [&out](const std::string& k, const std::string& v) {
-    absl::StrAppend(&out, "    <property name=\"", EscapeMarkup(k), "\" value=\"", EscapeMarkup(v), "\"/>\n");
+    out(absl::StrCat("    <property name=\"", EscapeMarkup(k), "\" value=\"", EscapeMarkup(v), "\"/>\n"));
   };
-  property("suite_digest", report.suite_digest());
-  property("weir_version", report.weir_version());
-  property("connector_sha256", report.connector_sha256());
-  property("shard", absl::StrCat(report.shard_index(), "/", report.shard_count()));
-  property("complete", report.complete() ? "true" : "false");
-  out += "  </properties>\n";
-  for (const auto& run : report.runs()) {
-    absl::StrAppend(&out, "  <testcase name=\"", EscapeMarkup(absl::StrCat("seed ", run.seed())),
-                    "\" classname=\"", EscapeMarkup(run.scenario()), "\" time=\"",
-                    absl::StrFormat("%.3f", run.wall_seconds()), "\"");
+  property("suite_digest", head.suite_digest());
+  property("weir_version", head.weir_version());
+  property("connector_sha256", head.connector_sha256());
+  property("shard", absl::StrCat(head.shard_index(), "/", head.shard_count()));
+  property("complete", head.complete() ? "true" : "false");
+  out("  </properties>\n");
+  v1::RunRecord run;
+  for (;;) {
+    absl::StatusOr<bool> more = runs.Next(&run);
+    if (!more.ok()) return more.status();
+    if (!*more) break;
+    std::string one = absl::StrCat("  <testcase name=\"", EscapeMarkup(absl::StrCat("seed ", run.seed())),
+                                   "\" classname=\"", EscapeMarkup(run.scenario()), "\" time=\"",
+                                   absl::StrFormat("%.3f", run.wall_seconds()), "\"");
     if (run.passed()) {
-      out += "/>\n";
+      one += "/>\n";
+      out(one);
       continue;
     }
-    out += ">\n";
+    one += ">\n";
     if (!run.harness_error().empty()) {
-      absl::StrAppend(&out, "    <error type=\"harness-fault\" message=\"", EscapeMarkup(run.harness_error()),
+      absl::StrAppend(&one, "    <error type=\"harness-fault\" message=\"", EscapeMarkup(run.harness_error()),
                       "\">", EscapeMarkup(absl::StrCat(run.harness_error(), "\nreplay: ", run.replay())),
                       "</error>\n");
     } else {
@@ -116,24 +118,23 @@ std::string SuiteJUnitXml(const v1::SuiteReport& report, const std::string& time
         if (!invariants.empty()) invariants += ", ";
         invariants += inv;
       }
-      absl::StrAppend(&out, "    <failure type=\"", EscapeMarkup(invariants), "\" message=\"",
+      absl::StrAppend(&one, "    <failure type=\"", EscapeMarkup(invariants), "\" message=\"",
                       EscapeMarkup(run.first_violation()), "\">",
                       EscapeMarkup(absl::StrCat("failed: ", invariants, "\n", run.first_violation(),
-                                             "\nreplay: ", run.replay())),
+                                                "\nreplay: ", run.replay())),
                       "</failure>\n");
     }
-    out += "  </testcase>\n";
+    one += "  </testcase>\n";
+    out(one);
   }
-  out += "  <system-out></system-out>\n  <system-err></system-err>\n</testsuite>\n";
-  return out;
+  out("  <system-out></system-out>\n  <system-err></system-err>\n</testsuite>\n");
+  return absl::OkStatus();
 }
 
-std::string SuiteSummaryText(const v1::SuiteReport& report) {
-  std::uint64_t failed = 0;
-  for (const auto& run : report.runs()) failed += run.passed() ? 0 : 1;
+std::string SuiteSummaryText(const v1::SuiteReport& head, const SuiteTally& tally) {
   std::string out = absl::StrFormat("%-22s %8s %8s  %s\n", "invariant", "passed", "failed",
                                     "first failing seed");
-  for (const auto& s : report.invariants()) {
+  for (const auto& s : head.invariants()) {
     absl::StrAppend(&out, absl::StrFormat("%-22s %8d %8d  %s\n", s.invariant(), s.runs_passed(),
                                           s.runs_failed(),
                                           s.runs_failed() == 0
@@ -141,54 +142,44 @@ std::string SuiteSummaryText(const v1::SuiteReport& report) {
                                               : absl::StrCat(s.first_failing_scenario(), " seed ",
                                                              s.first_failing_seed())));
   }
-  for (const auto& s : report.invariants()) {
+  for (const auto& s : head.invariants()) {
     if (s.runs_failed() > 0) {
       absl::StrAppend(&out, "\nfirst ", s.invariant(), " failure:\n  replay: ", s.first_failing_replay(),
                       "\n");
     }
   }
-  for (const auto& run : report.runs()) {
-    if (!run.harness_error().empty()) {
-      absl::StrAppend(&out, "\nharness fault in ", run.scenario(), " seed ", run.seed(), ": ",
-                      run.harness_error(), "\n");
-      break;
-    }
+  if (const auto& fault = tally.first_harness_fault(); fault.has_value()) {
+    absl::StrAppend(&out, "\nharness fault in ", fault->scenario, " seed ", fault->seed, ": ", fault->error, "\n");
   }
-  absl::StrAppend(&out, "\n", report.runs_size(), " runs, ", report.runs_size() - static_cast<int>(failed),
-                  " passed, ", failed, " failed", report.complete() ? "" : " (INCOMPLETE: ",
-                  report.complete() ? "" : report.stopped_because(), report.complete() ? "" : ")", "\n");
+  absl::StrAppend(&out, "\n", tally.runs(), " runs, ", tally.passed(), " passed, ", tally.failed(), " failed",
+                  head.complete() ? "" : " (INCOMPLETE: ", head.complete() ? "" : head.stopped_because(),
+                  head.complete() ? "" : ")", "\n");
   return out;
 }
 
-std::string SuiteSummaryHtml(const v1::SuiteReport& report) {
-  std::uint64_t failed = 0;
-  const v1::RunRecord* harness_fault = nullptr;
-  for (const auto& run : report.runs()) {
-    failed += run.passed() ? 0 : 1;
-    if (harness_fault == nullptr && !run.harness_error().empty()) harness_fault = &run;
-  }
-  const v1::Certificate cert = MakeCertificate(report);
+std::string SuiteSummaryHtml(const v1::SuiteReport& head, const SuiteTally& tally) {
+  const v1::Certificate cert = MakeCertificate(head, tally);
   std::string connector;
-  for (const auto& a : report.connector_argv()) absl::StrAppend(&connector, connector.empty() ? "" : " ", a);
+  for (const auto& a : head.connector_argv()) absl::StrAppend(&connector, connector.empty() ? "" : " ", a);
   std::string out = "<section class=\"summary\">\n";
-  absl::StrAppend(&out, "<h2>Suite ", EscapeMarkup(report.suite_name()), " &#8212; ",
-                  report.shard_count() > 1 ? (failed == 0 ? "shard passed" : "shard FAILED")
-                                           : (cert.certified() ? "CERTIFIED" : "NOT CERTIFIED"),
+  absl::StrAppend(&out, "<h2>Suite ", EscapeMarkup(head.suite_name()), " &#8212; ",
+                  head.shard_count() > 1 ? (tally.failed() == 0 ? "shard passed" : "shard FAILED")
+                                         : (cert.certified() ? "CERTIFIED" : "NOT CERTIFIED"),
                   "</h2>\n<table class=\"facts\">\n");
   auto fact = [&out](const char* k, const std::string& v) {
     absl::StrAppend(&out, "<tr><th>", k, "</th><td><code>", EscapeMarkup(v), "</code></td></tr>\n");
   };
-  fact("suite digest", report.suite_digest());
+  fact("suite digest", head.suite_digest());
   fact("connector", connector);
-  fact("connector sha256", report.connector_sha256());
-  fact("weir", report.weir_version());
-  fact("shard", absl::StrCat(report.shard_index(), "/", report.shard_count()));
-  fact("runs", absl::StrCat(report.runs_size(), " of ", report.pairs_total(), " pairs: ",
-                            report.runs_size() - static_cast<int>(failed), " passed, ", failed, " failed",
-                            report.complete() ? "" : absl::StrCat(" (INCOMPLETE: ", report.stopped_because(), ")")));
+  fact("connector sha256", head.connector_sha256());
+  fact("weir", head.weir_version());
+  fact("shard", absl::StrCat(head.shard_index(), "/", head.shard_count()));
+  fact("runs", absl::StrCat(tally.runs(), " of ", head.pairs_total(), " pairs: ", tally.passed(), " passed, ",
+                            tally.failed(), " failed",
+                            head.complete() ? "" : absl::StrCat(" (INCOMPLETE: ", head.stopped_because(), ")")));
   out += "</table>\n<table class=\"invariants\">\n<tr><th>invariant</th><th>runs passed</th><th>runs failed</th>"
          "<th>first failing seed</th><th>replay</th></tr>\n";
-  for (const auto& s : report.invariants()) {
+  for (const auto& s : head.invariants()) {
     const bool bad = s.runs_failed() > 0;
     absl::StrAppend(&out, "<tr><td>", EscapeMarkup(s.invariant()), "</td><td>", s.runs_passed(),
                     "</td><td class=\"", bad ? "failed" : "passed", "\">", s.runs_failed(), "</td><td>",
@@ -199,9 +190,9 @@ std::string SuiteSummaryHtml(const v1::SuiteReport& report) {
                     "</td></tr>\n");
   }
   out += "</table>\n";
-  if (harness_fault != nullptr) {
-    absl::StrAppend(&out, "<p class=\"inv\">Harness fault in ", EscapeMarkup(harness_fault->scenario()), " seed ",
-                    harness_fault->seed(), ": ", EscapeMarkup(harness_fault->harness_error()), "</p>\n");
+  if (const auto& fault = tally.first_harness_fault(); fault.has_value()) {
+    absl::StrAppend(&out, "<p class=\"inv\">Harness fault in ", EscapeMarkup(fault->scenario), " seed ",
+                    fault->seed, ": ", EscapeMarkup(fault->error), "</p>\n");
   }
   out += "</section>\n";
   return out;
@@ -222,24 +213,18 @@ std::string CertificateSeal(const v1::Certificate& certificate) {
   return h.HexDigest();
 }
 
-v1::Certificate MakeCertificate(const v1::SuiteReport& report) {
+v1::Certificate MakeCertificate(const v1::SuiteReport& head, const SuiteTally& tally) {
   v1::Certificate c;
-  c.set_suite_name(report.suite_name());
-  c.set_suite_digest(report.suite_digest());
-  c.set_weir_version(report.weir_version());
-  *c.mutable_connector_argv() = report.connector_argv();
-  c.set_connector_sha256(report.connector_sha256());
-  std::uint64_t passed = 0;
-  std::string verdicts;
-  for (const auto& run : report.runs()) {
-    passed += run.passed() ? 1 : 0;
-    verdicts.push_back(run.passed() ? 'P' : 'F');
-  }
-  c.set_runs(static_cast<std::uint64_t>(report.runs_size()));
-  c.set_runs_passed(passed);
-  c.set_runs_failed(c.runs() - passed);
-  c.set_verdicts(verdicts);
-  c.set_certified(report.complete() && report.shard_count() <= 1 && c.runs() == report.pairs_total() &&
+  c.set_suite_name(head.suite_name());
+  c.set_suite_digest(head.suite_digest());
+  c.set_weir_version(head.weir_version());
+  *c.mutable_connector_argv() = head.connector_argv();
+  c.set_connector_sha256(head.connector_sha256());
+  c.set_runs(tally.runs());
+  c.set_runs_passed(tally.passed());
+  c.set_runs_failed(tally.failed());
+  c.set_verdicts(tally.verdicts());
+  c.set_certified(head.complete() && head.shard_count() <= 1 && c.runs() == head.pairs_total() &&
                   c.runs_failed() == 0);
   c.set_seal(CertificateSeal(c));
   return c;
@@ -251,6 +236,35 @@ absl::StatusOr<v1::Certificate> ParseCertificateJson(std::string_view text) {
   v1::Certificate c;
   if (absl::Status st = FromJson(text, &c); !st.ok()) return st;
   return c;
+}
+
+std::string SuiteReportJson(const v1::SuiteReport& report) {
+  std::string out;
+  auto runs = ReadRunsInMemory(report.runs());
+  // Runs in memory always read, and the printer always prints the empty list.
+  (void)WriteSuiteReportJson(report, *runs, [&out](std::string_view piece) { out.append(piece); });
+  return out;
+}
+
+std::string SuiteJUnitXml(const v1::SuiteReport& report, const std::string& timestamp,
+                          const std::string& hostname) {
+  std::string out;
+  auto runs = ReadRunsInMemory(report.runs());
+  (void)WriteSuiteJUnitXml(report, SuiteTally::Of(report), *runs, timestamp, hostname,
+                           [&out](std::string_view piece) { out.append(piece); });
+  return out;
+}
+
+std::string SuiteSummaryText(const v1::SuiteReport& report) {
+  return SuiteSummaryText(report, SuiteTally::Of(report));
+}
+
+std::string SuiteSummaryHtml(const v1::SuiteReport& report) {
+  return SuiteSummaryHtml(report, SuiteTally::Of(report));
+}
+
+v1::Certificate MakeCertificate(const v1::SuiteReport& report) {
+  return MakeCertificate(report, SuiteTally::Of(report));
 }
 
 }  // namespace weir

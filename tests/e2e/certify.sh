@@ -11,9 +11,22 @@ trap 'rm -rf "$WORK"' EXIT
 source "$(dirname "${BASH_SOURCE[0]}")/lib.sh"
 certify() { "$WEIR" certify --suite "$SUITE" --progress lines --jobs 2 "$@"; }
 
+# Certify keeps its runs in a run log under $TMPDIR (unlinked at once) and the
+# first-failure traces in a private directory there: nothing may be left.
+SPILL=$WORK/spill
+mkdir -p "$SPILL"
+nothing_left() { test -z "$(ls -A "$SPILL")"; }
+
 # 1. The reference connector is certified; the certificate verifies.
-certify --connector "$REF" --json "$WORK/ref.json" --junit "$WORK/ref.xml" --certificate "$WORK/ref.cert" >"$WORK/ref.out" 2>&1
+TMPDIR=$SPILL certify --connector "$REF" --json "$WORK/ref.json" --junit "$WORK/ref.xml" --certificate "$WORK/ref.cert" >"$WORK/ref.out" 2>&1
 rc=$?
+check "certify leaves nothing in \$TMPDIR" nothing_left
+# With --jobs 2 runs finish out of order; the report lists them in pair order.
+check "the JSON report lists every pair once, in pair order" /usr/bin/python3 -c '
+import json, sys
+r = json.load(open(sys.argv[1]))
+idx = [int(run["pair_index"]) for run in r["runs"]]
+sys.exit(0 if idx == list(range(int(r["pairs_total"]))) and len(idx) > 2 else 1)' "$WORK/ref.json"
 check "reference certify exits 0 (got $rc)" test $rc -eq 0
 check "reference certify says CERTIFIED" grep -q '^CERTIFIED' "$WORK/ref.out"
 check "summary lists every invariant" grep -q '^ack-before-commit' "$WORK/ref.out"
@@ -69,8 +82,12 @@ check "bazel: the shard status file was touched" test -e "$WORK/test-status"
 EXTRA_ENV="JOB_COMPLETION_INDEX=@I@" EXTRA_ARGS="--shard-count 3" shard_run indexed
 EXTRA_ENV="WEIR_UNUSED=@I@" EXTRA_ARGS="" 
 for i in 0 1 2; do "$WEIR" certify --suite "$SUITE" --progress none --jobs 2 --connector "$REF" --shard "$i/3" --json "$WORK/flag-$i.json" >/dev/null 2>&1; done
-"$WEIR" merge "$WORK/flag-0.json" "$WORK/flag-1.json" "$WORK/flag-2.json" --certificate "$WORK/flag.cert" >/dev/null 2>&1
+TMPDIR=$SPILL "$WEIR" merge "$WORK/flag-0.json" "$WORK/flag-1.json" "$WORK/flag-2.json" --certificate "$WORK/flag.cert" \
+  --json "$WORK/flag.json" >/dev/null 2>&1
 check "--shard: merged certificate equals the unsharded one" cmp -s "$WORK/flag.cert" "$WORK/ref.cert"
+check "merge leaves nothing in \$TMPDIR" nothing_left
+check "--shard: merged JSON report equals the unsharded one but for wall times" \
+  cmp -s <(grep -v '"wall_seconds"' "$WORK/flag.json") <(grep -v '"wall_seconds"' "$WORK/ref.json")
 "$WEIR" merge "$WORK/flag-0.json" "$WORK/flag-1.json" --certificate "$WORK/partial.cert" >/dev/null 2>&1
 check "merging 2 of 3 shards is not certified (exit 1)" test $? -eq 1
 
@@ -87,9 +104,10 @@ check "bad suite error names file:line" grep -q 'bad.suite:' "$WORK/bad.out"
 #    and it opens in headless Chromium without console messages.
 HOSTILE="$WORK/mut<script>alert(1)<!--&\"x\""
 cp "$MUTANT" "$HOSTILE"
-"$WEIR" certify --suite "$SUITE" --progress none --jobs 2 --json "$WORK/h.json" --html "$WORK/h.html" \
+TMPDIR=$SPILL "$WEIR" certify --suite "$SUITE" --progress none --jobs 2 --json "$WORK/h.json" --html "$WORK/h.html" \
   -- "$HOSTILE" >"$WORK/h.out" 2>&1
 check "hostile-named mutant certify --html exits 1" test $? -eq 1
+check "certify --html leaves nothing in \$TMPDIR" nothing_left
 check "the HTML report is well-formed" xmllint --noout "$WORK/h.html"
 check "no script element in the report" test "$(xmllint --xpath "count(//*[local-name()='script'])" "$WORK/h.html" 2>/dev/null)" = 0
 check "the connector path is shown escaped" grep -q 'mut&lt;script&gt;alert(1)&lt;!--&amp;&quot;x&quot;' "$WORK/h.html"

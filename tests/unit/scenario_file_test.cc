@@ -1,8 +1,14 @@
 #include "harness/scenario/scenario_file.h"
 
 #include <gtest/gtest.h>
+#include <unistd.h>
+
+#include <filesystem>
+#include <fstream>
+#include <sstream>
 
 #include "harness/cli/command_line.h"
+#include "harness/scenario/text_file.h"
 
 namespace weir {
 namespace {
@@ -72,6 +78,69 @@ TEST(CommandLine, QuoteRoundTrips) {
   auto back = SplitCommandLine(ShellJoin(argv));
   ASSERT_TRUE(back.ok());
   EXPECT_EQ(*back, argv);
+}
+
+// The streaming form of WriteFileAtomically: the file appears whole or not
+// at all, and an old file survives a failed write.
+class WriteFileAtomicallyTest : public ::testing::Test {
+ protected:
+  void SetUp() override {
+    dir_ = std::filesystem::temp_directory_path() / ("weir-atomic-" + std::to_string(::getpid()));
+    std::filesystem::create_directories(dir_);
+    path_ = (dir_ / "report.xml").string();
+  }
+  void TearDown() override { std::filesystem::remove_all(dir_); }
+  std::string Contents() const {
+    std::ifstream in(path_, std::ios::binary);
+    std::stringstream text;
+    text << in.rdbuf();
+    return text.str();
+  }
+  std::filesystem::path dir_;
+  std::string path_;
+};
+
+TEST_F(WriteFileAtomicallyTest, StreamedPiecesAllReachTheFile) {
+  std::string want;
+  ASSERT_TRUE(WriteFileAtomically(path_, [&](TextOut out) {
+                for (int i = 0; i < 20000; ++i) {
+                  const std::string piece = "<testcase name=\"seed " + std::to_string(i) + "\"/>\n";
+                  want += piece;
+                  out(piece);
+                }
+                return absl::OkStatus();
+              }).ok());
+  EXPECT_EQ(Contents(), want);
+  EXPECT_FALSE(std::filesystem::exists(path_ + ".partial"));
+}
+
+TEST_F(WriteFileAtomicallyTest, AFailedWriterLeavesNoPartialFileAndTheOldFileAsItWas) {
+  ASSERT_TRUE(WriteFileAtomically(path_, std::string("old\n")).ok());
+  const absl::Status st = WriteFileAtomically(path_, [](TextOut out) {
+    out("<testsuite>\n");
+    return absl::DataLossError("run log: run 2 cannot be read");
+  });
+  EXPECT_EQ(st.code(), absl::StatusCode::kDataLoss);
+  EXPECT_EQ(st.message(), path_ + ": run log: run 2 cannot be read");
+  EXPECT_EQ(Contents(), "old\n");
+  EXPECT_FALSE(std::filesystem::exists(path_ + ".partial"));
+}
+
+TEST_F(WriteFileAtomicallyTest, AFullDiskIsAnErrorNamingThePathAndLeavesNothing) {
+  if (!std::filesystem::exists("/dev/full")) GTEST_SKIP() << "no /dev/full";
+  // /dev/full accepts the open and fails every write with ENOSPC (Linux
+  // null(4) man page); the rename over it is never attempted.
+  const std::filesystem::path link = dir_ / "full.json.partial";
+  std::filesystem::create_symlink("/dev/full", link);
+  const std::string target = (dir_ / "full.json").string();
+  const absl::Status st = WriteFileAtomically(target, [](TextOut out) {
+    for (int i = 0; i < 1000; ++i) out(std::string(1024, 'x'));
+    return absl::OkStatus();
+  });
+  EXPECT_EQ(st.code(), absl::StatusCode::kUnavailable);
+  EXPECT_EQ(st.message(), target + ": cannot write: No space left on device");
+  EXPECT_FALSE(std::filesystem::exists(target));
+  EXPECT_FALSE(std::filesystem::exists(link));  // the partial name is removed (here: the link)
 }
 
 }  // namespace

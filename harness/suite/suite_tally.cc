@@ -1,0 +1,48 @@
+#include "harness/suite/suite_tally.h"
+
+#include "harness/oracle/verdict.h"
+
+namespace weir {
+
+SuiteTally::SuiteTally() {
+  for (int i = 0; i < kInvariantCount; ++i) {
+    invariants_.Add()->set_invariant(InvariantName(static_cast<Invariant>(i)));
+  }
+}
+
+SuiteTally SuiteTally::Of(const v1::SuiteReport& report) {
+  SuiteTally tally;
+  for (const v1::RunRecord& run : report.runs()) tally.Add(run);
+  return tally;
+}
+
+void SuiteTally::Add(const v1::RunRecord& run) {
+  ++runs_;
+  passed_ += run.passed() ? 1 : 0;
+  verdicts_.push_back(run.passed() ? 'P' : 'F');
+  wall_seconds_ += run.wall_seconds();
+  if (!run.harness_error().empty()) {
+    ++harness_faults_;
+    if (!first_harness_fault_.has_value()) {
+      first_harness_fault_ = HarnessFault{run.scenario(), run.seed(), run.harness_error()};
+    }
+  } else if (!run.passed()) {
+    ++invariant_failures_;
+  }
+  for (v1::InvariantSummary& s : invariants_) {
+    bool failed = false;
+    for (const auto& name : run.failed_invariants()) failed |= name == s.invariant();
+    if (!failed) {
+      if (run.harness_error().empty()) s.set_runs_passed(s.runs_passed() + 1);
+      continue;
+    }
+    if (s.runs_failed() == 0) {
+      s.set_first_failing_scenario(run.scenario());
+      s.set_first_failing_seed(run.seed());
+      s.set_first_failing_replay(run.replay());
+    }
+    s.set_runs_failed(s.runs_failed() + 1);
+  }
+}
+
+}  // namespace weir

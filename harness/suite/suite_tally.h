@@ -1,0 +1,71 @@
+// File: suite_tally.h
+//
+// What the reports need to know about a suite's runs without reading them:
+// per invariant, runs passed and failed and the first failing run (the
+// InvariantSummary rows of the report), the counts JUnit's <testsuite> and
+// the summaries print, the sum of wall times, the first harness fault, and
+// the verdict string the certificate carries ("P" or "F" per run).
+//
+// Invariants: fed in pair order, "first" means first in pair order, and every
+// figure equals what a pass over the whole report's runs gives (the wall-time
+// sum is added in the same order, so it prints the same digits). Memory is
+// constant but for the verdict string: one byte per run (10 kB for 10,000
+// runs), kept because the certificate's seal covers it.
+//
+// Example:
+//   SuiteTally tally;
+//   for (const auto& run : report.runs()) tally.Add(run);
+//   *head.mutable_invariants() = tally.invariants();
+//
+// Thread safety: none; one thread at a time.
+#pragma once
+
+#include <cstdint>
+#include <optional>
+#include <string>
+
+#include "weir/v1/suite.pb.h"
+
+namespace weir {
+
+class SuiteTally {
+ public:
+  // One summary row per invariant, in table order, all zero.
+  SuiteTally();
+  // The tally of every run of `report`, in the order they are listed.
+  static SuiteTally Of(const v1::SuiteReport& report);
+
+  // REQUIRES: runs come in pair order.
+  void Add(const v1::RunRecord& run);
+
+  std::uint64_t runs() const { return runs_; }
+  std::uint64_t passed() const { return passed_; }
+  std::uint64_t failed() const { return runs_ - passed_; }
+  // Runs weir could not run (harness_error set).
+  std::uint64_t harness_faults() const { return harness_faults_; }
+  // Runs that did not pass and have no harness fault: an invariant failed.
+  std::uint64_t invariant_failures() const { return invariant_failures_; }
+  double wall_seconds() const { return wall_seconds_; }
+  const std::string& verdicts() const { return verdicts_; }
+
+  struct HarnessFault {
+    std::string scenario;
+    std::uint64_t seed = 0;
+    std::string error;
+  };
+  const std::optional<HarnessFault>& first_harness_fault() const { return first_harness_fault_; }
+
+  const google::protobuf::RepeatedPtrField<v1::InvariantSummary>& invariants() const { return invariants_; }
+
+ private:
+  std::uint64_t runs_ = 0;
+  std::uint64_t passed_ = 0;
+  std::uint64_t harness_faults_ = 0;
+  std::uint64_t invariant_failures_ = 0;
+  double wall_seconds_ = 0;
+  std::string verdicts_;
+  std::optional<HarnessFault> first_harness_fault_;
+  google::protobuf::RepeatedPtrField<v1::InvariantSummary> invariants_;
+};
+
+}  // namespace weir
