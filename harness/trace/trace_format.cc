@@ -2,6 +2,7 @@
 
 #include <openssl/evp.h>
 
+#include <charconv>
 #include <cstdio>
 #include <string_view>
 #include <vector>
@@ -40,9 +41,18 @@ bool PlainJsonChar(unsigned char c) {
   }
 }
 
-void AppendQuotedDecimal(std::string* out, std::string_view digits) {
+template <typename Int>
+void AppendDecimal(std::string* out, Int v) {
+  char buf[24];
+  const auto end = std::to_chars(buf, buf + sizeof buf, v).ptr;
+  out->append(buf, static_cast<std::size_t>(end - buf));
+}
+
+// 64-bit integers are strings in Protobuf's JSON mapping.
+template <typename Int>
+void AppendQuotedDecimal(std::string* out, Int v) {
   out->push_back('"');
-  out->append(digits);
+  AppendDecimal(out, v);
   out->push_back('"');
 }
 
@@ -88,30 +98,25 @@ bool AppendMessage(const Message& m, std::string* out) {
 bool AppendValue(const Message& m, const Reflection& r, const FieldDescriptor& f, int index,
                  std::string* out) {
   const bool rep = index >= 0;
-  char buf[32];
   switch (f.cpp_type()) {
     case FieldDescriptor::CPPTYPE_INT32: {
       const std::int32_t v = rep ? r.GetRepeatedInt32(m, &f, index) : r.GetInt32(m, &f);
-      out->append(buf, static_cast<std::size_t>(std::snprintf(buf, sizeof buf, "%d", v)));
+      AppendDecimal(out, v);
       return true;
     }
     case FieldDescriptor::CPPTYPE_UINT32: {
       const std::uint32_t v = rep ? r.GetRepeatedUInt32(m, &f, index) : r.GetUInt32(m, &f);
-      out->append(buf, static_cast<std::size_t>(std::snprintf(buf, sizeof buf, "%u", v)));
+      AppendDecimal(out, v);
       return true;
     }
     case FieldDescriptor::CPPTYPE_INT64: {
       const std::int64_t v = rep ? r.GetRepeatedInt64(m, &f, index) : r.GetInt64(m, &f);
-      AppendQuotedDecimal(out, std::string_view(buf, static_cast<std::size_t>(std::snprintf(
-                                                         buf, sizeof buf, "%lld",
-                                                         static_cast<long long>(v)))));
+      AppendQuotedDecimal(out, v);
       return true;
     }
     case FieldDescriptor::CPPTYPE_UINT64: {
       const std::uint64_t v = rep ? r.GetRepeatedUInt64(m, &f, index) : r.GetUInt64(m, &f);
-      AppendQuotedDecimal(out, std::string_view(buf, static_cast<std::size_t>(std::snprintf(
-                                                         buf, sizeof buf, "%llu",
-                                                         static_cast<unsigned long long>(v)))));
+      AppendQuotedDecimal(out, v);
       return true;
     }
     case FieldDescriptor::CPPTYPE_BOOL: {
