@@ -59,7 +59,10 @@ class TraceReader {
   explicit TraceReader(std::string path) : path_(std::move(path)) {}
   // Reads one line into text_; false at end of file.
   bool ReadLine();
-  absl::Status Error(const std::string& what) const;
+  // "path:line[:column]: what"; column 0 leaves it out.
+  absl::Status Error(const std::string& what, std::size_t column = 0) const;
+  // A line that does not decode, with the column the decoder points at.
+  absl::Status DecodeError(const absl::Status& status, const char* expected) const;
 
   std::string path_;
   std::FILE* file_ = nullptr;

@@ -78,9 +78,9 @@ bad suite-truncated "$(loc truncated.suite '')" -- "${CERTIFY[@]}" --suite "$BAD
 
 # Trace files (replay and explain).
 bad trace-empty "$BAD/empty.trace:1: empty file; expected a trace header" -- "$WEIR" explain "$BAD/empty.trace"
-bad trace-truncated "$BAD/truncated.trace:1: .*expected a trace header" -- "$WEIR" explain "$BAD/truncated.trace"
-bad trace-wrong-type "$BAD/wrong_type.trace:1: .*expected a trace header" -- "$WEIR" replay "$BAD/wrong_type.trace"
-bad trace-garbage "$BAD/garbage.trace:1: .*expected a trace header" -- "$WEIR" explain "$BAD/garbage.trace"
+bad trace-truncated "$BAD/truncated.trace:1:[0-9]+: .*expected a trace header" -- "$WEIR" explain "$BAD/truncated.trace"
+bad trace-wrong-type "$BAD/wrong_type.trace:1:[0-9]+: .*expected a trace header" -- "$WEIR" replay "$BAD/wrong_type.trace"
+bad trace-garbage "$BAD/garbage.trace:1:[0-9]+: .*expected a trace header" -- "$WEIR" explain "$BAD/garbage.trace"
 bad trace-missing "$WORK/nope.trace: cannot open" -- "$WEIR" explain "$WORK/nope.trace"
 head -c 50000000 /dev/zero | tr '\0' 'x' >"$WORK/huge.trace"
 bad trace-huge "$WORK/huge.trace:1: line longer than" -- "$WEIR" explain "$WORK/huge.trace"
@@ -88,6 +88,19 @@ bad trace-huge "$WORK/huge.trace:1: line longer than" -- "$WEIR" explain "$WORK/
 "$WEIR" run --scenario "$GOOD" --seed 1 --connector "$REF" --trace "$WORK/good.jsonl" >/dev/null 2>&1
 head -c $(($(wc -c <"$WORK/good.jsonl") - 40)) "$WORK/good.jsonl" >"$WORK/cut.trace"
 bad trace-cut "$WORK/cut.trace:[0-9]+: truncated" -- "$WEIR" explain "$WORK/cut.trace"
+# A damaged event line: file:line:column of the damage (the column counted
+# by hand in each line below, 1-based, bytes).
+damaged() {  # damaged NAME LINE: the good trace with LINE as its 4th line
+  { head -n 3 "$WORK/good.jsonl"; printf '%s\n' "$2"; tail -n +5 "$WORK/good.jsonl"; } >"$WORK/$1.trace"
+}
+damaged bad-token '{"event":{"seq":"2","kind":oops}}'
+bad trace-bad-token "bad-token.trace:4:28: .*Unexpected token" -- "$WEIR" explain "$WORK/bad-token.trace"
+damaged unknown-field '{"event":{"seq":"2","published":{"message_id":"1","nosuch":2}}}'
+bad trace-unknown-field "unknown-field.trace:4:51: .*nosuch: Cannot find field" -- "$WEIR" explain "$WORK/unknown-field.trace"
+damaged wrong-value '{"event":{"seq":"2","published":{"message_id":"abc"}}}'
+bad trace-wrong-value "wrong-value.trace:4:34: .*invalid value" -- "$WEIR" explain "$WORK/wrong-value.trace"
+damaged unclosed '{"event":{"seq":"2","published":{"message_id":"1"}}'
+bad trace-unclosed "unclosed.trace:4:52: .*end of string" -- "$WEIR" replay "$WORK/unclosed.trace"
 rm -f "$WORK/good.jsonl"
 
 # Flags.

@@ -112,7 +112,7 @@ check_bad() {  # FILE LINE TEXT
 check_bad empty.jsonl 1 "empty file"
 check_bad truncated.jsonl "[0-9]*" "truncated"
 check_bad no_footer.jsonl 51 "expected more events or the trace footer"
-check_bad not_json.jsonl 1 "not a trace line"
+check_bad not_json.jsonl 1:1 "not a trace line"
 check_bad no_header.jsonl 1 "expected a trace header"
 check_bad bad_digest.jsonl "[0-9]*" "does not match the event lines"
 echo "PASSED: replay and explain"
