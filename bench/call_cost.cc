@@ -73,7 +73,11 @@ double Percentile(std::vector<double> v, double p) {
 class EchoService final : public bench::Echo::Service {
   grpc::Status Echo(grpc::ServerContext*, const bench::EchoMessage* request,
                     bench::EchoMessage* response) override {
-    response->set_payload(request->payload());
+    if (request->answer_bytes() == 0) {
+      response->set_payload(request->payload());
+    } else {
+      response->set_payload(std::string(request->answer_bytes(), 'y'));
+    }
     return grpc::Status::OK;
   }
 };
@@ -122,8 +126,10 @@ Listen ListenAddress(Transport transport, const char* name) {
 
 const char* Name(Transport t) { return t == Transport::kTcp ? "tcp" : "unix"; }
 
-// Mean microseconds per round trip.
-double MeasureEcho(const std::string& self, Transport transport, int calls) {
+// Mean microseconds per round trip. request_bytes / answer_bytes: the payload
+// sent and the payload answered (answer_bytes 0: the request's, echoed).
+double MeasureEcho(const std::string& self, Transport transport, int calls,
+                   std::size_t request_bytes = 100, std::size_t answer_bytes = 0) {
   Listen listen = ListenAddress(transport, "echo");
   ChildProcess::Options spawn;
   spawn.argv = {self, "--echo-server"};
@@ -140,7 +146,9 @@ double MeasureEcho(const std::string& self, Transport transport, int calls) {
   }
   auto stub = bench::Echo::NewStub(channel);
   bench::EchoMessage request;
-  request.set_payload(std::string(100, 'x'));
+  request.set_payload(std::string(request_bytes, 'x'));
+  request.set_answer_bytes(static_cast<std::uint32_t>(answer_bytes));
+  const std::size_t expect = answer_bytes == 0 ? request_bytes : answer_bytes;
   std::vector<double> us;
   us.reserve(static_cast<std::size_t>(calls));
   const int warm_up = std::max(1, calls / 20);
@@ -153,44 +161,56 @@ double MeasureEcho(const std::string& self, Transport transport, int calls) {
     bench::EchoMessage response;
     const auto t0 = Clock::now();
     const grpc::Status status = stub->Echo(&context, request, &response);
-    if (!status.ok() || response.payload().size() != 100) Fail("echo call failed: " + status.error_message());
+    if (!status.ok() || response.payload().size() != expect) Fail("echo call failed: " + status.error_message());
     if (i >= warm_up) us.push_back(Seconds(Clock::now() - t0) * 1e6);
   }
   const double wall = Seconds(Clock::now() - measured_from);
   const double mean = wall * 1e6 / calls;
-  std::printf("echo %-4s  %d calls, one outstanding: mean %.1f us, p50 %.1f us, p99 %.1f us = %.0f round trips/s\n",
-              Name(transport), calls, mean, Median(us), Percentile(us, 0.99), calls / wall);
+  std::printf("echo %-4s  %d calls, one outstanding, %zu B sent, %zu B answered: mean %.1f us, p50 %.1f us, "
+              "p99 %.1f us = %.0f round trips/s\n",
+              Name(transport), calls, request_bytes, expect, mean, Median(us), Percentile(us, 0.99),
+              calls / wall);
   (*child)->Kill();
   return mean;
 }
 
 // --- 2. calls through weir ---------------------------------------------------
 
+// Protobuf bytes sent and answered over all counted calls.
+struct CallBytes {
+  std::uint64_t sent = 0;
+  std::uint64_t answered = 0;
+  void Add(const google::protobuf::Message& request, const google::protobuf::Message& answer) {
+    sent += request.ByteSizeLong();
+    answered += answer.ByteSizeLong();
+  }
+};
+
 class CountingBroker : public BrokerEndpoint {
  public:
-  CountingBroker(BrokerEndpoint& inner, std::uint64_t& calls) : inner_(inner), calls_(calls) {}
-  CallStatus Pull(const v1::PullRequest& rq, v1::PullResponse* rs) override {
-    ++calls_;
-    return inner_.Pull(rq, rs);
-  }
-  CallStatus Ack(const v1::AckRequest& rq, v1::AckResponse* rs) override {
-    ++calls_;
-    return inner_.Ack(rq, rs);
-  }
-  CallStatus Nack(const v1::NackRequest& rq, v1::NackResponse* rs) override {
-    ++calls_;
-    return inner_.Nack(rq, rs);
-  }
+  CountingBroker(BrokerEndpoint& inner, std::uint64_t& calls, CallBytes& bytes)
+      : inner_(inner), calls_(calls), bytes_(bytes) {}
+  CallStatus Pull(const v1::PullRequest& rq, v1::PullResponse* rs) override { return Count(rq, rs, &BrokerEndpoint::Pull); }
+  CallStatus Ack(const v1::AckRequest& rq, v1::AckResponse* rs) override { return Count(rq, rs, &BrokerEndpoint::Ack); }
+  CallStatus Nack(const v1::NackRequest& rq, v1::NackResponse* rs) override { return Count(rq, rs, &BrokerEndpoint::Nack); }
   CallStatus ExtendLease(const v1::ExtendLeaseRequest& rq, v1::ExtendLeaseResponse* rs) override {
-    ++calls_;
-    return inner_.ExtendLease(rq, rs);
+    return Count(rq, rs, &BrokerEndpoint::ExtendLease);
   }
   void OnStrayCall(const std::string& method) override { inner_.OnStrayCall(method); }
   bool CrashRequested() const override { return inner_.CrashRequested(); }
 
  private:
+  template <typename Rq, typename Rs>
+  CallStatus Count(const Rq& rq, Rs* rs, CallStatus (BrokerEndpoint::*method)(const Rq&, Rs*)) {
+    ++calls_;
+    CallStatus status = (inner_.*method)(rq, rs);
+    bytes_.Add(rq, *rs);
+    return status;
+  }
+
   BrokerEndpoint& inner_;
   std::uint64_t& calls_;
+  CallBytes& bytes_;
 };
 
 // Counts connector and broker calls and the wall time spent starting and
@@ -206,26 +226,34 @@ class CountingPort : public ConnectorPort {
   }
   ConnectorFailure Open(const v1::OpenRequest& rq, v1::OpenResponse* rs, BrokerEndpoint& b) override {
     ++connector_calls;
-    CountingBroker counting(b, broker_calls);
-    return inner_.Open(rq, rs, counting);
+    CountingBroker counting(b, broker_calls, bytes);
+    ConnectorFailure f = inner_.Open(rq, rs, counting);
+    bytes.Add(rq, *rs);
+    return f;
   }
   ConnectorFailure Advance(const v1::AdvanceRequest& rq, v1::AdvanceResponse* rs,
                            BrokerEndpoint& b) override {
     ++connector_calls;
-    CountingBroker counting(b, broker_calls);
-    return inner_.Advance(rq, rs, counting);
+    CountingBroker counting(b, broker_calls, bytes);
+    ConnectorFailure f = inner_.Advance(rq, rs, counting);
+    bytes.Add(rq, *rs);
+    return f;
   }
   ConnectorFailure Checkpoint(const v1::CheckpointRequest& rq, v1::CheckpointResponse* rs,
                               BrokerEndpoint& b) override {
     ++connector_calls;
-    CountingBroker counting(b, broker_calls);
-    return inner_.Checkpoint(rq, rs, counting);
+    CountingBroker counting(b, broker_calls, bytes);
+    ConnectorFailure f = inner_.Checkpoint(rq, rs, counting);
+    bytes.Add(rq, *rs);
+    return f;
   }
   ConnectorFailure Committed(const v1::CommittedRequest& rq, v1::CommittedResponse* rs,
                              BrokerEndpoint& b) override {
     ++connector_calls;
-    CountingBroker counting(b, broker_calls);
-    return inner_.Committed(rq, rs, counting);
+    CountingBroker counting(b, broker_calls, bytes);
+    ConnectorFailure f = inner_.Committed(rq, rs, counting);
+    bytes.Add(rq, *rs);
+    return f;
   }
   void Kill() override {
     const auto t0 = Clock::now();
@@ -236,6 +264,7 @@ class CountingPort : public ConnectorPort {
 
   std::uint64_t connector_calls = 0;
   std::uint64_t broker_calls = 0;
+  CallBytes bytes;
 
  private:
   ConnectorPort& inner_;
@@ -245,6 +274,8 @@ class CountingPort : public ConnectorPort {
 struct WeirFigures {
   double per_call_us = 0;
   double steps_per_s = 0;
+  std::size_t mean_sent_bytes = 0;      // Protobuf bytes per call, rounded
+  std::size_t mean_answered_bytes = 0;
 };
 
 WeirFigures Report(const char* name, const RunOutput& out, const CountingPort& counted,
@@ -255,11 +286,14 @@ WeirFigures Report(const char* name, const RunOutput& out, const CountingPort& c
   WeirFigures f;
   f.per_call_us = busy * 1e6 / calls;
   f.steps_per_s = static_cast<double>(out.summary.steps) / busy;
-  std::printf("weir %-8s %llu steps, %llu connector + %llu broker calls in %.3f s (%.3f s starting/killing): "
-              "%.0f steps/s, %.1f us per call",
+  f.mean_sent_bytes = static_cast<std::size_t>(static_cast<double>(counted.bytes.sent) / calls + 0.5);
+  f.mean_answered_bytes = static_cast<std::size_t>(static_cast<double>(counted.bytes.answered) / calls + 0.5);
+  std::printf("weir %-8s %llu steps, %llu connector + %llu broker calls (mean %zu B sent, %zu B answered) in "
+              "%.3f s (%.3f s starting/killing): %.0f steps/s, %.1f us per call",
               name, static_cast<unsigned long long>(out.summary.steps),
               static_cast<unsigned long long>(counted.connector_calls),
-              static_cast<unsigned long long>(counted.broker_calls), wall,
+              static_cast<unsigned long long>(counted.broker_calls), f.mean_sent_bytes,
+              f.mean_answered_bytes, wall,
               counted.lifecycle_seconds(), f.steps_per_s, f.per_call_us);
   if (baseline_us > 0) std::printf(" = %.2fx the echo round trip", f.per_call_us / baseline_us);
   std::printf("\n");
@@ -381,8 +415,11 @@ int main(int argc, char** argv) {
   // Rounds interleave the echo and weir on each transport, so that both see
   // the same machine load; each figure is the median over rounds, and each
   // ratio the median of the per-round ratios.
+  // A second baseline per transport: the echo carrying, each way, the mean
+  // Protobuf size of weir's own calls in that round (the physical floor for
+  // those calls; the 100-byte echo is the floor for calls that small).
   std::vector<double> echo_tcp, echo_unix, weir_tcp, weir_unix, ratio_tcp, ratio_unix, steps_tcp,
-      steps_unix;
+      steps_unix, sized_tcp, sized_unix, sized_ratio_tcp, sized_ratio_unix;
   for (int round = 1; round <= rounds; ++round) {
     std::printf("-- round %d of %d\n", round, rounds);
     echo_tcp.push_back(MeasureEcho(self, Transport::kTcp, echo_calls));
@@ -395,6 +432,14 @@ int main(int argc, char** argv) {
     ratio_unix.push_back(wu.per_call_us / echo_unix.back());
     steps_tcp.push_back(wt.steps_per_s);
     steps_unix.push_back(wu.steps_per_s);
+    sized_tcp.push_back(
+        MeasureEcho(self, Transport::kTcp, echo_calls, wt.mean_sent_bytes, wt.mean_answered_bytes));
+    sized_unix.push_back(
+        MeasureEcho(self, Transport::kUnix, echo_calls, wu.mean_sent_bytes, wu.mean_answered_bytes));
+    sized_ratio_tcp.push_back(wt.per_call_us / sized_tcp.back());
+    sized_ratio_unix.push_back(wu.per_call_us / sized_unix.back());
+    std::printf("weir against the echo of its own message sizes: %.2fx TCP, %.2fx Unix\n",
+                sized_ratio_tcp.back(), sized_ratio_unix.back());
   }
   const WeirFigures in_process = MeasureInProcess(spec);
   const double restart_ms = MeasureRestart(connector, restarts);
@@ -415,5 +460,9 @@ int main(int argc, char** argv) {
   std::printf("result weir_unix_steps_per_s %.0f\n", Median(steps_unix));
   std::printf("result inprocess_us %.2f\n", in_process.per_call_us);
   std::printf("result restart_ms %.2f\n", restart_ms);
+  std::printf("result echo_tcp_sized_us %.2f\n", Median(sized_tcp));
+  std::printf("result echo_unix_sized_us %.2f\n", Median(sized_unix));
+  std::printf("result weir_tcp_sized_ratio %.2f\n", Median(sized_ratio_tcp));
+  std::printf("result weir_unix_sized_ratio %.2f\n", Median(sized_ratio_unix));
   return 0;
 }

@@ -146,7 +146,9 @@ printf '| 2 | weir cost per call / bare round trip, TCP | %s us = %sx | <= 1.5x 
   "$(median weir_tcp_us)" "$tcp_ratio" "$(verdict "$tcp_ratio" '<=' 1.5)"
 printf '| 2 | weir cost per call / bare round trip, Unix socket | %s us = %sx | <= 1.5x | %s |\n' \
   "$(median weir_unix_us)" "$unix_ratio" "$(verdict "$unix_ratio" '<=' 1.5)"
-printf '| 2 | simulation alone (in-process), per call | %s us | | |\n' "$(median inprocess_us)"
+printf '| 2 | (context) cost per call / echo carrying the mean message sizes of weir'"'"'s calls, TCP, Unix | %sx (echo %s us), %sx (echo %s us) | | |\n' \
+  "$(median weir_tcp_sized_ratio)" "$(median echo_tcp_sized_us)" "$(median weir_unix_sized_ratio)" "$(median echo_unix_sized_us)"
+printf '| 2 | simulation and reference connector alone (in-process), per call | %s us | | |\n' "$(median inprocess_us)"
 printf '| 3 | virtual s per wall s, %s (%s virtual s) | %s | >= 10000 | %s |\n' \
   "$(basename "$IDLE")" "$(median idle_virtual_s)" "$idle" "$(verdict "$idle" '>=' 10000)"
 printf '| 4 | oracle, %s synthetic events: M events/s (oracle only; with generation) | %s (%s) | >= 5 | %s |\n' \
