@@ -23,6 +23,9 @@ namespace weir {
 // which traces and their digests were defined by; lines it cannot reproduce
 // byte for byte (escaped strings, floating point…) go through the printer.
 std::string EncodeTraceLine(const v1::TraceLine& line);
+// The direct encoder alone (tests): false where EncodeTraceLine would defer to
+// the printer.
+bool EncodeTraceLineDirectly(const v1::TraceLine& line, std::string* out);
 // The same through Protobuf's JSON printer (MessageToJsonString with the
 // proto field names): the definition, several times slower.
 std::string EncodeTraceLineWithJsonPrinter(const v1::TraceLine& line);
