@@ -148,7 +148,7 @@ std::string ChildProcess::OutputTail() {
   // A reaped process's group was killed, so the pipe reaches EOF promptly
   // unless a descendant escaped the group; the wait is bounded either way.
   if (reaped_) {
-    output_ended_.wait_for(lock, std::chrono::milliseconds(200), [this] { return output_eof_; });
+    output_ended_.wait_for(lock, std::chrono::milliseconds(2000), [this] { return output_eof_; });
   }
   if (tail_.size() <= tail_bytes_) return tail_;
   return tail_.substr(tail_.size() - tail_bytes_);

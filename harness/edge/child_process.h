@@ -61,8 +61,9 @@ class ChildProcess {
   void Kill();
 
   // The last bytes the process wrote to stdout/stderr. Once the process has
-  // been reaped, first waits (at most 200 ms wall) until the reader has seen
-  // the end of the pipe, so text written just before exiting is not missed.
+  // been reaped, first waits (at most 2 s wall, however loaded the machine)
+  // until the reader has seen the end of the pipe, so text written just
+  // before exiting is not missed: the tail goes into the trace.
   std::string OutputTail();
 
  private:

@@ -51,7 +51,11 @@ ConnectorFailure GrpcConnectorPort::ExitedOr(ConnectorFailure::Kind kind, std::s
   f.kind = kind;
   f.detail = std::move(detail);
   if (child_ != nullptr) {
-    if (auto how = child_->TryReap(std::chrono::milliseconds(200)); how.has_value()) {
+    // What reaches the trace (exited or not, how, the last words) must not
+    // depend on how busy the machine is: a connector that broke its call is
+    // almost always exiting, so give it ample time (reaping returns at once
+    // when it has ended; only one that lives on with a broken call pays it).
+    if (auto how = child_->TryReap(std::chrono::milliseconds(2000)); how.has_value()) {
       f.kind = ConnectorFailure::Kind::kExited;
       f.exit_status = *how;
     }
