@@ -18,14 +18,16 @@
 // Serve runs the window's crash action (the port kills the connector's process
 // group and cancels its call) and holds that call's answer, and refuses every
 // later call of the window; held answers go out (refused) only when the window
-// ends, after the connector is dead. The connector never sees them.
+// ends, after the crash action's SIGKILL (no user code of the connector runs
+// once kill() has returned, reaped or not). The connector never sees them.
 //
 // Answers carry the virtual now; a failed call carries it in trailing metadata
 // "weir-now-ns", and a throttled one "retry-after-ms" plus a weir.v1.RetryAfter
 // status detail.
 //
-// Resource bounds: at most 16 concurrent streams per connection and one
-// accepted call per method at a time; gRPC queues the rest.
+// Resource bounds: at most 16 concurrent streams per connection; calls are
+// handled one at a time, each method awaiting its next call as soon as one
+// arrives; gRPC queues the rest.
 //
 // Thread safety: one thread (the simulation thread) for everything.
 //

@@ -143,12 +143,12 @@ void ChildProcess::ReadOutput() {
   output_ended_.notify_all();
 }
 
-std::string ChildProcess::OutputTail() {
+std::string ChildProcess::OutputTail(std::chrono::milliseconds eof_wait) {
   std::unique_lock<std::mutex> lock(tail_mu_);
   // A reaped process's group was killed, so the pipe reaches EOF promptly
   // unless a descendant escaped the group; the wait is bounded either way.
   if (reaped_) {
-    output_ended_.wait_for(lock, std::chrono::milliseconds(2000), [this] { return output_eof_; });
+    output_ended_.wait_for(lock, eof_wait, [this] { return output_eof_; });
   }
   if (tail_.size() <= tail_bytes_) return tail_;
   return tail_.substr(tail_.size() - tail_bytes_);

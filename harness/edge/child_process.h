@@ -61,10 +61,11 @@ class ChildProcess {
   void Kill();
 
   // The last bytes the process wrote to stdout/stderr. Once the process has
-  // been reaped, first waits (at most 2 s wall, however loaded the machine)
-  // until the reader has seen the end of the pipe, so text written just
-  // before exiting is not missed: the tail goes into the trace.
-  std::string OutputTail();
+  // been reaped, first waits (at most `eof_wait` of wall time, 2 s by
+  // default so that load does not change it) until the reader has seen the
+  // end of the pipe, so text written just before exiting is not missed: the
+  // tail goes into the trace.
+  std::string OutputTail(std::chrono::milliseconds eof_wait = std::chrono::milliseconds(2000));
 
  private:
   ChildProcess() = default;

@@ -55,11 +55,13 @@ ConnectorFailure GrpcConnectorPort::ExitedOr(ConnectorFailure::Kind kind, std::s
     // depend on how busy the machine is: a connector that broke its call is
     // almost always exiting, so give it ample time (reaping returns at once
     // when it has ended; only one that lives on with a broken call pays it).
-    if (auto how = child_->TryReap(std::chrono::milliseconds(2000)); how.has_value()) {
+    // Once weir is asked to stop, nothing waits: the run is abandoned anyway.
+    const auto wait = Stopping() ? std::chrono::milliseconds(0) : std::chrono::milliseconds(2000);
+    if (auto how = child_->TryReap(wait); how.has_value()) {
       f.kind = ConnectorFailure::Kind::kExited;
       f.exit_status = *how;
     }
-    f.stderr_tail = child_->OutputTail();
+    f.stderr_tail = child_->OutputTail(wait);
   }
   return f;
 }

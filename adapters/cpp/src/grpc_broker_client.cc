@@ -72,6 +72,11 @@ grpc::Status GrpcBrokerClient::Call(grpc::ClientContext* call, const Request& re
     // The queue was shut down under the call: the process is ending.
     return grpc::Status(grpc::StatusCode::CANCELLED, "the connector is shutting down");
   }
+  if (status.ok() && !answered.ok) {
+    // An async unary call whose answer did not parse ends with its tag not
+    // ok but its status OK: never hand the source a default answer.
+    return grpc::Status(grpc::StatusCode::INTERNAL, "the broker's answer did not parse");
+  }
   return status;
 }
 

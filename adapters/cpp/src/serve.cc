@@ -262,7 +262,7 @@ int Serve(Source& source) {
 
   if (!WriteAll(ready_fd, ListenedAddress(listen_address, selected_port) + "\n", &error)) {
     // gRPC requires the awaited calls back before the queue goes.
-    server->Shutdown();
+    server->Shutdown(std::chrono::system_clock::now() + std::chrono::seconds(1));
     queue->Shutdown();
     calls.Run();
     return StartupError(error);
