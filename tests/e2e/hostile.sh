@@ -8,13 +8,9 @@
 # Usage: hostile.sh WEIR CONNECTOR_DIR HOSTILE_DIR
 set -uo pipefail
 WEIR=$1 BIN=$2 DIR=$3
-WORK=$(mktemp -d)
-export TMPDIR=$WORK/tmp
-mkdir -p "$TMPDIR"
-MARK=weir-hostile-$$-$RANDOM
-trap 'pkill -KILL -f "$MARK" 2>/dev/null; rm -rf "$WORK"' EXIT
-SCENARIO=$DIR/hostile.scenario
 source "$(dirname "${BASH_SOURCE[0]}")/lib.sh"
+marked_workdir hostile
+SCENARIO=$DIR/hostile.scenario
 
 # hostile CASE EXIT INVARIANT MESSAGE [TRANSPORT [SCENARIO]]: one run, checked.
 hostile() {

@@ -18,3 +18,14 @@ wait_for() {
   for _ in $(seq $(($2 * 10))); do alive "$1" && return 0; sleep 0.1; done
   return 1
 }
+# marked_workdir NAME: WORK, a directory removed at exit, with a private
+# TMPDIR inside it (so a test can check weir left nothing there), and MARK, a
+# word to put in connector argv: every process carrying it is found with
+# pgrep -f and killed at exit.
+marked_workdir() {
+  WORK=$(mktemp -d)
+  export TMPDIR=$WORK/tmp
+  mkdir -p "$TMPDIR"
+  MARK=weir-$1-$$-$RANDOM
+  trap 'pkill -KILL -f "$MARK" 2>/dev/null; rm -rf "$WORK"' EXIT
+}

@@ -8,12 +8,8 @@
 # Usage: signals.sh WEIR CONNECTOR_DIR HOSTILE_DIR
 set -uo pipefail
 WEIR=$1 BIN=$2 DIR=$3
-WORK=$(mktemp -d)
-export TMPDIR=$WORK/tmp
-mkdir -p "$TMPDIR"
-MARK=weir-signals-$$-$RANDOM
-trap 'pkill -KILL -f "$MARK" 2>/dev/null; rm -rf "$WORK"' EXIT
 source "$(dirname "${BASH_SOURCE[0]}")/lib.sh"
+marked_workdir signals
 # seen_processes TAG N SECONDS: waits until N distinct processes whose argv
 # carries TAG have been seen alive (polled every 50 ms), at most SECONDS.
 seen_processes() {
