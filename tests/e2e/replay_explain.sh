@@ -36,7 +36,9 @@ runs=(
 for f in "$bin"/mutant_*; do
   m="$(basename "$f")"
   [[ -x "$f" && "$m" != mutant_wall_clock ]] || continue
-  printf '%s\n' "${runs[@]}" | grep -q "^$m " || fail "$m has no failing run in this test"
+  # A here-string, not a pipe: under pipefail, grep -q leaving early would
+  # fail the pipeline with printf's SIGPIPE.
+  grep -q "^$m " <<<"$(printf '%s\n' "${runs[@]}")" || fail "$m has no failing run in this test"
 done
 for r in "${runs[@]}"; do
   read -r m s n inv <<<"$r"
