@@ -1,5 +1,5 @@
 // What one call through weir costs against the physical limit, the bare gRPC
-// round trip, measured in the same run (issue 9, benchmarks 1, 2 and 6):
+// round trip, measured in the same run:
 //
 //   1. echo: a bare unary echo (100-byte payload) between this process and a
 //      child process (this binary with --echo-server), over loopback TCP and a

@@ -1,5 +1,5 @@
-// Certify's peak memory against the number of runs (issue 6: a 10,000-run
-// certify stays flat).
+// Certify's peak memory against the number of runs: a 10,000-run certify must
+// stay flat, so a suite's size is never limited by the memory of a CI runner.
 //
 // Runs one certify over a tiny scenario with RUNS seeds, in-process (the
 // reference source, or with --failing the ack-on-pull mutant so every run

@@ -1,7 +1,7 @@
 #!/usr/bin/env bash
 # idle_hour.sh: how many virtual seconds weir simulates per wall second on a
-# long, idle-heavy scenario, with the reference connector over gRPC (issue 3,
-# "Done when").
+# long, idle-heavy scenario, with the reference connector over gRPC: idle
+# virtual time must cost next to nothing, so long runs stay cheap in CI.
 #
 # Usage: bench/idle_hour.sh [WEIR [CONNECTOR [SCENARIO [SEED]]]]
 #   defaults: build/harness/weir, build/fixtures/connectors/reference_connector,

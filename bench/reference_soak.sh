@@ -1,6 +1,7 @@
 #!/usr/bin/env bash
 # reference_soak.sh: the reference connector against every bundled scenario for
-# many seeds (issue 3, "Done when": 50 seeds each). A long check, not a ctest.
+# many seeds (50 each by default: the reference must pass every run, or the
+# oracle or the reference is wrong). A long check, not a ctest.
 #
 # Usage: bench/reference_soak.sh [SEEDS [JOBS]]     (defaults: 50 seeds, 2 jobs)
 # Env:   WEIR, CONNECTOR, SCENARIOS (directory) override the build-tree defaults;

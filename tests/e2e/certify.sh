@@ -99,7 +99,7 @@ printf 'name: "x"\nseeds: 0\n' >"$WORK/bad.suite"
 check "bad suite exits 2" test $? -eq 2
 check "bad suite error names file:line" grep -q 'bad.suite:' "$WORK/bad.out"
 
-# 7. The HTML report (issue 6): summary plus one timeline per failed invariant,
+# 7. The HTML report: summary plus one timeline per failed invariant,
 #    escaped (the connector's path holds <script>, & and quotes), well-formed,
 #    and it opens in headless Chromium without console messages.
 HOSTILE="$WORK/mut<script>alert(1)<!--&\"x\""

@@ -1,5 +1,6 @@
 #!/usr/bin/env bash
-# End-to-end: determinism over the bundled scenarios (issue 3, "Done when").
+# End-to-end: determinism over the bundled scenarios: the same
+# scenario, seed and connector binary must give the same trace, byte for byte.
 # Every bundled scenario × seeds 1..SEEDS runs twice with the real reference
 # connector over gRPC; both runs of each (scenario, seed) must exit 0 and print
 # the same `digest` line (SHA-256 over the trace's event lines).

@@ -1,5 +1,5 @@
 #!/usr/bin/env bash
-# html_report.sh (ctest, label e2e): weir explain --html (issue 5).
+# html_report.sh (ctest, label e2e): weir explain --html.
 #   - the page of a failing mutant run is well-formed (xmllint) and its SVG has
 #     one overview marker per commit and per crash of the trace, counted from
 #     the trace itself, and one timeline per failed invariant;

@@ -2,8 +2,8 @@
 # End-to-end: plan edit locality. Deleting one decision from a saved fault plan
 # changes only what follows that decision: replaying the full plan and the plan
 # without decision k gives event lines that are identical up to the line where
-# decision k's fault_applied event was, and differ from exactly that line on
-# (issue 3, "Done when"). A fault plan is keyed by logical positions (the k-th
+# decision k's fault_applied event was, and differ from exactly that line on.
+# A fault plan is keyed by logical positions (the k-th
 # pull, the k-th checkpoint…), so nothing before a decision can depend on it;
 # a first difference earlier than that line would mean a decision leaks
 # backwards (e.g. drawn ahead of its position).

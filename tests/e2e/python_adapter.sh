@@ -1,5 +1,5 @@
 #!/usr/bin/env bash
-# End-to-end: the Python adapter (issue 7). The Python reference connector is
+# End-to-end: the Python adapter. The Python reference connector is
 # certified on the quick suite and gives the same trace digest as the C++
 # reference on every run (same broker calls at the same virtual times, jitter
 # included); each Python mutant is refused with its expected invariant; the

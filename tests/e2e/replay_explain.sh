@@ -1,5 +1,5 @@
 #!/usr/bin/env bash
-# replay_explain.sh (ctest, label e2e): weir replay and weir explain (issue 5).
+# replay_explain.sh (ctest, label e2e): weir replay and weir explain.
 #   - replaying a failing run of every mutant reproduces it identically (same
 #     digest as the run printed);
 #   - the wall-clock mutant is reported as nondeterministic (exit 1) at a

@@ -1,6 +1,6 @@
 #!/usr/bin/env bash
 # shrink.sh (ctest, label e2e): weir shrink over gRPC with real connector
-# processes (issue 5).
+# processes.
 #   - a failing run ends with next-step hints and, last, its replay line;
 #   - shrinking its trace writes a plan that weir lint and weir run --plan
 #     accept, that fails the same invariant, and from which no single decision

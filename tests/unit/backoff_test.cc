@@ -2,7 +2,7 @@
 // against gRPC's connection-backoff parameters.
 //
 // Source of every constant below: grpc doc/connection-backoff.md, "Proposed
-// Backoff Algorithm" (../shared/references.md): INITIAL_BACKOFF 1 s, MULTIPLIER
+// Backoff Algorithm" (docs/references.md): INITIAL_BACKOFF 1 s, MULTIPLIER
 // 1.6, JITTER 0.2, MAX_BACKOFF 120 s; next = min(cur × 1.6, 120 s), and the
 // deadline is now + next ± 0.2 × next. MIN_CONNECT_TIMEOUT (20 s) bounds a
 // connection attempt, not the wait between broker calls, so it has no

@@ -1,4 +1,4 @@
-// Broker-side faults (issue 3): each kind occurs when its rate is on and never
+// Broker-side faults: each kind occurs when its rate is on and never
 // when it is off; decisions are a pure function of (seed, kind, position), so
 // the same seed repeats them and turning one kind off leaves the others alone;
 // a given plan applies exactly its decisions; the token bucket follows
@@ -442,7 +442,8 @@ TEST(BrokerFaults, TokenBucketFollowsRfc2697) {
   // count Tc(0) = CBS … Thereafter, the token count Tc is … incremented by one
   // CIR times per second up to CBS"; a packet of size B arriving at t is green
   // (admitted) "if Tc(t)-B >= 0 … and Tc is decremented by B", else it is red
-  // (here: throttled). The reference below is that rule, tick by tick.
+  // (here: throttled). The reference below is that rule, tick by tick
+  // (docs/references.md).
   constexpr double kRate = 10;  // CIR: one token per 100 ms
   constexpr std::int64_t kBurst = 3;  // CBS
   v1::Scenario s = Base();

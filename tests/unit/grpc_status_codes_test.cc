@@ -8,7 +8,7 @@ namespace weir {
 namespace {
 
 // Source: the gRPC status code table (grpc.io "Status codes";
-// grpc include/grpc/impl/codegen/status.h); ../shared/references.md.
+// grpc include/grpc/impl/codegen/status.h); docs/references.md.
 TEST(CallCode, MatchesTheGrpcStatusCodeTable) {
   EXPECT_EQ(static_cast<int>(CallCode::kOk), 0);
   EXPECT_EQ(static_cast<int>(CallCode::kInvalidArgument), 3);

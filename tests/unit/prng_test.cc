@@ -1,5 +1,6 @@
 #include "harness/core/prng.h"
 
+#include <random>
 #include <set>
 
 #include <gtest/gtest.h>
@@ -8,7 +9,7 @@ namespace weir {
 namespace {
 
 // Source: values computed from the published reference implementation
-// splitmix64.c (S. Vigna), seed 0; ../shared/references.md. No published vector.
+// splitmix64.c (S. Vigna), seed 0; docs/references.md. No published vector.
 TEST(SplitMix64, MatchesReferenceImplementationFromSeedZero) {
   SplitMix64 gen(0);
   EXPECT_EQ(gen.Next(), 0xE220A8397B1DCDAFULL);
@@ -18,10 +19,26 @@ TEST(SplitMix64, MatchesReferenceImplementationFromSeedZero) {
 }
 
 // Source: FNV-1a 64-bit offset basis and the value for "a", from memory of the
-// FNV reference (Fowler/Noll/Vo, draft-eastlake-fnv); common practice.
+// FNV reference (Fowler/Noll/Vo, draft-eastlake-fnv); docs/references.md.
 TEST(Fnv1a64, MatchesKnownValues) {
   EXPECT_EQ(Fnv1a64(""), 0xCBF29CE484222325ULL);
   EXPECT_EQ(Fnv1a64("a"), 0xAF63DC4C8601EC8CULL);
+}
+
+// Tests outside the simulation seed the standard engines (shrink_test,
+// run_log_test, trace_encoding_test) and expect the same numbers on every
+// machine; the standard fixes them. Source: the C++ standard, [rand.predef],
+// the 10000th output of a default-constructed engine; docs/references.md.
+TEST(StandardEngines, GiveTheTenThousandthOutputTheStandardRequires) {
+  std::mt19937 mt;
+  mt.discard(9999);
+  EXPECT_EQ(mt(), 4123659995u);
+  std::mt19937_64 mt64;
+  mt64.discard(9999);
+  EXPECT_EQ(mt64(), 9981545732273789042ull);
+  std::minstd_rand minstd;
+  minstd.discard(9999);
+  EXPECT_EQ(minstd(), 399268537u);
 }
 
 TEST(PrngStream, SameSeedAndNameGiveTheSameNumbers) {

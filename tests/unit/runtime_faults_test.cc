@@ -1,4 +1,4 @@
-// Runtime faults (issue 3): commit failures and crash points, driven through
+// Runtime faults: commit failures and crash points, driven through
 // the in-process fake connector. Each scripted fault must happen exactly at
 // its planned position, be followed by a new incarnation opened from the last
 // committed checkpoint, and keep the events around it in the right order; a

@@ -140,7 +140,7 @@ TEST(Shrink, FindsExactlyTheCulpritSetOfAMonotoneRule) {
     EXPECT_EQ(got, culprits) << "trial " << trial << ", " << size << " decisions";
     EXPECT_TRUE(r->one_minimal);
     // Worst case of ddmin, |c|^2 + 3|c| tests (Zeller and Hildebrandt 2002,
-    // from memory), plus the reproduction and the empty plan.
+    // from memory; docs/references.md), plus the reproduction and the empty plan.
     EXPECT_LE(r->reruns, size * size + 3 * size + 2);
   }
 }

@@ -1,4 +1,4 @@
-// Shrinking a failing run of every mutant in the zoo (issue 5): the minimal
+// Shrinking a failing run of every mutant in the zoo: the minimal
 // plan has no more decisions than the original, still fails the mutant's
 // invariant on a fresh rerun, and is 1-minimal — checked here from outside the
 // search by rerunning it without each decision in turn.

@@ -1,7 +1,7 @@
 """Tests for weir.adapter.backoff against gRPC's connection-backoff parameters.
 
 Source of every constant below: grpc doc/connection-backoff.md, "Proposed
-Backoff Algorithm" (../shared/references.md): INITIAL_BACKOFF 1 s, MULTIPLIER
+Backoff Algorithm" (docs/references.md): INITIAL_BACKOFF 1 s, MULTIPLIER
 1.6, JITTER 0.2, MAX_BACKOFF 120 s; next = min(cur x 1.6, 120 s), and the
 deadline is now + next +/- 0.2 x next. MIN_CONNECT_TIMEOUT (20 s) bounds a
 connection attempt, not the wait between broker calls, so it has no
@@ -109,7 +109,7 @@ class BackoffTest(unittest.TestCase):
 
     def test_jitter_source_is_splitmix64(self):
         # SplitMix64 from seed 0, computed from the published reference
-        # implementation (splitmix64.c, S. Vigna; ../shared/references.md). The
+        # implementation (splitmix64.c, S. Vigna; docs/references.md). The
         # same generator drives the C++ adapter's jitter, which is what makes
         # the two adapters retry at the same virtual times.
         expected = [0xE220A8397B1DCDAF, 0x6E789E6AA1B965F4, 0x06C45D188009454F,

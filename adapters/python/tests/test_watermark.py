@@ -1,7 +1,7 @@
 """Tests for weir.adapter.watermark: the watermark that follows the largest
 event time seen, and the idle rule.
 
-Facts checked (../shared/references.md, "Facts of the trade"): a watermark
+Facts checked (docs/references.md, "Facts of the trade"): a watermark
 never moves backwards (Akidau et al., "The Dataflow Model", PVLDB 8(12), 2015,
 section 1.3); one that follows the largest event time seen never decreases even
 when events arrive out of order (common practice); a source with no new input
