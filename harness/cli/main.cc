@@ -20,6 +20,7 @@
 #include "harness/cli/shrink_command.h"
 #include "harness/cli/stop_signal.h"
 #include "harness/cli/suite_commands.h"
+#include "harness/edge/connector_identity.h"
 #include "harness/edge/grpc_run.h"
 #include "harness/replay/explain.h"
 #include "harness/report/html_timeline.h"
@@ -90,6 +91,13 @@ int RunCommand(RunFlags& flags) {
   if (!ResolveExecutable(argv[0]).has_value()) {
     return UsageError("--connector: '" + argv[0] + "' is not an executable file (nor found on PATH)");
   }
+  // Where the command points now, for a trace that is replayed elsewhere.
+  std::optional<v1::ConnectorIdentity> identity;
+  if (!flags.trace.empty()) {
+    auto id = IdentifyConnector(argv);
+    if (!id.ok()) return UsageError(absl::StrCat("--connector: ", id.status().message()));
+    identity = std::move(*id);
+  }
   Transport transport;
   if (flags.transport == "tcp") {
     transport = Transport::kTcp;
@@ -138,6 +146,7 @@ int RunCommand(RunFlags& flags) {
   spec.scenario_path = flags.scenario;
   spec.seed = flags.seed;
   spec.connector_argv = argv;
+  spec.connector_identity = identity;
   spec.transport = transport;
   spec.trace_path = flags.trace;
   spec.stop = InstallStopSignals();
@@ -224,8 +233,11 @@ int StatusExit(const absl::Status& st) {
   return absl::IsInvalidArgument(st) || absl::IsNotFound(st) ? kExitUsage : kExitHarness;
 }
 
-// weir replay TRACE: reruns the run from the trace's header and compares
-// event by event. 0 identical, 1 diverged (nondeterministic connector).
+// weir replay TRACE: reruns the run from the trace's header, with the
+// connector as it was resolved at record time, and compares event by event.
+// 0 identical, 1 diverged (a nondeterministic connector, or a changed one:
+// said first), 2 bad trace or a connector that no longer exists, 3 a
+// connector that did not come up.
 int ReplayCommand(const std::string& trace, const std::string& transport, const std::string& connector) {
   ReplayOptions options;
   if (transport == "unix") {
@@ -245,7 +257,15 @@ int ReplayCommand(const std::string& trace, const std::string& transport, const 
                  StopSignal());
     return kExitInterrupted;
   }
-  if (!r.ok()) return StatusExit(r.status());
+  if (!r.ok()) {
+    if (absl::IsFailedPrecondition(r.status())) {
+      std::fprintf(stderr, "weir replay: %s; nothing was compared\n", std::string(r.status().message()).c_str());
+      return kExitUsage;
+    }
+    return StatusExit(r.status());
+  }
+  // Before any verdict: a different program answers differently by right.
+  for (const std::string& change : r->changes) std::printf("%s\n", change.c_str());
   if (r->weir_version != WeirVersion()) {
     std::printf("note: the trace was written by weir %s; this is weir %s\n", r->weir_version.c_str(),
                 WeirVersion());
@@ -255,17 +275,34 @@ int ReplayCommand(const std::string& trace, const std::string& transport, const 
                 r->rerun_digest.c_str(), static_cast<unsigned long long>(r->rerun_events));
     return kExitPassed;
   }
+  if (!r->start_failure.empty()) {
+    std::printf(
+        "weir replay: the connector could not start: %s\n  connector: %s\n"
+        "nothing was compared: a connector that never came up says nothing about its determinism\n",
+        r->start_failure.c_str(), ShellJoin(r->connector_argv).c_str());
+    return kExitHarness;
+  }
   std::printf(
       "weir replay: diverged at event #%llu: expected %s, got %s\n"
       "  expected: %s\n  got:      %s\n"
-      "saved   %s (%llu events)\nrerun   %s (%llu events)\n"
-      "the connector is nondeterministic: '%s' answered the same scenario, seed and fault plan "
-      "differently (wall clock, unseeded randomness or racing threads?)\n",
+      "saved   %s (%llu events)\nrerun   %s (%llu events)\n",
       static_cast<unsigned long long>(r->diverged_at), r->expected_what.c_str(), r->got_what.c_str(),
       r->expected_line.empty() ? "(end of the run)" : r->expected_line.c_str(),
       r->got_line.empty() ? "(end of the run)" : r->got_line.c_str(), r->saved_digest.c_str(),
       static_cast<unsigned long long>(r->saved_events), r->rerun_digest.c_str(),
-      static_cast<unsigned long long>(r->rerun_events), ShellJoin(r->connector_argv).c_str());
+      static_cast<unsigned long long>(r->rerun_events));
+  if (!r->changes.empty()) {
+    std::printf(
+        "the connector changed since this trace was recorded (above): '%s' is not the program that "
+        "wrote the trace, so the divergence shows what the change did, not nondeterminism; replay "
+        "with the recorded build (--connector), or record a new trace\n",
+        ShellJoin(r->connector_argv).c_str());
+  } else {
+    std::printf(
+        "the connector is nondeterministic: '%s' answered the same scenario, seed and fault plan "
+        "differently (wall clock, unseeded randomness or racing threads?)\n",
+        ShellJoin(r->connector_argv).c_str());
+  }
   return kExitFailed;
 }
 

@@ -12,6 +12,7 @@
 #include "absl/strings/str_join.h"
 #include "harness/cli/command_line.h"
 #include "harness/cli/stop_signal.h"
+#include "harness/edge/connector_identity.h"
 #include "harness/edge/grpc_run.h"
 #include "harness/replay/replay.h"
 #include "harness/replay/trace_reader.h"
@@ -159,6 +160,7 @@ int RunShrinkCommand(ShrinkFlags& f) {
   }
 
   RunSpec spec;
+  v1::TraceHeader header;    // from a trace
   std::string saved_digest;  // from a trace
   std::uint64_t saved_events = 0;
   std::string profile_note;
@@ -177,7 +179,8 @@ int RunShrinkCommand(ShrinkFlags& f) {
       if (!next.ok()) return InputError(next.status());
       if (!*next) break;
     }
-    spec = SpecFromHeader((*reader)->header());
+    header = (*reader)->header();
+    spec = SpecFromHeader(header);
     saved_digest = (*reader)->footer().digest();
     saved_events = (*reader)->footer().events();
     if (spec.connector_argv.empty() && f.connector.empty()) {
@@ -221,13 +224,25 @@ int RunShrinkCommand(ShrinkFlags& f) {
     spec.connector_argv = f.inputs;
   }
   if (spec.connector_argv.empty()) return Usage("no connector command; expected --connector 'CMD ARGS…'");
-  if (!ResolveExecutable(spec.connector_argv[0]).has_value()) {
+  std::vector<std::string> changes;  // the connector's files that differ from the trace's
+  if (from_trace) {
+    // As resolved when the trace was recorded, from whatever directory we are in.
+    auto connector = ResolveRecordedConnector(
+        header, f.connector.empty() ? std::vector<std::string>{} : spec.connector_argv);
+    if (!connector.ok()) {
+      std::fprintf(stderr, "weir shrink: %s; nothing shrunk\n", std::string(connector.status().message()).c_str());
+      return kUsage;
+    }
+    spec.connector_argv = connector->argv;
+    changes = connector->changes;
+  } else if (!ResolveExecutable(spec.connector_argv[0]).has_value()) {
     return Usage("--connector: '" + spec.connector_argv[0] + "' is not an executable file (nor found on PATH)");
   }
   spec.transport = transport;
 
   std::printf("weir shrink: scenario %s, seed %llu, connector %s\n", spec.scenario_path.c_str(),
               static_cast<unsigned long long>(spec.seed), ShellJoin(spec.connector_argv).c_str());
+  for (const std::string& change : changes) std::printf("%s\n", change.c_str());
   std::fflush(stdout);
 
   // A signal ends the rerun in flight (connector killed and reaped); the
@@ -242,13 +257,34 @@ int RunShrinkCommand(ShrinkFlags& f) {
 
   // The failing run itself: drawn from the scenario's rates, or under the
   // given plan (--plan, or the trace's).
-  auto original = RunOverGrpc(spec);
+  StartFailureWatch start_watch;
+  RunSpec first_spec = spec;
+  first_spec.observers.push_back(&start_watch);
+  auto original = RunOverGrpc(first_spec);
   if (absl::IsCancelled(original.status())) return interrupted();
   if (!original.ok()) {
     std::fprintf(stderr, "weir: harness fault: %s\n", std::string(original.status().message()).c_str());
     return kHarness;
   }
   const RerunResult first = ToRerunResult(*original);
+  // A connector that never came up: not a failure worth shrinking, and (from a
+  // trace whose run did come up) not nondeterminism either.
+  if (!start_watch.reason().empty() &&
+      (from_trace ? first.digest != saved_digest : start_watch.incarnation() == 1)) {
+    std::printf("weir shrink: the connector could not start: %s\n  connector: %s\nnothing shrunk\n",
+                start_watch.reason().c_str(), ShellJoin(spec.connector_argv).c_str());
+    return kHarness;
+  }
+  if (from_trace && first.digest != saved_digest && !changes.empty()) {
+    std::printf(
+        "CHANGED CONNECTOR: rerunning the trace's run gave digest %s (%llu events), the trace has %s "
+        "(%llu events). The connector changed since the trace was recorded (above), so this is not "
+        "the run that failed and says nothing about determinism; nothing shrunk. Shrink with the "
+        "recorded build (--connector), or a new run of this one (weir shrink --scenario S --seed N).\n",
+        first.digest.c_str(), static_cast<unsigned long long>(first.events), saved_digest.c_str(),
+        static_cast<unsigned long long>(saved_events));
+    return kUsage;
+  }
   if (from_trace && first.digest != saved_digest) {
     std::printf(
         "NONDETERMINISTIC: rerunning the trace's run gave digest %s (%llu events), the trace has %s "
@@ -369,6 +405,7 @@ int RunShrinkCommand(ShrinkFlags& f) {
     RunSpec s = spec;
     s.plan = r->minimal;
     s.trace_path = f.trace;
+    if (auto id = IdentifyConnector(s.connector_argv); id.ok()) s.connector_identity = std::move(*id);
     auto out = stop->load() ? absl::StatusOr<RunOutput>(absl::CancelledError("interrupted"))
                             : RunOverGrpc(s);
     if (absl::IsCancelled(out.status())) {

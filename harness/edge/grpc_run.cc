@@ -111,6 +111,7 @@ absl::StatusOr<RunOutput> RunWithPort(const RunSpec& spec, ConnectorPort& port) 
     h->set_scenario_path(spec.scenario_path);
     *h->mutable_scenario() = spec.scenario;
     for (const auto& a : spec.connector_argv) h->add_connector_argv(a);
+    if (spec.connector_identity.has_value()) *h->mutable_connector() = *spec.connector_identity;
     *h->mutable_plan() = out.plan;
     h->set_plan_given(faults.plan_given());
     v1::TraceLine footer;

@@ -20,6 +20,7 @@
 #include "harness/trace/trace_log.h"
 #include "weir/v1/faults.pb.h"
 #include "weir/v1/scenario.pb.h"
+#include "weir/v1/trace.pb.h"
 
 namespace weir {
 
@@ -30,6 +31,9 @@ struct RunSpec {
   std::string scenario_path;
   std::uint64_t seed = 0;
   std::vector<std::string> connector_argv;
+  // What connector_argv meant where it was given (connector_identity.h);
+  // written into the trace header when set.
+  std::optional<v1::ConnectorIdentity> connector_identity;
   Transport transport = Transport::kTcp;
   std::string trace_path;  // empty: no trace file
   // Given: apply exactly this plan instead of drawing from the scenario's rates.

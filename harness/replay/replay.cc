@@ -1,6 +1,8 @@
 #include "harness/replay/replay.h"
 
+#include "absl/strings/ascii.h"
 #include "absl/strings/str_cat.h"
+#include "harness/edge/connector_identity.h"
 #include "harness/edge/private_dir.h"
 #include "harness/replay/trace_reader.h"
 #include "harness/trace/describe.h"
@@ -26,6 +28,31 @@ RunSpec SpecFromHeader(const v1::TraceHeader& header) {
   return spec;
 }
 
+std::optional<std::string> StartFailure(const v1::TraceEvent& event) {
+  std::string call;
+  switch (event.kind_case()) {
+    case v1::TraceEvent::kExited: call = event.exited().call(); break;
+    case v1::TraceEvent::kCallTimedOut: call = event.call_timed_out().call(); break;
+    case v1::TraceEvent::kProtocolError: call = event.protocol_error().call(); break;
+    default: return std::nullopt;
+  }
+  if (call != "Start") return std::nullopt;
+  std::string reason = DescribeEvent(event);
+  if (event.has_exited()) {
+    const absl::string_view tail = absl::StripTrailingAsciiWhitespace(event.exited().stderr_tail());
+    if (!tail.empty()) absl::StrAppend(&reason, "; its output ended with: ", tail);
+  }
+  return reason;
+}
+
+void StartFailureWatch::OnEvent(const v1::TraceEvent& event) {
+  if (!reason_.empty()) return;
+  if (auto why = StartFailure(event)) {
+    reason_ = *why;
+    incarnation_ = event.incarnation();
+  }
+}
+
 absl::StatusOr<ReplayResult> ReplayTrace(const std::string& path, const ReplayOptions& options) {
   if (absl::Status st = CheckTraceFile(path); !st.ok()) return st;
   auto saved = TraceReader::Open(path);
@@ -34,10 +61,13 @@ absl::StatusOr<ReplayResult> ReplayTrace(const std::string& path, const ReplayOp
   ReplayResult result;
   result.weir_version = (*saved)->header().weir_version();
   RunSpec spec = SpecFromHeader((*saved)->header());
-  if (!options.connector_argv.empty()) spec.connector_argv = options.connector_argv;
-  if (spec.connector_argv.empty()) {
+  if (spec.connector_argv.empty() && options.connector_argv.empty()) {
     return absl::InvalidArgumentError(absl::StrCat(path, ":1: the header names no connector command"));
   }
+  auto connector = ResolveRecordedConnector((*saved)->header(), options.connector_argv);
+  if (!connector.ok()) return connector.status();
+  spec.connector_argv = connector->argv;
+  result.changes = connector->changes;
   result.connector_argv = spec.connector_argv;
   spec.transport = options.transport;
   spec.stop = options.stop;
@@ -64,6 +94,10 @@ absl::StatusOr<ReplayResult> ReplayTrace(const std::string& path, const ReplayOp
       result.got_line = *b ? Chomp((*rerun)->line()) : "";
       result.expected_what = *a ? DescribeEvent((*saved)->event()) : "the end of the run";
       result.got_what = *b ? DescribeEvent((*rerun)->event()) : "the end of the run";
+      // The saved run's connector came up here and the rerun's did not.
+      if (*b) {
+        if (auto why = StartFailure((*rerun)->event())) result.start_failure = *why;
+      }
     }
     // Drain whichever side goes on, so both footers are checked and counted.
     if (!*a) {

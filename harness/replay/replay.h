@@ -5,7 +5,12 @@
 // given plan, like --plan) and compares the rerun's events with the saved
 // ones, line by line. Equal lines mean equal events (trace_format.h), so the
 // first unequal line is the first event where the connector answered the same
-// inputs differently: a nondeterministic connector.
+// inputs differently: a nondeterministic connector — unless the connector is
+// not the recorded one (its binary or file argument changed: `changes`) or
+// never came up (`start_failure`), which the result says instead.
+//
+// The connector is started as it was resolved at record time
+// (connector_identity.h), so a replay works from any directory.
 //
 // Memory: the rerun writes its trace to a file in a private temporary
 // directory; the comparison streams both files and keeps only the first
@@ -21,6 +26,8 @@
 
 #include "absl/status/statusor.h"
 #include "harness/edge/grpc_run.h"
+#include "harness/trace/trace_log.h"
+#include "weir/v1/trace.pb.h"
 
 namespace weir {
 
@@ -48,14 +55,39 @@ struct ReplayResult {
   std::string got_what;
   std::string weir_version;   // of the saved trace
   std::vector<std::string> connector_argv;  // what was rerun
+  // The connector's files that differ from the recorded ones, one line each
+  // ("the connector binary changed since this trace was recorded: …").
+  std::vector<std::string> changes;
+  // Not empty when the rerun's connector never came up where the saved run's
+  // did (identical == false): why. A divergence then means nothing.
+  std::string start_failure;
 };
 
 // Checks the saved trace first (InvalidArgument/NotFound "file:line: …" for a
-// bad file); other errors are harness faults (cannot start the connector…).
+// bad file), then that the connector can be started (FailedPrecondition "the
+// connector cannot start: …"); other errors are harness faults.
 [[nodiscard]] absl::StatusOr<ReplayResult> ReplayTrace(const std::string& path,
                                                        const ReplayOptions& options);
 
-// Builds the RunSpec a trace header describes (no trace path set).
+// Builds the RunSpec a trace header describes (no trace path set), with the
+// connector command as given.
 RunSpec SpecFromHeader(const v1::TraceHeader& header);
+
+// Why the connector never came up, when `event` is the failure of a "Start"
+// call (exited, timed out or refused before its handshake); else nullopt.
+std::optional<std::string> StartFailure(const v1::TraceEvent& event);
+
+// Watches a run for the first StartFailure (add to RunSpec::observers).
+class StartFailureWatch : public TraceObserver {
+ public:
+  void OnEvent(const v1::TraceEvent& event) override;
+  // The first start failure: its reason and incarnation; empty reason: none.
+  const std::string& reason() const { return reason_; }
+  std::uint64_t incarnation() const { return incarnation_; }
+
+ private:
+  std::string reason_;
+  std::uint64_t incarnation_ = 0;
+};
 
 }  // namespace weir
