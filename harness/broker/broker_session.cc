@@ -97,17 +97,34 @@ bool BrokerSession::Throttled(v1::Site site, std::uint64_t position,
   return true;
 }
 
-void BrokerSession::TraceFailure(const char* method, const CallStatus& status) {
+void BrokerSession::TraceFailure(const char* method, const CallStatus& status,
+                                 std::optional<std::uint32_t> partition) {
   auto& e = trace_.Append(now_);
   auto* x = e.mutable_broker_call_failed();
   x->set_method(method);
   x->set_code(static_cast<int>(status.code));
   x->set_retry_after_ns(status.retry_after);
+  if (partition.has_value()) x->set_partition(*partition);
   trace_.Commit();
 }
 
+bool BrokerSession::ShapeMatches(const char* method, bool log_call, CallStatus* status) {
+  if (log_call == (log_ != nullptr)) return true;
+  status->now = now_;
+  status->code = CallCode::kFailedPrecondition;
+  status->message = absl::StrCat(method, " is a ", log_call ? "log" : "queue",
+                                 " call, but this run's broker is a ",
+                                 log_call ? "queue" : "log");
+  auto& e = trace_.Append(now_);
+  auto* x = e.mutable_protocol_error();
+  x->set_call(method);
+  x->set_detail(status->message);
+  trace_.Commit();
+  return false;
+}
+
 bool BrokerSession::Enter(const char* method, v1::Site site, CallStatus* status,
-                          std::uint64_t* position) {
+                          std::uint64_t* position, std::optional<std::uint32_t> partition) {
   status->now = now_;
   if (!in_call_) {
     status->code = CallCode::kFailedPrecondition;
@@ -128,6 +145,7 @@ bool BrokerSession::Enter(const char* method, v1::Site site, CallStatus* status,
     auto& e = trace_.Append(now_);
     e.mutable_broker_call()->set_method(method);
     e.mutable_broker_call()->set_position(k);
+    if (partition.has_value()) e.mutable_broker_call()->set_partition(*partition);
     trace_.Commit();
   }
 
@@ -155,7 +173,7 @@ bool BrokerSession::Enter(const char* method, v1::Site site, CallStatus* status,
     status->code = CallCode::kResourceExhausted;
     status->message = "throttled";
     status->retry_after = retry_after;
-    TraceFailure(method, *status);
+    TraceFailure(method, *status, partition);
     return false;
   }
 
@@ -177,7 +195,7 @@ bool BrokerSession::Enter(const char* method, v1::Site site, CallStatus* status,
     const bool deadline = transient->transient().code() == v1::DEADLINE_EXCEEDED;
     status->code = deadline ? CallCode::kDeadlineExceeded : CallCode::kUnavailable;
     status->message = deadline ? "deadline exceeded (transient)" : "broker unavailable (transient)";
-    TraceFailure(method, *status);
+    TraceFailure(method, *status, partition);
     return false;
   }
   return true;
@@ -194,18 +212,20 @@ void BrokerSession::OnStrayCall(const std::string& method) {
 CallStatus BrokerSession::Pull(const v1::PullRequest& request, v1::PullResponse* response) {
   CallStatus status;
   std::uint64_t k = 0;
-  if (!Enter("Pull", v1::PULL, &status, &k)) {
+  if (!ShapeMatches("Pull", false, &status) || !Enter("Pull", v1::PULL, &status, &k)) {
     response->set_now_ns(status.now);
     return status;
   }
-  model_.Pull(request, now_, response, k);
+  queue_->Pull(request, now_, response, k);
   return status;
 }
 
 CallStatus BrokerSession::Ack(const v1::AckRequest& request, v1::AckResponse* response) {
   CallStatus status;
   std::uint64_t k = 0;
-  if (Enter("Ack", v1::ACK, &status, &k)) model_.Ack(request, now_, k);
+  if (ShapeMatches("Ack", false, &status) && Enter("Ack", v1::ACK, &status, &k)) {
+    queue_->Ack(request, now_, k);
+  }
   response->set_now_ns(status.now);
   return status;
 }
@@ -213,7 +233,9 @@ CallStatus BrokerSession::Ack(const v1::AckRequest& request, v1::AckResponse* re
 CallStatus BrokerSession::Nack(const v1::NackRequest& request, v1::NackResponse* response) {
   CallStatus status;
   std::uint64_t k = 0;
-  if (Enter("Nack", v1::NACK, &status, &k)) model_.Nack(request, now_);
+  if (ShapeMatches("Nack", false, &status) && Enter("Nack", v1::NACK, &status, &k)) {
+    queue_->Nack(request, now_);
+  }
   response->set_now_ns(status.now);
   return status;
 }
@@ -222,11 +244,67 @@ CallStatus BrokerSession::ExtendLease(const v1::ExtendLeaseRequest& request,
                                       v1::ExtendLeaseResponse* response) {
   CallStatus status;
   std::uint64_t k = 0;
-  if (!Enter("ExtendLease", v1::EXTEND_LEASE, &status, &k)) {
+  if (!ShapeMatches("ExtendLease", false, &status) ||
+      !Enter("ExtendLease", v1::EXTEND_LEASE, &status, &k)) {
     response->set_now_ns(status.now);
     return status;
   }
-  model_.ExtendLease(request, now_, response);
+  queue_->ExtendLease(request, now_, response);
+  return status;
+}
+
+CallStatus BrokerSession::ListPartitions(const v1::ListPartitionsRequest& /*request*/,
+                                         v1::ListPartitionsResponse* response) {
+  CallStatus status;
+  std::uint64_t k = 0;
+  if (!ShapeMatches("ListPartitions", true, &status) ||
+      !Enter("ListPartitions", v1::LIST_PARTITIONS, &status, &k)) {
+    response->set_now_ns(status.now);
+    return status;
+  }
+  log_->ListPartitions(now_, response);
+  return status;
+}
+
+CallStatus BrokerSession::Read(const v1::ReadRequest& request, v1::ReadResponse* response) {
+  CallStatus status;
+  std::uint64_t k = 0;
+  if (!ShapeMatches("Read", true, &status) ||
+      !Enter("Read", v1::READ, &status, &k, request.partition())) {
+    response->set_now_ns(status.now);
+    return status;
+  }
+  status = log_->Read(request, &now_, response, k);
+  status.now = now_;
+  response->set_now_ns(now_);
+  if (!status.ok()) TraceFailure("Read", status, request.partition());
+  return status;
+}
+
+CallStatus BrokerSession::SaveBookmarks(const v1::SaveBookmarksRequest& request,
+                                        v1::SaveBookmarksResponse* response) {
+  CallStatus status;
+  std::uint64_t k = 0;
+  if (ShapeMatches("SaveBookmarks", true, &status) &&
+      Enter("SaveBookmarks", v1::SAVE_BOOKMARKS, &status, &k)) {
+    status = log_->SaveBookmarks(request, now_, k);
+    status.now = now_;
+    if (!status.ok()) TraceFailure("SaveBookmarks", status);
+  }
+  response->set_now_ns(status.now);
+  return status;
+}
+
+CallStatus BrokerSession::LoadBookmarks(const v1::LoadBookmarksRequest& /*request*/,
+                                        v1::LoadBookmarksResponse* response) {
+  CallStatus status;
+  std::uint64_t k = 0;
+  if (!ShapeMatches("LoadBookmarks", true, &status) ||
+      !Enter("LoadBookmarks", v1::LOAD_BOOKMARKS, &status, &k)) {
+    response->set_now_ns(status.now);
+    return status;
+  }
+  log_->LoadBookmarks(now_, response);
   return status;
 }
 

@@ -71,10 +71,15 @@ std::string DescribeDecision(const v1::FaultDecision& d) {
     case v1::FaultDecision::kReorder: return at + "reorder";
     case v1::FaultDecision::kBrokerRestart: return at + "broker restart";
     case v1::FaultDecision::kCommitFailure: return at + "commit failure";
+    case v1::FaultDecision::kPartitionOutageMs:
+      return absl::StrCat(at, "partition unavailable for ", d.partition_outage_ms(), " ms");
+    case v1::FaultDecision::kEmptyRead: return at + "empty read";
+    case v1::FaultDecision::kLostBookmark: return at + "lost bookmark";
     case v1::FaultDecision::kCrash: {
       std::string s = absl::StrCat(at, "crash ", v1::CrashPoint_Name(d.crash().point()));
       const auto p = d.crash().point();
-      if (p == v1::IN_STEP_AFTER_BROKER_CALL || p == v1::IN_NOTICE_AFTER_ACK) {
+      if (p == v1::IN_STEP_AFTER_BROKER_CALL || p == v1::IN_NOTICE_AFTER_ACK ||
+          p == v1::IN_NOTICE_AFTER_BOOKMARK_SAVE) {
         absl::StrAppend(&s, " (after ", std::max<std::uint32_t>(1, d.crash().after_calls()), ")");
       }
       return s;

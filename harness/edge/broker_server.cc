@@ -21,6 +21,13 @@ grpc::Status ToGrpc(const CallStatus& status, grpc::ServerContext& context) {
     return grpc::Status(grpc::StatusCode::RESOURCE_EXHAUSTED, status.message,
                         detail.SerializeAsString());
   }
+  if (status.code == CallCode::kOutOfRange) {
+    context.AddTrailingMetadata("weir-first-retained-offset",
+                                std::to_string(status.first_retained_offset));
+    v1::OffsetOutOfRange detail;
+    detail.set_first_retained_offset(status.first_retained_offset);
+    return grpc::Status(grpc::StatusCode::OUT_OF_RANGE, status.message, detail.SerializeAsString());
+  }
   return grpc::Status(static_cast<grpc::StatusCode>(status.code), status.message);
 }
 
@@ -160,6 +167,17 @@ absl::StatusOr<std::unique_ptr<BrokerServer>> BrokerServer::Start(const std::str
   new MethodCall<v1::ExtendLeaseRequest, v1::ExtendLeaseResponse>(
       *server, impl.service, impl.queue.get(),
       {"ExtendLease", &Svc::RequestExtendLease, &BrokerEndpoint::ExtendLease});
+  new MethodCall<v1::ListPartitionsRequest, v1::ListPartitionsResponse>(
+      *server, impl.service, impl.queue.get(),
+      {"ListPartitions", &Svc::RequestListPartitions, &BrokerEndpoint::ListPartitions});
+  new MethodCall<v1::ReadRequest, v1::ReadResponse>(
+      *server, impl.service, impl.queue.get(), {"Read", &Svc::RequestRead, &BrokerEndpoint::Read});
+  new MethodCall<v1::SaveBookmarksRequest, v1::SaveBookmarksResponse>(
+      *server, impl.service, impl.queue.get(),
+      {"SaveBookmarks", &Svc::RequestSaveBookmarks, &BrokerEndpoint::SaveBookmarks});
+  new MethodCall<v1::LoadBookmarksRequest, v1::LoadBookmarksResponse>(
+      *server, impl.service, impl.queue.get(),
+      {"LoadBookmarks", &Svc::RequestLoadBookmarks, &BrokerEndpoint::LoadBookmarks});
   return server;
 }
 

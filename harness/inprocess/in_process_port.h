@@ -24,7 +24,7 @@
 #include <string>
 
 #include "absl/status/statusor.h"
-#include "harness/edge/grpc_run.h"
+#include "harness/run/run.h"
 #include "harness/runtime/connector_port.h"
 #include "weir/adapter/source.h"
 #include "weir/v1/suite.pb.h"

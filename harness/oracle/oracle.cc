@@ -24,14 +24,26 @@ bool ClaimsWatermark(const v1::Profile& p) {
 
 }  // namespace
 
-Oracle::Oracle(const v1::Profile& profile)
+Oracle::Oracle(const v1::Profile& profile, v1::SourceShape shape)
     : exactly_once_(profile.guarantee() == v1::Profile::EXACTLY_ONCE),
       lateness_bounded_(profile.watermark_policy() == v1::Profile::BOUNDED_LATENESS),
       allowed_lateness_(Millis(profile.allowed_lateness_ms())),
       idle_timeout_(ClaimsWatermark(profile) ? Millis(profile.idle_timeout_ms()) : 0),
       idle_max_lag_(Millis(profile.has_idle_max_lag_ms() ? profile.idle_max_lag_ms()
                                                          : profile.idle_timeout_ms())),
-      min_backoff_(Millis(profile.min_backoff_ms())) {
+      min_backoff_(Millis(profile.min_backoff_ms())),
+      log_(profile, verdict_,
+           [this](Invariant invariant, const std::string& sentence, std::vector<EventRef> cited,
+                  const TraceEvent* current) {
+             Report(invariant, sentence, std::move(cited), current);
+           }) {
+  const bool log = shape == v1::LOG;
+  for (Invariant i : {Invariant::kOffsetGap, Invariant::kPositionBeforeCommit,
+                      Invariant::kResumeExact, Invariant::kSilentSkip, Invariant::kNewPartition}) {
+    verdict_.at(i).applies = log;
+  }
+  verdict_.at(Invariant::kAckBeforeCommit).applies = !log;
+  verdict_.at(Invariant::kLostMessage).applies = !log;
   verdict_.at(Invariant::kDuplicateOutput).checked = exactly_once_;
   verdict_.at(Invariant::kRetryStorm).checked = min_backoff_ > 0;
   verdict_.at(Invariant::kWatermarkStall).checked = idle_timeout_ > 0;
@@ -111,7 +123,29 @@ void Oracle::OnEvent(const TraceEvent& e) {
     case TraceEvent::kAckIgnored:
       OnAckIgnored(e);
       break;
+    case TraceEvent::kAppended:
+      log_.OnAppended(e);
+      EndIdle();
+      break;
+    case TraceEvent::kLogRead:
+      log_.OnLogRead(e);
+      if (e.log_read().records() > 0) EndIdle();
+      break;
+    case TraceEvent::kRetentionDeleted:
+      log_.OnRetention(e);
+      break;
+    case TraceEvent::kPartitionAdded:
+      log_.OnPartitionAdded(e);
+      EndIdle();
+      break;
+    case TraceEvent::kBookmarkSaved:
+      log_.OnBookmarkSaved(e);
+      break;
+    case TraceEvent::kGapReported:
+      log_.OnGapReported(e);
+      break;
     case TraceEvent::kCheckpoint: {
+      log_.OnCheckpoint(e);
       auto& epoch = pending_[e.checkpoint().checkpoint_id()];
       epoch.insert(epoch.end(), open_epoch_.begin(), open_epoch_.end());
       open_epoch_.clear();
@@ -119,14 +153,17 @@ void Oracle::OnEvent(const TraceEvent& e) {
     }
     case TraceEvent::kCommitted:
       OnCommitted(e);
+      log_.OnCommitted(e);
       break;
     case TraceEvent::kCommitFailed:
       pending_.erase(e.commit_failed().checkpoint_id());
+      log_.OnCommitFailed(e);
       break;
     case TraceEvent::kAcked:
       OnAcked(e);
       break;
     case TraceEvent::kOpened:
+      log_.OnOpened(e);
       DiscardUncommitted();
       opened_ref_ = MakeRef(e);
       methods_.clear();
@@ -145,6 +182,7 @@ void Oracle::OnEvent(const TraceEvent& e) {
       EndIdle();
       break;
     case TraceEvent::kCrashed:
+      log_.OnCrashed(e);
       DiscardUncommitted();
       EndIdle();
       break;
@@ -176,6 +214,7 @@ void Oracle::OnEvent(const TraceEvent& e) {
       break;
     case TraceEvent::kRunEnded:
       OnRunEnded(e);
+      log_.OnRunEnded(e);
       break;
     case TraceEvent::kBrokerCall:
       OnBrokerCall(e);
@@ -243,7 +282,7 @@ void Oracle::OnDelivered(const TraceEvent& e) {
 void Oracle::OnEmitted(const TraceEvent& e) {
   const std::uint64_t id = e.emitted().message_id();
   const EventRef ref = MakeRef(e);
-  open_epoch_.push_back(PendingRecord{id, ref});
+  if (!e.emitted().has_offset()) open_epoch_.push_back(PendingRecord{id, ref});
   // late-record: against the last watermark reported before this step (this
   // step's own watermark comes with its stepped event, after its records).
   if (reported_watermark_.has_value() && e.emitted().event_time_ns() < *reported_watermark_) {
@@ -251,13 +290,21 @@ void Oracle::OnEmitted(const TraceEvent& e) {
     const VirtualDuration late = *reported_watermark_ - e.emitted().event_time_ns();
     if (lateness_bounded_ && late > allowed_lateness_) {
       Report(Invariant::kLateRecord,
-             absl::StrCat("Step ", e.emitted().step(), " emitted a record of message ", id,
+             absl::StrCat("Step ", e.emitted().step(), " emitted a record of ",
+                          e.emitted().has_offset()
+                              ? absl::StrCat("partition ", e.emitted().partition(), " offset ",
+                                             e.emitted().offset())
+                              : absl::StrCat("message ", id),
                           " with event time ", FormatTime(e.emitted().event_time_ns()), ", ",
                           FormatTime(late), " below the watermark ",
                           FormatTime(*reported_watermark_), " reported before it (allowed: ",
                           FormatTime(allowed_lateness_), ")."),
              {reported_ref_}, &e);
     }
+  }
+  if (e.emitted().has_offset()) {  // a log record: named by partition and offset
+    log_.OnEmitted(e);
+    return;
   }
   if (IsRetired(id)) return;  // delivery history retired with it
   auto it = messages_.find(id);
@@ -299,6 +346,7 @@ void Oracle::OnStepped(const TraceEvent& e) {
     if (reported_watermark_ != x.watermark_ns()) reported_ref_ = MakeRef(e);
     reported_watermark_ = x.watermark_ns();
   }
+  log_.OnStepped(e, reported_watermark_, reported_ref_);
   if (!x.broker_idle() || awaiting_ > 0) {
     EndIdle();
     return;

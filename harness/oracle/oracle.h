@@ -57,16 +57,20 @@
 #include <vector>
 
 #include "absl/container/flat_hash_map.h"
+#include "harness/oracle/log_rules.h"
 #include "harness/oracle/verdict.h"
 #include "harness/trace/event_ref.h"
 #include "harness/trace/trace_log.h"
+#include "weir/v1/connector.pb.h"
 #include "weir/v1/scenario.pb.h"
 
 namespace weir {
 
 class Oracle : public TraceObserver {
  public:
-  explicit Oracle(const v1::Profile& profile);
+  // `shape`: the run's broker shape. The log rules live in LogRules
+  // (log_rules.h); the rules of the other shape do not apply to a run.
+  explicit Oracle(const v1::Profile& profile, v1::SourceShape shape = v1::QUEUE);
 
   void OnEvent(const v1::TraceEvent& event) override;
   // The verdict over every event seen. Call once, after the last event.
@@ -165,6 +169,7 @@ class Oracle : public TraceObserver {
   };
   const VirtualDuration min_backoff_;
   absl::flat_hash_map<std::string, MethodState> methods_;
+  LogRules log_;
 };
 
 }  // namespace weir

@@ -16,6 +16,11 @@ const char* InvariantName(Invariant invariant) {
     case Invariant::kProtocolError: return "protocol-error";
     case Invariant::kThrottleViolation: return "throttle-violation";
     case Invariant::kRetryStorm: return "retry-storm";
+    case Invariant::kOffsetGap: return "offset-gap";
+    case Invariant::kPositionBeforeCommit: return "position-before-commit";
+    case Invariant::kResumeExact: return "resume-exact";
+    case Invariant::kSilentSkip: return "silent-skip";
+    case Invariant::kNewPartition: return "new-partition";
     case Invariant::kCount: break;
   }
   return "unknown";
@@ -62,6 +67,22 @@ const char* InvariantRule(Invariant invariant) {
     case Invariant::kRetryStorm:
       return "After a transient broker failure of a method, the connector's next call of that "
              "method must come no sooner than the profile's minimum backoff.";
+    case Invariant::kOffsetGap:
+      return "Log: every offset appended to a partition must have a record in the committed "
+             "output by the end of the run, except offsets retention deleted before any read and "
+             "before a committed resume point passed them (counted as deleted unread) and, when "
+             "the profile allows gaps, offsets the connector reported as a gap.";
+    case Invariant::kPositionBeforeCommit:
+      return "Log: a bookmark saved at the broker must not be beyond the resume point of its "
+             "partition in the last committed checkpoint.";
+    case Invariant::kResumeExact:
+      return "Log: after Open, the first read of each held partition must start exactly at the "
+             "resume point Open gave it (a skip always fails; a rewind fails under exactly-once).";
+    case Invariant::kSilentSkip:
+      return "Log: a reader that moves past offsets retention deleted must report them as a gap "
+             "before it emits the records after them.";
+    case Invariant::kNewPartition:
+      return "Log: a partition added during the run must be read.";
     case Invariant::kCount:
       break;
   }

@@ -27,6 +27,12 @@ enum class Invariant : int {
   kProtocolError,
   kThrottleViolation,
   kRetryStorm,
+  // Log shape.
+  kOffsetGap,
+  kPositionBeforeCommit,
+  kResumeExact,
+  kSilentSkip,
+  kNewPartition,
   kCount,  // not an invariant
 };
 
@@ -53,6 +59,7 @@ struct Violation {
 
 struct InvariantResult {
   bool checked = true;            // false when the profile does not claim it
+  bool applies = true;            // false when the run's broker shape has no such thing
   std::uint64_t violations = 0;   // how many times it failed
   std::vector<Violation> first;   // the first few, in trace order
 };
@@ -65,6 +72,12 @@ struct Verdict {
   // step (counted under every profile; failing only under BOUNDED_LATENESS).
   std::uint64_t late_records = 0;
   std::uint64_t events = 0;
+  // Log shape: offsets retention deleted before any read or commit (never a
+  // failure), offsets the connector reported as gaps, and rewinds at a
+  // resume point counted under at-least-once.
+  std::uint64_t deleted_unread = 0;
+  std::uint64_t gap_offsets = 0;
+  std::uint64_t rewinds = 0;
 
   bool passed() const {
     for (const auto& r : results) {

@@ -11,6 +11,7 @@
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_format.h"
 #include "harness/cli/command_line.h"
+#include "harness/core/record_key.h"
 #include "harness/core/virtual_time.h"
 #include "harness/oracle/oracle.h"
 #include "harness/replay/trace_reader.h"
@@ -27,12 +28,27 @@ constexpr std::size_t kMaxLines = 80;        // per violation
 constexpr std::uint64_t kDrawBefore = 60;    // events drawn before a proving event
 constexpr std::uint64_t kDrawAfter = 20;     // and after it
 
-// The message an event is about, or 0.
+// Log events are followed by partition: every event of a partition a proving
+// event names is shown in the window.
+std::uint64_t PartitionTag(std::uint32_t partition) { return LogRecordKey(partition, kMaxOffset); }
+
+// The message (queue) or partition (log) an event is about, or 0.
 std::uint64_t MessageOf(const TraceEvent& e) {
   switch (e.kind_case()) {
     case TraceEvent::kPublished: return e.published().message_id();
     case TraceEvent::kDelivered: return e.delivered().message_id();
-    case TraceEvent::kEmitted: return e.emitted().message_id();
+    case TraceEvent::kEmitted:
+      return e.emitted().has_offset() ? PartitionTag(e.emitted().partition())
+                                      : e.emitted().message_id();
+    case TraceEvent::kAppended: return PartitionTag(e.appended().partition());
+    case TraceEvent::kLogRead: return PartitionTag(e.log_read().partition());
+    case TraceEvent::kRetentionDeleted: return PartitionTag(e.retention_deleted().partition());
+    case TraceEvent::kPartitionAdded: return PartitionTag(e.partition_added().partition());
+    case TraceEvent::kBookmarkSaved: return PartitionTag(e.bookmark_saved().partition());
+    case TraceEvent::kGapReported: return PartitionTag(e.gap_reported().partition());
+    case TraceEvent::kBrokerCallFailed:
+      return e.broker_call_failed().has_partition() ? PartitionTag(e.broker_call_failed().partition())
+                                                    : 0;
     case TraceEvent::kAcked: return e.acked().message_id();
     case TraceEvent::kNacked: return e.nacked().message_id();
     case TraceEvent::kLeaseExtended: return e.lease_extended().message_id();
@@ -110,7 +126,7 @@ absl::StatusOr<ExplainOutput> ExplainTrace(const std::string& path, const Explai
   // Pass 1: the oracle, and the overview's commits and crashes.
   ExplainOutput out;
   RunTimelines& tl = out.timelines;
-  Oracle oracle(header.scenario().profile());
+  Oracle oracle(header.scenario().profile(), header.scenario().has_log() ? v1::LOG : v1::QUEUE);
   if (absl::Status st = ForEachEvent(path, [&](const TraceEvent& e) {
         oracle.OnEvent(e);
         tl.overview.end_ns = e.t_ns();

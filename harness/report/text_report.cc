@@ -12,12 +12,18 @@ std::string FormatVerdictTable(const Verdict& verdict) {
   for (int i = 0; i < kInvariantCount; ++i) {
     const auto inv = static_cast<Invariant>(i);
     const InvariantResult& r = verdict.at(inv);
+    if (!r.applies) continue;  // the other broker shape's rule
     const char* word = !r.checked ? "not claimed" : r.violations == 0 ? "held" : "FAILED";
     out += absl::StrFormat("%-22s %-12s %d\n", InvariantName(inv), word, r.violations);
   }
   // Figures that never fail a run on their own (see Verdict).
   absl::StrAppend(&out, "figures: ", verdict.duplicate_records, " duplicate records, ",
-                  verdict.late_records, " late records\n");
+                  verdict.late_records, " late records");
+  if (verdict.at(Invariant::kOffsetGap).applies) {
+    absl::StrAppend(&out, ", ", verdict.deleted_unread, " offsets deleted unread, ",
+                    verdict.gap_offsets, " offsets reported as gaps, ", verdict.rewinds, " rewinds");
+  }
+  out += "\n";
   return out;
 }
 

@@ -30,6 +30,8 @@ namespace weir {
 
 class CrashGate : public BrokerEndpoint {
  public:
+  // kAckCalls: the calls a commit notice acknowledges with (Ack in the queue
+  // shape, SaveBookmarks in the log shape).
   enum class Count { kAnyCall, kAckCalls };
 
   // REQUIRES: inner outlives the gate.
@@ -69,6 +71,33 @@ class CrashGate : public BrokerEndpoint {
   CallStatus ExtendLease(const v1::ExtendLeaseRequest& rq, v1::ExtendLeaseResponse* rs) override {
     if (fired_) return Refused();
     CallStatus st = inner_.ExtendLease(rq, rs);
+    Counted(Count::kAnyCall);
+    return st;
+  }
+  CallStatus ListPartitions(const v1::ListPartitionsRequest& rq,
+                            v1::ListPartitionsResponse* rs) override {
+    if (fired_) return Refused();
+    CallStatus st = inner_.ListPartitions(rq, rs);
+    Counted(Count::kAnyCall);
+    return st;
+  }
+  CallStatus Read(const v1::ReadRequest& rq, v1::ReadResponse* rs) override {
+    if (fired_) return Refused();
+    CallStatus st = inner_.Read(rq, rs);
+    Counted(Count::kAnyCall);
+    return st;
+  }
+  CallStatus SaveBookmarks(const v1::SaveBookmarksRequest& rq,
+                           v1::SaveBookmarksResponse* rs) override {
+    if (fired_) return Refused();
+    CallStatus st = inner_.SaveBookmarks(rq, rs);
+    Counted(Count::kAckCalls);
+    return st;
+  }
+  CallStatus LoadBookmarks(const v1::LoadBookmarksRequest& rq,
+                           v1::LoadBookmarksResponse* rs) override {
+    if (fired_) return Refused();
+    CallStatus st = inner_.LoadBookmarks(rq, rs);
     Counted(Count::kAnyCall);
     return st;
   }

@@ -23,6 +23,7 @@ const char* CrashPointName(v1::CrashPoint point) {
     case v1::AFTER_CHECKPOINT_BEFORE_COMMIT: return "after-checkpoint-before-commit";
     case v1::AFTER_COMMIT_BEFORE_NOTICE: return "after-commit-before-notice";
     case v1::IN_NOTICE_AFTER_ACK: return "in-notice-after-ack";
+    case v1::IN_NOTICE_AFTER_BOOKMARK_SAVE: return "in-notice-after-bookmark-save";
     default: return "unspecified";
   }
 }
@@ -126,6 +127,27 @@ bool RuntimeModel::StartIncarnation() {
     request.set_checkpoint_state(latest->state);
   }
   watermark_ = latest.has_value() ? latest->watermark : std::nullopt;
+  const bool log = broker_.shape() == v1::LOG;
+  if (log) {
+    // The reader holds every partition, each from its committed resume point
+    // (or from offset 0), and every partition added later.
+    broker_.AdvanceTo(now_);
+    const std::uint32_t n = broker_.partition_count();
+    std::size_t r = 0;
+    for (std::uint32_t p = 0; p < n; ++p) {
+      std::uint64_t start = 0;
+      if (latest.has_value()) {
+        const auto& points = latest->resume_points;
+        while (r < points.size() && points[r].partition < p) ++r;
+        if (r < points.size() && points[r].partition == p) start = points[r].next_offset;
+      }
+      auto* span = request.add_spans();
+      span->set_partition(p);
+      span->set_start_offset(start);
+    }
+    request.set_new_partitions_held(true);
+  }
+  broker_.OnIncarnationStart();
 
   auto& e = trace_.Append(now_);
   auto* x = e.mutable_opened();
@@ -134,11 +156,27 @@ bool RuntimeModel::StartIncarnation() {
     x->set_checkpoint_id(latest->id);
     if (latest->watermark.has_value()) x->set_watermark_ns(*latest->watermark);
   }
+  for (const v1::Span& span : request.spans()) {
+    auto* held = x->add_spans();
+    held->set_partition(span.partition());
+    held->set_start_offset(span.start_offset());
+    if (span.has_end_offset()) held->set_end_offset(span.end_offset());
+  }
+  if (log) x->set_new_partitions_held(true);
   trace_.Commit();
 
   v1::OpenResponse response;
   if (ConnectorFailure f = Call(&ConnectorPort::Open, request, &response); !f.ok()) {
     TraceFailure("Open", f);
+    return false;
+  }
+  const v1::SourceShape reads =
+      response.shape() == v1::SOURCE_SHAPE_UNSPECIFIED ? v1::QUEUE : response.shape();
+  if (reads != broker_.shape()) {
+    TraceProtocolError("Open", std::string("the connector reads a ") +
+                                   (reads == v1::LOG ? "log" : "queue") +
+                                   ", but this scenario's broker is a " +
+                                   (log ? "log" : "queue"));
     return false;
   }
   queue_.Push(now_, Event{EventKind::kStep, incarnation_});
@@ -194,20 +232,44 @@ bool RuntimeModel::DoStep() {
     return false;
   }
   crashes_since_step_ = 0;
-  const std::uint64_t total = broker_.total_messages();
   std::uint32_t accepted = 0;
+  std::string why;
   for (const v1::Record& r : response.records()) {
-    if (r.message_id() == 0 || r.message_id() > total) {
-      TraceProtocolError("Advance", "record names message " + std::to_string(r.message_id()) +
-                                        ", which the broker never published");
+    const std::optional<RecordKey> key = broker_.Identify(r, &why);
+    if (!key.has_value()) {
+      TraceProtocolError("Advance", "record " + why);
       continue;
     }
-    open_epoch_.push_back(r.message_id());
+    open_epoch_.push_back(*key);
     ++accepted;
     auto& e = trace_.Append(now_);
     auto* x = e.mutable_emitted();
-    x->set_message_id(r.message_id());
+    if (r.has_offset()) {
+      x->set_partition(r.partition());
+      x->set_offset(r.offset());
+    } else {
+      x->set_message_id(r.message_id());
+    }
     x->set_event_time_ns(r.event_time_ns());
+    x->set_step(step_);
+    trace_.Commit();
+  }
+  for (const v1::Gap& gap : response.gaps()) {
+    v1::Record last;
+    last.set_partition(gap.partition());
+    last.set_offset(gap.to_offset() - 1);
+    if (gap.from_offset() >= gap.to_offset() || !broker_.Identify(last, &why).has_value()) {
+      TraceProtocolError("Advance", "gap [" + std::to_string(gap.from_offset()) + ", " +
+                                        std::to_string(gap.to_offset()) + ") of partition " +
+                                        std::to_string(gap.partition()) +
+                                        " is empty or names offsets never appended");
+      continue;
+    }
+    auto& e = trace_.Append(now_);
+    auto* x = e.mutable_gap_reported();
+    x->set_partition(gap.partition());
+    x->set_from_offset(gap.from_offset());
+    x->set_to_offset(gap.to_offset());
     x->set_step(step_);
     trace_.Commit();
   }
@@ -269,8 +331,14 @@ bool RuntimeModel::DoCheckpointCycle() {
     TraceFailure("Checkpoint", f);
     return false;
   }
-  std::vector<std::uint64_t> epoch;
+  std::vector<RecordKey> epoch;
   epoch.swap(open_epoch_);
+  std::vector<ResumePoint> resume_points;
+  for (const v1::ResumePoint& r : response.resume_points()) {
+    resume_points.push_back(ResumePoint{r.partition(), r.next_offset()});
+  }
+  std::stable_sort(resume_points.begin(), resume_points.end(),
+                   [](const ResumePoint& a, const ResumePoint& b) { return a.partition < b.partition; });
   {
     auto& e = trace_.Append(now_);
     auto* x = e.mutable_checkpoint();
@@ -278,6 +346,11 @@ bool RuntimeModel::DoCheckpointCycle() {
     x->set_records(static_cast<std::uint32_t>(epoch.size()));
     if (watermark_.has_value()) x->set_watermark_ns(*watermark_);
     x->set_state_bytes(response.state().size());
+    for (const ResumePoint& r : resume_points) {
+      auto* y = x->add_resume_points();
+      y->set_partition(r.partition);
+      y->set_next_offset(r.next_offset);
+    }
     trace_.Commit();
   }
 
@@ -289,12 +362,15 @@ bool RuntimeModel::DoCheckpointCycle() {
             if (!faults_.Chance("checkpoint_crash", id, faults_.config().checkpoint_crash_rate())) {
               return false;
             }
-            static constexpr v1::CrashPoint kPoints[] = {v1::AFTER_CHECKPOINT_BEFORE_COMMIT,
-                                                         v1::AFTER_COMMIT_BEFORE_NOTICE,
-                                                         v1::IN_NOTICE_AFTER_ACK};
+            // The notice acknowledges with acks (queue) or bookmark saves (log).
+            const v1::CrashPoint kPoints[] = {v1::AFTER_CHECKPOINT_BEFORE_COMMIT,
+                                              v1::AFTER_COMMIT_BEFORE_NOTICE,
+                                              broker_.shape() == v1::LOG
+                                                  ? v1::IN_NOTICE_AFTER_BOOKMARK_SAVE
+                                                  : v1::IN_NOTICE_AFTER_ACK};
             auto* c = out->mutable_crash();
             c->set_point(kPoints[faults_.Int("checkpoint_crash.point", id, 0, 2)]);
-            if (c->point() == v1::IN_NOTICE_AFTER_ACK) c->set_after_calls(1);
+            if (c->point() == kPoints[2]) c->set_after_calls(1);
             return true;
           })) {
     crash = d->crash();
@@ -323,7 +399,9 @@ bool RuntimeModel::DoCheckpointCycle() {
     return CrashAndRestart("commit-failed");
   }
 
-  store_.Commit(CommittedCheckpoint{id, std::move(*response.mutable_state()), watermark_}, epoch);
+  store_.Commit(CommittedCheckpoint{id, std::move(*response.mutable_state()), watermark_,
+                                    std::move(resume_points)},
+                epoch);
   ++checkpoints_;
   {
     auto& e = trace_.Append(now_);
@@ -340,14 +418,16 @@ bool RuntimeModel::DoCheckpointCycle() {
     e.mutable_commit_notice()->set_checkpoint_id(id);
     trace_.Commit();
   }
-  if (crash_at(v1::IN_NOTICE_AFTER_ACK)) gate_.Arm(CrashGate::Count::kAckCalls, crash->after_calls());
+  const bool notice_crash =
+      crash_at(v1::IN_NOTICE_AFTER_ACK) || crash_at(v1::IN_NOTICE_AFTER_BOOKMARK_SAVE);
+  if (notice_crash) gate_.Arm(CrashGate::Count::kAckCalls, crash->after_calls());
   v1::CommittedRequest notice;
   notice.set_checkpoint_id(id);
   v1::CommittedResponse ignored;
   ConnectorFailure f = Call(&ConnectorPort::Committed, notice, &ignored);
   const bool fired = gate_.fired();
   gate_.Disarm();
-  if (fired) return CrashAndRestart(CrashPointName(v1::IN_NOTICE_AFTER_ACK));
+  if (fired) return CrashAndRestart(CrashPointName(crash->point()));
   if (!f.ok()) {
     TraceFailure("Committed", f);
     return false;
@@ -355,9 +435,7 @@ bool RuntimeModel::DoCheckpointCycle() {
   return true;
 }
 
-bool RuntimeModel::AllCommitted() const {
-  return broker_.all_published() && store_.committed_messages() >= broker_.total_messages();
-}
+bool RuntimeModel::AllCommitted() const { return broker_.Drained(store_); }
 
 RunSummary RuntimeModel::Run() {
   RunSummary summary;

@@ -130,7 +130,7 @@ class RuntimeModel {
   bool crash_loop_ = false;
   bool finished_ = false;  // the live incarnation said it is finished
   std::optional<VirtualTime> watermark_;  // last reported in this incarnation
-  std::vector<std::uint64_t> open_epoch_;  // message ids of records not yet checkpointed
+  std::vector<RecordKey> open_epoch_;  // keys of records not yet checkpointed
 };
 
 }  // namespace weir

@@ -35,10 +35,6 @@ void Duration(TextFile& f, std::int64_t v, const std::string& field,
      absl::StrCat(Name(field, parent), " is ", v, "; expected a duration >= 0"));
 }
 
-bool IsBrokerCallSite(v1::Site s) {
-  return s == v1::PULL || s == v1::ACK || s == v1::NACK || s == v1::EXTEND_LEASE;
-}
-
 // What the fault of d is called in a message: "crash at BEFORE_STEP", "lost_ack"…
 std::string FaultName(const v1::FaultDecision& d) {
   if (d.fault_case() == v1::FaultDecision::kCrash) {
@@ -48,24 +44,41 @@ std::string FaultName(const v1::FaultDecision& d) {
   return field == nullptr ? "this fault" : field->name();
 }
 
-// nullptr when d's fault can apply at d's site; otherwise the site(s) it needs.
-// Mirrors the plan file's rules (plan_file.cc): step crash points fire only at
-// STEP, checkpoint crash points only at CHECKPOINT, broker faults at the calls.
+}  // namespace
+
+bool IsBrokerCallSite(v1::Site s) {
+  switch (s) {
+    case v1::PULL: case v1::ACK: case v1::NACK: case v1::EXTEND_LEASE:
+    case v1::LIST_PARTITIONS: case v1::READ: case v1::SAVE_BOOKMARKS: case v1::LOAD_BOOKMARKS:
+      return true;
+    default:
+      return false;
+  }
+}
+
 const char* ExpectedSite(const v1::FaultDecision& d) {
   const v1::Site s = d.site();
   switch (d.fault_case()) {
     case v1::FaultDecision::kLatencyMs:
     case v1::FaultDecision::kThrottleRetryAfterMs:
     case v1::FaultDecision::kTransient:
-      return IsBrokerCallSite(s) ? nullptr : "PULL, ACK, NACK or EXTEND_LEASE";
+      return IsBrokerCallSite(s) ? nullptr
+                                 : "PULL, ACK, NACK or EXTEND_LEASE (queue), or LIST_PARTITIONS, "
+                                   "READ, SAVE_BOOKMARKS or LOAD_BOOKMARKS (log)";
     case v1::FaultDecision::kDuplicate:
     case v1::FaultDecision::kReorder:
-    case v1::FaultDecision::kBrokerRestart:
       return s == v1::PULL ? nullptr : "PULL";
+    case v1::FaultDecision::kBrokerRestart:
+      return s == v1::PULL || s == v1::READ ? nullptr : "PULL (queue) or READ (log)";
     case v1::FaultDecision::kLostAck:
       return s == v1::ACK ? nullptr : "ACK";
     case v1::FaultDecision::kVisibilityDelayMs:
-      return s == v1::PUBLISH ? nullptr : "PUBLISH";
+      return s == v1::PUBLISH || s == v1::APPEND ? nullptr : "PUBLISH (queue) or APPEND (log)";
+    case v1::FaultDecision::kPartitionOutageMs:
+    case v1::FaultDecision::kEmptyRead:
+      return s == v1::READ ? nullptr : "READ";
+    case v1::FaultDecision::kLostBookmark:
+      return s == v1::SAVE_BOOKMARKS ? nullptr : "SAVE_BOOKMARKS";
     case v1::FaultDecision::kCommitFailure:
       return s == v1::CHECKPOINT ? nullptr : "CHECKPOINT";
     case v1::FaultDecision::kCrash:
@@ -76,6 +89,7 @@ const char* ExpectedSite(const v1::FaultDecision& d) {
         case v1::AFTER_CHECKPOINT_BEFORE_COMMIT:
         case v1::AFTER_COMMIT_BEFORE_NOTICE:
         case v1::IN_NOTICE_AFTER_ACK:
+        case v1::IN_NOTICE_AFTER_BOOKMARK_SAVE:
           return s == v1::CHECKPOINT ? nullptr : "CHECKPOINT (a checkpoint crash point)";
         default:
           return nullptr;  // no crash point: reported at the crash field instead
@@ -85,8 +99,6 @@ const char* ExpectedSite(const v1::FaultDecision& d) {
   }
   return nullptr;
 }
-
-}  // namespace
 
 void ValidateFaults(TextFile& f, const v1::FaultConfig& c) {
   const auto& l = c.latency();
@@ -117,6 +129,14 @@ void ValidateFaults(TextFile& f, const v1::FaultConfig& c) {
   Rate(f, c.commit_failure_rate(), "commit_failure_rate");
   Rate(f, c.crash_rate(), "crash_rate");
   Rate(f, c.checkpoint_crash_rate(), "checkpoint_crash_rate");
+  Rate(f, c.partition_outage_rate(), "partition_outage_rate");
+  Duration(f, c.max_partition_outage_ms(), "max_partition_outage_ms");
+  f.Require(c.partition_outage_rate() <= 0 || c.max_partition_outage_ms() >= 1,
+            {"faults", "max_partition_outage_ms"},
+            absl::StrCat("faults.max_partition_outage_ms is ", c.max_partition_outage_ms(),
+                         "; expected at least 1 when partition_outage_rate is set"));
+  Rate(f, c.empty_read_rate(), "empty_read_rate");
+  Rate(f, c.lost_bookmark_rate(), "lost_bookmark_rate");
 
   if (c.has_token_bucket()) {
     const auto& b = c.token_bucket();
@@ -142,13 +162,13 @@ void ValidateFaults(TextFile& f, const v1::FaultConfig& c) {
     const std::string at = absl::StrCat("scripted[", i, "]");
     f.Require(d.site() != v1::SITE_UNSPECIFIED, {"faults", at},
               absl::StrCat("faults.", at, ".site is unset; expected PULL, ACK, NACK, EXTEND_LEASE, "
-                                          "PUBLISH, STEP or CHECKPOINT"));
+                                          "PUBLISH, STEP, CHECKPOINT or a log site (READ…)"));
     f.Require(d.position() >= 1, {"faults", at},
               absl::StrCat("faults.", at, ".position is ", d.position(), "; expected at least 1"));
     f.Require(d.fault_case() != v1::FaultDecision::FAULT_NOT_SET, {"faults", at},
               absl::StrCat("faults.", at, " names no fault; expected one, e.g. latency_ms: 50"));
     f.Require(d.latency_ms() >= 0 && d.throttle_retry_after_ms() >= 0 &&
-                  d.visibility_delay_ms() >= 0,
+                  d.visibility_delay_ms() >= 0 && d.partition_outage_ms() >= 0,
               {"faults", at}, absl::StrCat("faults.", at, " has a negative duration; expected >= 0"));
     // A decision at a site its fault cannot apply at would never fire: the
     // run would quietly test less than the file says, so lint rejects it.

@@ -20,4 +20,12 @@ namespace weir {
 
 void ValidateFaults(TextFile& f, const v1::FaultConfig& c);
 
+// True for the sites that are broker calls (queue or log).
+bool IsBrokerCallSite(v1::Site s);
+// nullptr when d's fault can apply at d's site; otherwise the site(s) it
+// needs, for a message. The one rule for scenario files and plan files: step
+// crash points fire only at STEP, checkpoint crash points only at
+// CHECKPOINT, per-call faults at broker call sites, the others at their own.
+const char* ExpectedSite(const v1::FaultDecision& d);
+
 }  // namespace weir

@@ -23,6 +23,42 @@ void CheckMillis(TextFile& f, std::int64_t value, const char* message_field,
   }
 }
 
+// Partitions in one run, at the start and after growth.
+constexpr std::uint64_t kMaxPartitions = 1000;
+
+void ValidateLog(TextFile& f, const v1::LogConfig& l) {
+  f.Require(l.partitions() >= 1 && l.partitions() <= kMaxPartitions, {"log", "partitions"},
+            absl::StrCat("log.partitions is ", l.partitions(), "; expected 1 ..", kMaxPartitions));
+  f.Require(l.hot_key_share() >= 0 && l.hot_key_share() <= 1, {"log", "hot_key_share"},
+            absl::StrCat("log.hot_key_share is ", l.hot_key_share(), "; expected a share in [0, 1]"));
+  std::uint64_t total = l.partitions();
+  for (int i = 0; i < l.growth_size(); ++i) {
+    const auto& g = l.growth(i);
+    const std::string at = absl::StrCat("growth[", i, "]");
+    f.Require(g.count() >= 1, {"log", at},
+              absl::StrCat("log.", at, ".count is ", g.count(), "; expected at least 1"));
+    CheckMillis(f, g.at_ms(), "log", "growth", false);
+    total += g.count();
+  }
+  f.Require(total <= kMaxPartitions, {"log", "growth"},
+            absl::StrCat("log has ", total, " partitions after growth; expected at most ",
+                         kMaxPartitions));
+  std::uint64_t idle = 0;
+  for (int i = 0; i < l.idle_partitions_size(); ++i) {
+    const std::uint32_t p = l.idle_partitions(i);
+    f.Require(p < l.partitions(), {"log", "idle_partitions"},
+              absl::StrCat("log.idle_partitions names partition ", p, "; expected one of 0 ..",
+                           l.partitions() == 0 ? 0 : l.partitions() - 1));
+    ++idle;
+  }
+  f.Require(idle < l.partitions() || l.partitions() == 0, {"log", "idle_partitions"},
+            "log.idle_partitions names every partition; expected at least one to receive records");
+  CheckMillis(f, l.max_partition_lag_ms(), "log", "max_partition_lag_ms", false);
+  CheckMillis(f, l.retention_ms(), "log", "retention_ms", false);
+  CheckMillis(f, l.max_wait_ms(), "log", "max_wait_ms", false);
+  CheckMillis(f, l.broker_restart_ms(), "log", "broker_restart_ms", false);
+}
+
 void Validate(TextFile& f, const v1::Scenario& s) {
   const auto& w = s.workload();
   f.Require(s.has_workload(), {"workload"}, "expected a workload { … } block");
@@ -40,9 +76,13 @@ void Validate(TextFile& f, const v1::Scenario& s) {
               "workload spans more than 1e15 ms of virtual time; expected fewer messages or a "
               "shorter publish_interval_ms");
   }
-  const auto& b = s.broker();
-  CheckMillis(f, b.lease_ms(), "broker", "lease_ms", false);
-  CheckMillis(f, b.redelivery_horizon_ms(), "broker", "redelivery_horizon_ms", false);
+  if (s.has_log()) {
+    ValidateLog(f, s.log());
+  } else {
+    const auto& b = s.broker();
+    CheckMillis(f, b.lease_ms(), "broker", "lease_ms", false);
+    CheckMillis(f, b.redelivery_horizon_ms(), "broker", "redelivery_horizon_ms", false);
+  }
   ValidateFaults(f, s.faults());
   ValidateProfile(f, s.profile(), /*in_scenario=*/true);
   const auto& r = s.runtime();
@@ -53,10 +93,18 @@ void Validate(TextFile& f, const v1::Scenario& s) {
 }
 
 void FillDefaults(v1::Scenario& s) {
-  auto* b = s.mutable_broker();
-  if (b->lease_ms() == 0) b->set_lease_ms(30000);
-  if (b->max_pull() == 0) b->set_max_pull(1000);
-  if (b->redelivery_horizon_ms() == 0) b->set_redelivery_horizon_ms(60000);
+  if (s.has_log()) {
+    auto* l = s.mutable_log();
+    if (l->keys() == 0) l->set_keys(64);
+    if (l->max_read() == 0) l->set_max_read(64);
+    if (l->max_wait_ms() == 0) l->set_max_wait_ms(1000);
+    if (l->broker_restart_ms() == 0) l->set_broker_restart_ms(500);
+  } else {
+    auto* b = s.mutable_broker();
+    if (b->lease_ms() == 0) b->set_lease_ms(30000);
+    if (b->max_pull() == 0) b->set_max_pull(1000);
+    if (b->redelivery_horizon_ms() == 0) b->set_redelivery_horizon_ms(60000);
+  }
   auto* r = s.mutable_runtime();
   if (r->checkpoint_interval_ms() == 0) r->set_checkpoint_interval_ms(1000);
   if (r->drain_bound_ms() == 0) r->set_drain_bound_ms(600000);

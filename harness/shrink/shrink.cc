@@ -54,6 +54,7 @@ std::optional<v1::Crash> LaterCrash(const v1::Crash& c) {
       return next;
     case v1::IN_STEP_AFTER_BROKER_CALL:
     case v1::IN_NOTICE_AFTER_ACK:
+    case v1::IN_NOTICE_AFTER_BOOKMARK_SAVE:
       if (calls >= kMaxAfterCalls) return std::nullopt;
       next.set_point(c.point());
       next.set_after_calls(calls + 1);
@@ -233,11 +234,17 @@ class Search {
     static constexpr Field kVisibility{
         [](const v1::FaultDecision& d) { return d.visibility_delay_ms(); },
         [](v1::FaultDecision* d, std::int64_t v) { d->set_visibility_delay_ms(v); }, 1};
+    static constexpr Field kOutage{
+        [](const v1::FaultDecision& d) { return d.partition_outage_ms(); },
+        [](v1::FaultDecision* d, std::int64_t v) { d->set_partition_outage_ms(v); }, 1};
     bool changed = false;
     for (std::size_t i = 0; i < c->size() && !stopped(); ++i) {
       switch ((*c)[i].fault_case()) {
         case v1::FaultDecision::kLatencyMs:
           changed |= Shorten(c, i, kLatency);
+          break;
+        case v1::FaultDecision::kPartitionOutageMs:
+          changed |= Shorten(c, i, kOutage);
           break;
         case v1::FaultDecision::kThrottleRetryAfterMs:
           changed |= Shorten(c, i, kRetryAfter);

@@ -23,6 +23,11 @@ std::string DescribeEvent(const v1::TraceEvent& e) {
                           e.delivered().receipt(), ", attempt ", e.delivered().attempt(),
                           ", lease until ", FormatTime(e.delivered().lease_deadline_ns()), ")");
     case TraceEvent::kEmitted:
+      if (e.emitted().has_offset()) {
+        return absl::StrCat("emitted a record of partition ", e.emitted().partition(), " offset ",
+                            e.emitted().offset(), " in step ", e.emitted().step(),
+                            " (event time ", FormatTime(e.emitted().event_time_ns()), ")");
+      }
       return absl::StrCat("emitted a record of message ", e.emitted().message_id(), " in step ",
                           e.emitted().step(), " (event time ", FormatTime(e.emitted().event_time_ns()),
                           ")");
@@ -89,8 +94,12 @@ std::string DescribeEvent(const v1::TraceEvent& e) {
       const char* what = x.code() == 8    ? "RESOURCE_EXHAUSTED (throttled)"
                          : x.code() == 14 ? "UNAVAILABLE"
                          : x.code() == 4  ? "DEADLINE_EXCEEDED"
+                         : x.code() == 11 ? "OUT_OF_RANGE"
+                         : x.code() == 3  ? "INVALID_ARGUMENT"
                                           : "an error";
-      return absl::StrCat("broker answered ", x.method(), " with ", what,
+      return absl::StrCat("broker answered ", x.method(),
+                          x.has_partition() ? absl::StrCat(" of partition ", x.partition()) : "",
+                          " with ", what,
                           x.retry_after_ns() > 0
                               ? absl::StrCat(", retry after ", FormatTime(x.retry_after_ns()))
                               : std::string());
@@ -101,7 +110,43 @@ std::string DescribeEvent(const v1::TraceEvent& e) {
     }
     case TraceEvent::kBrokerCall:
       return absl::StrCat("connector called ", e.broker_call().method(), " #",
-                          e.broker_call().position());
+                          e.broker_call().position(),
+                          e.broker_call().has_partition()
+                              ? absl::StrCat(" (partition ", e.broker_call().partition(), ")")
+                              : "");
+    case TraceEvent::kAppended:
+      return absl::StrCat("appended partition ", e.appended().partition(), " offset ",
+                          e.appended().offset(), " (event time ",
+                          FormatTime(e.appended().event_time_ns()),
+                          e.appended().visible_at_ns() > 0
+                              ? absl::StrCat(", readable from ",
+                                             FormatTime(e.appended().visible_at_ns()))
+                              : "",
+                          ")");
+    case TraceEvent::kLogRead: {
+      const auto& x = e.log_read();
+      if (x.out_of_range()) {
+        return absl::StrCat("read of partition ", x.partition(), " at offset ", x.offset(),
+                            " out of range (first retained offset ", x.first_retained_offset(), ")");
+      }
+      return absl::StrCat("read partition ", x.partition(), " from offset ", x.offset(), ": ",
+                          x.records(), " records, next offset ", x.next_offset(),
+                          x.emptied() ? " (emptied by a fault)" : "");
+    }
+    case TraceEvent::kRetentionDeleted:
+      return absl::StrCat("retention deleted partition ", e.retention_deleted().partition(),
+                          " below offset ", e.retention_deleted().first_retained_offset());
+    case TraceEvent::kPartitionAdded:
+      return absl::StrCat("partition ", e.partition_added().partition(), " was added");
+    case TraceEvent::kBookmarkSaved:
+      return absl::StrCat("broker received a bookmark for partition ",
+                          e.bookmark_saved().partition(), " at offset ",
+                          e.bookmark_saved().next_offset(),
+                          e.bookmark_saved().lost() ? " (lost by a fault)" : "");
+    case TraceEvent::kGapReported:
+      return absl::StrCat("step ", e.gap_reported().step(), " reported a gap in partition ",
+                          e.gap_reported().partition(), ": offsets [",
+                          e.gap_reported().from_offset(), ", ", e.gap_reported().to_offset(), ")");
     case TraceEvent::KIND_NOT_SET:
       break;
   }

@@ -1,5 +1,7 @@
 #include "harness/trace/event_ref.h"
 
+#include "harness/core/record_key.h"
+
 namespace weir {
 namespace {
 
@@ -7,14 +9,19 @@ std::int64_t S(std::uint64_t v) { return static_cast<std::int64_t>(v); }
 std::uint64_t U(std::int64_t v) { return static_cast<std::uint64_t>(v); }
 
 // Broker methods are kept as small codes: an EventRef holds no strings.
-constexpr const char* kMethods[] = {"", "Pull", "Ack", "Nack", "ExtendLease"};
+constexpr const char* kMethods[] = {"",     "Pull",          "Ack",          "Nack",
+                                    "ExtendLease", "ListPartitions", "Read", "SaveBookmarks",
+                                    "LoadBookmarks"};
+constexpr std::int64_t kMethodCount = sizeof kMethods / sizeof kMethods[0];
 std::int64_t MethodCode(const std::string& m) {
-  for (std::int64_t i = 1; i < 5; ++i) {
+  for (std::int64_t i = 1; i < kMethodCount; ++i) {
     if (m == kMethods[i]) return i;
   }
   return 0;
 }
-const char* MethodName(std::int64_t code) { return code > 0 && code < 5 ? kMethods[code] : "?"; }
+const char* MethodName(std::int64_t code) {
+  return code > 0 && code < kMethodCount ? kMethods[code] : "?";
+}
 
 }  // namespace
 
@@ -41,6 +48,9 @@ EventRef MakeRef(const v1::TraceEvent& e) {
       r.f[0] = S(e.emitted().message_id());
       r.f[1] = e.emitted().event_time_ns();
       r.f[2] = S(e.emitted().step());
+      if (e.emitted().has_offset()) {
+        r.f[3] = S(LogRecordKey(e.emitted().partition(), e.emitted().offset()));
+      }
       break;
     case TraceEvent::kStepped:
       r.f[0] = S(e.stepped().step());
@@ -97,11 +107,47 @@ EventRef MakeRef(const v1::TraceEvent& e) {
     case TraceEvent::kBrokerCall:
       r.f[0] = MethodCode(e.broker_call().method());
       r.f[1] = S(e.broker_call().position());
+      if (e.broker_call().has_partition()) r.f[2] = S(e.broker_call().partition()) + 1;
       break;
     case TraceEvent::kBrokerCallFailed:
       r.f[0] = MethodCode(e.broker_call_failed().method());
       r.f[1] = e.broker_call_failed().code();
       r.f[2] = e.broker_call_failed().retry_after_ns();
+      if (e.broker_call_failed().has_partition()) {
+        r.f[3] = S(e.broker_call_failed().partition()) + 1;
+      }
+      break;
+    case TraceEvent::kAppended:
+      r.f[0] = e.appended().partition();
+      r.f[1] = S(e.appended().offset());
+      r.f[2] = e.appended().event_time_ns();
+      r.f[3] = e.appended().visible_at_ns();
+      break;
+    case TraceEvent::kLogRead: {
+      const auto& x = e.log_read();
+      r.f[0] = x.partition();
+      r.f[1] = S(x.offset());
+      r.f[2] = S(x.records()) | (x.out_of_range() ? S(1) << 32 : 0) | (x.emptied() ? S(1) << 33 : 0);
+      r.f[3] = S(x.out_of_range() ? x.first_retained_offset() : x.next_offset());
+      break;
+    }
+    case TraceEvent::kRetentionDeleted:
+      r.f[0] = e.retention_deleted().partition();
+      r.f[1] = S(e.retention_deleted().first_retained_offset());
+      break;
+    case TraceEvent::kPartitionAdded:
+      r.f[0] = e.partition_added().partition();
+      break;
+    case TraceEvent::kBookmarkSaved:
+      r.f[0] = e.bookmark_saved().partition();
+      r.f[1] = S(e.bookmark_saved().next_offset());
+      r.f[2] = e.bookmark_saved().lost();
+      break;
+    case TraceEvent::kGapReported:
+      r.f[0] = e.gap_reported().partition();
+      r.f[1] = S(e.gap_reported().from_offset());
+      r.f[2] = S(e.gap_reported().to_offset());
+      r.f[3] = S(e.gap_reported().step());
       break;
     default:
       break;
@@ -136,6 +182,10 @@ v1::TraceEvent Rebuild(const EventRef& r) {
       x->set_message_id(U(r.f[0]));
       x->set_event_time_ns(r.f[1]);
       x->set_step(U(r.f[2]));
+      if (r.f[3] != 0) {
+        x->set_partition(KeyPartition(U(r.f[3])));
+        x->set_offset(KeyOffset(U(r.f[3])));
+      }
       break;
     }
     case TraceEvent::kStepped: {
@@ -207,6 +257,7 @@ v1::TraceEvent Rebuild(const EventRef& r) {
       auto* x = e.mutable_broker_call();
       x->set_method(MethodName(r.f[0]));
       x->set_position(U(r.f[1]));
+      if (r.f[2] != 0) x->set_partition(static_cast<std::uint32_t>(r.f[2] - 1));
       break;
     }
     case TraceEvent::kBrokerCallFailed: {
@@ -214,6 +265,53 @@ v1::TraceEvent Rebuild(const EventRef& r) {
       x->set_method(MethodName(r.f[0]));
       x->set_code(static_cast<std::int32_t>(r.f[1]));
       x->set_retry_after_ns(r.f[2]);
+      if (r.f[3] != 0) x->set_partition(static_cast<std::uint32_t>(r.f[3] - 1));
+      break;
+    }
+    case TraceEvent::kAppended: {
+      auto* x = e.mutable_appended();
+      x->set_partition(static_cast<std::uint32_t>(r.f[0]));
+      x->set_offset(U(r.f[1]));
+      x->set_event_time_ns(r.f[2]);
+      x->set_visible_at_ns(r.f[3]);
+      break;
+    }
+    case TraceEvent::kLogRead: {
+      auto* x = e.mutable_log_read();
+      x->set_partition(static_cast<std::uint32_t>(r.f[0]));
+      x->set_offset(U(r.f[1]));
+      x->set_records(static_cast<std::uint32_t>(r.f[2] & 0xffffffff));
+      x->set_out_of_range(((r.f[2] >> 32) & 1) != 0);
+      x->set_emptied(((r.f[2] >> 33) & 1) != 0);
+      if (x->out_of_range()) {
+        x->set_first_retained_offset(U(r.f[3]));
+      } else {
+        x->set_next_offset(U(r.f[3]));
+      }
+      break;
+    }
+    case TraceEvent::kRetentionDeleted: {
+      auto* x = e.mutable_retention_deleted();
+      x->set_partition(static_cast<std::uint32_t>(r.f[0]));
+      x->set_first_retained_offset(U(r.f[1]));
+      break;
+    }
+    case TraceEvent::kPartitionAdded:
+      e.mutable_partition_added()->set_partition(static_cast<std::uint32_t>(r.f[0]));
+      break;
+    case TraceEvent::kBookmarkSaved: {
+      auto* x = e.mutable_bookmark_saved();
+      x->set_partition(static_cast<std::uint32_t>(r.f[0]));
+      x->set_next_offset(U(r.f[1]));
+      x->set_lost(r.f[2] != 0);
+      break;
+    }
+    case TraceEvent::kGapReported: {
+      auto* x = e.mutable_gap_reported();
+      x->set_partition(static_cast<std::uint32_t>(r.f[0]));
+      x->set_from_offset(U(r.f[1]));
+      x->set_to_offset(U(r.f[2]));
+      x->set_step(U(r.f[3]));
       break;
     }
     default:

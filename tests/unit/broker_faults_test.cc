@@ -14,7 +14,7 @@
 
 #include <gtest/gtest.h>
 
-#include "harness/broker/broker_model.h"
+#include "harness/broker/queue/queue_model.h"
 #include "harness/broker/broker_session.h"
 #include "harness/oracle/oracle.h"
 #include "harness/runtime/runtime_model.h"
@@ -44,7 +44,7 @@ struct Rig {
     Build(seed);
   }
   void Build(std::uint64_t seed) {
-    broker = std::make_unique<BrokerModel>(scenario, seed, log, *faults);
+    broker = std::make_unique<QueueModel>(scenario, seed, log, *faults);
     session = std::make_unique<BrokerSession>(*broker, log, *faults);
   }
 
@@ -89,7 +89,7 @@ struct Rig {
   TraceLog log;
   TraceRecorder rec;
   std::unique_ptr<FaultSource> faults;
-  std::unique_ptr<BrokerModel> broker;
+  std::unique_ptr<QueueModel> broker;
   std::unique_ptr<BrokerSession> session;
 };
 
@@ -505,7 +505,7 @@ TEST(BrokerFaults, CorrectConnectorSurvivesBrokerFaultsEndToEnd) {
   Oracle oracle(s.profile());
   log.AddObserver(&oracle);
   FaultSource faults(s.faults(), 3, log);
-  BrokerModel broker(s, 3, log, faults);
+  QueueModel broker(s, 3, log, faults);
   BrokerSession session(broker, log, faults);
   FakeConnector port;
   RuntimeModel runtime(s, broker, session, port, log, faults);

@@ -81,7 +81,7 @@ struct Harness {
   TraceLog log;
   TraceRecorder rec;
   FaultSource faults;
-  BrokerModel broker;
+  QueueModel broker;
   BrokerSession session;
   FakeConnector port;
   Oracle oracle;

@@ -31,7 +31,7 @@ struct Harness {
   TraceLog log;
   TraceRecorder rec;
   FaultSource faults;
-  BrokerModel broker;
+  QueueModel broker;
   BrokerSession session;
   FakeConnector port;
 };

@@ -1,4 +1,4 @@
-#include "harness/broker/broker_model.h"
+#include "harness/broker/queue/queue_model.h"
 
 #include <algorithm>
 #include <string_view>
@@ -7,11 +7,11 @@
 
 namespace weir {
 
-BrokerModel::BrokerModel(const v1::Scenario& scenario, std::uint64_t seed, TraceLog& trace,
+QueueModel::QueueModel(const v1::Scenario& scenario, std::uint64_t seed, TraceLog& trace,
                          FaultSource& faults)
     : scenario_(scenario), seed_(seed), trace_(trace), faults_(faults), workload_(scenario.workload(), seed) {}
 
-void BrokerModel::AdvanceTo(VirtualTime now) {
+void QueueModel::AdvanceTo(VirtualTime now) {
   Prune(now);
   for (;;) {
     while (!leases_.empty()) {
@@ -45,7 +45,7 @@ void BrokerModel::AdvanceTo(VirtualTime now) {
   }
 }
 
-void BrokerModel::Prune(VirtualTime now) {
+void QueueModel::Prune(VirtualTime now) {
   // A duplicate of an acked message may come at most the horizon after its
   // ack; past that the broker has no reason to remember it.
   const VirtualDuration horizon = Millis(scenario_.broker().redelivery_horizon_ms());
@@ -58,7 +58,7 @@ void BrokerModel::Prune(VirtualTime now) {
   }
 }
 
-void BrokerModel::Publish(const MessageSpec& spec) {
+void QueueModel::Publish(const MessageSpec& spec) {
   Message m;
   m.publish_time = spec.publish_time;
   m.event_time = spec.event_time;
@@ -92,7 +92,7 @@ void BrokerModel::Publish(const MessageSpec& spec) {
   ready_.push_back(spec.id);
 }
 
-void BrokerModel::ExpireLease(const Lease& lease) {
+void QueueModel::ExpireLease(const Lease& lease) {
   Message& m = messages_.at(lease.message_id);
   m.state = State::kReady;
   receipt_owner_.erase(lease.receipt);
@@ -104,7 +104,7 @@ void BrokerModel::ExpireLease(const Lease& lease) {
   trace_.Commit();
 }
 
-void BrokerModel::Restart(VirtualTime now) {
+void QueueModel::Restart(VirtualTime now) {
   std::vector<std::uint64_t> leased;
   for (const auto& [id, m] : messages_) {
     if (m.state == State::kLeased) leased.push_back(id);
@@ -124,7 +124,7 @@ void BrokerModel::Restart(VirtualTime now) {
   ghosts_.clear();
 }
 
-void BrokerModel::Shuffle(std::uint64_t position) {
+void QueueModel::Shuffle(std::uint64_t position) {
   // Fisher–Yates with one position-keyed draw per slot: replaying the same
   // pull position gives the same order.
   std::vector<std::uint64_t> ids(ready_.begin(), ready_.end());
@@ -136,7 +136,7 @@ void BrokerModel::Shuffle(std::uint64_t position) {
   ready_.assign(ids.begin(), ids.end());
 }
 
-void BrokerModel::FillDelivery(std::uint64_t id, const Message& m,
+void QueueModel::FillDelivery(std::uint64_t id, const Message& m,
                                v1::PullResponse* response) const {
   v1::Delivery* d = response->add_deliveries();
   d->set_message_id(id);
@@ -154,7 +154,7 @@ void BrokerModel::FillDelivery(std::uint64_t id, const Message& m,
   }
 }
 
-void BrokerModel::TraceDelivered(VirtualTime now, std::uint64_t id, std::uint64_t receipt,
+void QueueModel::TraceDelivered(VirtualTime now, std::uint64_t id, std::uint64_t receipt,
                                  std::uint32_t attempt, VirtualTime deadline) {
   auto& e = trace_.Append(now);
   auto* x = e.mutable_delivered();
@@ -165,7 +165,7 @@ void BrokerModel::TraceDelivered(VirtualTime now, std::uint64_t id, std::uint64_
   trace_.Commit();
 }
 
-void BrokerModel::Deliver(std::uint64_t id, VirtualTime now, v1::PullResponse* response) {
+void QueueModel::Deliver(std::uint64_t id, VirtualTime now, v1::PullResponse* response) {
   Message& m = messages_.at(id);
   if (m.state == State::kLeased) receipt_owner_.erase(m.receipt);  // superseded
   m.state = State::kLeased;
@@ -178,7 +178,7 @@ void BrokerModel::Deliver(std::uint64_t id, VirtualTime now, v1::PullResponse* r
   TraceDelivered(now, id, m.receipt, m.attempts, m.lease_deadline);
 }
 
-bool BrokerModel::HasDuplicateCandidate() const {
+bool QueueModel::HasDuplicateCandidate() const {
   if (!recently_acked_.empty()) return true;
   for (const auto& [id, m] : messages_) {
     if (m.state == State::kLeased) return true;
@@ -186,7 +186,7 @@ bool BrokerModel::HasDuplicateCandidate() const {
   return false;
 }
 
-bool BrokerModel::Duplicate(std::uint64_t position, VirtualTime now, v1::PullResponse* response) {
+bool QueueModel::Duplicate(std::uint64_t position, VirtualTime now, v1::PullResponse* response) {
   std::vector<std::uint64_t> candidates;
   for (const auto& [id, m] : messages_) {
     if (m.state == State::kLeased) candidates.push_back(id);
@@ -210,7 +210,7 @@ bool BrokerModel::Duplicate(std::uint64_t position, VirtualTime now, v1::PullRes
   return true;
 }
 
-void BrokerModel::Pull(const v1::PullRequest& request, VirtualTime now,
+void QueueModel::Pull(const v1::PullRequest& request, VirtualTime now,
                        v1::PullResponse* response, std::uint64_t position) {
   AdvanceTo(now);
   std::uint32_t n = request.max_messages();
@@ -255,7 +255,7 @@ void BrokerModel::Pull(const v1::PullRequest& request, VirtualTime now,
   response->set_now_ns(now);
 }
 
-BrokerModel::Message* BrokerModel::Holder(std::uint64_t receipt, VirtualTime /*now*/,
+QueueModel::Message* QueueModel::Holder(std::uint64_t receipt, VirtualTime /*now*/,
                                           std::uint64_t* message_id, const char** reason) {
   *message_id = 0;
   auto owner = receipt_owner_.find(receipt);
@@ -274,7 +274,7 @@ BrokerModel::Message* BrokerModel::Holder(std::uint64_t receipt, VirtualTime /*n
   return &it->second;
 }
 
-void BrokerModel::TraceIgnored(VirtualTime now, const char* call, std::uint64_t receipt,
+void QueueModel::TraceIgnored(VirtualTime now, const char* call, std::uint64_t receipt,
                                std::uint64_t message_id, const char* reason) {
   if (std::string_view(reason).rfind("lost by a fault", 0) != 0) ++ignored_receipts_;
   auto& e = trace_.Append(now);
@@ -285,7 +285,7 @@ void BrokerModel::TraceIgnored(VirtualTime now, const char* call, std::uint64_t 
   trace_.Commit();
 }
 
-void BrokerModel::Ack(const v1::AckRequest& request, VirtualTime now, std::uint64_t position) {
+void QueueModel::Ack(const v1::AckRequest& request, VirtualTime now, std::uint64_t position) {
   AdvanceTo(now);
   if (position > 0 &&
       faults_.Decide(v1::ACK, position, v1::FaultDecision::kLostAck, now,
@@ -334,7 +334,7 @@ void BrokerModel::Ack(const v1::AckRequest& request, VirtualTime now, std::uint6
   }
 }
 
-void BrokerModel::Nack(const v1::NackRequest& request, VirtualTime now) {
+void QueueModel::Nack(const v1::NackRequest& request, VirtualTime now) {
   AdvanceTo(now);
   for (std::uint64_t receipt : request.receipts()) {
     if (auto g = ghosts_.find(receipt); g != ghosts_.end()) {
@@ -361,7 +361,7 @@ void BrokerModel::Nack(const v1::NackRequest& request, VirtualTime now) {
   }
 }
 
-void BrokerModel::ExtendLease(const v1::ExtendLeaseRequest& request, VirtualTime now,
+void QueueModel::ExtendLease(const v1::ExtendLeaseRequest& request, VirtualTime now,
                               v1::ExtendLeaseResponse* response) {
   AdvanceTo(now);
   for (std::uint64_t receipt : request.receipts()) {
@@ -392,6 +392,16 @@ void BrokerModel::ExtendLease(const v1::ExtendLeaseRequest& request, VirtualTime
     trace_.Commit();
   }
   response->set_now_ns(now);
+}
+
+std::optional<RecordKey> QueueModel::Identify(const v1::Record& record, std::string* why) const {
+  if (record.message_id() == 0 || record.message_id() > total_messages() ||
+      record.message_id() > kMaxOffset) {
+    *why = "names message " + std::to_string(record.message_id()) +
+           ", which the broker never published";
+    return std::nullopt;
+  }
+  return RecordKey{record.message_id()};
 }
 
 }  // namespace weir

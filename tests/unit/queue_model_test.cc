@@ -1,4 +1,4 @@
-#include "harness/broker/broker_model.h"
+#include "harness/broker/queue/queue_model.h"
 
 #include <gtest/gtest.h>
 
@@ -34,7 +34,7 @@ class BrokerModelTest : public ::testing::Test {
   TraceLog log_;
   TraceRecorder rec_;
   FaultSource faults_;
-  BrokerModel model_;
+  QueueModel model_;
 };
 
 TEST_F(BrokerModelTest, PublishesOverVirtualTimeOnly) {
