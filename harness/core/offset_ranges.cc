@@ -19,6 +19,15 @@ std::uint64_t OffsetRanges::CountIn(std::uint64_t from, std::uint64_t to) const 
 
 std::uint64_t OffsetRanges::Insert(std::uint64_t from, std::uint64_t to) {
   if (from >= to) return 0;
+  // The common case, a reader going in order: extend the last range in place.
+  if (!ranges_.empty()) {
+    auto last = std::prev(ranges_.end());
+    if (last->second == from) {
+      last->second = to;
+      size_ += to - from;
+      return 0;
+    }
+  }
   const std::uint64_t already = CountIn(from, to);
   // Merge every range that overlaps or touches [from, to).
   auto it = ranges_.upper_bound(from);

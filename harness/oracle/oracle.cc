@@ -449,22 +449,34 @@ void Oracle::OnRunEnded(const TraceEvent& e) {
   }
 }
 
+// A log Read's transient failure belongs to its partition: reading another
+// partition at once is no retry.
+static std::string RetryKey(const std::string& method, bool has_partition, std::uint32_t partition) {
+  return has_partition ? absl::StrCat(method, " of partition ", partition) : method;
+}
+
 void Oracle::OnBrokerCallFailed(const TraceEvent& e) {
   const auto& x = e.broker_call_failed();
-  MethodState& m = methods_[x.method()];
-  if (x.code() == 8) {  // RESOURCE_EXHAUSTED
+  if (x.code() == 8) {  // RESOURCE_EXHAUSTED: the whole method waits
+    MethodState& m = methods_[x.method()];
     m.throttled = MakeRef(e);
     m.throttled_until = SaturatingAdd(e.t_ns(), x.retry_after_ns());
   } else if (x.code() == 14 || x.code() == 4) {  // UNAVAILABLE, DEADLINE_EXCEEDED
-    m.transient = MakeRef(e);
+    methods_[RetryKey(x.method(), x.has_partition(), x.partition())].transient = MakeRef(e);
   }
 }
 
 void Oracle::OnBrokerCall(const TraceEvent& e) {
+  if (e.broker_call().has_partition()) {  // the partition's own transient failures
+    auto own = methods_.find(
+        RetryKey(e.broker_call().method(), true, e.broker_call().partition()));
+    if (own != methods_.end()) CheckCall(e, own->first, own->second);
+  }
   auto it = methods_.find(e.broker_call().method());
-  if (it == methods_.end()) return;
-  const std::string& method = it->first;
-  MethodState& m = it->second;
+  if (it != methods_.end()) CheckCall(e, it->first, it->second);
+}
+
+void Oracle::CheckCall(const TraceEvent& e, const std::string& method, MethodState& m) {
   const VirtualTime t = e.t_ns();
   if (m.throttled.valid()) {
     if (t < m.throttled_until) {

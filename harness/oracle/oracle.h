@@ -122,6 +122,9 @@ class Oracle : public TraceObserver {
   void OnRunEnded(const v1::TraceEvent& e);
   void OnBrokerCall(const v1::TraceEvent& e);
   void OnBrokerCallFailed(const v1::TraceEvent& e);
+  struct MethodState;
+  // Throttle and retry checks of one call against what limits `method`.
+  void CheckCall(const v1::TraceEvent& e, const std::string& method, MethodState& m);
   bool IsCommitted(std::uint64_t id) const;
   void Retire(std::uint64_t id);
 
@@ -161,7 +164,8 @@ class Oracle : public TraceObserver {
   bool idle_ = false;
   bool idle_reported_ = false;  // this idle period already has its violation
   EventRef idle_since_;         // the stepped event that began the idle period
-  // Per broker method (a handful of names), what limits its next call.
+  // Per broker method (a handful of names; a log Read's transient failures
+  // per partition, "Read of partition 3"), what limits its next call.
   struct MethodState {
     EventRef throttled;  // the last throttled call, while its retry-after runs
     VirtualTime throttled_until = 0;

@@ -55,6 +55,9 @@ bad scenario-directory "$WORK: is a directory; expected a file" -- "${RUN[@]}" -
 head -c 50000000 /dev/zero | tr '\0' '#' >"$WORK/huge.scenario"
 bad scenario-huge "$WORK/huge.scenario:1:1: file is 50000000 bytes; expected at most" -- "${RUN[@]}" --scenario "$WORK/huge.scenario"
 bad lint-scenario "$BAD/zero_messages.scenario:2:3:" -- "$WEIR" lint "$BAD/zero_messages.scenario"
+bad log-zero-partitions "$BAD/log_zero_partitions.scenario:3:3: log.partitions is 0; expected 1 ..1000" -- "${RUN[@]}" --scenario "$BAD/log_zero_partitions.scenario"
+bad log-every-partition-idle "$BAD/log_every_partition_idle.scenario:4:3: .*names every partition" -- "${RUN[@]}" --scenario "$BAD/log_every_partition_idle.scenario"
+bad log-growth-without-count "$BAD/log_growth_without_count.scenario:4:3: log.growth\[0\].count is 0; expected at least 1" -- "${RUN[@]}" --scenario "$BAD/log_growth_without_count.scenario"
 
 # Profile files.
 bad profile-empty "$BAD/empty.profile:1:1: expected guarantee" -- "${RUN[@]}" --scenario "$GOOD" --profile "$BAD/empty.profile"
@@ -64,6 +67,7 @@ bad profile-wrong-type "$BAD/wrong_type.profile:2:[0-9]+: .*(integer|int)" -- "$
 
 # Plan files.
 bad plan-zero-position "$BAD/zero_position.plan:3:3: .*position of at least 1" -- "${RUN[@]}" --scenario "$GOOD" --plan "$BAD/zero_position.plan"
+bad plan-log-site-mismatch "$BAD/log_site_mismatch.plan:2:[0-9]+: .*expected site SAVE_BOOKMARKS" -- "${RUN[@]}" --scenario "$GOOD" --plan "$BAD/log_site_mismatch.plan"
 bad plan-negative-latency "$BAD/negative_latency.plan:4:3: .*latency_ms must be >= 0" -- "${RUN[@]}" --scenario "$GOOD" --plan "$BAD/negative_latency.plan"
 bad plan-unknown-field "$BAD/unknown_field.plan:4:[0-9]+: .*no field named \"explode\"" -- "${RUN[@]}" --scenario "$GOOD" --plan "$BAD/unknown_field.plan"
 bad plan-truncated "$(loc truncated.plan '')" -- "${RUN[@]}" --scenario "$GOOD" --plan "$BAD/truncated.plan"
