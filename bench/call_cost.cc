@@ -196,6 +196,21 @@ class CountingBroker : public BrokerEndpoint {
   CallStatus ExtendLease(const v1::ExtendLeaseRequest& rq, v1::ExtendLeaseResponse* rs) override {
     return Count(rq, rs, &BrokerEndpoint::ExtendLease);
   }
+  CallStatus ListPartitions(const v1::ListPartitionsRequest& rq,
+                            v1::ListPartitionsResponse* rs) override {
+    return Count(rq, rs, &BrokerEndpoint::ListPartitions);
+  }
+  CallStatus Read(const v1::ReadRequest& rq, v1::ReadResponse* rs) override {
+    return Count(rq, rs, &BrokerEndpoint::Read);
+  }
+  CallStatus SaveBookmarks(const v1::SaveBookmarksRequest& rq,
+                           v1::SaveBookmarksResponse* rs) override {
+    return Count(rq, rs, &BrokerEndpoint::SaveBookmarks);
+  }
+  CallStatus LoadBookmarks(const v1::LoadBookmarksRequest& rq,
+                           v1::LoadBookmarksResponse* rs) override {
+    return Count(rq, rs, &BrokerEndpoint::LoadBookmarks);
+  }
   void OnStrayCall(const std::string& method) override { inner_.OnStrayCall(method); }
   bool CrashRequested() const override { return inner_.CrashRequested(); }
 
@@ -441,7 +456,8 @@ int main(int argc, char** argv) {
     std::printf("weir against the echo of its own message sizes: %.2fx TCP, %.2fx Unix\n",
                 sized_ratio_tcp.back(), sized_ratio_unix.back());
   }
-  const WeirFigures in_process = MeasureInProcess(spec);
+  // The in-process figure runs the queue reference source: queue scenarios only.
+  const WeirFigures in_process = spec.scenario.has_log() ? WeirFigures{} : MeasureInProcess(spec);
   const double restart_ms = MeasureRestart(connector, restarts);
   std::printf("median of %d rounds: echo %.1f us TCP, %.1f us Unix; weir %.1f us per call TCP (%.2fx), "
               "%.1f us Unix (%.2fx)\n",
