@@ -4,11 +4,11 @@
 //   build/bench/log_oracle_bench [offsets] [partitions]   (default 10,000,000 over 1,000)
 //
 // Events are generated on the fly (never stored), as a log reader's run looks:
-// per step, one record appended to each of a few partitions (round robin), a
-// read per partition, a record emitted per offset, a stepped event with a
-// watermark; every 16 steps a checkpoint naming the resume point of every
+// per step, a batch of records appended to one partition (round robin), one
+// read returning the batch, a record emitted per offset, a stepped event with
+// a watermark; every 64 steps a checkpoint naming the resume point of every
 // partition, its commit, the notice and a bookmark per partition the epoch
-// touched; retention deletes what the reader has committed long ago. One
+// touched; retention deletes what the reader committed 16 epochs before. One
 // reused TraceEvent per kind, so generating costs no allocation.
 //
 // Two passes over the same trace: one into a no-op observer (the cost of
@@ -46,9 +46,9 @@ class NoOp : public TraceObserver {
   std::uint64_t sum_ = 0;
 };
 
-constexpr std::uint32_t kPartitionsPerStep = 8;
-constexpr std::uint64_t kStepsPerEpoch = 16;
-constexpr std::uint64_t kRetainEpochs = 64;  // retention trails the committed resume point
+constexpr std::uint64_t kBatch = 16;          // records per read
+constexpr std::uint64_t kStepsPerEpoch = 64;
+constexpr std::uint64_t kRetainEpochs = 16;  // retention trails the committed resume point
 
 // Generates `offsets` appended-and-emitted records over `partitions`
 // partitions into `sink`; calls mark(k) with the offsets emitted so far.
@@ -94,29 +94,35 @@ std::uint64_t Generate(std::uint64_t offsets, std::uint32_t partitions, TraceObs
   std::uint64_t done = 0, step = 0, cp = 0;
   std::uint32_t cursor = 0;
   while (done < offsets) {
-    for (std::uint32_t i = 0; i < kPartitionsPerStep && done < offsets; ++i) {
+    {
       const std::uint32_t p = cursor;
       cursor = (cursor + 1) % partitions;
-      const std::uint64_t off = next[p]++;
-      auto* a = appended.mutable_appended();
-      a->set_partition(p);
-      a->set_offset(off);
-      a->set_event_time_ns(t);
-      send(appended);
+      const std::uint64_t first = next[p];
+      const std::uint64_t n = std::min<std::uint64_t>(kBatch, offsets - done);
+      for (std::uint64_t i = 0; i < n; ++i) {
+        auto* a = appended.mutable_appended();
+        a->set_partition(p);
+        a->set_offset(first + i);
+        a->set_event_time_ns(t);
+        send(appended);
+      }
+      next[p] += n;
       auto* r = read.mutable_log_read();
       r->set_partition(p);
-      r->set_offset(off);
-      r->set_records(1);
-      r->set_next_offset(off + 1);
+      r->set_offset(first);
+      r->set_records(static_cast<std::uint32_t>(n));
+      r->set_next_offset(first + n);
       send(read);
-      auto* m = emitted.mutable_emitted();
-      m->set_partition(p);
-      m->set_offset(off);
-      m->set_event_time_ns(t);
-      m->set_step(step + 1);
-      send(emitted);
+      for (std::uint64_t i = 0; i < n; ++i) {
+        auto* m = emitted.mutable_emitted();
+        m->set_partition(p);
+        m->set_offset(first + i);
+        m->set_event_time_ns(t);
+        m->set_step(step + 1);
+        send(emitted);
+        mark(++done);
+      }
       touched.push_back(p);
-      mark(++done);
     }
     auto* st = stepped.mutable_stepped();
     st->set_step(++step);

@@ -19,6 +19,7 @@
 #pragma once
 
 #include <cstdint>
+#include <iterator>
 #include <map>
 #include <utility>
 #include <vector>
@@ -45,6 +46,9 @@ class OffsetRanges {
 
   // The ranges held, as start -> end (exclusive), in order.
   const std::map<std::uint64_t, std::uint64_t>& by_start() const { return ranges_; }
+
+  // One past the largest offset held (0 when empty).
+  std::uint64_t end() const { return ranges_.empty() ? 0 : std::prev(ranges_.end())->second; }
 
   std::uint64_t size() const { return size_; }
   std::size_t ranges() const { return ranges_.size(); }

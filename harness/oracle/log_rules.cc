@@ -3,6 +3,7 @@
 #include <algorithm>
 
 #include "absl/strings/str_cat.h"
+#include "harness/core/record_key.h"
 
 namespace weir {
 
@@ -30,11 +31,6 @@ LogRules::LogRules(const v1::Profile& profile, Verdict& verdict, ReportFn report
                                                          : profile.idle_timeout_ms())),
       verdict_(verdict),
       report_(std::move(report)) {}
-
-LogRules::Partition& LogRules::At(std::uint32_t p) {
-  if (p >= partitions_.size()) partitions_.resize(static_cast<std::size_t>(p) + 1);
-  return partitions_[p];
-}
 
 void LogRules::UpdateCaughtUp(Partition& part, VirtualTime t) {
   const bool caught_up = part.expected_next >= part.appended;
@@ -144,7 +140,6 @@ void LogRules::OnEmitted(const TraceEvent& e) {
   const auto& x = e.emitted();
   const std::uint64_t o = x.offset();
   Partition& part = At(x.partition());
-  const EventRef ref = MakeRef(e);
   if (o >= part.read_next) {
     report_(Invariant::kProtocolError,
             absl::StrCat("Step ", x.step(), " emitted a record of partition ", x.partition(),
@@ -175,23 +170,35 @@ void LogRules::OnEmitted(const TraceEvent& e) {
   if (!part.frontier.has_value() || x.event_time_ns() > *part.frontier) {
     part.frontier = x.event_time_ns();
   }
-  part.last_emitted = ref;
+  // As MakeRef would build it, without its dispatch: this is the hot path.
+  EventRef& ref = part.last_emitted;
+  ref.seq = e.seq();
+  ref.t = e.t_ns();
+  ref.incarnation = e.incarnation();
+  ref.kind = TraceEvent::kEmitted;
+  ref.f[0] = 0;
+  ref.f[1] = x.event_time_ns();
+  ref.f[2] = static_cast<std::int64_t>(x.step());
+  ref.f[3] = static_cast<std::int64_t>(LogRecordKey(x.partition(), o));
   UpdateCaughtUp(part, e.t_ns());
-  if (!open_.records[x.partition()].Insert(o)) ++open_.repeated;
+  if (part.open_epoch == epoch_ && open_.runs[part.open_run].to == o) {
+    ++open_.runs[part.open_run].to;
+  } else {
+    part.open_epoch = epoch_;
+    part.open_run = open_.runs.size();
+    open_.runs.push_back(Run{x.partition(), o, o + 1});
+  }
 }
 
 void LogRules::OnCheckpoint(const TraceEvent& e) {
   Epoch& epoch = pending_[e.checkpoint().checkpoint_id()];
-  for (const auto& [p, ranges] : open_.records) {
-    OffsetRanges& into = epoch.records[p];
-    for (const auto& [a, b] : ranges.by_start()) epoch.repeated += into.Insert(a, b);
-  }
-  epoch.repeated += open_.repeated;
+  epoch.runs.insert(epoch.runs.end(), open_.runs.begin(), open_.runs.end());
   for (const auto& r : e.checkpoint().resume_points()) {
     epoch.resume_points.emplace_back(r.partition(), r.next_offset());
   }
   epoch.checkpoint = MakeRef(e);
-  open_ = Epoch{};
+  open_.runs.clear();
+  ++epoch_;
 }
 
 void LogRules::OnCommitted(const TraceEvent& e) {
@@ -199,35 +206,29 @@ void LogRules::OnCommitted(const TraceEvent& e) {
   if (node.empty()) return;
   Epoch& epoch = node.mapped();
   const EventRef committed = MakeRef(e);
-  std::uint64_t duplicates = epoch.repeated;
+  std::uint64_t duplicates = 0;
   std::optional<std::pair<std::uint32_t, std::uint64_t>> example;
-  for (const auto& [p, ranges] : epoch.records) {
-    Partition& part = At(p);
-    for (const auto& [start, end] : ranges.by_start()) {
-      const std::uint64_t already = part.committed.CountIn(start, end);
-      if (already > 0 && !example.has_value()) {
-        const auto fresh = part.committed.Missing(start, end);
-        const std::uint64_t first_dup =
-            fresh.empty() || fresh.front().first > start ? start : fresh.front().second;
-        example = std::make_pair(p, first_dup);
-      }
-      duplicates += already;
-      if (part.committed.empty()) part.first_commit = committed;
-      part.committed.Insert(start, end);
+  for (const Run& run : epoch.runs) {
+    Partition& part = At(run.partition);
+    if (!example.has_value() && run.from < part.committed.end()) {
+      // Some offset of the run may be committed already: name the first.
+      const auto fresh = part.committed.Missing(run.from, run.to);
+      const std::uint64_t first_held =
+          fresh.empty() || fresh.front().first > run.from ? run.from : fresh.front().second;
+      if (first_held < run.to) example = std::make_pair(run.partition, first_held);
     }
+    const std::uint64_t already = part.committed.Insert(run.from, run.to);
+    duplicates += already;
+    if (!part.first_commit.valid()) part.first_commit = committed;
   }
   for (const auto& [p, next] : epoch.resume_points) At(p).committed_resume = next;
   verdict_.duplicate_records += duplicates;
   if (duplicates > 0 && exactly_once_) {
-    const std::string what =
-        example.has_value()
-            ? absl::StrCat("Partition ", example->first, " offset ", example->second,
-                           " has a second record in the committed output")
-            : std::string("An offset was emitted twice within one epoch");
-    std::vector<EventRef> cited = {epoch.checkpoint};
-    if (example.has_value()) cited.push_back(At(example->first).first_commit);
+    std::vector<EventRef> cited = {epoch.checkpoint, At(example->first).first_commit};
     report_(Invariant::kDuplicateOutput,
-            absl::StrCat(what, " (checkpoint ", e.committed().checkpoint_id(), ": ", duplicates,
+            absl::StrCat("Partition ", example->first, " offset ", example->second,
+                         " has a second record in the committed output (checkpoint ",
+                         e.committed().checkpoint_id(), ": ", duplicates,
                          duplicates == 1 ? " duplicate record)." : " duplicate records)."),
             std::move(cited), &e);
   }
@@ -238,7 +239,8 @@ void LogRules::OnCommitFailed(const TraceEvent& e) {
 }
 
 void LogRules::DiscardUncommitted() {
-  open_ = Epoch{};
+  open_.runs.clear();
+  ++epoch_;
   pending_.clear();
 }
 

@@ -121,16 +121,31 @@ class LogRules {
     EventRef last_read;
     EventRef last_emitted;
     EventRef last_bookmark;
+    // The run of the open epoch this partition extends: open_.runs[open_run]
+    // when open_epoch == epoch_ (the open epoch's number).
+    std::size_t open_run = 0;
+    std::uint64_t open_epoch = 0;
   };
-  // Records of one epoch, per partition.
+  // Consecutive offsets of one partition emitted in one epoch.
+  struct Run {
+    std::uint32_t partition;
+    std::uint64_t from;
+    std::uint64_t to;  // exclusive
+  };
+  // Records of one epoch, as runs: a reader going in order makes one run per
+  // partition, so an epoch costs a vector, not a set per partition. An offset
+  // emitted twice within the epoch shows when the runs are committed one by
+  // one.
   struct Epoch {
-    std::map<std::uint32_t, OffsetRanges> records;
-    std::uint64_t repeated = 0;   // offsets emitted twice within the epoch
+    std::vector<Run> runs;
     std::vector<std::pair<std::uint32_t, std::uint64_t>> resume_points;
     EventRef checkpoint;
   };
 
-  Partition& At(std::uint32_t p);
+  Partition& At(std::uint32_t p) {
+    if (p >= partitions_.size()) partitions_.resize(static_cast<std::size_t>(p) + 1);
+    return partitions_[p];
+  }
   void UpdateCaughtUp(Partition& part, VirtualTime t);
   void DiscardUncommitted();
   void CheckPartitionStall(const v1::TraceEvent& e, std::optional<std::int64_t> watermark,
@@ -146,6 +161,7 @@ class LogRules {
   bool new_partitions_held_ = false;
   std::vector<Partition> partitions_;
   Epoch open_;
+  std::uint64_t epoch_ = 1;  // number of the open epoch; a new one at every checkpoint or crash
   std::map<std::uint64_t, Epoch> pending_;  // by checkpoint id
   std::uint64_t incarnation_ = 0;
   EventRef opened_;

@@ -281,8 +281,9 @@ void Oracle::OnDelivered(const TraceEvent& e) {
 
 void Oracle::OnEmitted(const TraceEvent& e) {
   const std::uint64_t id = e.emitted().message_id();
-  const EventRef ref = MakeRef(e);
-  if (!e.emitted().has_offset()) open_epoch_.push_back(PendingRecord{id, ref});
+  const bool log_record = e.emitted().has_offset();
+  const EventRef ref = log_record ? EventRef{} : MakeRef(e);
+  if (!log_record) open_epoch_.push_back(PendingRecord{id, ref});
   // late-record: against the last watermark reported before this step (this
   // step's own watermark comes with its stepped event, after its records).
   if (reported_watermark_.has_value() && e.emitted().event_time_ns() < *reported_watermark_) {
