@@ -13,9 +13,9 @@
 # the absolute figures. The raw output of every run is kept in
 # $BENCH_OUT (default: a temporary directory, printed at the end).
 #
-# Needs: the targets weir, reference_connector, call_cost, oracle_bench and
-# suite_throughput (`ninja -C build weir reference_connector call_cost
-# oracle_bench suite_throughput`).
+# Needs: the targets weir, reference_connector, call_cost, oracle_bench,
+# log_oracle_bench and suite_throughput (`ninja -C build weir
+# reference_connector call_cost oracle_bench log_oracle_bench suite_throughput`).
 set -euo pipefail
 ROOT=$(cd "$(dirname "$0")/.." && pwd)
 BUILD=${WEIR_BUILD_DIR:-build}
@@ -38,7 +38,7 @@ fi
 WEIR=$BUILD/harness/weir
 CONNECTOR=$BUILD/fixtures/connectors/reference_connector
 for exe in "$WEIR" "$CONNECTOR" "$BUILD/bench/call_cost" "$BUILD/bench/oracle_bench" \
-           "$BUILD/bench/suite_throughput"; do
+           "$BUILD/bench/log_oracle_bench" "$BUILD/bench/suite_throughput"; do
   if [[ ! -x $exe ]]; then
     echo "run_all.sh: $exe is missing; build it first (see the top of this script)" >&2
     exit 2
@@ -50,12 +50,14 @@ if ((TINY)); then
   ECHO_CALLS=200 RESTARTS=3 ROUNDS=1
   IDLE=$ROOT/bench/idle_tiny.scenario
   ORACLE_EVENTS=100000
+  LOG_OFFSETS=100000 LOG_PARTITIONS=100
   SUITE=$ROOT/tests/e2e/tiny.suite
 else
   STEADY=$ROOT/bench/steady_calls.scenario
   ECHO_CALLS=5000 RESTARTS=30 ROUNDS=5
   IDLE=$ROOT/bench/idle_hour.scenario
   ORACLE_EVENTS=10000000
+  LOG_OFFSETS=10000000 LOG_PARTITIONS=1000
   SUITE=$ROOT/fixtures/suites/quick.suite
 fi
 
@@ -104,6 +106,14 @@ for ((i = 1; i <= REPEATS; i++)); do
   pick "$log" 's/^VmHWM at end: *\([0-9]*\) kB/\1/p' oracle_hwm_end_kb
   if grep -q 'VmHWM after   1.0M' "$log"; then
     pick "$log" 's/^VmHWM after   1.0M events: \([0-9]*\) kB/\1/p' oracle_hwm_1m_kb
+  fi
+
+  log=$OUT/log_oracle.$i.log
+  run log_oracle_bench "$log" "$BUILD/bench/log_oracle_bench" "$LOG_OFFSETS" "$LOG_PARTITIONS"
+  pick "$log" 's/^oracle only: .*(\([0-9.]*\) M offsets.*/\1/p' log_oracle_mops
+  pick "$log" 's/^VmHWM at end: *\([0-9]*\) kB/\1/p' log_oracle_hwm_end_kb
+  if grep -q 'VmHWM after   1.0M' "$log"; then
+    pick "$log" 's/^VmHWM after   1.0M offsets: \([0-9]*\) kB/\1/p' log_oracle_hwm_1m_kb
   fi
 
   log=$OUT/suite.$i.log
@@ -159,6 +169,16 @@ if [[ $hwm_1m != "?" ]]; then
     "$hwm_1m" "$hwm_end" "$flat"
 else
   printf '| 4 | oracle peak memory (VmHWM) at the end | %s kB | flat | (run too short) |\n' "$hwm_end"
+fi
+log_mops=$(median log_oracle_mops)
+printf '| 4 | oracle, log shape, %s offsets over %s partitions: M offsets/s (oracle only) | %s | >= 20 | %s |\n' \
+  "$LOG_OFFSETS" "$LOG_PARTITIONS" "$log_mops" "$(verdict "$log_mops" '>=' 20)"
+log_hwm_1m=$(median log_oracle_hwm_1m_kb)
+log_hwm_end=$(median log_oracle_hwm_end_kb)
+if [[ $log_hwm_1m != "?" ]]; then
+  flat=$(awk -v a="$log_hwm_1m" -v b="$log_hwm_end" 'BEGIN { print (b <= a * 1.1 + 1024) ? "met" : "NOT met" }')
+  printf '| 4 | log oracle peak memory (VmHWM) after 1M offsets, at the end | %s kB, %s kB | flat | %s |\n' \
+    "$log_hwm_1m" "$log_hwm_end" "$flat"
 fi
 printf '| 5 | suite %s --jobs 2: seed-runs/min over gRPC, in-process | %s, %s | | |\n' \
   "$(basename "$SUITE")" "$(median suite_grpc_rpm)" "$(median suite_inproc_rpm)"
