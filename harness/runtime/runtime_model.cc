@@ -234,6 +234,26 @@ bool RuntimeModel::DoStep() {
   crashes_since_step_ = 0;
   std::uint32_t accepted = 0;
   std::string why;
+  // Gaps first: a reader reports what it skips before the records after it.
+  for (const v1::Gap& gap : response.gaps()) {
+    v1::Record last;
+    last.set_partition(gap.partition());
+    last.set_offset(gap.to_offset() - 1);
+    if (gap.from_offset() >= gap.to_offset() || !broker_.Identify(last, &why).has_value()) {
+      TraceProtocolError("Advance", "gap [" + std::to_string(gap.from_offset()) + ", " +
+                                        std::to_string(gap.to_offset()) + ") of partition " +
+                                        std::to_string(gap.partition()) +
+                                        " is empty or names offsets never appended");
+      continue;
+    }
+    auto& e = trace_.Append(now_);
+    auto* x = e.mutable_gap_reported();
+    x->set_partition(gap.partition());
+    x->set_from_offset(gap.from_offset());
+    x->set_to_offset(gap.to_offset());
+    x->set_step(step_);
+    trace_.Commit();
+  }
   for (const v1::Record& r : response.records()) {
     const std::optional<RecordKey> key = broker_.Identify(r, &why);
     if (!key.has_value()) {
@@ -251,25 +271,6 @@ bool RuntimeModel::DoStep() {
       x->set_message_id(r.message_id());
     }
     x->set_event_time_ns(r.event_time_ns());
-    x->set_step(step_);
-    trace_.Commit();
-  }
-  for (const v1::Gap& gap : response.gaps()) {
-    v1::Record last;
-    last.set_partition(gap.partition());
-    last.set_offset(gap.to_offset() - 1);
-    if (gap.from_offset() >= gap.to_offset() || !broker_.Identify(last, &why).has_value()) {
-      TraceProtocolError("Advance", "gap [" + std::to_string(gap.from_offset()) + ", " +
-                                        std::to_string(gap.to_offset()) + ") of partition " +
-                                        std::to_string(gap.partition()) +
-                                        " is empty or names offsets never appended");
-      continue;
-    }
-    auto& e = trace_.Append(now_);
-    auto* x = e.mutable_gap_reported();
-    x->set_partition(gap.partition());
-    x->set_from_offset(gap.from_offset());
-    x->set_to_offset(gap.to_offset());
     x->set_step(step_);
     trace_.Commit();
   }
