@@ -1,5 +1,6 @@
 // The harness as a library: a C++ source certified in-process, with the same
 // simulation, trace and oracle as over gRPC.
+#include "harness/edge/grpc_run.h"
 #include "harness/inprocess/in_process_port.h"
 
 #include <cstdlib>

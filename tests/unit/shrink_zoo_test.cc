@@ -22,6 +22,7 @@
 
 #include "absl/strings/str_cat.h"
 #include "fixtures/connectors/reference_source.h"
+#include "harness/edge/grpc_run.h"
 #include "harness/inprocess/in_process_port.h"
 #include "harness/scenario/plan_file.h"
 #include "harness/scenario/scenario_file.h"
