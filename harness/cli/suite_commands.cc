@@ -286,6 +286,9 @@ int Certify(SuiteCommands& s) {
               s.suite.c_str(), suite->digest.c_str(), static_cast<unsigned long long>(suite->pairs()),
               options.shard.index, options.shard.count, options.jobs, ShellJoin(argv).c_str(),
               sha->c_str());
+  if (suite->profile.has_value()) {
+    std::printf("profile %s (from the suite, applied to every scenario)\n", suite->profile_path.c_str());
+  }
   std::fflush(stdout);
   auto result = weir::Certify(*suite, options);
   if (!result.ok()) {

@@ -44,6 +44,10 @@ absl::StatusOr<SuiteResult> Certify(const LoadedSuite& suite, const CertifyOptio
   head.set_pairs_total(total);
   head.set_shard_index(options.shard.index);
   head.set_shard_count(options.shard.count);
+  // The profile every run is judged by: the caller's, else the suite's.
+  const std::optional<v1::Profile>& profile = options.profile.has_value() ? options.profile : suite.profile;
+  const std::string& profile_path = options.profile.has_value() ? options.profile_path : suite.profile_path;
+  head.set_profile(profile_path);
 
   std::mutex mu;
   std::uint64_t next = 0;
@@ -75,10 +79,11 @@ absl::StatusOr<SuiteResult> Certify(const LoadedSuite& suite, const CertifyOptio
       const std::uint64_t index = options.shard.index + mine * options.shard.count;
       const std::size_t scenario = static_cast<std::size_t>(index / seeds);
       const std::uint64_t seed = suite.suite.first_seed() + index % seeds;
-      const std::string& scenario_path = suite.suite.scenarios(static_cast<int>(scenario));
+      // One form of the path everywhere (summary, records, replay lines).
+      const std::string& scenario_path = suite.scenario_paths[scenario];
       RunSpec spec;
       spec.scenario = suite.scenarios[scenario];
-      if (options.profile.has_value()) *spec.scenario.mutable_profile() = *options.profile;
+      if (profile.has_value()) *spec.scenario.mutable_profile() = *profile;
       spec.scenario_path = suite.scenario_paths[scenario];
       spec.seed = seed;
       spec.connector_argv = options.connector_argv;
@@ -102,8 +107,8 @@ absl::StatusOr<SuiteResult> Certify(const LoadedSuite& suite, const CertifyOptio
       rec.set_seed(seed);
       rec.set_pair_index(index);
       rec.set_wall_seconds(wall);
-      rec.set_replay(ReplayLine(suite.scenario_paths[scenario], seed, options.transport, "",
-                                options.profile_path, options.connector_argv));
+      rec.set_replay(ReplayLine(scenario_path, seed, options.transport, "", profile_path,
+                                options.connector_argv));
       if (!out.ok()) {
         rec.set_passed(false);
         rec.set_harness_error(std::string(out.status().message()));

@@ -50,8 +50,10 @@ struct CertifyOptions {
   std::uint64_t max_failures = 0;  // 0: no limit
   ShardSpec shard;
   Transport transport = Transport::kTcp;
-  std::optional<v1::Profile> profile;  // overrides every scenario's profile
-  std::string profile_path;            // for replay lines
+  // Overrides every scenario's profile, and the suite's. Unset: the suite's
+  // profile when it names one (LoadedSuite::profile), else each scenario's.
+  std::optional<v1::Profile> profile;
+  std::string profile_path;            // for replay lines and the report
   const std::atomic<bool>* stop = nullptr;
   // Runs one pair; default RunOverGrpc. An in-process host passes its own.
   std::function<absl::StatusOr<RunOutput>(const RunSpec&)> runner;

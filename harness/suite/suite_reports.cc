@@ -132,7 +132,11 @@ absl::Status WriteSuiteJUnitXml(const v1::SuiteReport& head, const SuiteTally& t
 }
 
 std::string SuiteSummaryText(const v1::SuiteReport& head, const SuiteTally& tally) {
-  std::string out = absl::StrFormat("%-22s %8s %8s  %s\n", "invariant", "passed", "failed",
+  std::string out;
+  if (!head.profile().empty()) {
+    absl::StrAppend(&out, "profile ", head.profile(), " (applied to every scenario)\n\n");
+  }
+  out += absl::StrFormat("%-22s %8s %8s  %s\n", "invariant", "passed", "failed",
                                     "first failing seed");
   for (const auto& s : head.invariants()) {
     absl::StrAppend(&out, absl::StrFormat("%-22s %8d %8d  %s\n", s.invariant(), s.runs_passed(),
@@ -172,6 +176,7 @@ std::string SuiteSummaryHtml(const v1::SuiteReport& head, const SuiteTally& tall
   fact("suite digest", head.suite_digest());
   fact("connector", connector);
   fact("connector sha256", head.connector_sha256());
+  if (!head.profile().empty()) fact("profile (every scenario)", head.profile());
   fact("weir", head.weir_version());
   fact("shard", absl::StrCat(head.shard_index(), "/", head.shard_count()));
   fact("runs", absl::StrCat(tally.runs(), " of ", head.pairs_total(), " pairs: ", tally.passed(), " passed, ",
