@@ -200,10 +200,21 @@ ConnectorFailure GrpcConnectorPort::Invoke(const char* name,
       if (f.kind == ConnectorFailure::Kind::kExited) f.detail = absl::StrCat("died during ", name);
       return f;
     }
-    return ConnectorFailure{ConnectorFailure::Kind::kCallFailed,
+    // An answer above weir's receive limit (gRPC's own RESOURCE_EXHAUSTED) or
+    // a method the connector does not serve breaks the wire contract.
+    if (status.error_code() == grpc::StatusCode::RESOURCE_EXHAUSTED ||
+        status.error_code() == grpc::StatusCode::UNIMPLEMENTED) {
+      return ConnectorFailure{ConnectorFailure::Kind::kCallFailed,
+                              absl::StrCat(name, " answered ", CodeName(status.error_code()), ": ",
+                                           status.error_message()),
+                              "", ""};
+    }
+    // Any other status is the connector's own word that the call failed (an
+    // exception in the source, a checkpoint it cannot read): connector-error.
+    return ConnectorFailure{ConnectorFailure::Kind::kConnectorError,
                             absl::StrCat(name, " answered ", CodeName(status.error_code()), ": ",
                                          status.error_message()),
-                            "", ""};
+                            "", "", static_cast<int>(status.error_code())};
   }
   // The answer must be exactly one message of the response type (an empty
   // message is one); a missing answer or bytes that do not parse are not.

@@ -8,6 +8,18 @@
 // connector's broker calls from that queue (BrokerServer::Serve) until the
 // answer arrives. Kill() ends the process group and reaps it.
 //
+// What a call's gRPC status becomes (README, "The oracle's rules"):
+//   OK with an answer that parses       the answer
+//   OK with no or unparsable answer      kCallFailed   -> protocol-error
+//   DEADLINE_EXCEEDED                    kTimeout      -> step-timeout (kExited if it died)
+//   UNAVAILABLE, CANCELLED               kExited if the process ended -> unexpected-exit,
+//                                        else kCallFailed -> protocol-error
+//   RESOURCE_EXHAUSTED (an answer above the receive limit), UNIMPLEMENTED
+//                                        kCallFailed   -> protocol-error
+//   any other code (UNKNOWN, INTERNAL, INVALID_ARGUMENT, FAILED_PRECONDITION…)
+//                                        kConnectorError -> connector-error (in Open
+//                                        from a committed checkpoint: bad-checkpoint)
+//
 // Thread safety: the simulation thread only.
 #pragma once
 

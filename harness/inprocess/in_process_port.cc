@@ -57,8 +57,12 @@ class EndpointClient : public adapter::BrokerClient {
   BrokerEndpoint& broker_;
 };
 
-ConnectorFailure Misuse(const char* call, const std::string& what) {
-  return ConnectorFailure{ConnectorFailure::Kind::kCallFailed, absl::StrCat(call, ": ", what), "", ""};
+// What the gRPC adapter would answer: a misuse of the Context is
+// FAILED_PRECONDITION, a failed Open its own status; both connector errors.
+ConnectorFailure Misuse(const char* call, const std::string& what,
+                        grpc::StatusCode code = grpc::StatusCode::FAILED_PRECONDITION) {
+  return ConnectorFailure{ConnectorFailure::Kind::kConnectorError, absl::StrCat(call, ": ", what), "", "",
+                          static_cast<int>(code)};
 }
 
 ConnectorFailure NotAlive() {
@@ -87,7 +91,9 @@ ConnectorFailure InProcessPort::Open(const v1::OpenRequest& request, v1::OpenRes
   info.checkpoint_state = request.checkpoint_state();
   info.redelivery_horizon_ns = request.redelivery_horizon_ns();
   grpc::Status st = source_->Open(info, ctx);
-  if (!st.ok()) return Misuse("Open", absl::StrCat("answered ", st.error_code(), " ", st.error_message()));
+  if (!st.ok()) {
+    return Misuse("Open", absl::StrCat("answered ", st.error_code(), " ", st.error_message()), st.error_code());
+  }
   return {};
 }
 

@@ -212,6 +212,12 @@ void Oracle::OnEvent(const TraceEvent& e) {
                          absl::StrCat("Malformed exchange in ", e.protocol_error().call(), ": ",
                                       e.protocol_error().detail(), "."));
       break;
+    case TraceEvent::kConnectorError:
+      OnConnectorFailure(e, e.connector_error().call(), Invariant::kConnectorError,
+                         absl::StrCat("The connector reported its own failure in ",
+                                      e.connector_error().call(), ": ", e.connector_error().detail(),
+                                      "."));
+      break;
     case TraceEvent::kRunEnded:
       OnRunEnded(e);
       log_.OnRunEnded(e);

@@ -37,6 +37,9 @@
 //     restored incarnation starts from the watermark committed with its
 //     checkpoint). Always counted (Verdict::late_records); a violation only
 //     under BOUNDED_LATENESS, when it is more than allowed_lateness below.
+//   connector-error: a connector_error event (the connector answered a call
+//     with an error status of its own); in Open from a committed checkpoint
+//     it is bad-checkpoint, as every failure of that Open is.
 //   protocol-error, besides the runtime's own protocol_error events: a record
 //     of a message not delivered to the emitting incarnation (messages already
 //     retired are not checked: their delivery history is gone), an ack of a

@@ -21,6 +21,7 @@ const char* InvariantName(Invariant invariant) {
     case Invariant::kResumeExact: return "resume-exact";
     case Invariant::kSilentSkip: return "silent-skip";
     case Invariant::kNewPartition: return "new-partition";
+    case Invariant::kConnectorError: return "connector-error";
     case Invariant::kCount: break;
   }
   return "unknown";
@@ -83,6 +84,10 @@ const char* InvariantRule(Invariant invariant) {
              "before it emits the records after them.";
     case Invariant::kNewPartition:
       return "Log: a partition added during the run must be read.";
+    case Invariant::kConnectorError:
+      return "The connector must not answer a call with an error status of its own (an exception "
+             "in its code, a request it refuses); a failed Open from a committed checkpoint is "
+             "bad-checkpoint instead.";
     case Invariant::kCount:
       break;
   }

@@ -33,6 +33,7 @@ enum class Invariant : int {
   kResumeExact,
   kSilentSkip,
   kNewPartition,
+  kConnectorError,
   kCount,  // not an invariant
 };
 

@@ -69,6 +69,7 @@ bool IsStructural(const TraceEvent& e) {
     case TraceEvent::kOpened:
     case TraceEvent::kExited:
     case TraceEvent::kProtocolError:
+    case TraceEvent::kConnectorError:
     case TraceEvent::kCallTimedOut:
     case TraceEvent::kRunEnded:
     case TraceEvent::kBrokerCallFailed:

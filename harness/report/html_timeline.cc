@@ -35,6 +35,7 @@ Lane LaneOf(const TraceEvent& e) {
     case TraceEvent::kOpened:
     case TraceEvent::kExited:
     case TraceEvent::kProtocolError:
+    case TraceEvent::kConnectorError:
     case TraceEvent::kCallTimedOut:
       return kConnector;
     case TraceEvent::kCheckpoint:
@@ -68,6 +69,7 @@ const char* ClassOf(const TraceEvent& e) {
     case TraceEvent::kCrashed: return "crash";
     case TraceEvent::kExited: return "exit";
     case TraceEvent::kProtocolError: return "protocol-error";
+    case TraceEvent::kConnectorError: return "connector-error";
     case TraceEvent::kAckIgnored: return "ack-ignored";
     case TraceEvent::kRunEnded: return "run-ended";
     case TraceEvent::kCallTimedOut: return "timeout";

@@ -32,7 +32,8 @@ struct ConnectorFailure {
     kStartFailed,  // never came up (no handshake, bad address, exec failed)
     kTimeout,      // did not answer within the wall-clock bound
     kExited,       // the process ended during or before the call
-    kCallFailed,   // answered the call with an error status
+    kCallFailed,   // broke the protocol: an answer that does not parse, a bad address…
+    kConnectorError,  // answered the call with an error status of its own (code)
     kCrashed,      // killed by the port because broker.CrashRequested(): a crash point, not a fault
     kInterrupted,  // weir itself is stopping (a signal): the incarnation was killed
   };
@@ -40,6 +41,7 @@ struct ConnectorFailure {
   std::string detail;       // what happened, for the report
   std::string exit_status;  // "exit code 3", "signal 11 (SIGSEGV)", or empty
   std::string stderr_tail;  // the last bytes the connector wrote to stderr
+  int code = 0;             // kConnectorError: the gRPC status code it answered
 
   bool ok() const { return kind == Kind::kNone; }
 };

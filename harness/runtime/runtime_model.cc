@@ -37,6 +37,7 @@ const char* FailureKindName(ConnectorFailure::Kind kind) {
     case ConnectorFailure::Kind::kTimeout: return "timeout";
     case ConnectorFailure::Kind::kExited: return "exited";
     case ConnectorFailure::Kind::kCallFailed: return "call failed";
+    case ConnectorFailure::Kind::kConnectorError: return "connector error";
     case ConnectorFailure::Kind::kCrashed: return "crashed at a crash point";
     case ConnectorFailure::Kind::kInterrupted: return "interrupted";
   }
@@ -84,6 +85,13 @@ void RuntimeModel::TraceFailure(const char* call, const ConnectorFailure& failur
                                                 : failure.detail + " (" + failure.exit_status + ")");
       x->set_stderr_tail(failure.stderr_tail);
       x->set_call(call);
+      break;
+    }
+    case ConnectorFailure::Kind::kConnectorError: {
+      auto* x = e.mutable_connector_error();
+      x->set_call(call);
+      x->set_code(failure.code);
+      x->set_detail(failure.detail);
       break;
     }
     case ConnectorFailure::Kind::kCallFailed:

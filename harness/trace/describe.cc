@@ -77,6 +77,9 @@ std::string DescribeEvent(const v1::TraceEvent& e) {
     case TraceEvent::kProtocolError:
       return absl::StrCat("protocol error in ", e.protocol_error().call(), ": ",
                           e.protocol_error().detail());
+    case TraceEvent::kConnectorError:
+      return absl::StrCat("connector reported an error in ", e.connector_error().call(), ": ",
+                          e.connector_error().detail());
     case TraceEvent::kAckIgnored:
       return absl::StrCat("broker ignored receipt ", e.ack_ignored().receipt(), " (",
                           e.ack_ignored().reason(), ")");

@@ -30,7 +30,7 @@ hostile() {
   sleep 0.1
   check "$name: no process left behind" none_alive "$MARK-$name"
   # The one line per case for the issue note.
-  echo "     $name -> $(grep -m1 -E 'Malformed|did not|ended without|acknowledged|^broker ' "$out" | sed 's/^ *//' | cut -c1-200)"
+  echo "     $name -> $(grep -m1 -E 'Malformed|own failure|did not|ended without|acknowledged|^broker ' "$out" | sed 's/^ *//' | cut -c1-200)"
 }
 
 hostile silent_start 1 step-timeout "did not report its address on WEIR_READY_FD within 1000 ms"
@@ -52,6 +52,7 @@ hostile hang_in_step 1 step-timeout "did not answer Advance within 1000 ms"
 hostile fork_orphans 1 unexpected-exit "exit code 0"
 hostile exit_signal 1 unexpected-exit "signal 11 (SIGSEGV)"
 hostile stderr_flood 1 unexpected-exit "last words: hostile stderr_flood gives up"
+hostile throw_in_step 1 connector-error "reported its own failure in Advance: Advance answered INTERNAL: source threw during Advance: hostile throw_in_step gives up in step 2"
 hostile hang_in_step 1 step-timeout "did not answer Advance within 1000 ms" unix
 
 # Figures: repeated and late acks are counted, not silently dropped.

@@ -117,6 +117,19 @@ class TraceBuilder {
     e.mutable_broker_call_failed()->set_retry_after_ns(retry_after);
     return Send(e);
   }
+  std::uint64_t ConnectorError(const std::string& call, int code, const std::string& detail) {
+    auto& e = Next();
+    e.mutable_connector_error()->set_call(call);
+    e.mutable_connector_error()->set_code(code);
+    e.mutable_connector_error()->set_detail(detail);
+    return Send(e);
+  }
+  std::uint64_t ProtocolError(const std::string& call, const std::string& detail) {
+    auto& e = Next();
+    e.mutable_protocol_error()->set_call(call);
+    e.mutable_protocol_error()->set_detail(detail);
+    return Send(e);
+  }
   Verdict End() {
     auto& e = Next();
     e.mutable_run_ended()->set_reason("test over");
@@ -601,6 +614,45 @@ TEST(Oracle, WatermarksAndResumeTimesMoreThanAHundredYearsAwayAreProtocolErrors)
   const auto& r = v.at(Invariant::kProtocolError);
   EXPECT_EQ(r.violations, 2u);
   EXPECT_EQ(v.at(Invariant::kWatermarkRegression).violations, 0u);  // the bad one is dropped
+}
+
+}  // namespace
+}  // namespace weir
+
+namespace weir {
+namespace {
+
+// A connector that answers with an error status of its own (an exception in
+// its code) is a connector-error, named as its own failure, not a malformed
+// exchange; garbage on the wire stays a protocol-error.
+TEST(Oracle, AnErrorStatusFromTheConnectorIsAConnectorErrorNotAProtocolError) {
+  TraceBuilder t;
+  const auto e = t.ConnectorError("Advance", 13, "Advance answered INTERNAL: source raised during advance: RuntimeError: x");
+  const Verdict v = t.End();
+  EXPECT_EQ(v.at(Invariant::kProtocolError).violations, 0u);
+  const auto& r = v.at(Invariant::kConnectorError);
+  ASSERT_EQ(r.violations, 1u);
+  EXPECT_EQ(Seqs(r.first[0]).back(), e);
+  EXPECT_EQ(r.first[0].sentence.find("Malformed"), std::string::npos) << r.first[0].sentence;
+  EXPECT_NE(r.first[0].sentence.find("own failure in Advance: Advance answered INTERNAL"), std::string::npos)
+      << r.first[0].sentence;
+}
+
+TEST(Oracle, AGarbledAnswerIsStillAProtocolError) {
+  TraceBuilder t;
+  t.ProtocolError("Open", "Open answered no message, or bytes that are not a weir.v1.OpenResponse message");
+  const Verdict v = t.End();
+  EXPECT_EQ(v.at(Invariant::kProtocolError).violations, 1u);
+  EXPECT_EQ(v.at(Invariant::kConnectorError).violations, 0u);
+}
+
+TEST(Oracle, AConnectorErrorInOpenFromACommittedCheckpointIsABadCheckpoint) {
+  TraceBuilder t;
+  t.Opened(3, std::nullopt);
+  t.ConnectorError("Open", 3, "Open answered INVALID_ARGUMENT: cannot parse the checkpoint");
+  const Verdict v = t.End();
+  EXPECT_EQ(v.at(Invariant::kBadCheckpoint).violations, 1u);
+  EXPECT_EQ(v.at(Invariant::kConnectorError).violations, 0u);
 }
 
 }  // namespace

@@ -96,7 +96,7 @@ enum class CallKind { kOpen, kAdvance, kCheckpoint, kCommitted };
 // Invariants: now() never decreases; the step-shaping methods (Emit,
 // SetWatermark, ResumeAt, Finish) are valid only in an Advance call — elsewhere
 // they are ignored and recorded as misuse, which the host turns into a failed
-// call (FAILED_PRECONDITION) so the mistake surfaces as a protocol error.
+// call (FAILED_PRECONDITION) so the mistake surfaces as a connector-error.
 class Context {
  public:
   // For hosts. REQUIRES: broker outlives the context.
@@ -175,6 +175,16 @@ struct OpenInfo {
 // A source connector. The host calls Open first (again on every new incarnation,
 // possibly on the same object: Open must reset all state), then any sequence of
 // Advance, Checkpoint and Committed, one at a time.
+//
+// Errors: an exception that escapes a call fails that call with INTERNAL
+// ("source threw during Advance: …"), a misuse of the Context with
+// FAILED_PRECONDITION, a non-OK status from Open with that status; the process
+// keeps serving. weir reports every such error status as connector-error (in
+// Open from a committed checkpoint: bad-checkpoint). protocol-error is for
+// malformed exchanges: an answer that does not parse or exceeds the receive
+// limit (RESOURCE_EXHAUSTED), an unserved method (UNIMPLEMENTED), records of
+// messages never delivered, impossible times. DEADLINE_EXCEEDED is step-timeout;
+// a process that ended is unexpected-exit.
 class Source {
  public:
   virtual ~Source() = default;
