@@ -32,6 +32,7 @@ Oracle::Oracle(const v1::Profile& profile, v1::SourceShape shape)
       idle_max_lag_(Millis(profile.has_idle_max_lag_ms() ? profile.idle_max_lag_ms()
                                                          : profile.idle_timeout_ms())),
       min_backoff_(Millis(profile.min_backoff_ms())),
+      max_lead_(Millis(profile.max_watermark_lead_ms())),
       log_(profile, verdict_,
            [this](Invariant invariant, const std::string& sentence, std::vector<EventRef> cited,
                   const TraceEvent* current) {
@@ -167,6 +168,7 @@ void Oracle::OnEvent(const TraceEvent& e) {
       DiscardUncommitted();
       opened_ref_ = MakeRef(e);
       methods_.clear();
+      ahead_ = false;
       watermark_.reset();
       watermark_ref_ = EventRef{};
       reported_watermark_.reset();
@@ -348,6 +350,16 @@ void Oracle::OnStepped(const TraceEvent& e) {
   const auto& x = e.stepped();
   if (!x.finished()) TimeInRange(e, "resume time", x.resume_at_ns());
   if (x.has_watermark_ns() && TimeInRange(e, "watermark", x.watermark_ns())) {
+    const bool ahead = x.watermark_ns() > SaturatingAdd(e.t_ns(), max_lead_);
+    if (ahead && !ahead_) {
+      Report(Invariant::kWatermarkAhead,
+             absl::StrCat("Step ", x.step(), " reported the watermark ", FormatTime(x.watermark_ns()), ", ",
+                          FormatTime(x.watermark_ns() - e.t_ns()), " past virtual now ", FormatTime(e.t_ns()),
+                          " (allowed: ", FormatTime(max_lead_),
+                          "): every record published from now on could be late."),
+             {}, &e);
+    }
+    ahead_ = ahead;
     OnWatermark(e, x.watermark_ns());
     // Cite the step that first reported this value: for a stall, where it stuck.
     if (reported_watermark_ != x.watermark_ns()) reported_ref_ = MakeRef(e);

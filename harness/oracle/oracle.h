@@ -37,6 +37,10 @@
 //     restored incarnation starts from the watermark committed with its
 //     checkpoint). Always counted (Verdict::late_records); a violation only
 //     under BOUNDED_LATENESS, when it is more than allowed_lateness below.
+//   watermark-ahead (every profile): a step reports a watermark later than
+//     the step's virtual time plus profile.max_watermark_lead_ms. One
+//     violation per stretch of steps whose watermark is ahead, within an
+//     incarnation.
 //   connector-error: a connector_error event (the connector answered a call
 //     with an error status of its own); in Open from a committed checkpoint
 //     it is bad-checkpoint, as every failure of that Open is.
@@ -175,6 +179,8 @@ class Oracle : public TraceObserver {
     EventRef transient;  // the last transient failure, until the next call
   };
   const VirtualDuration min_backoff_;
+  const VirtualDuration max_lead_;  // watermark-ahead
+  bool ahead_ = false;              // the last watermark was ahead (already reported)
   absl::flat_hash_map<std::string, MethodState> methods_;
   LogRules log_;
 };

@@ -22,6 +22,7 @@ const char* InvariantName(Invariant invariant) {
     case Invariant::kSilentSkip: return "silent-skip";
     case Invariant::kNewPartition: return "new-partition";
     case Invariant::kConnectorError: return "connector-error";
+    case Invariant::kWatermarkAhead: return "watermark-ahead";
     case Invariant::kCount: break;
   }
   return "unknown";
@@ -88,6 +89,11 @@ const char* InvariantRule(Invariant invariant) {
       return "The connector must not answer a call with an error status of its own (an exception "
              "in its code, a request it refuses); a failed Open from a committed checkpoint is "
              "bad-checkpoint instead.";
+    case Invariant::kWatermarkAhead:
+      return "A reported watermark must not be later than virtual now plus the profile's "
+             "max_watermark_lead_ms (default 0): every message is published with an event time "
+             "at or before its publish time, so a watermark past now declares data that can still "
+             "come late.";
     case Invariant::kCount:
       break;
   }

@@ -34,6 +34,7 @@ enum class Invariant : int {
   kSilentSkip,
   kNewPartition,
   kConnectorError,
+  kWatermarkAhead,
   kCount,  // not an invariant
 };
 

@@ -27,6 +27,7 @@ void ValidateProfile(TextFile& f, const v1::Profile& p, bool in_scenario) {
   millis("allowed_lateness_ms", p.allowed_lateness_ms());
   millis("idle_timeout_ms", p.idle_timeout_ms());
   if (p.has_idle_max_lag_ms()) millis("idle_max_lag_ms", p.idle_max_lag_ms());
+  millis("max_watermark_lead_ms", p.max_watermark_lead_ms());
   const bool claims = p.watermark_policy() == v1::Profile::MONOTONIC ||
                       p.watermark_policy() == v1::Profile::BOUNDED_LATENESS;
   require(p.allowed_lateness_ms() == 0 ||

@@ -10,7 +10,8 @@
 // Rules: every duration is 0 .. one year of milliseconds; allowed_lateness_ms
 // needs watermark_policy BOUNDED_LATENESS; idle_timeout_ms and
 // idle_max_lag_ms need a watermark policy (MONOTONIC or BOUNDED_LATENESS), and
-// idle_max_lag_ms needs idle_timeout_ms.
+// idle_max_lag_ms needs idle_timeout_ms; max_watermark_lead_ms applies under
+// every policy.
 #pragma once
 
 #include <string>

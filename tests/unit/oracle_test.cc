@@ -657,3 +657,53 @@ TEST(Oracle, AConnectorErrorInOpenFromACommittedCheckpointIsABadCheckpoint) {
 
 }  // namespace
 }  // namespace weir
+
+namespace weir {
+namespace {
+
+v1::Profile MonotonicProfile(std::int64_t max_lead_ms = 0) {
+  v1::Profile p;
+  p.set_guarantee(v1::Profile::AT_LEAST_ONCE);
+  p.set_watermark_policy(v1::Profile::MONOTONIC);
+  p.set_max_watermark_lead_ms(max_lead_ms);
+  return p;
+}
+
+// A watermark computed from the wall clock: about 1.8e9 s while virtual time
+// is about 120 s. Every record published later would be late.
+TEST(Oracle, AWatermarkPastVirtualNowIsWatermarkAhead) {
+  TraceBuilder t(MonotonicProfile());
+  t.At(Seconds(120));
+  const auto s = t.Stepped(Seconds(1'800'000'000), false);
+  t.At(Seconds(121));
+  t.Stepped(Seconds(1'800'000'001), false);  // the same stretch: not a second cause
+  const Verdict v = t.End();
+  const auto& r = v.at(Invariant::kWatermarkAhead);
+  ASSERT_EQ(r.violations, 1u);
+  EXPECT_EQ(Seqs(r.first[0]), (std::vector<std::uint64_t>{s}));
+  EXPECT_NE(r.first[0].sentence.find("past virtual now"), std::string::npos) << r.first[0].sentence;
+  EXPECT_EQ(v.at(Invariant::kProtocolError).violations, 0u);
+}
+
+TEST(Oracle, AWatermarkAtOrBelowNowPlusTheAllowanceHolds) {
+  TraceBuilder t(MonotonicProfile(/*max_lead_ms=*/500));
+  t.At(Seconds(10));
+  t.Stepped(Seconds(10), false);
+  t.At(Seconds(11));
+  t.Stepped(Seconds(11) + Millis(500), false);
+  EXPECT_EQ(t.End().at(Invariant::kWatermarkAhead).violations, 0u);
+}
+
+TEST(Oracle, AWatermarkThatFallsBackWithinTheBoundAndRunsAheadAgainIsTwoCauses) {
+  TraceBuilder t(MonotonicProfile(/*max_lead_ms=*/1000));
+  t.At(Seconds(1));
+  t.Stepped(Seconds(5), false);   // ahead by 4 s
+  t.At(Seconds(5));
+  t.Stepped(Seconds(5), false);   // within the bound again
+  t.At(Seconds(6));
+  t.Stepped(Seconds(60), false);  // ahead again
+  EXPECT_EQ(t.End().at(Invariant::kWatermarkAhead).violations, 2u);
+}
+
+}  // namespace
+}  // namespace weir
