@@ -214,6 +214,21 @@ void Oracle::OnEvent(const TraceEvent& e) {
                          absl::StrCat("Malformed exchange in ", e.protocol_error().call(), ": ",
                                       e.protocol_error().detail(), "."));
       break;
+    case TraceEvent::kLivelock: {
+      const auto& x = e.livelock();
+      Report(Invariant::kLivelock,
+             x.by_wall_time()
+                 ? absl::StrCat("The connector kept virtual time at ", FormatTime(e.t_ns()), " for ", x.wall_ms(),
+                                " ms of wall time (", x.steps(),
+                                " steps in a row asked to be called again at once; "
+                                "runtime.max_same_time_wall_ms is ",
+                                x.max_wall_ms(), "): livelock, stopped.")
+                 : absl::StrCat("The connector asked to be called again at virtual time ", FormatTime(e.t_ns()),
+                                " ", x.steps(), " steps in a row (runtime.max_same_time_steps is ", x.max_steps(),
+                                "): livelock, stopped."),
+             {opened_ref_}, &e);
+      break;
+    }
     case TraceEvent::kConnectorError:
       OnConnectorFailure(e, e.connector_error().call(), Invariant::kConnectorError,
                          absl::StrCat("The connector reported its own failure in ",

@@ -41,6 +41,8 @@
 //     the step's virtual time plus profile.max_watermark_lead_ms. One
 //     violation per stretch of steps whose watermark is ahead, within an
 //     incarnation.
+//   livelock: a livelock event (the runtime passed one of the scenario's
+//     bounds on steps at one virtual time).
 //   connector-error: a connector_error event (the connector answered a call
 //     with an error status of its own); in Open from a committed checkpoint
 //     it is bad-checkpoint, as every failure of that Open is.

@@ -23,6 +23,7 @@ const char* InvariantName(Invariant invariant) {
     case Invariant::kNewPartition: return "new-partition";
     case Invariant::kConnectorError: return "connector-error";
     case Invariant::kWatermarkAhead: return "watermark-ahead";
+    case Invariant::kLivelock: return "livelock";
     case Invariant::kCount: break;
   }
   return "unknown";
@@ -94,6 +95,11 @@ const char* InvariantRule(Invariant invariant) {
              "max_watermark_lead_ms (default 0): every message is published with an event time "
              "at or before its publish time, so a watermark past now declares data that can still "
              "come late.";
+    case Invariant::kLivelock:
+      return "The connector must let virtual time move: no more than the scenario's "
+             "runtime.max_same_time_steps steps in a row (default 1,000) may ask to be called again "
+             "at the virtual time they began, nor may such steps go on for more than "
+             "runtime.max_same_time_wall_ms of wall time (default 10,000).";
     case Invariant::kCount:
       break;
   }

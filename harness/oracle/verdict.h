@@ -35,6 +35,7 @@ enum class Invariant : int {
   kNewPartition,
   kConnectorError,
   kWatermarkAhead,
+  kLivelock,
   kCount,  // not an invariant
 };
 

@@ -70,6 +70,7 @@ bool IsStructural(const TraceEvent& e) {
     case TraceEvent::kExited:
     case TraceEvent::kProtocolError:
     case TraceEvent::kConnectorError:
+    case TraceEvent::kLivelock:
     case TraceEvent::kCallTimedOut:
     case TraceEvent::kRunEnded:
     case TraceEvent::kBrokerCallFailed:

@@ -37,6 +37,7 @@ Lane LaneOf(const TraceEvent& e) {
     case TraceEvent::kProtocolError:
     case TraceEvent::kConnectorError:
     case TraceEvent::kCallTimedOut:
+    case TraceEvent::kLivelock:
       return kConnector;
     case TraceEvent::kCheckpoint:
     case TraceEvent::kCommitted:
@@ -70,6 +71,7 @@ const char* ClassOf(const TraceEvent& e) {
     case TraceEvent::kExited: return "exit";
     case TraceEvent::kProtocolError: return "protocol-error";
     case TraceEvent::kConnectorError: return "connector-error";
+    case TraceEvent::kLivelock: return "livelock";
     case TraceEvent::kAckIgnored: return "ack-ignored";
     case TraceEvent::kRunEnded: return "run-ended";
     case TraceEvent::kCallTimedOut: return "timeout";

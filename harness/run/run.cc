@@ -1,5 +1,6 @@
 #include "harness/run/run.h"
 
+#include <chrono>
 #include <cstdio>
 #include <memory>
 
@@ -102,6 +103,10 @@ absl::StatusOr<RunOutput> RunWithPort(const RunSpec& spec, ConnectorPort& port) 
     broker = queue.get();
   }
   RuntimeModel runtime(spec.scenario, *broker, *session, port, trace, faults);
+  runtime.set_wall_clock([] {  // the livelock bound in wall time
+    return std::chrono::duration_cast<std::chrono::milliseconds>(std::chrono::steady_clock::now().time_since_epoch())
+        .count();
+  });
 
   RunOutput out;
   out.summary = runtime.Run();

@@ -7,10 +7,6 @@
 namespace weir {
 namespace {
 
-// A connector that keeps asking to be called at the same virtual time this many
-// times in a row is livelocked: virtual time would never move again.
-constexpr std::uint64_t kMaxSameTimeSteps = 100000;
-
 // Crashes in a row without a completed step: the fault rates leave the
 // connector no room to work, and virtual time would never move again.
 constexpr std::uint64_t kMaxCrashesWithoutStep = 1000;
@@ -307,16 +303,37 @@ bool RuntimeModel::DoStep() {
   trace_.Commit();
 
   if (!finished_) {
-    same_time_steps_ = resume_at == asked_at ? same_time_steps_ + 1 : 0;
-    if (same_time_steps_ >= kMaxSameTimeSteps) {
-      TraceProtocolError("Advance", "asked to be called again at the same virtual time " +
-                                        std::to_string(kMaxSameTimeSteps) + " times in a row (livelock)");
+    if (resume_at != asked_at) {
+      same_time_steps_ = 0;
+    } else if (Livelocked()) {
       return false;
     }
     queue_.Push(resume_at, Event{EventKind::kStep, incarnation_});
   }
   const std::uint64_t every = scenario_.runtime().checkpoint_every_records();
   if (every > 0 && open_epoch_.size() >= every) return DoCheckpointCycle();
+  return true;
+}
+
+bool RuntimeModel::Livelocked() {
+  const auto& r = scenario_.runtime();
+  const std::uint64_t max_steps = r.max_same_time_steps() > 0 ? r.max_same_time_steps() : kDefaultMaxSameTimeSteps;
+  const std::int64_t max_wall_ms = r.max_same_time_wall_ms() > 0 ? r.max_same_time_wall_ms() : kDefaultMaxSameTimeWallMs;
+  const std::int64_t wall_now = wall_clock_ms_ ? wall_clock_ms_() : 0;
+  if (++same_time_steps_ == 1) same_time_since_wall_ms_ = wall_now;
+  const std::int64_t wall_ms = wall_now - same_time_since_wall_ms_;
+  const bool by_wall = wall_clock_ms_ && wall_ms > max_wall_ms;
+  if (same_time_steps_ <= max_steps && !by_wall) return false;
+  auto& e = trace_.Append(now_);
+  auto* x = e.mutable_livelock();
+  x->set_steps(same_time_steps_);
+  // The wall time reaches the trace only when it decided: otherwise the trace
+  // would depend on the machine's speed.
+  x->set_wall_ms(by_wall ? wall_ms : 0);
+  x->set_by_wall_time(by_wall);
+  x->set_max_steps(max_steps);
+  x->set_max_wall_ms(max_wall_ms);
+  trace_.Commit();
   return true;
 }
 

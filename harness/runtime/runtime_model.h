@@ -35,10 +35,16 @@
 //     A commit failure makes a later crash point of that checkpoint moot.
 //   - every exit path leaves no incarnation alive (port.Kill()).
 //
+// Livelock: a step that asks to be called again at the virtual time it began
+// continues a stretch; more than runtime.max_same_time_steps such steps in a
+// row, or a stretch longer than runtime.max_same_time_wall_ms of wall time
+// (when a wall clock is given), ends the run with a `livelock` event.
+//
 // Thread safety: none; Run() is the simulation thread.
 #pragma once
 
 #include <cstdint>
+#include <functional>
 #include <optional>
 #include <string>
 #include <vector>
@@ -54,6 +60,10 @@
 #include "weir/v1/scenario.pb.h"
 
 namespace weir {
+
+// Livelock bounds when the scenario leaves them 0 (RuntimePolicy).
+inline constexpr std::uint64_t kDefaultMaxSameTimeSteps = 1000;
+inline constexpr std::int64_t kDefaultMaxSameTimeWallMs = 10000;
 
 struct RunSummary {
   std::string end_reason;  // "all messages committed", "drain bound reached", …
@@ -82,6 +92,11 @@ class RuntimeModel {
   // Runs to the end. Never leaves the connector alive.
   RunSummary Run();
 
+  // A wall clock in milliseconds, for the livelock bound in wall time
+  // (runtime.max_same_time_wall_ms); the edge passes one. Without it only the
+  // step count bounds a livelock: the model itself never reads a wall clock.
+  void set_wall_clock(std::function<std::int64_t()> now_ms) { wall_clock_ms_ = std::move(now_ms); }
+
  private:
   enum class EventKind { kStep, kCheckpointDue };
   struct Event {
@@ -105,6 +120,9 @@ class RuntimeModel {
   void TraceFailure(const char* call, const ConnectorFailure& failure);
   void TraceProtocolError(const char* call, std::string detail);
   void ScheduleCheckpointTimer();
+  // Counts a step that asked to be called again at the time it began; true
+  // (and a livelock event traced) when a livelock bound is passed.
+  bool Livelocked();
   bool AllCommitted() const;
 
   const v1::Scenario& scenario_;
@@ -125,6 +143,8 @@ class RuntimeModel {
   std::uint64_t checkpoint_timer_generation_ = 0;
   std::uint64_t checkpoints_ = 0;
   std::uint64_t same_time_steps_ = 0;
+  std::int64_t same_time_since_wall_ms_ = 0;  // wall time when the stretch began
+  std::function<std::int64_t()> wall_clock_ms_;
   std::uint64_t crashes_ = 0;
   std::uint64_t crashes_since_step_ = 0;  // guards against a crash loop
   bool crash_loop_ = false;

@@ -1,6 +1,7 @@
 #include "harness/scenario/scenario_file.h"
 
 #include "absl/strings/str_cat.h"
+#include "harness/runtime/runtime_model.h"
 #include "harness/scenario/fault_validation.h"
 #include "harness/scenario/profile_file.h"
 #include "harness/scenario/text_file.h"
@@ -90,6 +91,9 @@ void Validate(TextFile& f, const v1::Scenario& s) {
   CheckMillis(f, r.drain_bound_ms(), "runtime", "drain_bound_ms", false);
   CheckMillis(f, r.call_timeout_wall_ms(), "runtime", "call_timeout_wall_ms", false);
   CheckMillis(f, r.start_timeout_wall_ms(), "runtime", "start_timeout_wall_ms", false);
+  CheckMillis(f, r.max_same_time_wall_ms(), "runtime", "max_same_time_wall_ms", false);
+  f.Require(r.max_same_time_steps() <= 100000000, {"runtime", "max_same_time_steps"},
+            absl::StrCat("runtime.max_same_time_steps is ", r.max_same_time_steps(), "; expected 1 ..100000000"));
 }
 
 void FillDefaults(v1::Scenario& s) {
@@ -110,6 +114,8 @@ void FillDefaults(v1::Scenario& s) {
   if (r->drain_bound_ms() == 0) r->set_drain_bound_ms(600000);
   if (r->call_timeout_wall_ms() == 0) r->set_call_timeout_wall_ms(10000);
   if (r->start_timeout_wall_ms() == 0) r->set_start_timeout_wall_ms(10000);
+  if (r->max_same_time_steps() == 0) r->set_max_same_time_steps(kDefaultMaxSameTimeSteps);
+  if (r->max_same_time_wall_ms() == 0) r->set_max_same_time_wall_ms(kDefaultMaxSameTimeWallMs);
   auto* w = s.mutable_workload();
   if (w->payload_bytes() == 0) w->set_payload_bytes(32);
 }

@@ -77,6 +77,12 @@ std::string DescribeEvent(const v1::TraceEvent& e) {
     case TraceEvent::kProtocolError:
       return absl::StrCat("protocol error in ", e.protocol_error().call(), ": ",
                           e.protocol_error().detail());
+    case TraceEvent::kLivelock:
+      return absl::StrCat("stopped the connector: ", e.livelock().steps(),
+                          " steps in a row at the same virtual time",
+                          e.livelock().by_wall_time() ? absl::StrCat(" for ", e.livelock().wall_ms(), " ms of wall time")
+                                                      : std::string(),
+                          " (livelock)");
     case TraceEvent::kConnectorError:
       return absl::StrCat("connector reported an error in ", e.connector_error().call(), ": ",
                           e.connector_error().detail());

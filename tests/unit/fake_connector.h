@@ -18,6 +18,8 @@ class FakeConnector : public ConnectorPort {
  public:
   bool ack_on_pull = false;
   bool fail_restore = false;
+  // Every step asks to be called again at once and does nothing (a livelock).
+  bool livelock = false;
   // Nonzero: the process "dies on its own" (kExited) in the Advance of this step.
   std::uint64_t exit_on_step = 0;
   std::vector<std::string> calls;  // "Start", "Open", "Advance", …
@@ -43,6 +45,10 @@ class FakeConnector : public ConnectorPort {
     if (exit_on_step != 0 && rq.step() == exit_on_step) {
       return ConnectorFailure{ConnectorFailure::Kind::kExited, "died during Advance",
                               "signal 11 (SIGSEGV)", ""};
+    }
+    if (livelock) {
+      rs->set_resume_at_ns(rq.now_ns());
+      return {};
     }
     v1::PullRequest pull;
     pull.set_max_messages(10);

@@ -1,5 +1,7 @@
 #include "harness/runtime/runtime_model.h"
 
+#include <algorithm>
+#include <functional>
 #include <map>
 
 #include <gtest/gtest.h>
@@ -25,8 +27,10 @@ struct Harness {
   }
   RunSummary Run() {
     RuntimeModel runtime(scenario, broker, session, port, log, faults);
+    if (wall_clock) runtime.set_wall_clock(wall_clock);
     return runtime.Run();
   }
+  std::function<std::int64_t()> wall_clock;
   v1::Scenario scenario;
   TraceLog log;
   TraceRecorder rec;
@@ -119,6 +123,77 @@ TEST(RuntimeModel, CorrectConnectorPassesTheOracle) {
     EXPECT_EQ(v.results[i].violations, 0u) << InvariantName(static_cast<Invariant>(i));
   }
   EXPECT_TRUE(v.passed());
+}
+
+}  // namespace
+}  // namespace weir
+
+namespace weir {
+namespace {
+
+std::size_t Count(const std::vector<std::string>& calls, const std::string& name) {
+  return static_cast<std::size_t>(std::count(calls.begin(), calls.end(), name));
+}
+
+// A connector that asks to be called again at once and never moves virtual
+// time is stopped after the default 1,000 such steps (not 100,000), and the
+// verdict says livelock.
+TEST(RuntimeModel, ALivelockIsStoppedAfterTheDefaultThousandSteps) {
+  v1::Scenario s = SmallScenario(5);
+  s.mutable_runtime()->clear_max_same_time_steps();
+  Harness h(s);
+  Oracle oracle(h.scenario.profile());
+  h.log.AddObserver(&oracle);
+  h.port.livelock = true;
+  h.Run();
+  EXPECT_EQ(Count(h.port.calls, "Advance"), kDefaultMaxSameTimeSteps + 1);
+  const auto events = h.rec.Of(v1::TraceEvent::kLivelock);
+  ASSERT_EQ(events.size(), 1u);
+  EXPECT_EQ(events[0].livelock().steps(), kDefaultMaxSameTimeSteps + 1);
+  EXPECT_FALSE(events[0].livelock().by_wall_time());
+  const Verdict v = oracle.Finish();
+  ASSERT_EQ(v.at(Invariant::kLivelock).violations, 1u);
+  EXPECT_NE(v.at(Invariant::kLivelock).first[0].sentence.find("runtime.max_same_time_steps is 1000"),
+            std::string::npos)
+      << v.at(Invariant::kLivelock).first[0].sentence;
+  EXPECT_EQ(v.at(Invariant::kProtocolError).violations, 0u);
+}
+
+TEST(RuntimeModel, TheScenarioSetsTheLivelockStepBound) {
+  v1::Scenario s = SmallScenario(5);
+  s.mutable_runtime()->set_max_same_time_steps(50);
+  Harness h(s);
+  h.port.livelock = true;
+  h.Run();
+  EXPECT_EQ(Count(h.port.calls, "Advance"), 51u);
+}
+
+// The wall-time bound: a fake clock that moves 2 s per step passes 10 s
+// after six steps at one virtual time.
+TEST(RuntimeModel, ALivelockIsStoppedAfterTheWallTimeBound) {
+  v1::Scenario s = SmallScenario(5);
+  s.mutable_runtime()->set_max_same_time_steps(1000000);
+  s.mutable_runtime()->set_max_same_time_wall_ms(10000);
+  Harness h(s);
+  std::int64_t wall = 0;
+  h.wall_clock = [&wall] { return wall += 2000; };
+  h.port.livelock = true;
+  h.Run();
+  const auto events = h.rec.Of(v1::TraceEvent::kLivelock);
+  ASSERT_EQ(events.size(), 1u);
+  EXPECT_TRUE(events[0].livelock().by_wall_time());
+  EXPECT_GT(events[0].livelock().wall_ms(), 10000);
+  EXPECT_LT(Count(h.port.calls, "Advance"), 10u);
+}
+
+// Draining a backlog at one virtual time is not a livelock below the bound.
+TEST(RuntimeModel, ACorrectConnectorDrainingABacklogIsNoLivelock) {
+  v1::Scenario s = SmallScenario(300);
+  s.mutable_workload()->set_publish_interval_ms(1);
+  s.mutable_broker()->set_max_pull(1);
+  Harness h(s);
+  h.Run();
+  EXPECT_TRUE(h.rec.Of(v1::TraceEvent::kLivelock).empty());
 }
 
 }  // namespace
