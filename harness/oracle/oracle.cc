@@ -167,6 +167,7 @@ void Oracle::OnEvent(const TraceEvent& e) {
       log_.OnOpened(e);
       DiscardUncommitted();
       opened_ref_ = MakeRef(e);
+      finished_ref_ = EventRef{};
       methods_.clear();
       ahead_ = false;
       watermark_.reset();
@@ -363,7 +364,11 @@ bool Oracle::TimeInRange(const TraceEvent& e, const char* what, std::int64_t val
 
 void Oracle::OnStepped(const TraceEvent& e) {
   const auto& x = e.stepped();
-  if (!x.finished()) TimeInRange(e, "resume time", x.resume_at_ns());
+  if (x.finished()) {
+    if (!finished_ref_.valid()) finished_ref_ = MakeRef(e);
+  } else {
+    TimeInRange(e, "resume time", x.resume_at_ns());
+  }
   if (x.has_watermark_ns() && TimeInRange(e, "watermark", x.watermark_ns())) {
     const bool ahead = x.watermark_ns() > SaturatingAdd(e.t_ns(), max_lead_);
     if (ahead && !ahead_) {
@@ -475,11 +480,16 @@ void Oracle::OnRunEnded(const TraceEvent& e) {
   std::sort(lost.begin(), lost.end());
   for (std::uint64_t id : lost) {
     const MessageState& m = messages_.at(id);
+    // A connector that said it was finished ended the work: cite that step.
     Report(Invariant::kLostMessage,
            absl::StrCat("Message ", id, " was published but has no record in the committed output",
                         m.acked ? " although the broker received its ack" : "",
-                        " when the run ended (", e.run_ended().reason(), ")."),
-           {m.published, m.last_delivered, m.last_emitted}, &e);
+                        " when the run ended (", e.run_ended().reason(), ")",
+                        finished_ref_.valid()
+                            ? absl::StrCat("; step ", finished_ref_.f[0], " had answered that the connector was finished")
+                            : std::string(),
+                        "."),
+           {m.published, m.last_delivered, m.last_emitted, finished_ref_}, &e);
   }
 }
 

@@ -9,7 +9,8 @@
 //   ack-before-commit: an ack of any receipt of message m is fine once some
 //     record of m is in a committed epoch; before that it is a violation.
 //   lost-message: at the end of the run a published message has no record in
-//     the committed output.
+//     the committed output (citing the step that answered "finished", if the
+//     live incarnation said so).
 //   duplicate-output (exactly-once only): a message has more than one record in
 //     the committed output. Under at-least-once it is counted as a figure.
 //   watermark-regression: a reported watermark is lower than the one reported
@@ -165,6 +166,7 @@ class Oracle : public TraceObserver {
   std::optional<std::int64_t> watermark_;
   EventRef watermark_ref_;
   EventRef opened_ref_;
+  EventRef finished_ref_;  // the live incarnation's step that answered "finished"
   // The last watermark reported (literally, even one that regressed): late-record.
   std::optional<std::int64_t> reported_watermark_;
   EventRef reported_ref_;

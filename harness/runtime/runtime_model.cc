@@ -55,9 +55,11 @@ RuntimeModel::RuntimeModel(const v1::Scenario& scenario, BrokerModel& broker,
 template <typename Request, typename Response, typename Method>
 ConnectorFailure RuntimeModel::Call(Method method, Request& request, Response* response) {
   request.set_now_ns(now_);
+  broker_.AdvanceTo(now_);
   session_.BeginCall(now_);
   ConnectorFailure failure = (port_.*method)(request, response, gate_);
   now_ = std::max(now_, session_.EndCall());
+  broker_.AdvanceTo(now_);  // a call that only failed or waited moved the clock, not the broker
   return failure;
 }
 
@@ -485,6 +487,9 @@ RunSummary RuntimeModel::Run() {
     }
     const auto [t, event] = queue_.Pop();
     now_ = std::max(now_, t);
+    // Publishes and lease expiries up to now reach the trace before anything
+    // the runtime does at now: trace order is time order.
+    broker_.AdvanceTo(now_);
     switch (event.kind) {
       case EventKind::kStep:
         if (event.generation != incarnation_ || finished_) continue;

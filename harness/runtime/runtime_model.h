@@ -8,7 +8,9 @@
 // published message is committed or the drain bound passes.
 //
 // Time is discrete-event: between calls the virtual clock jumps to the next
-// scheduled event (a step's resume time, a checkpoint). Each connector call
+// scheduled event (a step's resume time, a checkpoint). Before the runtime
+// acts at a time it advances the broker to it, so every publish and lease
+// expiry due is traced first: the trace's times never decrease. Each connector call
 // runs inside a BrokerSession window so broker calls advance the call's clock.
 //
 // Invariants:

@@ -4,10 +4,12 @@
 #include "harness/inprocess/in_process_port.h"
 
 #include <cstdlib>
+#include <filesystem>
 
 #include <gtest/gtest.h>
 
 #include "fixtures/connectors/reference_source.h"
+#include "absl/strings/str_cat.h"
 #include "harness/scenario/scenario_file.h"
 #include "tests/unit/test_support.h"
 
@@ -62,6 +64,36 @@ TEST(InProcess, SameTraceDigestAsOverGrpc) {
     ASSERT_TRUE(over_grpc.ok()) << over_grpc.status();
     EXPECT_EQ(in_process->digest, over_grpc->digest) << scenario;
     EXPECT_EQ(in_process->events, over_grpc->events) << scenario;
+  }
+}
+
+// Trace order is time order: every publish and lease expiry is traced before
+// whatever the runtime does later in virtual time, over every bundled
+// scenario (crashes, commit failures, latency, restarts, idle gaps).
+class TimeOrder : public TraceObserver {
+ public:
+  void OnEvent(const v1::TraceEvent& e) override {
+    if (e.t_ns() < last_t && first_bad.empty()) {
+      first_bad = absl::StrCat("event #", e.seq(), " at ", e.t_ns(), " ns after event #", e.seq() - 1, " at ",
+                               last_t, " ns: ", e.ShortDebugString());
+    }
+    last_t = std::max(last_t, e.t_ns());
+  }
+  std::int64_t last_t = 0;
+  std::string first_bad;
+};
+
+TEST(InProcess, TraceOrderIsTimeOrderInEveryBundledScenario) {
+  for (const auto& entry : std::filesystem::directory_iterator(SourceDir() + "/fixtures/scenarios")) {
+    if (entry.path().extension() != ".scenario") continue;
+    for (std::uint64_t seed : {1, 2}) {
+      RunSpec spec = Spec(entry.path().filename().string(), seed);
+      TimeOrder order;
+      spec.observers = {&order};
+      auto out = RunInProcess(spec, Reference());
+      ASSERT_TRUE(out.ok()) << out.status();
+      EXPECT_EQ(order.first_bad, "") << entry.path().filename() << " seed " << seed;
+    }
   }
 }
 

@@ -1,5 +1,7 @@
 #include "harness/oracle/oracle.h"
 
+#include <algorithm>
+
 #include <gtest/gtest.h>
 
 namespace weir {
@@ -115,6 +117,14 @@ class TraceBuilder {
     e.mutable_broker_call_failed()->set_method(method);
     e.mutable_broker_call_failed()->set_code(code);
     e.mutable_broker_call_failed()->set_retry_after_ns(retry_after);
+    return Send(e);
+  }
+  // A step that answers "finished".
+  std::uint64_t Finished() {
+    auto& e = Next();
+    e.mutable_stepped()->set_step(++step_);
+    e.mutable_stepped()->set_finished(true);
+    e.mutable_stepped()->set_resume_at_ns(kNever);
     return Send(e);
   }
   std::uint64_t ConnectorError(const std::string& call, int code, const std::string& detail) {
@@ -703,6 +713,35 @@ TEST(Oracle, AWatermarkThatFallsBackWithinTheBoundAndRunsAheadAgainIsTwoCauses) 
   t.At(Seconds(6));
   t.Stepped(Seconds(60), false);  // ahead again
   EXPECT_EQ(t.End().at(Invariant::kWatermarkAhead).violations, 2u);
+}
+
+}  // namespace
+}  // namespace weir
+
+namespace weir {
+namespace {
+
+// A connector that said it was finished while a message had no committed
+// record: the lost-message cites the step that ended the work.
+TEST(Oracle, ALostMessageCitesTheStepThatAnsweredFinished) {
+  TraceBuilder t;
+  const auto p = t.Published(1);
+  t.Published(2);
+  const auto d = t.Delivered(1, 10);
+  t.Emitted(1);
+  t.Checkpoint(1);
+  t.Committed(1);
+  t.Acked(1, 10);
+  const auto f = t.Finished();
+  const Verdict v = t.End();
+  const auto& r = v.at(Invariant::kLostMessage);
+  ASSERT_EQ(r.violations, 1u);
+  const auto seqs = Seqs(r.first[0]);
+  EXPECT_NE(std::find(seqs.begin(), seqs.end(), f), seqs.end());
+  EXPECT_NE(r.first[0].sentence.find("step 1 had answered that the connector was finished"), std::string::npos)
+      << r.first[0].sentence;
+  (void)p;
+  (void)d;
 }
 
 }  // namespace
