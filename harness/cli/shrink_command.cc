@@ -40,10 +40,8 @@ int InputError(const absl::Status& st) {
 
 RerunResult ToRerunResult(const RunOutput& out) {
   RerunResult r;
-  for (int i = 0; i < kInvariantCount; ++i) {
-    const auto inv = static_cast<Invariant>(i);
-    if (out.verdict.at(inv).checked && out.verdict.at(inv).violations > 0) r.failed.push_back(inv);
-  }
+  // Earliest cause first: the default target is what started the failure.
+  r.failed = FailedByCause(out.verdict);
   r.digest = out.digest;
   r.events = out.events;
   r.steps = out.summary.steps;
@@ -129,7 +127,7 @@ void AddShrinkCommand(CLI::App& app, ShrinkFlags& f) {
                 "Connector command 'CMD ARGS…' (with a trace: replaces the header's)");
   c->add_option("--transport", f.transport, "tcp (loopback, default) or unix");
   c->add_option("--invariant", f.invariant,
-                "The invariant that must keep failing (default: the first the run failed)");
+                "The invariant that must keep failing (default: the one whose violation started earliest)");
   c->add_option("--out", f.out, "Where to write the minimal plan (default minimal.plan)");
   c->add_option("--trace", f.trace, "Also write the trace of a run under the minimal plan");
   c->add_option("--max-reruns", f.max_reruns, "Stop after this many reruns (default 500; 0: no limit)");

@@ -52,13 +52,18 @@ Oracle::Oracle(const v1::Profile& profile, v1::SourceShape shape)
 }
 
 void Oracle::Report(Invariant invariant, const std::string& sentence,
-                    std::vector<EventRef> cited, const TraceEvent* current) {
+                    std::vector<EventRef> cited, const TraceEvent* current, const EventRef& cause) {
   InvariantResult& result = verdict_.at(invariant);
   ++result.violations;
   if (result.first.size() >= kKeptViolations) return;
   Violation v;
   v.invariant = invariant;
   v.sentence = sentence;
+  for (const EventRef& ref : cited) {
+    if (ref.valid()) v.detected_seq = std::max(v.detected_seq, ref.seq);
+  }
+  if (current != nullptr) v.detected_seq = current->seq();
+  v.cause_seq = cause.valid() ? cause.seq : v.detected_seq;
   std::sort(cited.begin(), cited.end(),
             [](const EventRef& a, const EventRef& b) { return a.seq < b.seq; });
   std::uint64_t last_seq = ~std::uint64_t{0};
@@ -66,7 +71,10 @@ void Oracle::Report(Invariant invariant, const std::string& sentence,
     if (!ref.valid() || ref.seq == last_seq) continue;  // one event may prove two things
     last_seq = ref.seq;
     if (current != nullptr && ref.seq == current->seq()) continue;
-    v.evidence.push_back(Evidence{ref.seq, ref.t, ref.incarnation, DescribeEvent(Rebuild(ref))});
+    // A connector's failure keeps text a reference cannot rebuild.
+    v.evidence.push_back(Evidence{ref.seq, ref.t, ref.incarnation,
+                                  failure_ref_.valid() && ref.seq == failure_ref_.seq ? failure_what_
+                                                                                      : DescribeEvent(Rebuild(ref))});
   }
   if (current != nullptr) {
     v.evidence.push_back(
@@ -168,6 +176,7 @@ void Oracle::OnEvent(const TraceEvent& e) {
       DiscardUncommitted();
       opened_ref_ = MakeRef(e);
       finished_ref_ = EventRef{};
+      regressed_ = false;
       methods_.clear();
       ahead_ = false;
       watermark_.reset();
@@ -216,6 +225,10 @@ void Oracle::OnEvent(const TraceEvent& e) {
                                       e.protocol_error().detail(), "."));
       break;
     case TraceEvent::kLivelock: {
+      if (!failure_ref_.valid()) {
+        failure_ref_ = MakeRef(e);
+        failure_what_ = DescribeEvent(e);
+      }
       const auto& x = e.livelock();
       Report(Invariant::kLivelock,
              x.by_wall_time()
@@ -264,6 +277,10 @@ std::string Oracle::ReportTail(const std::string& tail) {
 
 void Oracle::OnConnectorFailure(const TraceEvent& e, const std::string& call, Invariant invariant,
                                 const std::string& sentence) {
+  if (!failure_ref_.valid()) {
+    failure_ref_ = MakeRef(e);
+    failure_what_ = DescribeEvent(e);
+  }
   if (call == "Open" && opened_ref_.valid() && opened_ref_.f[0] != 0 &&
       opened_ref_.incarnation == e.incarnation()) {
     Report(Invariant::kBadCheckpoint,
@@ -277,6 +294,13 @@ void Oracle::OnConnectorFailure(const TraceEvent& e, const std::string& call, In
 
 void Oracle::OnWatermark(const TraceEvent& e, std::int64_t watermark) {
   if (watermark_.has_value() && watermark < *watermark_) {
+    // Still below the high mark but not below the last value reported: the
+    // same regression, seen again at a later step.
+    if (regressed_ && reported_watermark_.has_value() && watermark >= *reported_watermark_) {
+      Echo(Invariant::kWatermarkRegression);
+      return;
+    }
+    regressed_ = true;
     const bool from_checkpoint = watermark_ref_.kind == TraceEvent::kOpened;
     Report(Invariant::kWatermarkRegression,
            absl::StrCat("The watermark went back from ", FormatTime(*watermark_), " to ",
@@ -288,6 +312,7 @@ void Oracle::OnWatermark(const TraceEvent& e, std::int64_t watermark) {
            {watermark_ref_}, &e);
     return;
   }
+  regressed_ = false;
   watermark_ = watermark;
   watermark_ref_ = MakeRef(e);
 }
@@ -371,6 +396,7 @@ void Oracle::OnStepped(const TraceEvent& e) {
   }
   if (x.has_watermark_ns() && TimeInRange(e, "watermark", x.watermark_ns())) {
     const bool ahead = x.watermark_ns() > SaturatingAdd(e.t_ns(), max_lead_);
+    if (ahead && ahead_) Echo(Invariant::kWatermarkAhead);
     if (ahead && !ahead_) {
       Report(Invariant::kWatermarkAhead,
              absl::StrCat("Step ", x.step(), " reported the watermark ", FormatTime(x.watermark_ns()), ", ",
@@ -489,7 +515,8 @@ void Oracle::OnRunEnded(const TraceEvent& e) {
                             ? absl::StrCat("; step ", finished_ref_.f[0], " had answered that the connector was finished")
                             : std::string(),
                         "."),
-           {m.published, m.last_delivered, m.last_emitted, finished_ref_}, &e);
+           {m.published, m.last_delivered, m.last_emitted, finished_ref_, failure_ref_}, &e,
+           failure_ref_.valid() ? failure_ref_ : finished_ref_);
   }
 }
 
@@ -523,7 +550,10 @@ void Oracle::OnBrokerCall(const TraceEvent& e) {
 void Oracle::CheckCall(const TraceEvent& e, const std::string& method, MethodState& m) {
   const VirtualTime t = e.t_ns();
   if (m.throttled.valid()) {
-    if (t < m.throttled_until) {
+    if (t < m.throttled_until && m.throttle_reported) {
+      Echo(Invariant::kThrottleViolation);
+    } else if (t < m.throttled_until) {
+      m.throttle_reported = true;
       Report(Invariant::kThrottleViolation,
              absl::StrCat("The connector called ", method, " again at ", FormatTime(t), ", ",
                           FormatTime(m.throttled_until - t),
@@ -532,17 +562,23 @@ void Oracle::CheckCall(const TraceEvent& e, const std::string& method, MethodSta
              {m.throttled}, &e);
     } else {
       m.throttled = EventRef{};  // served its time
+      m.throttle_reported = false;
     }
   }
   if (m.transient.valid()) {
     const VirtualDuration gap = t - m.transient.t;
-    if (min_backoff_ > 0 && gap < min_backoff_) {
+    if (min_backoff_ > 0 && gap < min_backoff_ && m.storm_reported) {
+      Echo(Invariant::kRetryStorm);
+    } else if (min_backoff_ > 0 && gap < min_backoff_) {
+      m.storm_reported = true;
       Report(Invariant::kRetryStorm,
              absl::StrCat("The connector retried ", method, " ", FormatTime(gap),
                           " after a transient failure, sooner than the profile's minimum backoff "
                           "of ",
                           FormatTime(min_backoff_), "."),
              {m.transient}, &e);
+    } else {
+      m.storm_reported = false;  // this retry waited long enough
     }
     m.transient = EventRef{};  // only the next call after a failure is a retry
   }

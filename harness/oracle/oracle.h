@@ -108,8 +108,11 @@ class Oracle : public TraceObserver {
 
   // Counts a violation; keeps it in full while fewer than kKeptViolations are.
   // `current` (the event being checked) is described from the event itself.
+  // `cause`: the event that started it, when not `current` (see Violation).
   void Report(Invariant invariant, const std::string& sentence, std::vector<EventRef> cited,
-              const v1::TraceEvent* current);
+              const v1::TraceEvent* current, const EventRef& cause = EventRef{});
+  // Counts a repeat of a cause already reported (InvariantResult::echoes).
+  void Echo(Invariant invariant) { ++verdict_.at(invariant).echoes; }
   void DiscardUncommitted();
   void OnCommitted(const v1::TraceEvent& e);
   void OnAcked(const v1::TraceEvent& e);
@@ -167,6 +170,9 @@ class Oracle : public TraceObserver {
   EventRef watermark_ref_;
   EventRef opened_ref_;
   EventRef finished_ref_;  // the live incarnation's step that answered "finished"
+  EventRef failure_ref_;   // the connector's first failure (exit, timeout, error…)
+  std::string failure_what_;  // its description (a reference keeps no text)
+  bool regressed_ = false;  // the last watermark was below the high mark (reported)
   // The last watermark reported (literally, even one that regressed): late-record.
   std::optional<std::int64_t> reported_watermark_;
   EventRef reported_ref_;
@@ -181,6 +187,10 @@ class Oracle : public TraceObserver {
     EventRef throttled;  // the last throttled call, while its retry-after runs
     VirtualTime throttled_until = 0;
     EventRef transient;  // the last transient failure, until the next call
+    // A misuse already reported: later ones are echoes until a call of the
+    // method respects the retry-after (throttle) or the backoff (storm).
+    bool throttle_reported = false;
+    bool storm_reported = false;
   };
   const VirtualDuration min_backoff_;
   const VirtualDuration max_lead_;  // watermark-ahead

@@ -1,6 +1,43 @@
 #include "harness/oracle/verdict.h"
 
+#include <algorithm>
+#include <tuple>
+
 namespace weir {
+
+namespace {
+
+std::tuple<std::uint64_t, std::uint64_t, int> CauseKey(const Violation& v) {
+  return {v.cause_seq, v.detected_seq, static_cast<int>(v.invariant)};
+}
+
+}  // namespace
+
+std::vector<const Violation*> ViolationsByCause(const Verdict& verdict) {
+  std::vector<const Violation*> out;
+  for (const InvariantResult& r : verdict.results) {
+    if (!r.checked) continue;
+    for (const Violation& v : r.first) out.push_back(&v);
+  }
+  std::stable_sort(out.begin(), out.end(),
+                   [](const Violation* a, const Violation* b) { return CauseKey(*a) < CauseKey(*b); });
+  return out;
+}
+
+std::vector<Invariant> FailedByCause(const Verdict& verdict) {
+  std::vector<std::pair<std::tuple<std::uint64_t, std::uint64_t, int>, Invariant>> keyed;
+  for (int i = 0; i < kInvariantCount; ++i) {
+    const InvariantResult& r = verdict.results[i];
+    if (!r.checked || r.violations == 0) continue;
+    auto key = std::make_tuple(~std::uint64_t{0}, ~std::uint64_t{0}, i);
+    for (const Violation& v : r.first) key = std::min(key, CauseKey(v));
+    keyed.emplace_back(key, static_cast<Invariant>(i));
+  }
+  std::sort(keyed.begin(), keyed.end());
+  std::vector<Invariant> out;
+  for (const auto& [key, inv] : keyed) out.push_back(inv);
+  return out;
+}
 
 const char* InvariantName(Invariant invariant) {
   switch (invariant) {

@@ -58,12 +58,21 @@ struct Violation {
   Invariant invariant = Invariant::kCount;
   std::string sentence;  // what went wrong in this run, in one sentence
   std::vector<Evidence> evidence;
+  // The event that started it (a lost message: the connector's failure, or
+  // the step that answered "finished", else the end of the run) and the one
+  // at which the oracle saw it. Reports order violations by (cause, detected).
+  std::uint64_t cause_seq = 0;
+  std::uint64_t detected_seq = 0;
 };
 
 struct InvariantResult {
   bool checked = true;            // false when the profile does not claim it
   bool applies = true;            // false when the run's broker shape has no such thing
-  std::uint64_t violations = 0;   // how many times it failed
+  // How many distinct causes failed it: a repeat of a cause already counted
+  // (a regressed watermark still below its high mark at the next step, the
+  // next call during the same throttle misuse) is an echo, not a violation.
+  std::uint64_t violations = 0;
+  std::uint64_t echoes = 0;
   std::vector<Violation> first;   // the first few, in trace order
 };
 
@@ -91,5 +100,13 @@ struct Verdict {
   const InvariantResult& at(Invariant i) const { return results[static_cast<int>(i)]; }
   InvariantResult& at(Invariant i) { return results[static_cast<int>(i)]; }
 };
+
+// The invariants that failed (checked, violations > 0), the one whose kept
+// violation has the earliest cause first (ties: detected earlier, then table
+// order): a connector's failure comes before the messages it then lost.
+std::vector<Invariant> FailedByCause(const Verdict& verdict);
+
+// Every kept violation, ordered by (cause, detected, table order).
+std::vector<const Violation*> ViolationsByCause(const Verdict& verdict);
 
 }  // namespace weir

@@ -4,6 +4,7 @@
 #include <cstdint>
 #include <optional>
 #include <set>
+#include <tuple>
 #include <utility>
 #include <vector>
 
@@ -188,6 +189,11 @@ absl::StatusOr<ExplainOutput> ExplainTrace(const std::string& path, const Explai
     }
     tl.violations_not_drawn += r.violations - 1;
   }
+  // Causes before consequences: by the event that started each violation.
+  std::stable_sort(sections.begin(), sections.end(), [](const Section& a, const Section& b) {
+    return std::make_tuple(a.violation->cause_seq, a.violation->detected_seq, static_cast<int>(a.violation->invariant)) <
+           std::make_tuple(b.violation->cause_seq, b.violation->detected_seq, static_cast<int>(b.violation->invariant));
+  });
   if (sections.empty()) {
     if (verdict.passed() || options.only_invariant.empty()) {
       absl::StrAppend(&out.text, "\nno violations: every checked invariant held over ", verdict.events,
@@ -276,13 +282,19 @@ absl::StatusOr<ExplainOutput> ExplainTrace(const std::string& path, const Explai
     absl::StrAppend(&out.text, s.text);
     if (s.dropped > 0) absl::StrAppend(&out.text, "    … ", s.dropped, " more events not shown\n");
   }
-  std::uint64_t total = 0;
+  std::uint64_t total = 0, echoes = 0;
   for (const auto& r : verdict.results) {
     if (r.checked) total += r.violations;
+    if (r.checked) echoes += r.echoes;
   }
   if (total > sections.size()) {
     absl::StrAppend(&out.text, "\n(", total, " violations in all; the first ", Oracle::kKeptViolations,
                     " of each invariant are explained)\n");
+  }
+  if (echoes > 0) {
+    absl::StrAppend(&out.text, "(", echoes, echoes == 1 ? " repeat" : " repeats",
+                    " of a cause already counted, such as a regressed watermark seen again at a later "
+                    "step, are not counted as violations)\n");
   }
   return out;
 }

@@ -14,7 +14,8 @@ std::string FormatVerdictTable(const Verdict& verdict) {
     const InvariantResult& r = verdict.at(inv);
     if (!r.applies) continue;  // the other broker shape's rule
     const char* word = !r.checked ? "not claimed" : r.violations == 0 ? "held" : "FAILED";
-    out += absl::StrFormat("%-22s %-12s %d\n", InvariantName(inv), word, r.violations);
+    out += absl::StrFormat("%-22s %-12s %d%s\n", InvariantName(inv), word, r.violations,
+                           r.echoes > 0 ? absl::StrCat(" (+", r.echoes, " repeats)") : std::string());
   }
   // Figures that never fail a run on their own (see Verdict).
   absl::StrAppend(&out, "figures: ", verdict.duplicate_records, " duplicate records, ",
@@ -29,13 +30,15 @@ std::string FormatVerdictTable(const Verdict& verdict) {
 
 std::string FormatViolations(const Verdict& verdict) {
   std::string out;
-  for (int i = 0; i < kInvariantCount; ++i) {
-    const auto inv = static_cast<Invariant>(i);
+  // Causes first: the invariant whose violation started earliest leads.
+  for (const Invariant inv : FailedByCause(verdict)) {
     const InvariantResult& r = verdict.at(inv);
-    if (!r.checked || r.violations == 0) continue;
     absl::StrAppend(&out, "\nFAILED ", InvariantName(inv), " (", r.violations,
-                    r.violations == 1 ? " violation" : " violations", ")\n  rule: ",
-                    InvariantRule(inv), "\n");
+                    r.violations == 1 ? " violation" : " violations",
+                    r.echoes > 0 ? absl::StrCat("; ", r.echoes, r.echoes == 1 ? " repeat" : " repeats",
+                                                " of ", r.violations == 1 ? "it" : "them", " not counted")
+                                 : std::string(),
+                    ")\n  rule: ", InvariantRule(inv), "\n");
     for (const Violation& v : r.first) {
       absl::StrAppend(&out, "  - ", v.sentence, "\n");
       for (const Evidence& e : v.evidence) {

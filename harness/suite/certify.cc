@@ -115,21 +115,16 @@ absl::StatusOr<SuiteResult> Certify(const LoadedSuite& suite, const CertifyOptio
       } else {
         rec.set_digest(out->digest);
         rec.set_passed(out->verdict.passed());
-        // The first violation is the one detected earliest in the trace (a
-        // connector that died is named before the messages it then lost).
-        std::uint64_t first_seq = ~std::uint64_t{0};
         for (int i = 0; i < kInvariantCount; ++i) {
           const InvariantResult& r = out->verdict.results[i];
-          if (!r.checked || r.violations == 0) continue;
-          rec.add_failed_invariants(InvariantName(static_cast<Invariant>(i)));
-          if (r.first.empty()) continue;
-          const Violation& v = r.first.front();
-          const std::uint64_t seq = v.evidence.empty() ? ~std::uint64_t{0} - 1 : v.evidence.back().seq;
-          if (rec.first_violation().empty() || seq < first_seq) {
-            first_seq = seq;
-            rec.set_first_violation(
-                absl::StrCat(InvariantName(static_cast<Invariant>(i)), ": ", v.sentence));
-          }
+          if (r.checked && r.violations > 0) rec.add_failed_invariants(InvariantName(static_cast<Invariant>(i)));
+        }
+        // The first violation is the one whose cause came earliest (a
+        // connector that died is named before the messages it then lost).
+        const auto by_cause = ViolationsByCause(out->verdict);
+        if (!by_cause.empty()) {
+          rec.set_first_violation(absl::StrCat(InvariantName(by_cause.front()->invariant), ": ",
+                                               by_cause.front()->sentence));
         }
       }
       if (options.first_failures != nullptr) options.first_failures->Offer(rec);

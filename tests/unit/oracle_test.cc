@@ -1,4 +1,5 @@
 #include "harness/oracle/oracle.h"
+#include "harness/report/text_report.h"
 
 #include <algorithm>
 
@@ -742,6 +743,90 @@ TEST(Oracle, ALostMessageCitesTheStepThatAnsweredFinished) {
       << r.first[0].sentence;
   (void)p;
   (void)d;
+}
+
+}  // namespace
+}  // namespace weir
+
+namespace weir {
+namespace {
+
+// One regression, then nine more steps still below the high mark: one
+// violation (a distinct cause), nine echoes.
+TEST(Oracle, OneWatermarkRegressionIsOneViolationAndItsRepeatsAreEchoes) {
+  TraceBuilder t;
+  t.Stepped(Seconds(10), false);
+  const auto r1 = t.Stepped(Seconds(5), false);
+  for (int i = 0; i < 9; ++i) t.Stepped(Seconds(5) + Millis(i), false);
+  const Verdict v = t.End();
+  const auto& r = v.at(Invariant::kWatermarkRegression);
+  EXPECT_EQ(r.violations, 1u);
+  EXPECT_EQ(r.echoes, 9u);
+  ASSERT_EQ(r.first.size(), 1u);
+  EXPECT_EQ(r.first[0].detected_seq, r1);
+}
+
+TEST(Oracle, AWatermarkThatFallsFurtherIsASecondRegression) {
+  TraceBuilder t;
+  t.Stepped(Seconds(10), false);
+  t.Stepped(Seconds(5), false);
+  t.Stepped(Seconds(3), false);  // below the last value reported: a new drop
+  EXPECT_EQ(t.End().at(Invariant::kWatermarkRegression).violations, 2u);
+}
+
+// A connector that ignores one throttle keeps calling: the first premature
+// call is the violation; the ones until it respects a retry-after are echoes.
+TEST(Oracle, OneThrottleMisuseIsOneViolationUntilTheConnectorWaits) {
+  TraceBuilder t;
+  t.BrokerCallFailed("Pull", Millis(100), 8, Millis(500));
+  t.BrokerCall("Pull", Millis(110), 2);
+  t.BrokerCallFailed("Pull", Millis(110), 8, Millis(500));
+  for (int i = 0; i < 5; ++i) t.BrokerCall("Pull", Millis(120 + i), 3 + i);
+  EXPECT_EQ(t.End().at(Invariant::kThrottleViolation).violations, 1u);
+
+  TraceBuilder u;
+  u.BrokerCallFailed("Pull", Millis(100), 8, Millis(500));
+  u.BrokerCall("Pull", Millis(110), 2);          // misuse 1
+  u.BrokerCall("Pull", Millis(700), 3);          // waited: served its time
+  u.BrokerCallFailed("Pull", Millis(700), 8, Millis(500));
+  u.BrokerCall("Pull", Millis(710), 4);          // misuse 2: a new cause
+  const Verdict v = u.End();
+  EXPECT_EQ(v.at(Invariant::kThrottleViolation).violations, 2u);
+  EXPECT_EQ(v.at(Invariant::kThrottleViolation).echoes, 0u);
+}
+
+TEST(Oracle, ARetryStormIsOneViolationUntilARetryWaits) {
+  TraceBuilder t(v1::Profile::EXACTLY_ONCE, /*min_backoff_ms=*/100);
+  for (int i = 0; i < 6; ++i) {
+    t.BrokerCallFailed("Pull", Millis(10 * i), 14);
+    t.BrokerCall("Pull", Millis(10 * i + 1), i + 2);
+  }
+  const Verdict v = t.End();
+  EXPECT_EQ(v.at(Invariant::kRetryStorm).violations, 1u);
+  EXPECT_EQ(v.at(Invariant::kRetryStorm).echoes, 5u);
+}
+
+// Causes before consequences: a connector that exited, and the messages it
+// then lost. The exit started it; the lost messages were seen at the end.
+TEST(Oracle, ViolationsAreOrderedByTheEventThatStartedThem) {
+  TraceBuilder t;
+  t.Published(1);
+  t.Published(2);
+  t.Delivered(1, 10);
+  const auto exit = t.ConnectorError("Advance", 13, "Advance answered INTERNAL: boom");
+  const Verdict v = t.End();
+  const auto order = FailedByCause(v);
+  ASSERT_EQ(order.size(), 2u);
+  EXPECT_EQ(order[0], Invariant::kConnectorError);
+  EXPECT_EQ(order[1], Invariant::kLostMessage);
+  const auto& lost = v.at(Invariant::kLostMessage);
+  ASSERT_FALSE(lost.first.empty());
+  EXPECT_EQ(lost.first[0].cause_seq, exit);
+  const auto all = ViolationsByCause(v);
+  ASSERT_EQ(all.size(), 3u);
+  EXPECT_EQ(all[0]->invariant, Invariant::kConnectorError);
+  const std::string text = FormatViolations(v);
+  EXPECT_LT(text.find("FAILED connector-error"), text.find("FAILED lost-message")) << text;
 }
 
 }  // namespace
