@@ -75,6 +75,7 @@ bool IsStructural(const TraceEvent& e) {
     case TraceEvent::kCallTimedOut:
     case TraceEvent::kRunEnded:
     case TraceEvent::kBrokerCallFailed:
+    case TraceEvent::kFaultApplied:
       return true;
     default:
       return false;
@@ -92,6 +93,14 @@ struct Section {
   std::size_t lines = 0;
   std::size_t dropped = 0;
   std::uint64_t last_incarnation = UINT64_MAX;
+  // The last fault applied that is not shown yet: shown before the first
+  // shown event at its virtual time (a lease that a broker restart ended
+  // comes with the restart).
+  struct PendingFault {
+    v1::TraceEvent event;
+    bool drawn = false;
+  };
+  std::optional<PendingFault> pending_fault;
   // The HTML timeline (only for the first violation of each invariant).
   bool drawn = false;
   ViolationTimeline timeline;
@@ -220,6 +229,36 @@ absl::StatusOr<ExplainOutput> ExplainTrace(const std::string& path, const Explai
   absl::flat_hash_map<std::uint64_t, std::optional<std::int64_t>> watermark;  // per incarnation
   // Drawn records whose epoch is still open: (section, event index).
   std::vector<std::pair<std::size_t, std::size_t>> open_epoch;
+  // Draws `ev` when it is shown or in the draw window (and `may_draw`), and
+  // writes its text line when shown. Returns whether it was drawn.
+  auto emit = [&](Section& s, const TraceEvent& ev, bool proving, bool show, bool may_draw) {
+    bool drawn = false;
+    if (may_draw && s.drawn &&
+        (show || (s.InDrawWindow(ev.seq()) && (!ev.has_broker_call() || s.broker_calls)))) {
+      if (s.timeline.events.size() < kMaxDrawnEvents) {
+        if (ev.has_emitted()) {
+          open_epoch.emplace_back(static_cast<std::size_t>(&s - sections.data()), s.timeline.events.size());
+        }
+        s.timeline.events.push_back(TimelineEvent{ev, proving, 0});
+        drawn = true;
+      } else {
+        ++s.timeline.elided;
+      }
+    }
+    if (!show) return drawn;
+    if (s.lines >= kMaxLines) {
+      ++s.dropped;
+      return drawn;
+    }
+    if (ev.incarnation() != s.last_incarnation) {
+      absl::StrAppend(&s.text, "  incarnation ", ev.incarnation(), "\n");
+      s.last_incarnation = ev.incarnation();
+    }
+    absl::StrAppend(&s.text, absl::StrFormat("    %s #%-7d %12s  %s\n", proving ? "=>" : "  ", ev.seq(),
+                                            FormatTime(ev.t_ns()), DescribeEvent(ev)));
+    ++s.lines;
+    return drawn;
+  };
   if (absl::Status st = ForEachEvent(path, [&](const TraceEvent& e) {
         if (e.has_checkpoint()) {
           // The checkpoint closes the epoch of its incarnation; a record of
@@ -244,27 +283,17 @@ absl::StatusOr<ExplainOutput> ExplainTrace(const std::string& path, const Explai
           if (!show && s.InWindow(e.seq())) {
             show = IsStructural(e) || moved || (s.broker_calls && e.has_broker_call());
           }
-          if (s.drawn && (show || (s.InDrawWindow(e.seq()) && (!e.has_broker_call() || s.broker_calls)))) {
-            if (s.timeline.events.size() < kMaxDrawnEvents) {
-              if (e.has_emitted()) open_epoch.emplace_back(static_cast<std::size_t>(&s - sections.data()), s.timeline.events.size());
-              s.timeline.events.push_back(TimelineEvent{e, proving, 0});
-            } else {
-              ++s.timeline.elided;
-            }
-          }
-          if (!show) continue;
-          if (s.lines >= kMaxLines) {
-            ++s.dropped;
+          if (s.pending_fault.has_value() && s.pending_fault->event.t_ns() != e.t_ns()) s.pending_fault.reset();
+          if (!show && e.has_fault_applied()) {
+            // Not near a proving event, but maybe the cause of one at its time.
+            s.pending_fault = Section::PendingFault{e, emit(s, e, false, false, true)};
             continue;
           }
-          if (e.incarnation() != s.last_incarnation) {
-            absl::StrAppend(&s.text, "  incarnation ", e.incarnation(), "\n");
-            s.last_incarnation = e.incarnation();
+          if (show && s.pending_fault.has_value()) {
+            emit(s, s.pending_fault->event, false, true, !s.pending_fault->drawn);
+            s.pending_fault.reset();
           }
-          absl::StrAppend(&s.text,
-                          absl::StrFormat("    %s #%-7d %12s  %s\n", proving ? "=>" : "  ", e.seq(),
-                                          FormatTime(e.t_ns()), DescribeEvent(e)));
-          ++s.lines;
+          emit(s, e, proving, show, true);
         }
       });
       !st.ok()) {
@@ -272,7 +301,12 @@ absl::StatusOr<ExplainOutput> ExplainTrace(const std::string& path, const Explai
   }
 
   for (Section& s : sections) {
-    if (s.drawn) tl.violations.push_back(std::move(s.timeline));
+    if (!s.drawn) continue;
+    // A fault drawn when an event at its time was shown may come after events
+    // drawn for the window: the timeline is in trace order.
+    std::stable_sort(s.timeline.events.begin(), s.timeline.events.end(),
+                     [](const TimelineEvent& a, const TimelineEvent& b) { return a.event.seq() < b.event.seq(); });
+    tl.violations.push_back(std::move(s.timeline));
   }
   std::size_t n = 0;
   for (const Section& s : sections) {

@@ -9,11 +9,14 @@
 //     delivered, records, acks, nacks, leases),
 //   - within a window around each proving event: checkpoints, commits, commit
 //     failures, notices, crashes, opens, exits, throttles and broker errors,
-//     protocol errors, and steps that moved the watermark.
+//     protocol and connector errors, faults applied, and steps that moved the
+//     watermark;
+//   - every fault applied at the virtual time of an event shown (a broker
+//     restart with the lease expiries it caused), however far from the window.
 // The same pass also selects, for the first violation of each failed
 // invariant, the events an HTML timeline draws (html_timeline.h): the text's
-// events plus every other event in a wider window (deliveries, records, acks,
-// steps), at most kMaxDrawnEvents, and the whole run's commits and crashes
+// events (faults included) plus every other event in a wider window
+// (deliveries, records, acks, steps), at most kMaxDrawnEvents, and the whole run's commits and crashes
 // for the overview, at most kMaxOverviewMarks each. What is left out is
 // counted so the page can say so.
 // The trace is read three times as a stream; memory is bounded by the
