@@ -1,5 +1,7 @@
 #include "harness/cli/command_line.h"
 
+#include <filesystem>
+
 #include "absl/status/status.h"
 #include <sys/stat.h>
 #include <unistd.h>
@@ -71,6 +73,38 @@ std::optional<std::string> ResolveExecutable(const std::string& program) {
     start = end + 1;
   }
   return std::nullopt;
+}
+
+namespace {
+std::string& WeirProgramSlot() {
+  static std::string* program = new std::string("weir");
+  return *program;
+}
+}  // namespace
+
+const std::string& WeirProgram() { return WeirProgramSlot(); }
+void SetWeirProgram(std::string program) { WeirProgramSlot() = std::move(program); }
+
+std::string WeirProgramFor(const std::string& exe, const std::string& cwd,
+                           const std::optional<std::string>& weir_on_path) {
+  namespace fs = std::filesystem;
+  std::error_code ec;
+  if (weir_on_path.has_value() && fs::equivalent(*weir_on_path, exe, ec)) return "weir";
+  const fs::path rel = fs::path(exe).lexically_normal().lexically_relative(fs::path(cwd).lexically_normal());
+  if (!rel.empty() && *rel.begin() != ".." && rel.is_relative()) {
+    // A word without '/' would be looked up on PATH: "./weir".
+    const std::string text = rel.has_parent_path() ? rel.string() : "./" + rel.string();
+    return ShellQuote(text);
+  }
+  return ShellQuote(exe);
+}
+
+std::string DetectWeirProgram() {
+  std::error_code ec;
+  const std::filesystem::path exe = std::filesystem::read_symlink("/proc/self/exe", ec);
+  if (ec) return "weir";
+  const std::filesystem::path cwd = std::filesystem::current_path(ec);
+  return WeirProgramFor(exe.string(), ec ? std::string("/") : cwd.string(), ResolveExecutable("weir"));
 }
 
 std::string ShellQuote(std::string_view word) {

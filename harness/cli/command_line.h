@@ -26,6 +26,22 @@ std::string ShellQuote(std::string_view word);
 std::optional<std::string> ResolveExecutable(const std::string& program);
 std::string ShellJoin(const std::vector<std::string>& argv);
 
+// How the command lines weir prints (replay:, next:) name weir itself, so
+// that they work as printed: "weir" when a PATH search finds this very binary;
+// else its path relative to the working directory when the binary lies below
+// it (build/harness/weir, like the scenario paths in the same line); else its
+// absolute path. Shell-quoted. main() sets it from /proc/self/exe; until then
+// (weir used as a library) it is "weir".
+const std::string& WeirProgram();
+void SetWeirProgram(std::string program);
+// The rule above for a binary `exe` run from `cwd`; `weir_on_path` is what a
+// PATH search for "weir" finds, if anything.
+std::string WeirProgramFor(const std::string& exe, const std::string& cwd,
+                           const std::optional<std::string>& weir_on_path);
+// WeirProgramFor this process (/proc/self/exe, the working directory, PATH);
+// "weir" when /proc/self/exe cannot be read.
+std::string DetectWeirProgram();
+
 // Checks, before any work, that an output file named by `flag` can be
 // written: its directory exists and is writable, and it is not a directory.
 // Error: InvalidArgument("--json out/r.json: directory 'out' does not exist").

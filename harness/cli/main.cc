@@ -63,12 +63,13 @@ int UsageError(const std::string& message) {
 std::string NextStepsHint(const std::string& trace, const std::string& replay) {
   if (!trace.empty()) {
     const std::string t = ShellQuote(trace);
-    return absl::StrCat("next: weir replay ", t, "    (rerun, compare event by event)\n",
-                        "      weir explain ", t, "   (timeline around each violation)\n",
-                        "      weir shrink ", t, " --out minimal.plan   (smallest fault plan that still fails)\n");
+    const std::string& weir = WeirProgram();
+    return absl::StrCat("next: ", weir, " replay ", t, "    (rerun, compare event by event)\n",
+                        "      ", weir, " explain ", t, "   (timeline around each violation)\n",
+                        "      ", weir, " shrink ", t, " --out minimal.plan   (smallest fault plan that still fails)\n");
   }
   // "weir run …" → "weir shrink …": shrink takes the same flags.
-  return absl::StrCat("next: weir shrink", replay.substr(std::string("weir run").size()),
+  return absl::StrCat("next: ", WeirProgram(), " shrink", replay.substr(WeirProgram().size() + std::string(" run").size()),
                       " --out minimal.plan\n      (smallest fault plan that still fails; add --trace FILE "
                       "to weir run for replay and explain)\n");
 }
@@ -331,6 +332,7 @@ int ExplainCommand(const std::string& trace, const std::string& html) {
 
 int main(int argc, char** argv) {
   using namespace weir;
+  SetWeirProgram(DetectWeirProgram());  // printed command lines work as printed
   CLI::App app{"weir: a deterministic test harness for stream source connectors"};
   app.require_subcommand(1);
 

@@ -172,7 +172,7 @@ absl::StatusOr<ExplainOutput> ExplainTrace(const std::string& path, const Explai
   tl.scenario = absl::StrCat(header.scenario_path(), " (", header.scenario().name(), ")");
   tl.seed = header.seed();
   tl.connector = ShellJoin(argv);
-  tl.replay = options.replay.empty() ? absl::StrCat("weir replay ", ShellQuote(path)) : options.replay;
+  tl.replay = options.replay.empty() ? absl::StrCat(WeirProgram(), " replay ", ShellQuote(path)) : options.replay;
   tl.passed = verdict.passed();
   tl.overview.events = verdict.events;
 

@@ -15,7 +15,8 @@ namespace weir {
 std::string ReplayLine(const std::string& scenario_path, std::uint64_t seed, Transport transport,
                        const std::string& plan_path, const std::string& profile_path,
                        const std::vector<std::string>& argv) {
-  std::string line = absl::StrCat("weir run --scenario ", ShellQuote(scenario_path), " --seed ", seed);
+  std::string line =
+      absl::StrCat(WeirProgram(), " run --scenario ", ShellQuote(scenario_path), " --seed ", seed);
   if (transport == Transport::kUnix) absl::StrAppend(&line, " --transport unix");
   if (!plan_path.empty()) absl::StrAppend(&line, " --plan ", ShellQuote(plan_path));
   if (!profile_path.empty()) absl::StrAppend(&line, " --profile ", ShellQuote(profile_path));

@@ -88,7 +88,8 @@ struct SuiteResult {
 // the log (suite_reports.h). Error: the log could not be read.
 [[nodiscard]] absl::StatusOr<v1::SuiteReport> LoadReport(const SuiteResult& result);
 
-// "weir run --scenario … --seed … --connector '…'" for one pair.
+// "weir run --scenario … --seed … --connector '…'" for one pair, weir named
+// as WeirProgram() says (command_line.h), so the line works as printed.
 // plan_path and profile_path are left out when empty.
 std::string ReplayLine(const std::string& scenario_path, std::uint64_t seed, Transport transport,
                        const std::string& plan_path, const std::string& profile_path,

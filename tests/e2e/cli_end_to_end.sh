@@ -14,7 +14,7 @@ rc=$?
 check "reference exits 0 (got $rc)" test $rc -eq 0
 check "seed is the first line" test "$(head -1 "$WORK/ref.out")" = "weir run: seed 7"
 check "reference run says PASSED" grep -q '^PASSED' "$WORK/ref.out"
-check "reference run ends with a replay line" bash -c "tail -1 '$WORK/ref.out' | grep -q '^replay: weir run --scenario .* --seed 7 --connector '"
+check "reference run ends with a replay line" bash -c "tail -1 '$WORK/ref.out' | grep -q '^replay: [^ ]*weir run --scenario .* --seed 7 --connector '"
 [[ $rc -ne 0 ]] && cat "$WORK/ref.out"
 
 # 2. The ack-on-pull mutant fails with ack-before-commit and its proving events.
@@ -24,7 +24,19 @@ check "ack-on-pull mutant exits 1 (got $rc)" test $rc -eq 1
 check "mutant report names ack-before-commit" grep -q '^FAILED ack-before-commit' "$WORK/mut.out"
 check "mutant report cites the delivery" grep -q 'delivered message' "$WORK/mut.out"
 check "mutant report cites the ack" grep -q 'broker received an ack for message' "$WORK/mut.out"
-check "mutant report ends with a replay line" bash -c "tail -1 '$WORK/mut.out' | grep -q '^replay: weir run'"
+check "mutant report ends with a replay line" bash -c "tail -1 '$WORK/mut.out' | grep -q '^replay: [^ ]*weir run'"
+# The replay line works as printed, with weir on no PATH (as the quick start
+# leaves it): pasted into a shell in the same directory, the same failure.
+line=$(tail -1 "$WORK/mut.out" | sed 's/^replay: //')
+env PATH=/usr/bin:/bin bash -c "$line" >"$WORK/pasted.out" 2>&1
+rc=$?
+check "the replay line, pasted without weir on PATH, reruns the run (exit 1, got $rc)" test $rc -eq 1
+check "the pasted replay fails the same way" grep -q '^FAILED ack-before-commit' "$WORK/pasted.out"
+check "the pasted replay gives the same digest" test "$(grep '^digest' "$WORK/pasted.out")" = "$(grep '^digest' "$WORK/mut.out")"
+# From the directory above weir's, the line names it by its relative path.
+(cd "$(dirname "$WEIR")/.." && "$WEIR" run --scenario "$STEADY" --seed 7 --connector "$ACK_ON_PULL" >"$WORK/rel.out" 2>&1)
+check "run from above the binary: the replay line names $(basename "$(dirname "$WEIR")")/weir" \
+  grep -q "^replay: $(basename "$(dirname "$WEIR")")/weir run " "$WORK/rel.out"
 
 # 3. Same scenario and seed twice: identical trace digests; the footer digest is
 #    the SHA-256 of the event lines (every line but the header and the footer).

@@ -30,14 +30,14 @@ rc=0
 "$weir" run --scenario "$scenario" --seed 1 --connector "$mutant" --trace run.jsonl \
   --save-plan original.plan >run.out 2>&1 || rc=$?
 [[ $rc == 1 ]] || { cat run.out >&2; fail "mutant run: exit $rc, expected 1"; }
-grep -q "^next: weir replay run.jsonl" run.out || fail "failing run shows no 'weir replay' hint"
+grep -q "^next: [^ ]*weir replay run.jsonl" run.out || fail "failing run shows no 'weir replay' hint"
 grep -q "weir shrink run.jsonl --out" run.out || fail "failing run shows no 'weir shrink' hint"
-tail -n 1 run.out | grep -q '^replay: weir run --scenario' || fail "failing run does not end with its replay line"
+tail -n 1 run.out | grep -q '^replay: [^ ]*weir run --scenario' || fail "failing run does not end with its replay line"
 rc=0
 "$weir" run --scenario "$scenario" --seed 1 --connector "$mutant" >notrace.out 2>&1 || rc=$?
-grep -q "^next: weir shrink --scenario .* --seed 1 .*--out minimal.plan" notrace.out ||
+grep -q "^next: [^ ]*weir shrink --scenario .* --seed 1 .*--out minimal.plan" notrace.out ||
   fail "failing run without a trace shows no 'weir shrink --scenario' hint"
-tail -n 1 notrace.out | grep -q '^replay: weir run --scenario' || fail "run without trace does not end with replay"
+tail -n 1 notrace.out | grep -q '^replay: [^ ]*weir run --scenario' || fail "run without trace does not end with replay"
 before="$(grep -c '^  site: ' original.plan)"
 [[ "$before" -gt 0 ]] || fail "the original run applied no faults; pick a run with faults"
 
@@ -62,11 +62,11 @@ rc=0
 "$weir" run --scenario "$scenario" --seed 1 --plan min.plan --connector "$mutant" >min.out 2>&1 || rc=$?
 [[ $rc == 1 ]] || { cat min.out >&2; fail "run --plan min.plan: exit $rc, expected 1"; }
 grep -q "^FAILED $inv" min.out || { cat min.out >&2; fail "run --plan min.plan does not fail $inv"; }
-# … and so does the printed replay line, pasted into a shell.
-line="$(sed -n 's/^replay: weir //p' shrink.out)"
+# … and so does the printed replay line, pasted into a shell as it is.
+line="$(sed -n 's/^replay: //p' shrink.out)"
 [[ "$line" == *"--plan min.plan"* ]] || fail "shrink's replay line does not name --plan min.plan"
 rc=0
-eval "\"\$weir\" $line" >pasted.out 2>&1 || rc=$?
+eval "$line" >pasted.out 2>&1 || rc=$?
 [[ $rc == 1 ]] && grep -q "^FAILED $inv" pasted.out || fail "the pasted replay line does not fail $inv"
 "$weir" replay min.jsonl >/dev/null || fail "the minimal run's trace does not replay identically"
 
