@@ -112,10 +112,13 @@ void Oracle::DiscardUncommitted() {
 void Oracle::OnEvent(const TraceEvent& e) {
   ++verdict_.events;
   switch (e.kind_case()) {
-    case TraceEvent::kPublished:
-      messages_[e.published().message_id()].published = MakeRef(e);
+    case TraceEvent::kPublished: {
+      MessageState& m = messages_[e.published().message_id()];
+      m.published = MakeRef(e);
+      m.event_time = e.published().event_time_ns();
       EndIdle();
       break;
+    }
     case TraceEvent::kDelivered:
       OnDelivered(e);
       break;
@@ -195,6 +198,7 @@ void Oracle::OnEvent(const TraceEvent& e) {
       break;
     case TraceEvent::kCrashed:
       log_.OnCrashed(e);
+      OnCrashed(e);
       DiscardUncommitted();
       EndIdle();
       break;
@@ -317,12 +321,29 @@ void Oracle::OnWatermark(const TraceEvent& e, std::int64_t watermark) {
   watermark_ref_ = MakeRef(e);
 }
 
+void Oracle::OnCrashed(const TraceEvent& e) {
+  // late-record's excuse: a message this incarnation held without a record
+  // while its watermark moved past it cannot later be excused.
+  if (!watermark_.has_value()) return;
+  for (auto& [id, m] : messages_) {
+    if (m.delivered_in != e.incarnation() || m.emitted_in == e.incarnation() || m.committed_records > 0) continue;
+    if (*watermark_ - std::max(m.event_time, m.delivered_watermark) > allowed_lateness_) m.tainted = true;
+  }
+}
+
 void Oracle::OnDelivered(const TraceEvent& e) {
   EndIdle();  // something was deliverable
   auto it = messages_.find(e.delivered().message_id());
   if (it == messages_.end()) return;  // retired (a duplicate needs no record) or unknown
   MessageState& m = it->second;
   m.last_delivered = MakeRef(e);
+  const std::int64_t before_step = reported_watermark_.value_or(kNoWatermark);
+  if (m.delivered_in != 0 && m.delivered_in != e.incarnation() && m.excused_in != e.incarnation()) {
+    // Back from a dead incarnation: this one's watermark moved on without it.
+    m.excused_in = e.incarnation();
+    m.excuse_floor = before_step;
+  }
+  m.delivered_watermark = before_step;
   const bool was = Awaiting(m, e.incarnation());
   m.delivered_in = e.incarnation();
   if (!was && Awaiting(m, e.incarnation())) ++awaiting_;
@@ -338,7 +359,15 @@ void Oracle::OnEmitted(const TraceEvent& e) {
   if (reported_watermark_.has_value() && e.emitted().event_time_ns() < *reported_watermark_) {
     ++verdict_.late_records;
     const VirtualDuration late = *reported_watermark_ - e.emitted().event_time_ns();
-    if (lateness_bounded_ && late > allowed_lateness_) {
+    // Forced by a crash: only what this incarnation added after the message
+    // came back counts (see the rules in oracle.h).
+    VirtualDuration avoidable = late;
+    if (auto m = messages_.find(id);
+        m != messages_.end() && m->second.excused_in == e.incarnation() && !m->second.tainted) {
+      avoidable = *reported_watermark_ - std::max(e.emitted().event_time_ns(), m->second.excuse_floor);
+      if (late > allowed_lateness_ && avoidable <= allowed_lateness_) ++verdict_.forced_late_records;
+    }
+    if (lateness_bounded_ && avoidable > allowed_lateness_) {
       Report(Invariant::kLateRecord,
              absl::StrCat("Step ", e.emitted().step(), " emitted a record of ",
                           e.emitted().has_offset()
@@ -348,7 +377,13 @@ void Oracle::OnEmitted(const TraceEvent& e) {
                           " with event time ", FormatTime(e.emitted().event_time_ns()), ", ",
                           FormatTime(late), " below the watermark ",
                           FormatTime(*reported_watermark_), " reported before it (allowed: ",
-                          FormatTime(allowed_lateness_), ")."),
+                          FormatTime(allowed_lateness_), ")",
+                          avoidable < late
+                              ? absl::StrCat("; the message came back from a dead incarnation, and ",
+                                             FormatTime(avoidable),
+                                             " of that lateness the connector added after it came back")
+                              : std::string(),
+                          "."),
              {reported_ref_}, &e);
     }
   }

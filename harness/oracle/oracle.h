@@ -37,7 +37,20 @@
 //     watermark the connector reported before the step that emitted it (a
 //     restored incarnation starts from the watermark committed with its
 //     checkpoint). Always counted (Verdict::late_records); a violation only
-//     under BOUNDED_LATENESS, when it is more than allowed_lateness below.
+//     under BOUNDED_LATENESS, when it is more than allowed_lateness below —
+//     except lateness forced by a crash. A message delivered to incarnation
+//     j that is delivered again to a later incarnation i came back only when
+//     j's lease ran out (or the broker restarted), while i's watermark moved
+//     on without it; i could not have known it. For records of such a
+//     message emitted by i, only the lateness i added after the message came
+//     back counts: watermark before the emitting step - max(event time, F),
+//     F = the watermark reported before the step in which it was delivered
+//     to i. No excuse when j itself moved its watermark more than
+//     allowed_lateness past the message while it held it undelivered as a
+//     record (judged when j crashed: its highest watermark against max(event
+//     time, the watermark before the step that delivered it to j)). Records
+//     whose failure the excuse removed are counted in
+//     Verdict::forced_late_records.
 //   watermark-ahead (every profile): a step reports a watermark later than
 //     the step's virtual time plus profile.max_watermark_lead_ms. One
 //     violation per stretch of steps whose watermark is ahead, within an
@@ -100,7 +113,15 @@ class Oracle : public TraceObserver {
     // Incarnations that last had it delivered / emitted a record of it (0: none).
     std::uint64_t delivered_in = 0;
     std::uint64_t emitted_in = 0;
+    // late-record's excuse for lateness forced by a crash (see the rules).
+    std::int64_t event_time = 0;
+    std::int64_t delivered_watermark = kNoWatermark;  // reported before its last delivery's step
+    std::uint64_t excused_in = 0;                     // the incarnation it came back to
+    std::int64_t excuse_floor = kNoWatermark;         // reported before the step it came back in
+    bool tainted = false;  // an incarnation moved its watermark past it while holding it
   };
+  static constexpr std::int64_t kNoWatermark = INT64_MIN;
+  void OnCrashed(const v1::TraceEvent& e);
   struct PendingRecord {
     std::uint64_t message_id;
     EventRef emitted;

@@ -89,7 +89,10 @@ const char* InvariantRule(Invariant invariant) {
     case Invariant::kLateRecord:
       return "Under a bounded-lateness profile, a record's event time must not be further below "
              "the last watermark reported before the step that emitted it than the profile's "
-             "allowed lateness (late records are counted under every profile).";
+             "allowed lateness (late records are counted under every profile); for a message that "
+             "came back from an incarnation that died, only the lateness added after it came back "
+             "counts (forced late records are counted, not failed), unless the dead incarnation "
+             "itself moved its watermark past the message while holding it.";
     case Invariant::kBadCheckpoint:
       return "Opening the connector from a committed checkpoint must succeed.";
     case Invariant::kStepTimeout:

@@ -83,6 +83,10 @@ struct Verdict {
   // Records whose event time is below the last watermark reported before their
   // step (counted under every profile; failing only under BOUNDED_LATENESS).
   std::uint64_t late_records = 0;
+  // Late records beyond the allowed lateness that late-record excused as
+  // forced by a crash: their message came back to this incarnation from a
+  // dead one after this incarnation's watermark had moved on (oracle.h).
+  std::uint64_t forced_late_records = 0;
   std::uint64_t events = 0;
   // Log shape: offsets retention deleted before any read or commit (never a
   // failure), offsets the connector reported as gaps, and rewinds at a

@@ -19,7 +19,8 @@ std::string FormatVerdictTable(const Verdict& verdict) {
   }
   // Figures that never fail a run on their own (see Verdict).
   absl::StrAppend(&out, "figures: ", verdict.duplicate_records, " duplicate records, ",
-                  verdict.late_records, " late records");
+                  verdict.late_records, " late records (", verdict.forced_late_records,
+                  " forced by crashes, not failed)");
   if (verdict.at(Invariant::kOffsetGap).applies) {
     absl::StrAppend(&out, ", ", verdict.deleted_unread, " offsets deleted unread, ",
                     verdict.gap_offsets, " offsets reported as gaps, ", verdict.rewinds, " rewinds");

@@ -46,9 +46,10 @@ class TraceBuilder {
     return Send(e);
   }
 
-  std::uint64_t Published(std::uint64_t id) {
+  std::uint64_t Published(std::uint64_t id, std::int64_t event_time = 0) {
     auto& e = Next();
     e.mutable_published()->set_message_id(id);
+    e.mutable_published()->set_event_time_ns(event_time);
     return Send(e);
   }
   std::uint64_t Delivered(std::uint64_t id, std::uint64_t receipt) {
@@ -827,6 +828,97 @@ TEST(Oracle, ViolationsAreOrderedByTheEventThatStartedThem) {
   EXPECT_EQ(all[0]->invariant, Invariant::kConnectorError);
   const std::string text = FormatViolations(v);
   EXPECT_LT(text.find("FAILED connector-error"), text.find("FAILED lost-message")) << text;
+}
+
+}  // namespace
+}  // namespace weir
+
+namespace weir {
+namespace {
+
+v1::Profile StrictProfile() {
+  v1::Profile p;
+  p.set_guarantee(v1::Profile::EXACTLY_ONCE);
+  p.set_watermark_policy(v1::Profile::BOUNDED_LATENESS);
+  p.set_allowed_lateness_ms(1000);
+  return p;
+}
+
+// Message 1 (event time 1 s) is delivered to incarnation 1, which dies; the
+// dead incarnation's lease holds it while incarnation 2's watermark moves to
+// 10 s on other data; when it comes back, its record is 9 s late. No
+// connector could avoid that: counted as forced, not failed.
+TEST(Oracle, LatenessForcedByACrashIsCountedNotFailed) {
+  TraceBuilder t(StrictProfile());
+  t.Published(1, Seconds(1));
+  t.Published(2, Seconds(9));
+  t.Delivered(1, 10);
+  t.Crashed();
+  t.Opened(0, std::nullopt);
+  t.Delivered(2, 11);
+  t.Record(2, Seconds(9), 1);
+  t.Stepped(Seconds(10), false);
+  t.Delivered(1, 12);  // the dead incarnation's lease ran out
+  t.Record(1, Seconds(1), 2);
+  const Verdict v = t.End();
+  EXPECT_EQ(v.at(Invariant::kLateRecord).violations, 0u);
+  EXPECT_EQ(v.late_records, 1u);
+  EXPECT_EQ(v.forced_late_records, 1u);
+}
+
+// The same, but after the message came back the connector moved its
+// watermark further (to 20 s) before emitting it: that part it could have
+// avoided.
+TEST(Oracle, LatenessAddedAfterTheMessageCameBackFails) {
+  TraceBuilder t(StrictProfile());
+  t.Published(1, Seconds(1));
+  t.Published(2, Seconds(9));
+  t.Delivered(1, 10);
+  t.Crashed();
+  t.Opened(0, std::nullopt);
+  t.Delivered(2, 11);
+  t.Record(2, Seconds(9), 1);
+  t.Stepped(Seconds(10), false);
+  t.Delivered(1, 12);
+  t.Stepped(Seconds(20), false);  // held message 1, moved past it
+  t.Record(1, Seconds(1), 3);
+  const Verdict v = t.End();
+  const auto& r = v.at(Invariant::kLateRecord);
+  ASSERT_EQ(r.violations, 1u);
+  EXPECT_NE(r.first[0].sentence.find("came back from a dead incarnation"), std::string::npos) << r.first[0].sentence;
+  EXPECT_EQ(v.forced_late_records, 0u);
+}
+
+// Without a crash there is no excuse: the message's first delivery.
+TEST(Oracle, LatenessWithoutACrashFails) {
+  TraceBuilder t(StrictProfile());
+  t.Published(1, Seconds(1));
+  t.Published(2, Seconds(9));
+  t.Delivered(2, 11);
+  t.Record(2, Seconds(9), 1);
+  t.Stepped(Seconds(10), false);
+  t.Delivered(1, 12);
+  t.Record(1, Seconds(1), 2);
+  const Verdict v = t.End();
+  EXPECT_EQ(v.at(Invariant::kLateRecord).violations, 1u);
+  EXPECT_EQ(v.forced_late_records, 0u);
+}
+
+// A connector cannot hide lateness behind a crash: incarnation 1 held message
+// 1 and moved its own watermark past it before it died.
+TEST(Oracle, NoExcuseWhenTheDeadIncarnationMovedPastTheMessageItHeld) {
+  TraceBuilder t(StrictProfile());
+  t.Published(1, Seconds(1));
+  t.Delivered(1, 10);
+  t.Stepped(Seconds(10), false);  // held message 1 without a record, moved past it
+  t.Crashed();
+  t.Opened(0, std::nullopt);
+  t.Stepped(Seconds(10), false);
+  t.Delivered(1, 12);
+  t.Record(1, Seconds(1), 2);
+  const Verdict v = t.End();
+  EXPECT_EQ(v.at(Invariant::kLateRecord).violations, 1u);
+  EXPECT_EQ(v.forced_late_records, 0u);
 }
 
 }  // namespace
