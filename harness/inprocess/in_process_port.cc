@@ -79,21 +79,16 @@ ConnectorFailure InProcessPort::Start(std::uint64_t /*incarnation*/) {
   return {};
 }
 
-ConnectorFailure InProcessPort::Open(const v1::OpenRequest& request, v1::OpenResponse*,
+ConnectorFailure InProcessPort::Open(const v1::OpenRequest& request, v1::OpenResponse* response,
                                      BrokerEndpoint& broker) {
   if (source_ == nullptr) return NotAlive();
   EndpointClient client(broker);
   adapter::Context ctx(adapter::CallKind::kOpen, request.now_ns(), client);
-  adapter::OpenInfo info;
-  info.incarnation = request.incarnation();
-  info.restore = request.restore();
-  info.checkpoint_id = request.checkpoint_id();
-  info.checkpoint_state = request.checkpoint_state();
-  info.redelivery_horizon_ns = request.redelivery_horizon_ns();
-  grpc::Status st = source_->Open(info, ctx);
+  grpc::Status st = source_->Open(adapter::OpenInfoFrom(request), ctx);
   if (!st.ok()) {
     return Misuse("Open", absl::StrCat("answered ", st.error_code(), " ", st.error_message()), st.error_code());
   }
+  adapter::WriteOpen(*source_, response);
   return {};
 }
 
@@ -113,7 +108,7 @@ ConnectorFailure InProcessPort::Checkpoint(const v1::CheckpointRequest& request,
   if (source_ == nullptr) return NotAlive();
   EndpointClient client(broker);
   adapter::Context ctx(adapter::CallKind::kCheckpoint, request.now_ns(), client);
-  response->set_state(source_->Checkpoint(request.checkpoint_id(), ctx));
+  adapter::RunCheckpoint(*source_, request.checkpoint_id(), ctx, response);
   if (!ctx.misuse().empty()) return Misuse("Checkpoint", ctx.misuse());
   return {};
 }

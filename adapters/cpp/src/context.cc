@@ -17,7 +17,33 @@ const char* CallName(CallKind call) {
   return "?";
 }
 
+BrokerStatus Unimplemented(const char* method) {
+  BrokerStatus out;
+  out.code = grpc::StatusCode::UNIMPLEMENTED;
+  out.message = std::string(method) + " is not implemented by this broker client (log shape)";
+  return out;
+}
+
 }  // namespace
+
+BrokerStatus BrokerClient::ListPartitions(std::vector<v1::PartitionInfo>* out) {
+  out->clear();
+  return Unimplemented("ListPartitions");
+}
+
+BrokerStatus BrokerClient::Read(std::uint32_t, std::uint64_t, const ReadOptions&, ReadResult* out) {
+  out->records.clear();
+  return Unimplemented("Read");
+}
+
+BrokerStatus BrokerClient::SaveBookmarks(const std::vector<Bookmark>&) {
+  return Unimplemented("SaveBookmarks");
+}
+
+BrokerStatus BrokerClient::LoadBookmarks(std::vector<Bookmark>* out) {
+  out->clear();
+  return Unimplemented("LoadBookmarks");
+}
 
 Context::Context(CallKind call, std::int64_t now_ns, BrokerClient& broker)
     : call_(call), now_ns_(now_ns), clocked_(broker, *this) {}
@@ -37,6 +63,24 @@ void Context::Emit(std::uint64_t message_id, std::int64_t event_time_ns, std::st
   r.set_message_id(message_id);
   r.set_event_time_ns(event_time_ns);
   r.set_value(std::move(value));
+}
+
+void Context::EmitLogRecord(std::uint32_t partition, std::uint64_t offset,
+                            std::int64_t event_time_ns, std::string value) {
+  if (!AllowedHere("EmitLogRecord")) return;
+  v1::Record& r = records_.emplace_back();
+  r.set_partition(partition);
+  r.set_offset(offset);
+  r.set_event_time_ns(event_time_ns);
+  r.set_value(std::move(value));
+}
+
+void Context::ReportGap(std::uint32_t partition, std::uint64_t from_offset, std::uint64_t to_offset) {
+  if (!AllowedHere("ReportGap")) return;
+  v1::Gap& g = gaps_.emplace_back();
+  g.set_partition(partition);
+  g.set_from_offset(from_offset);
+  g.set_to_offset(to_offset);
 }
 
 void Context::SetWatermark(std::int64_t watermark_ns) {
@@ -59,6 +103,8 @@ void Context::Finish() {
 void Context::WriteStep(v1::AdvanceResponse* response) {
   for (v1::Record& r : records_) *response->add_records() = std::move(r);
   records_.clear();
+  for (v1::Gap& g : gaps_) *response->add_gaps() = std::move(g);
+  gaps_.clear();
   if (watermark_ns_.has_value()) response->set_watermark_ns(*watermark_ns_);
   if (finished_) {
     response->set_finished(true);
@@ -96,6 +142,61 @@ BrokerStatus Context::ClockedBroker::ExtendLease(const std::vector<std::uint64_t
                                                  std::int64_t extension_ns,
                                                  std::vector<std::uint64_t>* rejected) {
   return Observe(inner_.ExtendLease(receipts, extension_ns, rejected));
+}
+
+}  // namespace weir::adapter
+
+namespace weir::adapter {
+
+BrokerStatus Context::ClockedBroker::ListPartitions(std::vector<v1::PartitionInfo>* out) {
+  return Observe(inner_.ListPartitions(out));
+}
+
+BrokerStatus Context::ClockedBroker::Read(std::uint32_t partition, std::uint64_t offset,
+                                          const ReadOptions& options, ReadResult* out) {
+  return Observe(inner_.Read(partition, offset, options, out));
+}
+
+BrokerStatus Context::ClockedBroker::SaveBookmarks(const std::vector<Bookmark>& bookmarks) {
+  return Observe(inner_.SaveBookmarks(bookmarks));
+}
+
+BrokerStatus Context::ClockedBroker::LoadBookmarks(std::vector<Bookmark>* out) {
+  return Observe(inner_.LoadBookmarks(out));
+}
+
+OpenInfo OpenInfoFrom(const v1::OpenRequest& request) {
+  OpenInfo info;
+  info.incarnation = request.incarnation();
+  info.restore = request.restore();
+  info.checkpoint_id = request.checkpoint_id();
+  info.checkpoint_state = request.checkpoint_state();
+  info.redelivery_horizon_ns = request.redelivery_horizon_ns();
+  info.spans.reserve(static_cast<std::size_t>(request.spans_size()));
+  for (const v1::Span& s : request.spans()) {
+    Span& span = info.spans.emplace_back();
+    span.partition = s.partition();
+    span.start_offset = s.start_offset();
+    if (s.has_end_offset()) span.end_offset = s.end_offset();
+  }
+  info.new_partitions_held = request.new_partitions_held();
+  return info;
+}
+
+void WriteOpen(const Source& source, v1::OpenResponse* response) {
+  // A queue source leaves the shape unset (the same as QUEUE), so its answers
+  // stay byte for byte what they were before the log shape.
+  if (source.shape() == SourceShape::kLog) response->set_shape(v1::LOG);
+}
+
+void RunCheckpoint(Source& source, std::uint64_t checkpoint_id, Context& ctx,
+                   v1::CheckpointResponse* response) {
+  response->set_state(source.Checkpoint(checkpoint_id, ctx));
+  for (const ResumePoint& p : source.ResumePoints()) {
+    v1::ResumePoint* out = response->add_resume_points();
+    out->set_partition(p.partition);
+    out->set_next_offset(p.next_offset);
+  }
 }
 
 }  // namespace weir::adapter

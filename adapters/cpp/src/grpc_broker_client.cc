@@ -10,16 +10,29 @@
 namespace weir::adapter::internal {
 namespace {
 
-std::optional<std::int64_t> TrailingInt(const grpc::ClientContext& call, std::string_view key) {
+template <typename Int = std::int64_t>
+std::optional<Int> TrailingInt(const grpc::ClientContext& call, std::string_view key) {
   const auto& trailers = call.GetServerTrailingMetadata();
   auto it = trailers.find(grpc::string_ref(key.data(), key.size()));
   if (it == trailers.end()) return std::nullopt;
   const char* begin = it->second.data();
   const char* end = begin + it->second.size();
-  std::int64_t value = 0;
+  Int value = 0;
   auto [ptr, ec] = std::from_chars(begin, end, value);
   if (ec != std::errc() || ptr != end) return std::nullopt;
   return value;
+}
+
+// The first retained offset of an OUT_OF_RANGE read: the trailing metadata, or
+// else the OffsetOutOfRange status detail.
+std::optional<std::uint64_t> FirstRetainedOffset(const grpc::ClientContext& call,
+                                                 const grpc::Status& status) {
+  if (auto offset = TrailingInt<std::uint64_t>(call, kFirstRetainedOffsetMetadataKey)) return offset;
+  v1::OffsetOutOfRange detail;
+  if (!status.error_details().empty() && detail.ParseFromString(status.error_details())) {
+    return detail.first_retained_offset();
+  }
+  return std::nullopt;
 }
 
 BrokerStatus Failed(const grpc::ClientContext& call, const grpc::Status& status) {
@@ -33,6 +46,7 @@ BrokerStatus Failed(const grpc::ClientContext& call, const grpc::Status& status)
       out.retry_after_ns = *ms > kMax ? std::numeric_limits<std::int64_t>::max() : *ms * 1'000'000;
     }
   }
+  if (out.out_of_range()) out.first_retained_offset = FirstRetainedOffset(call, status);
   return out;
 }
 
@@ -135,6 +149,72 @@ BrokerStatus GrpcBrokerClient::ExtendLease(const std::vector<std::uint64_t>& rec
   grpc::Status status = Call(&call, request, &response, &v1::Broker::Stub::PrepareAsyncExtendLease);
   if (!status.ok()) return Failed(call, status);
   rejected->assign(response.rejected_receipts().begin(), response.rejected_receipts().end());
+  return Succeeded(response.now_ns());
+}
+
+BrokerStatus GrpcBrokerClient::ListPartitions(std::vector<v1::PartitionInfo>* out) {
+  out->clear();
+  grpc::ClientContext call;
+  Prepare(&call);
+  v1::ListPartitionsRequest request;
+  v1::ListPartitionsResponse response;
+  grpc::Status status =
+      Call(&call, request, &response, &v1::Broker::Stub::PrepareAsyncListPartitions);
+  if (!status.ok()) return Failed(call, status);
+  out->reserve(static_cast<std::size_t>(response.partitions_size()));
+  for (v1::PartitionInfo& p : *response.mutable_partitions()) out->push_back(std::move(p));
+  return Succeeded(response.now_ns());
+}
+
+BrokerStatus GrpcBrokerClient::Read(std::uint32_t partition, std::uint64_t offset,
+                                    const ReadOptions& options, ReadResult* out) {
+  out->records.clear();
+  out->next_offset = offset;
+  grpc::ClientContext call;
+  Prepare(&call);
+  v1::ReadRequest request;
+  request.set_partition(partition);
+  request.set_offset(offset);
+  request.set_max_records(options.max_records);
+  request.set_max_bytes(options.max_bytes);
+  request.set_max_wait_ns(options.max_wait_ns);
+  v1::ReadResponse response;
+  grpc::Status status = Call(&call, request, &response, &v1::Broker::Stub::PrepareAsyncRead);
+  if (!status.ok()) return Failed(call, status);
+  out->records.reserve(static_cast<std::size_t>(response.records_size()));
+  for (v1::LogRecord& r : *response.mutable_records()) out->records.push_back(std::move(r));
+  out->next_offset = response.next_offset();
+  out->first_retained_offset = response.first_retained_offset();
+  out->readable_end = response.readable_end();
+  return Succeeded(response.now_ns());
+}
+
+BrokerStatus GrpcBrokerClient::SaveBookmarks(const std::vector<Bookmark>& bookmarks) {
+  grpc::ClientContext call;
+  Prepare(&call);
+  v1::SaveBookmarksRequest request;
+  request.mutable_bookmarks()->Reserve(static_cast<int>(bookmarks.size()));
+  for (const Bookmark& b : bookmarks) {
+    v1::Bookmark* out = request.add_bookmarks();
+    out->set_partition(b.partition);
+    out->set_next_offset(b.next_offset);
+  }
+  v1::SaveBookmarksResponse response;
+  grpc::Status status = Call(&call, request, &response, &v1::Broker::Stub::PrepareAsyncSaveBookmarks);
+  if (!status.ok()) return Failed(call, status);
+  return Succeeded(response.now_ns());
+}
+
+BrokerStatus GrpcBrokerClient::LoadBookmarks(std::vector<Bookmark>* out) {
+  out->clear();
+  grpc::ClientContext call;
+  Prepare(&call);
+  v1::LoadBookmarksRequest request;
+  v1::LoadBookmarksResponse response;
+  grpc::Status status = Call(&call, request, &response, &v1::Broker::Stub::PrepareAsyncLoadBookmarks);
+  if (!status.ok()) return Failed(call, status);
+  out->reserve(static_cast<std::size_t>(response.bookmarks_size()));
+  for (const v1::Bookmark& b : response.bookmarks()) out->push_back({b.partition(), b.next_offset()});
   return Succeeded(response.now_ns());
 }
 

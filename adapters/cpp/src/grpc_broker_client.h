@@ -5,7 +5,8 @@
 // polls until the answer is there (call_queue.h). Every call carries a wall-clock deadline so a wedged harness cannot
 // hang the connector; the answer's virtual now comes from the response's now_ns
 // or, on failure, from the trailing metadata key "weir-now-ns"; a throttle's
-// hint from "retry-after-ms".
+// hint from "retry-after-ms"; an out-of-range read's first retained offset from
+// "weir-first-retained-offset" (or the OffsetOutOfRange status detail).
 //
 // Thread safety: the CallQueue's thread only.
 #pragma once
@@ -22,6 +23,7 @@ namespace weir::adapter::internal {
 
 inline constexpr char kNowMetadataKey[] = "weir-now-ns";
 inline constexpr char kRetryAfterMetadataKey[] = "retry-after-ms";
+inline constexpr char kFirstRetainedOffsetMetadataKey[] = "weir-first-retained-offset";
 
 class GrpcBrokerClient final : public BrokerClient {
  public:
@@ -33,6 +35,11 @@ class GrpcBrokerClient final : public BrokerClient {
   BrokerStatus Nack(const std::vector<std::uint64_t>& receipts) override;
   BrokerStatus ExtendLease(const std::vector<std::uint64_t>& receipts, std::int64_t extension_ns,
                            std::vector<std::uint64_t>* rejected) override;
+  BrokerStatus ListPartitions(std::vector<v1::PartitionInfo>* out) override;
+  BrokerStatus Read(std::uint32_t partition, std::uint64_t offset, const ReadOptions& options,
+                    ReadResult* out) override;
+  BrokerStatus SaveBookmarks(const std::vector<Bookmark>& bookmarks) override;
+  BrokerStatus LoadBookmarks(std::vector<Bookmark>* out) override;
 
  private:
   void Prepare(grpc::ClientContext* call) const;

@@ -55,15 +55,14 @@ class ConnectorCalls {
  public:
   ConnectorCalls(Source& source, BrokerClient& broker) : source_(source), broker_(broker) {}
 
-  grpc::Status Open(const v1::OpenRequest& request, v1::OpenResponse*) {
+  grpc::Status Open(const v1::OpenRequest& request, v1::OpenResponse* response) {
     Context ctx(CallKind::kOpen, request.now_ns(), broker_);
-    OpenInfo info;
-    info.incarnation = request.incarnation();
-    info.restore = request.restore();
-    info.checkpoint_id = request.checkpoint_id();
-    info.checkpoint_state = request.checkpoint_state();
-    info.redelivery_horizon_ns = request.redelivery_horizon_ns();
-    return Guarded("Open", ctx, [&] { return source_.Open(info, ctx); });
+    const OpenInfo info = OpenInfoFrom(request);
+    return Guarded("Open", ctx, [&] {
+      grpc::Status status = source_.Open(info, ctx);
+      if (status.ok()) WriteOpen(source_, response);
+      return status;
+    });
   }
 
   grpc::Status Advance(const v1::AdvanceRequest& request, v1::AdvanceResponse* response) {
@@ -79,7 +78,7 @@ class ConnectorCalls {
   grpc::Status Checkpoint(const v1::CheckpointRequest& request, v1::CheckpointResponse* response) {
     Context ctx(CallKind::kCheckpoint, request.now_ns(), broker_);
     return Guarded("Checkpoint", ctx, [&] {
-      response->set_state(source_.Checkpoint(request.checkpoint_id(), ctx));
+      RunCheckpoint(source_, request.checkpoint_id(), ctx, response);
       return grpc::Status::OK;
     });
   }

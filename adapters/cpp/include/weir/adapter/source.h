@@ -15,6 +15,28 @@
 //               The only moment from which acks for those records are allowed.
 //               Sent at most once and never retried.
 //
+// Two shapes of broker (Source::shape(), fixed by the scenario):
+//   queue  (the default) Pull hands out messages with receipts; a record names
+//          its message (Context::Emit); Ack after the commit notice removes it.
+//   log    partitions, each an append-only sequence of records at offsets
+//          0, 1, 2, ...; retention deletes the oldest. The log protocol:
+//     Open        OpenInfo::spans are the partitions this reader holds, each from
+//                 its resume point (the restored checkpoint's, or the span's first
+//                 offset); with new_partitions_held, partitions that appear later
+//                 (BrokerClient::ListPartitions) are held too, from offset 0.
+//     Advance     Read each held partition from its next offset; emit one record
+//                 per log record (Context::EmitLogRecord: partition and offset);
+//                 a Read below the first retained offset fails OUT_OF_RANGE with
+//                 BrokerStatus::first_retained_offset: the skipped offsets must be
+//                 reported (Context::ReportGap) before reading on from there.
+//     Checkpoint  also returns, through Source::ResumePoints(), the resume point of
+//                 every held partition: the next offset to read after every record
+//                 emitted so far. Open hands them back as the spans' start offsets.
+//     Committed   the only moment from which SaveBookmarks may store checkpoint N's
+//                 resume points at the broker (never anything newer): a bookmark
+//                 ahead of the committed resume point is the log twin of an ack
+//                 before the commit.
+//
 // Time: Context::now() is the virtual now. It starts at the call's now and moves
 // forward as broker answers arrive. Source code must never read a wall clock and
 // must draw any randomness from a PRNG seeded deterministically (e.g. from the
@@ -24,7 +46,7 @@
 // concurrently; a Context and its broker() are used only on the thread of the
 // call they were given to, and only during that call.
 //
-// Example:
+// Example (queue shape):
 //   class Scans : public weir::adapter::Source {
 //     void Advance(weir::adapter::Context& ctx) override {
 //       std::vector<weir::v1::Delivery> got;
@@ -35,6 +57,38 @@
 //     ...
 //   };
 //   int main() { Scans s; return weir::adapter::Serve(s); }
+//
+// Example (log shape; retries, idleness and bookmarks left out, see
+// fixtures/connectors/log_reference_source.h for a complete reader):
+//   class Buoys : public weir::adapter::Source {
+//     weir::adapter::SourceShape shape() const override { return weir::adapter::SourceShape::kLog; }
+//     grpc::Status Open(const weir::adapter::OpenInfo& info, weir::adapter::Context&) override {
+//       next_.clear();
+//       for (const auto& span : info.spans) next_[span.partition] = span.start_offset;
+//       return grpc::Status::OK;
+//     }
+//     void Advance(weir::adapter::Context& ctx) override {
+//       for (auto& [partition, next] : next_) {
+//         weir::adapter::ReadResult got;
+//         weir::adapter::BrokerStatus s = ctx.broker().Read(partition, next, {}, &got);
+//         if (s.out_of_range()) {
+//           ctx.ReportGap(partition, next, *s.first_retained_offset);
+//           next = *s.first_retained_offset;
+//         }
+//         if (!s.ok()) continue;
+//         for (const auto& r : got.records)
+//           ctx.EmitLogRecord(partition, r.offset(), r.event_time_ns(), r.payload());
+//         next = got.next_offset;
+//       }
+//     }
+//     std::vector<weir::adapter::ResumePoint> ResumePoints() override {
+//       std::vector<weir::adapter::ResumePoint> out;
+//       for (const auto& [partition, next] : next_) out.push_back({partition, next});
+//       return out;
+//     }
+//     ...
+//     std::map<std::uint32_t, std::uint64_t> next_;
+//   };
 #pragma once
 
 #include <cstdint>
@@ -61,9 +115,58 @@ struct BrokerStatus {
   // "retry-after-ms"), in ns. The throttled method must not be called again
   // before now + retry_after_ns; other methods may.
   std::optional<std::int64_t> retry_after_ns;
+  // OUT_OF_RANGE only (log shape, Read below the first retained offset): the
+  // partition's first retained offset (trailing metadata
+  // "weir-first-retained-offset", or the OffsetOutOfRange status detail). Every
+  // offset below it is gone: report the skipped ones with Context::ReportGap.
+  std::optional<std::uint64_t> first_retained_offset;
 
   bool ok() const { return code == grpc::StatusCode::OK; }
   bool throttled() const { return code == grpc::StatusCode::RESOURCE_EXHAUSTED; }
+  // A transient failure worth retrying after a backoff.
+  bool transient() const {
+    return code == grpc::StatusCode::UNAVAILABLE || code == grpc::StatusCode::DEADLINE_EXCEEDED;
+  }
+  bool out_of_range() const { return code == grpc::StatusCode::OUT_OF_RANGE; }
+};
+
+// Log shape: a partition and the next offset to read there. The same pair is a
+// resume point (in a checkpoint) and a bookmark (stored at the broker).
+struct PartitionOffset {
+  std::uint32_t partition = 0;
+  std::uint64_t next_offset = 0;
+  friend bool operator==(const PartitionOffset&, const PartitionOffset&) = default;
+};
+using ResumePoint = PartitionOffset;
+using Bookmark = PartitionOffset;
+
+// Log shape: a partition and a range of its offsets held by the reader:
+// [start_offset, end_offset), or open ended (a live log) when end_offset is unset.
+struct Span {
+  std::uint32_t partition = 0;
+  std::uint64_t start_offset = 0;
+  std::optional<std::uint64_t> end_offset;
+  friend bool operator==(const Span&, const Span&) = default;
+};
+
+// Log shape: how much one Read may return.
+struct ReadOptions {
+  std::uint32_t max_records = 64;
+  std::uint32_t max_bytes = 0;   // 0: no byte bound
+  std::int64_t max_wait_ns = 0;  // > 0: long poll at the readable end, this long (virtual)
+};
+
+// Log shape: what one Read returned.
+struct ReadResult {
+  // In offset order, consecutive, starting at the requested offset.
+  std::vector<v1::LogRecord> records;
+  // The offset after the last record returned (the requested offset if none).
+  std::uint64_t next_offset = 0;
+  std::uint64_t first_retained_offset = 0;
+  // The end of what is readable now.
+  std::uint64_t readable_end = 0;
+  // Nothing more is readable now: next_offset == readable_end.
+  bool caught_up() const { return next_offset >= readable_end; }
 };
 
 // weir's Broker service as the source sees it. Each call is synchronous and
@@ -85,6 +188,24 @@ class BrokerClient {
   [[nodiscard]] virtual BrokerStatus ExtendLease(const std::vector<std::uint64_t>& receipts,
                                                  std::int64_t extension_ns,
                                                  std::vector<std::uint64_t>* rejected) = 0;
+
+  // Log shape. The default implementations answer UNIMPLEMENTED (a host that
+  // serves only queue sources need not override them).
+  //
+  // Replaces *out with every partition, its first retained offset and the
+  // offset its next appended record will get. On error *out is empty.
+  [[nodiscard]] virtual BrokerStatus ListPartitions(std::vector<v1::PartitionInfo>* out);
+  // Reads records of `partition` from `offset` on. On success *out holds them and
+  // where the partition stands; on error its records are empty. OUT_OF_RANGE:
+  // `offset` is below the first retained offset, which the status carries.
+  [[nodiscard]] virtual BrokerStatus Read(std::uint32_t partition, std::uint64_t offset,
+                                          const ReadOptions& options, ReadResult* out);
+  // Stores these bookmarks at the broker. Only resume points of a committed
+  // checkpoint may be saved (see the log protocol at the top of this file).
+  [[nodiscard]] virtual BrokerStatus SaveBookmarks(const std::vector<Bookmark>& bookmarks);
+  // Replaces *out with the bookmarks stored so far (never-bookmarked partitions
+  // are left out).
+  [[nodiscard]] virtual BrokerStatus LoadBookmarks(std::vector<Bookmark>* out);
 };
 
 // Which connector call a Context belongs to.
@@ -94,7 +215,8 @@ enum class CallKind { kOpen, kAdvance, kCheckpoint, kCommitted };
 // virtual now.
 //
 // Invariants: now() never decreases; the step-shaping methods (Emit,
-// SetWatermark, ResumeAt, Finish) are valid only in an Advance call — elsewhere
+// EmitLogRecord, ReportGap, SetWatermark, ResumeAt, Finish) are valid only in an
+// Advance call — elsewhere
 // they are ignored and recorded as misuse, which the host turns into a failed
 // call (FAILED_PRECONDITION) so the mistake surfaces as a connector-error.
 class Context {
@@ -112,6 +234,14 @@ class Context {
 
   // Advance only. Adds a record produced from message `message_id`.
   void Emit(std::uint64_t message_id, std::int64_t event_time_ns, std::string value = {});
+  // Advance only, log shape. Adds a record produced from the log record at
+  // (partition, offset).
+  void EmitLogRecord(std::uint32_t partition, std::uint64_t offset, std::int64_t event_time_ns,
+                     std::string value = {});
+  // Advance only, log shape. Offsets [from_offset, to_offset) of `partition` will
+  // never be emitted: retention deleted them before they could be read. A reader
+  // that skips offsets must say so; skipping silently is a violation.
+  void ReportGap(std::uint32_t partition, std::uint64_t from_offset, std::uint64_t to_offset);
   // Advance only. The watermark after this step's records; the last call wins.
   // Unset: the step reports no watermark.
   void SetWatermark(std::int64_t watermark_ns);
@@ -124,7 +254,7 @@ class Context {
 
   static constexpr std::int64_t kDefaultResumeDelayNs = 100'000'000;  // 100 ms virtual
 
-  // For hosts, after the source returned: writes records, watermark and
+  // For hosts, after the source returned: writes records, gaps, watermark and
   // resume_at/finished into *response (applying the default resume rule).
   // REQUIRES: call() == CallKind::kAdvance.
   void WriteStep(v1::AdvanceResponse* response);
@@ -141,6 +271,11 @@ class Context {
     BrokerStatus Nack(const std::vector<std::uint64_t>& receipts) override;
     BrokerStatus ExtendLease(const std::vector<std::uint64_t>& receipts, std::int64_t extension_ns,
                              std::vector<std::uint64_t>* rejected) override;
+    BrokerStatus ListPartitions(std::vector<v1::PartitionInfo>* out) override;
+    BrokerStatus Read(std::uint32_t partition, std::uint64_t offset, const ReadOptions& options,
+                      ReadResult* out) override;
+    BrokerStatus SaveBookmarks(const std::vector<Bookmark>& bookmarks) override;
+    BrokerStatus LoadBookmarks(std::vector<Bookmark>* out) override;
 
    private:
     BrokerStatus Observe(BrokerStatus status);
@@ -155,6 +290,7 @@ class Context {
   std::int64_t now_ns_;
   ClockedBroker clocked_;
   std::vector<v1::Record> records_;
+  std::vector<v1::Gap> gaps_;
   std::optional<std::int64_t> watermark_ns_;
   std::optional<std::int64_t> resume_at_ns_;
   bool finished_ = false;
@@ -170,7 +306,15 @@ struct OpenInfo {
   // The broker redelivers an acked message no later than this long after the ack,
   // so dedup memory of acked messages may be dropped after it.
   std::int64_t redelivery_horizon_ns = 0;
+  // Log shape: the spans this reader holds, each from its resume point.
+  std::vector<Span> spans;
+  // Log shape: partitions that appear after Open are held too, from offset 0.
+  bool new_partitions_held = false;
 };
+
+// Which shape of broker a source reads (OpenResponse.shape); it must be the
+// scenario's.
+enum class SourceShape { kQueue, kLog };
 
 // A source connector. The host calls Open first (again on every new incarnation,
 // possibly on the same object: Open must reset all state), then any sequence of
@@ -199,6 +343,25 @@ class Source {
   virtual std::string Checkpoint(std::uint64_t checkpoint_id, Context& ctx) = 0;
   // Commit notice: checkpoint `checkpoint_id` and every epoch before it are durable.
   virtual void Committed(std::uint64_t checkpoint_id, Context& ctx) = 0;
+
+  // The shape of broker this source reads. Default: queue.
+  virtual SourceShape shape() const { return SourceShape::kQueue; }
+  // Log shape: called right after Checkpoint returned, in the same connector
+  // call: the resume point of every partition the reader holds (the next offset
+  // to read after every record emitted so far). Default: none (queue shape).
+  virtual std::vector<ResumePoint> ResumePoints() { return {}; }
 };
+
+// For hosts (Serve, weir's in-process harness): the same translation of the
+// wire messages for both, so a source cannot tell them apart.
+//
+// What Open is told, from the request.
+OpenInfo OpenInfoFrom(const v1::OpenRequest& request);
+// Writes what Open answers about the source (its shape; unset for a queue
+// source, which the contract reads as QUEUE) into *response.
+void WriteOpen(const Source& source, v1::OpenResponse* response);
+// Runs Checkpoint and then ResumePoints, writing both into *response.
+void RunCheckpoint(Source& source, std::uint64_t checkpoint_id, Context& ctx,
+                   v1::CheckpointResponse* response);
 
 }  // namespace weir::adapter

@@ -1,0 +1,349 @@
+// Tests for the log shape of the C++ adapter (adapters/cpp/include/weir/adapter/source.h):
+// what a step carries (log records, gaps), what Open and Checkpoint answer for
+// a log source, the default broker calls of a queue-only client, and the gRPC
+// broker client's reading of an out-of-range read (the status and trailing
+// metadata of proto/weir/v1/broker.proto, Broker.Read).
+#include <chrono>
+#include <cstdint>
+#include <memory>
+#include <string>
+#include <vector>
+
+#include <grpcpp/grpcpp.h>
+#include <gtest/gtest.h>
+
+#include "adapters/cpp/src/call_queue.h"
+#include "adapters/cpp/src/grpc_broker_client.h"
+#include "weir/adapter/source.h"
+#include "weir/v1/broker.grpc.pb.h"
+
+namespace weir::adapter {
+namespace {
+
+// A queue-only broker client: the log calls keep their defaults.
+class QueueOnlyBroker : public BrokerClient {
+ public:
+  BrokerStatus Pull(std::uint32_t, std::vector<v1::Delivery>* out) override {
+    out->clear();
+    return {};
+  }
+  BrokerStatus Ack(const std::vector<std::uint64_t>&) override { return {}; }
+  BrokerStatus Nack(const std::vector<std::uint64_t>&) override { return {}; }
+  BrokerStatus ExtendLease(const std::vector<std::uint64_t>&, std::int64_t,
+                           std::vector<std::uint64_t>* rejected) override {
+    rejected->clear();
+    return {};
+  }
+};
+
+// A log broker client with canned answers.
+class CannedLogBroker : public QueueOnlyBroker {
+ public:
+  BrokerStatus Read(std::uint32_t partition, std::uint64_t offset, const ReadOptions&,
+                    ReadResult* out) override {
+    last_partition = partition;
+    last_offset = offset;
+    *out = ReadResult{};
+    BrokerStatus status;
+    status.now_ns = answer_now_ns;
+    if (offset < first_retained) {
+      status.code = grpc::StatusCode::OUT_OF_RANGE;
+      status.first_retained_offset = first_retained;
+      return status;
+    }
+    v1::LogRecord& r = out->records.emplace_back();
+    r.set_offset(offset);
+    r.set_event_time_ns(5);
+    out->next_offset = offset + 1;
+    out->readable_end = offset + 1;
+    out->first_retained_offset = first_retained;
+    return status;
+  }
+  std::uint64_t first_retained = 0;
+  std::int64_t answer_now_ns = 0;
+  std::uint32_t last_partition = 0;
+  std::uint64_t last_offset = 0;
+};
+
+class LogSource : public Source {
+ public:
+  SourceShape shape() const override { return SourceShape::kLog; }
+  grpc::Status Open(const OpenInfo&, Context&) override { return grpc::Status::OK; }
+  void Advance(Context&) override {}
+  std::string Checkpoint(std::uint64_t checkpoint_id, Context&) override {
+    order += "checkpoint;";
+    return "state-" + std::to_string(checkpoint_id);
+  }
+  void Committed(std::uint64_t, Context&) override {}
+  std::vector<ResumePoint> ResumePoints() override {
+    order += "resume-points;";
+    return {{0, 17}, {3, 4}};
+  }
+  std::string order;
+};
+
+class QueueSource : public Source {
+ public:
+  grpc::Status Open(const OpenInfo&, Context&) override { return grpc::Status::OK; }
+  void Advance(Context&) override {}
+  std::string Checkpoint(std::uint64_t, Context&) override { return "q"; }
+  void Committed(std::uint64_t, Context&) override {}
+};
+
+TEST(AdapterLog, AStepCarriesLogRecordsAndGapsInOrder) {
+  QueueOnlyBroker broker;
+  Context ctx(CallKind::kAdvance, 100, broker);
+  ctx.ReportGap(2, 10, 14);
+  ctx.EmitLogRecord(2, 14, 900, "v14");
+  ctx.EmitLogRecord(2, 15, 901);
+  v1::AdvanceResponse response;
+  ctx.WriteStep(&response);
+
+  ASSERT_TRUE(ctx.misuse().empty());
+  ASSERT_EQ(response.records_size(), 2);
+  EXPECT_EQ(response.records(0).partition(), 2u);
+  ASSERT_TRUE(response.records(0).has_offset());
+  EXPECT_EQ(response.records(0).offset(), 14u);
+  EXPECT_EQ(response.records(0).event_time_ns(), 900);
+  EXPECT_EQ(response.records(0).value(), "v14");
+  EXPECT_EQ(response.records(0).message_id(), 0u);
+  EXPECT_EQ(response.records(1).offset(), 15u);
+  ASSERT_EQ(response.gaps_size(), 1);
+  EXPECT_EQ(response.gaps(0).partition(), 2u);
+  EXPECT_EQ(response.gaps(0).from_offset(), 10u);
+  EXPECT_EQ(response.gaps(0).to_offset(), 14u);
+}
+
+TEST(AdapterLog, AQueueRecordCarriesNoOffset) {
+  QueueOnlyBroker broker;
+  Context ctx(CallKind::kAdvance, 100, broker);
+  ctx.Emit(7, 1);
+  v1::AdvanceResponse response;
+  ctx.WriteStep(&response);
+  ASSERT_EQ(response.records_size(), 1);
+  EXPECT_FALSE(response.records(0).has_offset());
+  EXPECT_EQ(response.gaps_size(), 0);
+}
+
+TEST(AdapterLog, GapsAndLogRecordsOutsideAdvanceAreMisuse) {
+  QueueOnlyBroker broker;
+  Context checkpoint(CallKind::kCheckpoint, 0, broker);
+  checkpoint.ReportGap(0, 1, 2);
+  EXPECT_NE(checkpoint.misuse().find("ReportGap called during Checkpoint"), std::string::npos);
+  Context committed(CallKind::kCommitted, 0, broker);
+  committed.EmitLogRecord(0, 1, 2);
+  EXPECT_NE(committed.misuse().find("EmitLogRecord called during Committed"), std::string::npos);
+}
+
+TEST(AdapterLog, OpenInfoCarriesSpansAndNewPartitions) {
+  v1::OpenRequest request;
+  request.set_incarnation(3);
+  request.set_restore(true);
+  request.set_checkpoint_id(9);
+  request.set_checkpoint_state("s");
+  v1::Span* open = request.add_spans();
+  open->set_partition(1);
+  open->set_start_offset(40);
+  v1::Span* closed = request.add_spans();
+  closed->set_partition(2);
+  closed->set_start_offset(5);
+  closed->set_end_offset(8);
+  request.set_new_partitions_held(true);
+
+  const OpenInfo info = OpenInfoFrom(request);
+  EXPECT_EQ(info.incarnation, 3u);
+  EXPECT_TRUE(info.restore);
+  EXPECT_EQ(info.checkpoint_id, 9u);
+  EXPECT_EQ(info.checkpoint_state, "s");
+  ASSERT_EQ(info.spans.size(), 2u);
+  EXPECT_EQ(info.spans[0], (Span{1, 40, std::nullopt}));
+  EXPECT_EQ(info.spans[1], (Span{2, 5, 8}));
+  EXPECT_TRUE(info.new_partitions_held);
+}
+
+TEST(AdapterLog, OpenAnswersTheSourceShape) {
+  LogSource log;
+  v1::OpenResponse log_answer;
+  WriteOpen(log, &log_answer);
+  EXPECT_EQ(log_answer.shape(), v1::LOG);
+
+  QueueSource queue;
+  v1::OpenResponse queue_answer;
+  WriteOpen(queue, &queue_answer);
+  // Unset reads as QUEUE; a queue source's answer stays empty on the wire.
+  EXPECT_EQ(queue_answer.shape(), v1::SOURCE_SHAPE_UNSPECIFIED);
+  EXPECT_EQ(queue_answer.ByteSizeLong(), 0u);
+}
+
+TEST(AdapterLog, CheckpointAsksForResumePointsRightAfterTheState) {
+  QueueOnlyBroker broker;
+  LogSource source;
+  Context ctx(CallKind::kCheckpoint, 0, broker);
+  v1::CheckpointResponse response;
+  RunCheckpoint(source, 4, ctx, &response);
+  EXPECT_EQ(source.order, "checkpoint;resume-points;");
+  EXPECT_EQ(response.state(), "state-4");
+  ASSERT_EQ(response.resume_points_size(), 2);
+  EXPECT_EQ(response.resume_points(0).partition(), 0u);
+  EXPECT_EQ(response.resume_points(0).next_offset(), 17u);
+  EXPECT_EQ(response.resume_points(1).partition(), 3u);
+  EXPECT_EQ(response.resume_points(1).next_offset(), 4u);
+}
+
+TEST(AdapterLog, AQueueSourceCheckpointHasNoResumePoints) {
+  QueueOnlyBroker broker;
+  QueueSource source;
+  Context ctx(CallKind::kCheckpoint, 0, broker);
+  v1::CheckpointResponse response;
+  RunCheckpoint(source, 1, ctx, &response);
+  EXPECT_EQ(response.state(), "q");
+  EXPECT_EQ(response.resume_points_size(), 0);
+}
+
+TEST(AdapterLog, AQueueOnlyClientAnswersLogCallsUnimplemented) {
+  QueueOnlyBroker broker;
+  std::vector<v1::PartitionInfo> partitions(1);
+  EXPECT_EQ(broker.ListPartitions(&partitions).code, grpc::StatusCode::UNIMPLEMENTED);
+  EXPECT_TRUE(partitions.empty());
+  ReadResult read;
+  read.records.resize(2);
+  EXPECT_EQ(broker.Read(0, 0, {}, &read).code, grpc::StatusCode::UNIMPLEMENTED);
+  EXPECT_TRUE(read.records.empty());
+  EXPECT_EQ(broker.SaveBookmarks({{0, 1}}).code, grpc::StatusCode::UNIMPLEMENTED);
+  std::vector<Bookmark> bookmarks(1);
+  EXPECT_EQ(broker.LoadBookmarks(&bookmarks).code, grpc::StatusCode::UNIMPLEMENTED);
+  EXPECT_TRUE(bookmarks.empty());
+}
+
+TEST(AdapterLog, ReadsThroughTheContextMoveNowAndCarryTheFirstRetainedOffset) {
+  CannedLogBroker broker;
+  broker.first_retained = 30;
+  broker.answer_now_ns = 500;
+  Context ctx(CallKind::kAdvance, 100, broker);
+  ReadResult got;
+  const BrokerStatus gone = ctx.broker().Read(6, 12, {}, &got);
+  EXPECT_TRUE(gone.out_of_range());
+  ASSERT_TRUE(gone.first_retained_offset.has_value());
+  EXPECT_EQ(*gone.first_retained_offset, 30u);
+  EXPECT_EQ(ctx.now(), 500);
+
+  broker.answer_now_ns = 700;
+  const BrokerStatus read = ctx.broker().Read(6, 30, {}, &got);
+  ASSERT_TRUE(read.ok());
+  EXPECT_EQ(broker.last_partition, 6u);
+  EXPECT_EQ(broker.last_offset, 30u);
+  ASSERT_EQ(got.records.size(), 1u);
+  EXPECT_TRUE(got.caught_up());
+  EXPECT_EQ(ctx.now(), 700);
+}
+
+// A Broker service whose Read fails OUT_OF_RANGE the way weir's does, with
+// the first retained offset in the trailing metadata, in the status detail
+// only, or nowhere.
+class OutOfRangeBroker final : public v1::Broker::Service {
+ public:
+  enum class Carry { kMetadata, kDetailOnly, kNothing };
+  explicit OutOfRangeBroker(Carry carry) : carry_(carry) {}
+
+  grpc::Status Read(grpc::ServerContext* context, const v1::ReadRequest* request,
+                    v1::ReadResponse* response) override {
+    context->AddTrailingMetadata("weir-now-ns", "4200");
+    if (request->offset() >= 77) {
+      response->set_now_ns(4300);
+      response->set_partition(request->partition());
+      v1::LogRecord* r = response->add_records();
+      r->set_offset(request->offset());
+      response->set_next_offset(request->offset() + 1);
+      response->set_first_retained_offset(77);
+      response->set_readable_end(request->offset() + 5);
+      return grpc::Status::OK;
+    }
+    v1::OffsetOutOfRange detail;
+    detail.set_partition(request->partition());
+    detail.set_first_retained_offset(77);
+    switch (carry_) {
+      case Carry::kMetadata:
+        context->AddTrailingMetadata("weir-first-retained-offset", "77");
+        return grpc::Status(grpc::StatusCode::OUT_OF_RANGE, "first retained offset 77",
+                            detail.SerializeAsString());
+      case Carry::kDetailOnly:
+        return grpc::Status(grpc::StatusCode::OUT_OF_RANGE, "first retained offset 77",
+                            detail.SerializeAsString());
+      case Carry::kNothing:
+        break;
+    }
+    return grpc::Status(grpc::StatusCode::OUT_OF_RANGE, "gone");
+  }
+
+ private:
+  const Carry carry_;
+};
+
+// Runs one Read through a real GrpcBrokerClient against `service`.
+BrokerStatus ReadOverGrpc(OutOfRangeBroker::Carry carry, std::uint64_t offset, ReadResult* out) {
+  OutOfRangeBroker service(carry);
+  grpc::ServerBuilder builder;
+  int port = 0;
+  builder.AddListeningPort("127.0.0.1:0", grpc::InsecureServerCredentials(), &port);
+  builder.RegisterService(&service);
+  std::unique_ptr<grpc::Server> server = builder.BuildAndStart();
+  EXPECT_NE(port, 0);
+  grpc::CompletionQueue queue;
+  BrokerStatus status;
+  {
+    internal::CallQueue calls(&queue);
+    internal::GrpcBrokerClient client("127.0.0.1:" + std::to_string(port), std::chrono::seconds(10),
+                                      calls);
+    status = client.Read(3, offset, {}, out);
+  }
+  server->Shutdown(std::chrono::system_clock::now() + std::chrono::seconds(5));
+  queue.Shutdown();
+  void* tag;
+  bool ok;
+  while (queue.Next(&tag, &ok)) {
+  }
+  return status;
+}
+
+TEST(AdapterLogGrpc, OutOfRangeReadCarriesTheFirstRetainedOffsetFromMetadata) {
+  ReadResult got;
+  const BrokerStatus status = ReadOverGrpc(OutOfRangeBroker::Carry::kMetadata, 12, &got);
+  EXPECT_TRUE(status.out_of_range());
+  ASSERT_TRUE(status.first_retained_offset.has_value());
+  EXPECT_EQ(*status.first_retained_offset, 77u);
+  ASSERT_TRUE(status.now_ns.has_value());
+  EXPECT_EQ(*status.now_ns, 4200);
+  EXPECT_TRUE(got.records.empty());
+}
+
+TEST(AdapterLogGrpc, OutOfRangeReadFallsBackToTheStatusDetail) {
+  ReadResult got;
+  const BrokerStatus status = ReadOverGrpc(OutOfRangeBroker::Carry::kDetailOnly, 12, &got);
+  EXPECT_TRUE(status.out_of_range());
+  ASSERT_TRUE(status.first_retained_offset.has_value());
+  EXPECT_EQ(*status.first_retained_offset, 77u);
+}
+
+TEST(AdapterLogGrpc, OutOfRangeReadWithoutTheOffsetLeavesItUnset) {
+  ReadResult got;
+  const BrokerStatus status = ReadOverGrpc(OutOfRangeBroker::Carry::kNothing, 12, &got);
+  EXPECT_TRUE(status.out_of_range());
+  EXPECT_FALSE(status.first_retained_offset.has_value());
+}
+
+TEST(AdapterLogGrpc, ASuccessfulReadReturnsRecordsAndWhereThePartitionStands) {
+  ReadResult got;
+  const BrokerStatus status = ReadOverGrpc(OutOfRangeBroker::Carry::kMetadata, 80, &got);
+  ASSERT_TRUE(status.ok()) << status.message;
+  ASSERT_EQ(got.records.size(), 1u);
+  EXPECT_EQ(got.records[0].offset(), 80u);
+  EXPECT_EQ(got.next_offset, 81u);
+  EXPECT_EQ(got.first_retained_offset, 77u);
+  EXPECT_EQ(got.readable_end, 85u);
+  EXPECT_FALSE(got.caught_up());
+  EXPECT_EQ(*status.now_ns, 4300);
+  EXPECT_FALSE(status.first_retained_offset.has_value());
+}
+
+}  // namespace
+}  // namespace weir::adapter
