@@ -81,7 +81,7 @@ class FakeLog : public adapter::BrokerClient {
     }
     if (unavailable.count(partition) != 0) return Fail(grpc::StatusCode::UNAVAILABLE);
     const Part& p = parts.at(partition);
-    if (offset < p.first_retained) {
+    if (offset < p.first_retained || offset > p.event_times.size()) {
       BrokerStatus st = Fail(grpc::StatusCode::OUT_OF_RANGE);
       st.first_retained_offset = p.first_retained;
       return st;
@@ -266,6 +266,19 @@ TEST(LogReference, ReportsOffsetsDeletedByRetentionAsAGapAndReadsOn) {
   EXPECT_EQ(d.gaps[0].from_offset(), 20u);
   EXPECT_EQ(d.gaps[0].to_offset(), 70u);
   EXPECT_EQ(d.OffsetsOf(0), Range(70, 100));
+}
+
+TEST(LogReference, AResumePointPastTheEndWaitsForTheLogToGrow) {
+  Driver d;
+  d.log.Append(0, 0, 5);
+  // Past the end a read fails OUT_OF_RANGE naming a first retained offset
+  // below it (weir's log and the fake alike).
+  ASSERT_TRUE(d.Open({{0, 7, {}}}).ok());
+  d.RunUntil(10 * kSecond);
+  EXPECT_LT(d.log.reads, 20) << "polls, does not spin";
+  d.log.Append(0, 0, 5);
+  d.RunUntil(20 * kSecond);
+  EXPECT_EQ(d.OffsetsOf(0), Range(7, 10));
 }
 
 TEST(LogReference, SilentSkipMutantJumpsWithoutAGap) {
