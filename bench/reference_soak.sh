@@ -1,10 +1,11 @@
 #!/usr/bin/env bash
 # reference_soak.sh: the reference connector against every bundled scenario for
 # many seeds (50 each by default: the reference must pass every run, or the
-# oracle or the reference is wrong). A long check, not a ctest.
+# oracle or the reference is wrong), and the log reference against every
+# log_*.scenario. A long check, not a ctest.
 #
 # Usage: bench/reference_soak.sh [SEEDS [JOBS]]     (defaults: 50 seeds, 2 jobs)
-# Env:   WEIR, CONNECTOR, SCENARIOS (directory) override the build-tree defaults;
+# Env:   WEIR, CONNECTOR, LOG_CONNECTOR, SCENARIOS (directory) override the build-tree defaults;
 #        KEEP=1 keeps the work directory (one output file per run).
 #
 # Prints one row per scenario: runs, passed, failed, the first failing seed with
@@ -17,17 +18,19 @@ SEEDS=${1:-50}
 JOBS=${2:-2}
 WEIR=${WEIR:-$ROOT/build/harness/weir}
 CONNECTOR=${CONNECTOR:-$ROOT/build/fixtures/connectors/reference_connector}
+LOG_CONNECTOR=${LOG_CONNECTOR:-$ROOT/build/fixtures/connectors/log_reference_connector}
 SCENARIOS=${SCENARIOS:-$ROOT/fixtures/scenarios}
 WORK=$(mktemp -d)
 if [[ ${KEEP:-0} != 1 ]]; then trap 'rm -rf "$WORK"' EXIT; else echo "work directory: $WORK"; fi
-export WEIR CONNECTOR WORK
+export WEIR CONNECTOR LOG_CONNECTOR WORK
 
 # One run: its full output in WORK/NAME.SEED.out, and "NAME SEED RC WALL" on stdout.
 run_one() {
-  local scenario=$1 seed=$2 name start end rc
+  local scenario=$1 seed=$2 name start end rc connector=$CONNECTOR
   name=$(basename "$scenario" .scenario)
+  [[ $name == log_* ]] && connector=$LOG_CONNECTOR
   start=$(date +%s.%N)
-  "$WEIR" run --scenario "$scenario" --seed "$seed" --connector "$CONNECTOR" \
+  "$WEIR" run --scenario "$scenario" --seed "$seed" --connector "$connector" \
     >"$WORK/$name.$seed.out" 2>&1
   rc=$?
   end=$(date +%s.%N)

@@ -1,17 +1,21 @@
 #!/usr/bin/env bash
-# detection_matrix.sh: runs the reference connector and every mutant of the zoo
-# (fixtures/connectors/mutant_*.cc) over the bundled scenarios with a fixed
-# seed budget and prints the detection matrix: per mutant the invariant expected
-# to catch it, whether it was caught with it, the runs up to the first such
-# detection (scenario, seed) and every invariant seen failing.
+# detection_matrix.sh: runs each reference connector and every mutant of the
+# zoo (fixtures/connectors/mutant_*.cc) over the bundled scenarios of its
+# broker shape with a fixed seed budget and prints one detection matrix per
+# shape: per mutant the invariant expected to catch it, whether it was caught
+# with it, the runs up to the first such detection (scenario, seed) and every
+# invariant seen failing.
+#   queue  reference_connector, mutant_*.cc but mutant_log_*, scenarios but log_*
+#   log    log_reference_connector, mutant_log_*.cc, scenarios log_*
 #
 # Usage: scripts/detection_matrix.sh [--build DIR] [--seeds N] [--jobs N]
-#                                    [--scenarios 'GLOB'] [--keep DIR]
+#                                    [--shape queue|log|all] [--scenarios 'GLOB'] [--keep DIR]
 #   --seeds N     seeds 1..N per (connector, scenario)          (default 5)
 #   --jobs N      runs in parallel                              (default 2)
-#   --scenarios   scenario files                      (default fixtures/scenarios/*.scenario)
+#   --shape S     which matrices                                (default all)
+#   --scenarios   scenario files, each run in its shape's matrix (default fixtures/scenarios/*.scenario)
 #   --keep DIR    keep every run's output in DIR
-# Exit code: 0 when the reference passed every run and every mutant failed at
+# Exit code: 0 when each reference passed every run and every mutant failed at
 # least one run with its expected invariant among the reasons; 1 otherwise; 2 on
 # bad usage. A mutant whose expected invariant the oracle does not check yet
 # (absent from the verdict table) is shown as "pending" and does not fail.
@@ -22,6 +26,7 @@ build="$root/build"
 seeds=5
 jobs=2
 scenario_glob="$root/fixtures/scenarios/*.scenario"
+shape=all
 keep=""
 while [[ $# -gt 0 ]]; do
   case "$1" in
@@ -29,11 +34,13 @@ while [[ $# -gt 0 ]]; do
     --seeds) seeds="$2"; shift 2 ;;
     --jobs) jobs="$2"; shift 2 ;;
     --scenarios) scenario_glob="$2"; shift 2 ;;
+    --shape) shape="$2"; shift 2 ;;
     --keep) keep="$2"; shift 2 ;;
     *) echo "detection_matrix.sh: unknown argument '$1'" >&2; exit 2 ;;
   esac
 done
 [[ "$seeds" =~ ^[1-9][0-9]*$ ]] || { echo "detection_matrix.sh: --seeds needs a positive count" >&2; exit 2; }
+[[ "$shape" =~ ^(queue|log|all)$ ]] || { echo "detection_matrix.sh: --shape is queue, log or all" >&2; exit 2; }
 
 weir="$build/harness/weir"
 bin="$build/fixtures/connectors"
@@ -45,15 +52,28 @@ expected_of() {
     "$root/fixtures/connectors/$1.cc" | head -n 1
 }
 
-mutants=()
+# The connectors and scenarios of each shape.
+queue_mutants=()
+log_mutants=()
 for f in "$root"/fixtures/connectors/mutant_*.cc; do
   m="$(basename "$f" .cc)"
   [[ -x "$bin/$m" ]] || { echo "detection_matrix.sh: $bin/$m not built" >&2; exit 2; }
-  mutants+=("$m")
+  if [[ "$m" == mutant_log_* ]]; then log_mutants+=("$m"); else queue_mutants+=("$m"); fi
 done
-connectors=(reference_connector "${mutants[@]}")
+queue_scenarios=()
+log_scenarios=()
 # shellcheck disable=SC2206
-scenarios=($scenario_glob)
+for s in $scenario_glob; do
+  [[ -f "$s" ]] || continue
+  if [[ "$(basename "$s")" == log_* ]]; then log_scenarios+=("$s"); else queue_scenarios+=("$s"); fi
+done
+shapes=()
+[[ "$shape" != log && ${#queue_scenarios[@]} -gt 0 ]] && shapes+=(queue)
+[[ "$shape" != queue && ${#log_scenarios[@]} -gt 0 ]] && shapes+=(log)
+[[ ${#shapes[@]} -gt 0 ]] || { echo "detection_matrix.sh: no scenario of the chosen shape" >&2; exit 2; }
+for r in reference_connector log_reference_connector; do
+  [[ -x "$bin/$r" ]] || { echo "detection_matrix.sh: $bin/$r not built" >&2; exit 2; }
+done
 
 out="${keep:-$(mktemp -d)}"
 mkdir -p "$out"
@@ -62,13 +82,19 @@ mkdir -p "$out"
 # One job line per run: connector scenario seed (scenario-major, then seed).
 jobs_file="$out/jobs"
 : >"$jobs_file"
-for c in "${connectors[@]}"; do
-  for s in "${scenarios[@]}"; do
-    for ((n = 1; n <= seeds; n++)); do
-      echo "$c $s $n" >>"$jobs_file"
+add_jobs() {  # add_jobs SHAPE
+  local -n ms="${1}_mutants" ss="${1}_scenarios"
+  local ref=reference_connector c s n
+  [[ "$1" == log ]] && ref=log_reference_connector
+  for c in "$ref" "${ms[@]}"; do
+    for s in "${ss[@]}"; do
+      for ((n = 1; n <= seeds; n++)); do
+        echo "$c $s $n" >>"$jobs_file"
+      done
     done
   done
-done
+}
+for sh in "${shapes[@]}"; do add_jobs "$sh"; done
 
 run_one() {
   local c="$1" s="$2" n="$3"
@@ -84,79 +110,88 @@ export -f run_one
 export WEIR="$weir" BIN="$bin" OUT="$out"
 xargs -P "$jobs" -L 1 bash -c 'run_one "$@"' _ <"$jobs_file"
 
-# Invariants the oracle checks: the verdict table of the first reference run.
-first_ref="$out/reference_connector.$(basename "${scenarios[0]}" .scenario).1.out"
-known="$(awk '/^invariant +verdict/{t=1; next} t && NF==0{t=0} t{print $1}' "$first_ref" | tr '\n' ' ')"
-
 result_of() { cat "$out/$1.$(basename "$2" .scenario).$3.result"; }
 
 status=0
-total=$(( ${#scenarios[@]} * seeds ))
-ref_failures=0
-ref_failed_runs=""
-for s in "${scenarios[@]}"; do
-  for ((n = 1; n <= seeds; n++)); do
-    read -r _ _ _ rc failed <<<"$(result_of reference_connector "$s" "$n")"
-    if [[ "$rc" != 0 ]]; then
-      ref_failures=$((ref_failures + 1))
-      ref_failed_runs+="  $(basename "$s" .scenario) seed $n: exit $rc, failed: $failed"$'\n'
-    fi
-  done
-done
+# matrix SHAPE: prints the matrix of one shape; sets status=1 on a failure.
+matrix() {
+  local -n mutants="${1}_mutants" scenarios="${1}_scenarios"
+  local ref=reference_connector
+  [[ "$1" == log ]] && ref=log_reference_connector
+  # Invariants the oracle checks: the verdict table of the first reference run.
+  local first_ref="$out/$ref.$(basename "${scenarios[0]}" .scenario).1.out"
+  local known
+  known="$(awk '/^invariant +verdict/{t=1; next} t && NF==0{t=0} t{print $1}' "$first_ref" | tr '\n' ' ')"
 
-echo "detection matrix: ${#scenarios[@]} scenarios x seeds 1..$seeds = $total runs per connector"
-echo
-if [[ $ref_failures -eq 0 ]]; then
-  echo "reference_connector: passed all $total runs"
-else
-  echo "reference_connector: FAILED $ref_failures of $total runs"
-  printf '%s' "$ref_failed_runs"
-  status=1
-fi
-echo
-printf '| %-30s | %-20s | %-8s | %-50s | %s |\n' mutant expected detected "first detection (runs, scenario, seed)" "invariants seen (runs failed)"
-printf '|%s|%s|%s|%s|%s|\n' "$(printf -- '-%.0s' {1..32})" "$(printf -- '-%.0s' {1..22})" \
-  "$(printf -- '-%.0s' {1..10})" "$(printf -- '-%.0s' {1..52})" "$(printf -- '-%.0s' {1..31})"
-for m in "${mutants[@]}"; do
-  exp="$(expected_of "$m")"
-  count=0
-  first=""
-  failed_runs=0
-  declare -A seen=()
+  local total=$(( ${#scenarios[@]} * seeds ))
+  local ref_failures=0 ref_failed_runs="" s n rc failed
   for s in "${scenarios[@]}"; do
     for ((n = 1; n <= seeds; n++)); do
-      count=$((count + 1))
-      read -r _ _ _ rc failed <<<"$(result_of "$m" "$s" "$n")"
-      [[ "$rc" != 0 ]] && failed_runs=$((failed_runs + 1))
-      if [[ "$failed" != "-" ]]; then
-        IFS=',' read -ra names <<<"$failed"
-        for x in "${names[@]}"; do seen[$x]=$(( ${seen[$x]:-0} + 1 )); done
-      elif [[ "$rc" != 0 ]]; then
-        seen["exit-$rc"]=$(( ${seen["exit-$rc"]:-0} + 1 ))
-      fi
-      if [[ -z "$first" && ",$failed," == *",$exp,"* ]]; then
-        first="$count, $(basename "$s" .scenario), seed $n"
+      read -r _ _ _ rc failed <<<"$(result_of "$ref" "$s" "$n")"
+      if [[ "$rc" != 0 ]]; then
+        ref_failures=$((ref_failures + 1))
+        ref_failed_runs+="  $(basename "$s" .scenario) seed $n: exit $rc, failed: $failed"$'\n'
       fi
     done
   done
-  seen_list=""
-  for x in $(printf '%s\n' "${!seen[@]}" | sort); do seen_list+="$x (${seen[$x]}) "; done
-  if [[ -n "$first" ]]; then
-    detected=yes
-  elif [[ " $known " != *" $exp "* ]]; then
-    detected=pending
-    first="oracle does not check $exp yet"
+
+  echo "detection matrix ($1 shape): ${#scenarios[@]} scenarios x seeds 1..$seeds = $total runs per connector"
+  echo
+  if [[ $ref_failures -eq 0 ]]; then
+    echo "$ref: passed all $total runs"
   else
-    detected=NO
-    first="-"
+    echo "$ref: FAILED $ref_failures of $total runs"
+    printf '%s' "$ref_failed_runs"
     status=1
   fi
-  printf '| %-30s | %-20s | %-8s | %-50s | %s|\n' "$m" "$exp" "$detected" "$first" "${seen_list:-none }"
-  unset seen
-done
-echo
+  echo
+  [[ ${#mutants[@]} -gt 0 ]] || { echo "(no $1 mutants)"; echo; return; }
+  printf '| %-30s | %-20s | %-8s | %-50s | %s |\n' mutant expected detected "first detection (runs, scenario, seed)" "invariants seen (runs failed)"
+  printf '|%s|%s|%s|%s|%s|\n' "$(printf -- '-%.0s' {1..32})" "$(printf -- '-%.0s' {1..22})" \
+    "$(printf -- '-%.0s' {1..10})" "$(printf -- '-%.0s' {1..52})" "$(printf -- '-%.0s' {1..31})"
+  local m exp count first failed_runs seen_list detected x
+  for m in "${mutants[@]}"; do
+    exp="$(expected_of "$m")"
+    count=0
+    first=""
+    failed_runs=0
+    declare -A seen=()
+    for s in "${scenarios[@]}"; do
+      for ((n = 1; n <= seeds; n++)); do
+        count=$((count + 1))
+        read -r _ _ _ rc failed <<<"$(result_of "$m" "$s" "$n")"
+        [[ "$rc" != 0 ]] && failed_runs=$((failed_runs + 1))
+        if [[ "$failed" != "-" ]]; then
+          IFS=',' read -ra names <<<"$failed"
+          for x in "${names[@]}"; do seen[$x]=$(( ${seen[$x]:-0} + 1 )); done
+        elif [[ "$rc" != 0 ]]; then
+          seen["exit-$rc"]=$(( ${seen["exit-$rc"]:-0} + 1 ))
+        fi
+        if [[ -z "$first" && ",$failed," == *",$exp,"* ]]; then
+          first="$count, $(basename "$s" .scenario), seed $n"
+        fi
+      done
+    done
+    seen_list=""
+    for x in $(printf '%s\n' "${!seen[@]}" | sort); do seen_list+="$x (${seen[$x]}) "; done
+    if [[ -n "$first" ]]; then
+      detected=yes
+    elif [[ " $known " != *" $exp "* ]]; then
+      detected=pending
+      first="oracle does not check $exp yet"
+    else
+      detected=NO
+      first="-"
+      status=1
+    fi
+    printf '| %-30s | %-20s | %-8s | %-50s | %s|\n' "$m" "$exp" "$detected" "$first" "${seen_list:-none }"
+    unset seen
+  done
+  echo
+}
+for sh in "${shapes[@]}"; do matrix "$sh"; done
 if [[ $status -eq 0 ]]; then
-  echo "PASSED: the reference passed every run; every mutant was caught by its expected invariant (or is pending)."
+  echo "PASSED: every reference passed every run; every mutant was caught by its expected invariant (or is pending)."
 else
   echo "FAILED: see the rows above."
 fi

@@ -2,8 +2,9 @@
 # End-to-end: determinism over the bundled scenarios: the same
 # scenario, seed and connector binary must give the same trace, byte for byte.
 # Every bundled scenario × seeds 1..SEEDS runs twice with the real reference
-# connector over gRPC; both runs of each (scenario, seed) must exit 0 and print
-# the same `digest` line (SHA-256 over the trace's event lines).
+# connector of its shape over gRPC (log_*.scenario: log_reference_connector,
+# found beside REFERENCE_CONNECTOR); both runs of each (scenario, seed) must
+# exit 0 and print the same `digest` line (SHA-256 over the trace's event lines).
 #
 # Usage: determinism.sh WEIR REFERENCE_CONNECTOR SCENARIO_DIR [SEEDS [JOBS]]
 #   (defaults: 20 seeds, 2 runs at a time)
@@ -12,16 +13,18 @@
 # every 100 ms virtual, and long_idle_gaps_tide_gauges took ~25 s per run).
 set -uo pipefail
 WEIR=$1 REF=$2 SCEN=$3 SEEDS=${4:-20} JOBS=${5:-2}
+LOG_REF="$(dirname "$REF")/log_reference_connector"
 WORK=$(mktemp -d)
 trap 'rm -rf "$WORK"' EXIT
-export WEIR REF WORK
+export WEIR REF LOG_REF WORK
 
 # One run: "NAME SEED PASS RC DIGEST" on stdout, the whole output kept on failure.
 run_one() {
-  local scenario=$1 seed=$2 pass=$3 name out rc
+  local scenario=$1 seed=$2 pass=$3 name out rc connector=$REF
   name=$(basename "$scenario" .scenario)
+  [[ $name == log_* ]] && connector=$LOG_REF
   out="$WORK/$name.$seed.$pass.out"
-  "$WEIR" run --scenario "$scenario" --seed "$seed" --connector "$REF" >"$out" 2>&1
+  "$WEIR" run --scenario "$scenario" --seed "$seed" --connector "$connector" >"$out" 2>&1
   rc=$?
   echo "$name $seed $pass $rc $(awk '$1 == "digest" { print $2 }' "$out")"
 }
