@@ -48,7 +48,7 @@ bin="$build/fixtures/connectors"
 
 # Mutant -> the invariant expected to catch it (from each file's top comment).
 expected_of() {
-  sed -n 's/^\/\/ Expected to be caught by: \([a-z-]*\)\..*/\1/p' \
+  sed -n 's/^\/\/ Expected to be caught by: \([a-z-]*\).*/\1/p' \
     "$root/fixtures/connectors/$1.cc" | head -n 1
 }
 

@@ -523,17 +523,20 @@ TEST(LogReference, NeverReadsAgainBeforeAThrottlesRetryAfter) {
   EXPECT_EQ(d.OffsetsOf(0), Range(0, 10));
 }
 
-TEST(LogReference, AnUnavailablePartitionBacksOffAloneWhileOthersAreRead) {
+TEST(LogReference, AnUnavailablePartitionBacksOffWhileOthersAreReadAfterAPause) {
   Driver d;
   d.log.Append(0, 0, 10);
   d.log.Append(1, 0, 10);
   d.log.unavailable[0] = true;
   ASSERT_TRUE(d.Open({{0, 0, {}}, {1, 0, {}}}).ok());
   d.Step();
-  EXPECT_EQ(d.OffsetsOf(1), Range(0, 10));
-  const int reads_of_0 = static_cast<int>(std::count(d.log.calls.begin(), d.log.calls.end(), "Read 0@0"));
-  d.RunUntil(d.log.now_ns + 500 * kMs);  // inside the first backoff (at least 800 ms)
-  EXPECT_EQ(std::count(d.log.calls.begin(), d.log.calls.end(), "Read 0@0"), reads_of_0);
+  ASSERT_EQ(d.log.calls.back(), "Read 0@0");
+  const std::int64_t failed_at = d.log.now_ns;
+  // No Read at all sooner than the first backoff (at least 800 ms) after it.
+  d.RunUntil(failed_at + 700 * kMs);
+  EXPECT_EQ(d.log.reads, 1);
+  d.RunUntil(failed_at + 2 * kSecond);
+  EXPECT_EQ(d.OffsetsOf(1), Range(0, 10)) << "the other partition is read after the pause";
   d.log.unavailable.erase(0);
   d.RunUntil(d.log.now_ns + 10 * kSecond);
   EXPECT_EQ(d.OffsetsOf(0), Range(0, 10));
