@@ -357,6 +357,18 @@ TEST(LogReference, CommittedSavesThatCheckpointsResumePointsNeverNewerOnes) {
   EXPECT_EQ(Pairs(d.log.saves[1]), (std::vector<std::pair<std::uint32_t, std::uint64_t>>{{0, 128}}));
 }
 
+TEST(LogReference, DoesNotSaveBookmarksThatDidNotMove) {
+  Driver d;
+  d.log.Append(0, 0, 10);
+  ASSERT_TRUE(d.Open({{0, 0, {}}}).ok());
+  d.Step();
+  d.Checkpoint(1);
+  d.Committed(1);
+  d.Checkpoint(2);  // nothing new read
+  d.Committed(2);
+  EXPECT_EQ(d.log.saves.size(), 1u);
+}
+
 TEST(LogReference, BookmarkOnReadMutantSavesBeforeTheCommit) {
   LogBugs bugs;
   bugs.bookmark_on_read = true;
