@@ -44,6 +44,54 @@ class EndpointClient : public adapter::BrokerClient {
     if (rejected != nullptr) rejected->assign(rs.rejected_receipts().begin(), rs.rejected_receipts().end());
     return st;
   }
+  adapter::BrokerStatus ListPartitions(std::vector<v1::PartitionInfo>* out) override {
+    out->clear();
+    v1::ListPartitionsResponse rs;
+    adapter::BrokerStatus st = Convert(broker_.ListPartitions(v1::ListPartitionsRequest(), &rs));
+    if (st.ok()) {
+      for (auto& p : *rs.mutable_partitions()) out->push_back(std::move(p));
+    }
+    return st;
+  }
+  adapter::BrokerStatus Read(std::uint32_t partition, std::uint64_t offset,
+                             const adapter::ReadOptions& options, adapter::ReadResult* out) override {
+    out->records.clear();
+    out->next_offset = offset;
+    v1::ReadRequest rq;
+    rq.set_partition(partition);
+    rq.set_offset(offset);
+    rq.set_max_records(options.max_records);
+    rq.set_max_bytes(options.max_bytes);
+    rq.set_max_wait_ns(options.max_wait_ns);
+    v1::ReadResponse rs;
+    adapter::BrokerStatus st = Convert(broker_.Read(rq, &rs));
+    if (st.ok()) {
+      for (auto& r : *rs.mutable_records()) out->records.push_back(std::move(r));
+      out->next_offset = rs.next_offset();
+      out->first_retained_offset = rs.first_retained_offset();
+      out->readable_end = rs.readable_end();
+    }
+    return st;
+  }
+  adapter::BrokerStatus SaveBookmarks(const std::vector<adapter::Bookmark>& bookmarks) override {
+    v1::SaveBookmarksRequest rq;
+    for (const auto& b : bookmarks) {
+      v1::Bookmark* out = rq.add_bookmarks();
+      out->set_partition(b.partition);
+      out->set_next_offset(b.next_offset);
+    }
+    v1::SaveBookmarksResponse rs;
+    return Convert(broker_.SaveBookmarks(rq, &rs));
+  }
+  adapter::BrokerStatus LoadBookmarks(std::vector<adapter::Bookmark>* out) override {
+    out->clear();
+    v1::LoadBookmarksResponse rs;
+    adapter::BrokerStatus st = Convert(broker_.LoadBookmarks(v1::LoadBookmarksRequest(), &rs));
+    if (st.ok()) {
+      for (const auto& b : rs.bookmarks()) out->push_back({b.partition(), b.next_offset()});
+    }
+    return st;
+  }
 
  private:
   static adapter::BrokerStatus Convert(const CallStatus& c) {
@@ -52,6 +100,7 @@ class EndpointClient : public adapter::BrokerClient {
     st.message = c.message;
     st.now_ns = c.now;
     if (c.code == CallCode::kResourceExhausted) st.retry_after_ns = c.retry_after;
+    if (c.code == CallCode::kOutOfRange) st.first_retained_offset = c.first_retained_offset;
     return st;
   }
   BrokerEndpoint& broker_;

@@ -8,6 +8,7 @@
 
 #include <gtest/gtest.h>
 
+#include "fixtures/connectors/log_reference_source.h"
 #include "fixtures/connectors/reference_source.h"
 #include "absl/strings/str_cat.h"
 #include "harness/scenario/scenario_file.h"
@@ -69,7 +70,8 @@ TEST(InProcess, SameTraceDigestAsOverGrpc) {
 
 // Trace order is time order: every publish and lease expiry is traced before
 // whatever the runtime does later in virtual time, over every bundled
-// scenario (crashes, commit failures, latency, restarts, idle gaps).
+// scenario (crashes, commit failures, latency, restarts, idle gaps), each with
+// the reference of its shape.
 class TimeOrder : public TraceObserver {
  public:
   void OnEvent(const v1::TraceEvent& e) override {
@@ -90,11 +92,42 @@ TEST(InProcess, TraceOrderIsTimeOrderInEveryBundledScenario) {
       RunSpec spec = Spec(entry.path().filename().string(), seed);
       TimeOrder order;
       spec.observers = {&order};
-      auto out = RunInProcess(spec, Reference());
+      const bool log = entry.path().filename().string().starts_with("log_");
+      auto out = log ? RunInProcess(spec, [] { return std::make_unique<fixtures::LogReferenceSource>(); })
+                     : RunInProcess(spec, Reference());
       ASSERT_TRUE(out.ok()) << out.status();
       EXPECT_EQ(order.first_bad, "") << entry.path().filename() << " seed " << seed;
     }
   }
+}
+
+// The log shape in-process: the log reference reads, reports gaps and saves
+// bookmarks through the same simulation, with the digest of the gRPC run.
+TEST(InProcess, LogReferenceGivesTheSameDigestAsOverGrpc) {
+  for (const char* scenario :
+       {"log_steady_river_gauges.scenario", "log_retention_race_pollen_traps.scenario"}) {
+    RunSpec spec = Spec(scenario, 3);
+    auto in_process = RunInProcess(spec, [] { return std::make_unique<fixtures::LogReferenceSource>(); });
+    ASSERT_TRUE(in_process.ok()) << in_process.status();
+    for (int i = 0; i < static_cast<int>(Invariant::kCount); ++i) {
+      EXPECT_EQ(in_process->verdict.at(static_cast<Invariant>(i)).violations, 0u)
+          << scenario << ": " << InvariantName(static_cast<Invariant>(i));
+    }
+    spec.connector_argv = {BinaryDir() + "/fixtures/connectors/log_reference_connector"};
+    auto over_grpc = RunOverGrpc(spec);
+    ASSERT_TRUE(over_grpc.ok()) << over_grpc.status();
+    EXPECT_EQ(in_process->digest, over_grpc->digest) << scenario;
+    EXPECT_EQ(in_process->events, over_grpc->events) << scenario;
+  }
+}
+
+TEST(InProcess, SilentSkipIsCaughtInProcessToo) {
+  fixtures::LogBugs bugs;
+  bugs.silent_skip = true;
+  auto out = RunInProcess(Spec("log_retention_race_pollen_traps.scenario", 1),
+                          [bugs] { return std::make_unique<fixtures::LogReferenceSource>(bugs); });
+  ASSERT_TRUE(out.ok()) << out.status();
+  EXPECT_GT(out->verdict.at(Invariant::kSilentSkip).violations, 0u);
 }
 
 }  // namespace
