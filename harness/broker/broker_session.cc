@@ -108,6 +108,14 @@ void BrokerSession::TraceFailure(const char* method, const CallStatus& status,
   trace_.Commit();
 }
 
+void BrokerSession::AdvanceModel() {
+  if (log_ != nullptr) {
+    log_->AdvanceTo(now_);
+  } else {
+    queue_->AdvanceTo(now_);
+  }
+}
+
 bool BrokerSession::ShapeMatches(const char* method, bool log_call, CallStatus* status) {
   if (log_call == (log_ != nullptr)) return true;
   status->now = now_;
@@ -136,6 +144,9 @@ bool BrokerSession::Enter(const char* method, v1::Site site, CallStatus* status,
     trace_.Commit();
     return false;
   }
+  // Whatever fell due while earlier calls of this window waited (latency, a
+  // failed call) is traced before this call: trace order stays time order.
+  AdvanceModel();
   ++calls_in_window_;
   ++calls_total_;
   max_calls_in_window_ = std::max(max_calls_in_window_, calls_in_window_);
@@ -165,6 +176,7 @@ bool BrokerSession::Enter(const char* method, v1::Site site, CallStatus* status,
                                 });
   if (latency.has_value() && latency->latency_ms() > 0) {
     now_ = SaturatingAdd(now_, Millis(latency->latency_ms()));
+    AdvanceModel();  // before a throttle or transient failure is traced at the new now
   }
   status->now = now_;
 

@@ -86,6 +86,8 @@ class BrokerSession : public BrokerEndpoint {
   // False (and *status filled, a protocol error traced) when `method` belongs
   // to the other shape than this session's model.
   bool ShapeMatches(const char* method, bool log_call, CallStatus* status);
+  // Applies everything due at or before the window's now to the model.
+  void AdvanceModel();
   // The throttle decision for this call, if any (consults windows and bucket).
   bool Throttled(v1::Site site, std::uint64_t position, VirtualDuration* retry_after);
   // Takes a token if one is there; else *wait is the time until the next one.

@@ -463,7 +463,11 @@ bool RuntimeModel::DoCheckpointCycle() {
   return true;
 }
 
-bool RuntimeModel::AllCommitted() const { return broker_.Drained(store_); }
+bool RuntimeModel::AllCommitted() const {
+  // A log reader's emitted records wait in the open epoch even when retention
+  // has since deleted them from the log: the run goes on until they commit.
+  return broker_.Drained(store_) && (broker_.shape() != v1::LOG || open_epoch_.empty());
+}
 
 RunSummary RuntimeModel::Run() {
   RunSummary summary;
