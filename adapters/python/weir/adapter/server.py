@@ -15,8 +15,8 @@ import traceback
 
 import grpc
 
-from .source import (ADVANCE, CHECKPOINT, COMMITTED, OPEN, BrokerClient, BrokerStatus, Context,
-                     OpenInfo, SourceError)
+from .source import (ADVANCE, CHECKPOINT, COMMITTED, OPEN, Bookmark, BrokerClient, BrokerStatus,
+                     Context, OpenInfo, ReadResult, SourceError, SourceShape, Span)
 
 try:
     from weir.v1 import broker_pb2, broker_pb2_grpc, connector_pb2, connector_pb2_grpc
@@ -33,16 +33,48 @@ EXIT_BAD_ENVIRONMENT = 2
 
 _NOW_KEY = "weir-now-ns"
 _RETRY_AFTER_KEY = "retry-after-ms"
+_FIRST_RETAINED_OFFSET_KEY = "weir-first-retained-offset"
+# Where gRPC carries a status's details (bytes): weir puts a broker.proto
+# message there (RetryAfter, OffsetOutOfRange).
+_STATUS_DETAILS_KEY = "grpc-status-details-bin"
 _INT64_MAX = (1 << 63) - 1
+_UINT64_MAX = (1 << 64) - 1
 
 
-def _trailing_int(error, key):
+def _trailer(error, key):
     try:
         for k, v in error.trailing_metadata() or ():
             if k == key:
-                return int(v)
+                return v
     except (ValueError, TypeError):
         pass
+    return None
+
+
+def _trailing_int(error, key):
+    value = _trailer(error, key)
+    if not isinstance(value, str):
+        return None
+    try:
+        return int(value)
+    except ValueError:
+        return None
+
+
+def _first_retained_offset(error):
+    """The first retained offset of an OUT_OF_RANGE read: the trailing metadata,
+    or else the OffsetOutOfRange status detail; None when neither says."""
+    offset = _trailing_int(error, _FIRST_RETAINED_OFFSET_KEY)
+    if offset is not None and 0 <= offset <= _UINT64_MAX:
+        return offset
+    details = _trailer(error, _STATUS_DETAILS_KEY)
+    if isinstance(details, bytes) and details:
+        detail = broker_pb2.OffsetOutOfRange()
+        try:
+            detail.ParseFromString(details)
+        except Exception:  # a detail that does not parse says nothing
+            return None
+        return detail.first_retained_offset
     return None
 
 
@@ -52,6 +84,8 @@ def _failed(error):
         ms = _trailing_int(error, _RETRY_AFTER_KEY)
         if ms is not None and ms >= 0:
             status.retry_after_ns = min(ms * 1_000_000, _INT64_MAX)
+    if status.out_of_range:
+        status.first_retained_offset = _first_retained_offset(error)
     return status
 
 
@@ -101,6 +135,82 @@ class GrpcBrokerClient(BrokerClient):
             return failed, []
         return BrokerStatus(now_ns=response.now_ns), list(response.rejected_receipts)
 
+    def list_partitions(self):
+        response, failed = self._call(self._stub.ListPartitions, broker_pb2.ListPartitionsRequest())
+        if failed is not None:
+            return failed, []
+        return BrokerStatus(now_ns=response.now_ns), list(response.partitions)
+
+    def read(self, partition, offset, max_records=64, max_bytes=0, max_wait_ns=0):
+        response, failed = self._call(
+            self._stub.Read,
+            broker_pb2.ReadRequest(partition=partition, offset=offset, max_records=max_records,
+                                   max_bytes=max_bytes, max_wait_ns=max_wait_ns))
+        if failed is not None:
+            return failed, ReadResult(next_offset=offset)
+        return BrokerStatus(now_ns=response.now_ns), ReadResult(
+            response.records, response.next_offset, response.first_retained_offset,
+            response.readable_end)
+
+    def save_bookmarks(self, bookmarks):
+        request = broker_pb2.SaveBookmarksRequest()
+        for partition, next_offset in bookmarks:
+            request.bookmarks.add(partition=partition, next_offset=next_offset)
+        response, failed = self._call(self._stub.SaveBookmarks, request)
+        return failed or BrokerStatus(now_ns=response.now_ns)
+
+    def load_bookmarks(self):
+        response, failed = self._call(self._stub.LoadBookmarks, broker_pb2.LoadBookmarksRequest())
+        if failed is not None:
+            return failed, []
+        return BrokerStatus(now_ns=response.now_ns), [Bookmark(b.partition, b.next_offset)
+                                                      for b in response.bookmarks]
+
+
+def open_info_from(request):
+    """What open is told, from a weir.v1.OpenRequest."""
+    return OpenInfo(request.incarnation, request.restore, request.checkpoint_id,
+                    request.checkpoint_state, request.redelivery_horizon_ns,
+                    [Span(s.partition, s.start_offset,
+                          s.end_offset if s.HasField("end_offset") else None)
+                     for s in request.spans],
+                    request.new_partitions_held)
+
+
+def write_step(ctx, response):
+    """Writes what an advance produced (records, log records, gaps, watermark,
+    resume time or finished) into a weir.v1.AdvanceResponse."""
+    records = response.records
+    for message_id, event_time_ns, value in ctx.records:
+        records.add(message_id=message_id, event_time_ns=event_time_ns, value=value)
+    for partition, offset, event_time_ns, value in ctx.log_records:
+        records.add(partition=partition, offset=offset, event_time_ns=event_time_ns, value=value)
+    for partition, from_offset, to_offset in ctx.gaps:
+        response.gaps.add(partition=partition, from_offset=from_offset, to_offset=to_offset)
+    if ctx.watermark_ns is not None:
+        response.watermark_ns = ctx.watermark_ns
+    at = ctx.next_resume_ns()
+    if at is None:
+        response.finished = True
+    else:
+        response.resume_at_ns = at
+
+
+def write_open(source, response):
+    """Writes what open answers about the source into a weir.v1.OpenResponse:
+    its shape, left unset for a queue source (the contract reads unset as
+    QUEUE), so a queue source's answer stays what it was before the log shape."""
+    if source.shape == SourceShape.LOG:
+        response.shape = connector_pb2.LOG
+
+
+def run_checkpoint(source, checkpoint_id, ctx, response):
+    """Runs checkpoint and then resume_points, writing both into a
+    weir.v1.CheckpointResponse."""
+    response.state = source.checkpoint(checkpoint_id, ctx)
+    for partition, next_offset in source.resume_points():
+        response.resume_points.add(partition=partition, next_offset=next_offset)
+
 
 class _ConnectorService(connector_pb2_grpc.ConnectorServicer):
     """The Connector service; the lock makes the source see one call at a time."""
@@ -134,38 +244,27 @@ class _ConnectorService(connector_pb2_grpc.ConnectorServicer):
     def Open(self, request, grpc_context):
         with self._lock:
             ctx = Context(OPEN, request.now_ns, self._broker)
-            info = OpenInfo(request.incarnation, request.restore, request.checkpoint_id,
-                            request.checkpoint_state, request.redelivery_horizon_ns)
-            self._guarded("open", ctx, grpc_context, lambda: self._source.open(info, ctx))
-            return connector_pb2.OpenResponse()
+            info = open_info_from(request)
+            response = connector_pb2.OpenResponse()
+            if self._guarded("open", ctx, grpc_context, lambda: self._source.open(info, ctx)):
+                write_open(self._source, response)
+            return response
 
     def Advance(self, request, grpc_context):
         with self._lock:
             ctx = Context(ADVANCE, request.now_ns, self._broker)
             response = connector_pb2.AdvanceResponse()
-            if not self._guarded("advance", ctx, grpc_context, lambda: self._source.advance(ctx)):
-                return response
-            records = response.records
-            for message_id, event_time_ns, value in ctx.records:
-                records.add(message_id=message_id, event_time_ns=event_time_ns, value=value)
-            if ctx.watermark_ns is not None:
-                response.watermark_ns = ctx.watermark_ns
-            at = ctx.next_resume_ns()
-            if at is None:
-                response.finished = True
-            else:
-                response.resume_at_ns = at
+            if self._guarded("advance", ctx, grpc_context, lambda: self._source.advance(ctx)):
+                write_step(ctx, response)
             return response
 
     def Checkpoint(self, request, grpc_context):
         with self._lock:
             ctx = Context(CHECKPOINT, request.now_ns, self._broker)
             response = connector_pb2.CheckpointResponse()
-
-            def body():
-                response.state = self._source.checkpoint(request.checkpoint_id, ctx)
-
-            self._guarded("checkpoint", ctx, grpc_context, body)
+            self._guarded("checkpoint", ctx, grpc_context,
+                          lambda: run_checkpoint(self._source, request.checkpoint_id, ctx,
+                                                 response))
             return response
 
     def Committed(self, request, grpc_context):

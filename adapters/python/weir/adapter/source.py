@@ -15,6 +15,29 @@ Protocol (lock-step, see proto/weir/v1/connector.proto):
               The only moment from which acks for those records are allowed.
               Sent at most once and never retried.
 
+Two shapes of broker (Source.shape, fixed by the scenario; docs/log-mode.md):
+  queue  (the default) pull hands out messages with receipts; a record names
+         its message (Context.emit); an ack after the commit notice removes it.
+  log    partitions, each an append-only sequence of records at offsets
+         0, 1, 2, ...; retention deletes the oldest. The log protocol:
+    open        info.spans are the partitions this reader holds, each from its
+                resume point (the restored checkpoint's, or the span's first
+                offset); with info.new_partitions_held, partitions that appear
+                later (broker.list_partitions) are held too, from offset 0.
+    advance     read each held partition from its next offset; emit one record
+                per log record (Context.emit_log_record: partition and offset);
+                a read below the first retained offset fails OUT_OF_RANGE with
+                status.first_retained_offset: the skipped offsets must be
+                reported (Context.report_gap) before reading on from there.
+    checkpoint  the host then asks Source.resume_points(), in the same call:
+                the next offset to read of every held partition after every
+                record emitted so far. open hands them back as the spans' start
+                offsets on restore.
+    committed   the only moment from which broker.save_bookmarks may store
+                checkpoint N's resume points (never anything newer): a bookmark
+                ahead of the committed resume point is the log twin of an ack
+                before the commit.
+
 Time: Context.now is the virtual now. It starts at the call's now and moves
 forward as broker answers arrive. Source code must never read a wall clock and
 must draw any randomness from a generator seeded deterministically (e.g. from
@@ -34,7 +57,34 @@ Example:
             ctx.resume_at(ctx.now + 100_000_000)
         ...
     serve_forever(Scans())
+
+Example (log shape; retries, idleness and bookmarks left out, see
+fixtures/connectors/python/log_reference_source.py for a complete reader):
+    class Buoys(Source):
+        shape = SourceShape.LOG
+
+        def open(self, info, ctx):
+            self.next = {span.partition: span.start_offset for span in info.spans}
+
+        def advance(self, ctx):
+            for partition, offset in sorted(self.next.items()):
+                status, got = ctx.broker.read(partition, offset)
+                if status.out_of_range and status.first_retained_offset is not None:
+                    ctx.report_gap(partition, offset, status.first_retained_offset)
+                    self.next[partition] = status.first_retained_offset
+                if not status.ok:
+                    continue
+                for r in got.records:
+                    ctx.emit_log_record(partition, r.offset, r.event_time_ns, r.payload)
+                self.next[partition] = got.next_offset
+
+        def resume_points(self):
+            return [ResumePoint(p, n) for p, n in sorted(self.next.items())]
+        ...
 """
+
+import enum
+from typing import NamedTuple, Optional
 
 import grpc
 
@@ -57,15 +107,22 @@ class BrokerStatus:
     retry_after_ns: RESOURCE_EXHAUSTED only: the broker's retry-after hint
       (trailing metadata "retry-after-ms"), in ns. The throttled method must not
       be called again before now + retry_after_ns; other methods may.
+    first_retained_offset: OUT_OF_RANGE only (log shape, a read below the first
+      retained offset): the partition's first retained offset (trailing
+      metadata "weir-first-retained-offset", or the OffsetOutOfRange status
+      detail). Every offset below it is gone: report the skipped ones with
+      Context.report_gap. None when the broker did not say.
     """
 
-    __slots__ = ("code", "message", "now_ns", "retry_after_ns")
+    __slots__ = ("code", "message", "now_ns", "retry_after_ns", "first_retained_offset")
 
-    def __init__(self, code=grpc.StatusCode.OK, message="", now_ns=None, retry_after_ns=None):
+    def __init__(self, code=grpc.StatusCode.OK, message="", now_ns=None, retry_after_ns=None,
+                 first_retained_offset=None):
         self.code = code
         self.message = message
         self.now_ns = now_ns
         self.retry_after_ns = retry_after_ns
+        self.first_retained_offset = first_retained_offset
 
     @property
     def ok(self):
@@ -75,9 +132,80 @@ class BrokerStatus:
     def throttled(self):
         return self.code == grpc.StatusCode.RESOURCE_EXHAUSTED
 
+    @property
+    def transient(self):
+        """A transient failure worth retrying after a backoff."""
+        return self.code in (grpc.StatusCode.UNAVAILABLE, grpc.StatusCode.DEADLINE_EXCEEDED)
+
+    @property
+    def out_of_range(self):
+        return self.code == grpc.StatusCode.OUT_OF_RANGE
+
     def __repr__(self):
         return (f"BrokerStatus({self.code.name}, {self.message!r}, now_ns={self.now_ns}, "
-                f"retry_after_ns={self.retry_after_ns})")
+                f"retry_after_ns={self.retry_after_ns}, "
+                f"first_retained_offset={self.first_retained_offset})")
+
+
+class PartitionOffset(NamedTuple):
+    """Log shape: a partition and the next offset to read there. The same pair
+    is a resume point (in a checkpoint) and a bookmark (stored at the broker)."""
+    partition: int
+    next_offset: int
+
+
+ResumePoint = PartitionOffset
+Bookmark = PartitionOffset
+
+
+class Span(NamedTuple):
+    """Log shape: a partition and a range of its offsets held by the reader:
+    [start_offset, end_offset), or open ended (a live log) when end_offset is None."""
+    partition: int
+    start_offset: int
+    end_offset: Optional[int] = None
+
+
+class ReadResult:
+    """Log shape: what one read returned.
+
+    records: weir.v1.LogRecord messages in offset order, consecutive, from the
+      requested offset (empty on error).
+    next_offset: the offset after the last record returned (the requested
+      offset if none).
+    first_retained_offset: the partition's oldest offset still held.
+    readable_end: the end of what is readable now.
+    """
+
+    __slots__ = ("records", "next_offset", "first_retained_offset", "readable_end")
+
+    def __init__(self, records=(), next_offset=0, first_retained_offset=0, readable_end=0):
+        self.records = list(records)
+        self.next_offset = next_offset
+        self.first_retained_offset = first_retained_offset
+        self.readable_end = readable_end
+
+    @property
+    def caught_up(self):
+        """Nothing more is readable now: next_offset == readable_end."""
+        return self.next_offset >= self.readable_end
+
+    def __repr__(self):
+        return (f"ReadResult({len(self.records)} records, next_offset={self.next_offset}, "
+                f"first_retained_offset={self.first_retained_offset}, "
+                f"readable_end={self.readable_end})")
+
+
+class SourceShape(enum.IntEnum):
+    """Which shape of broker a source reads (the values of weir.v1.SourceShape);
+    it must be the scenario's."""
+    QUEUE = 1
+    LOG = 2
+
+
+def _unimplemented(method):
+    return BrokerStatus(grpc.StatusCode.UNIMPLEMENTED,
+                        f"{method} is not implemented by this broker client (log shape)")
 
 
 class BrokerClient:
@@ -91,6 +219,22 @@ class BrokerClient:
     nack(receipts) -> BrokerStatus: makes those messages deliverable again.
     extend_lease(receipts, extension_ns) -> (BrokerStatus, [rejected receipts]):
       moves their lease deadline to now + extension_ns.
+
+    Log shape (the defaults answer UNIMPLEMENTED, so a queue-only client need
+    not define them):
+    list_partitions() -> (BrokerStatus, [weir.v1.PartitionInfo]): every
+      partition, its first retained offset and the offset its next appended
+      record will get; an empty list on error.
+    read(partition, offset, max_records=64, max_bytes=0, max_wait_ns=0)
+      -> (BrokerStatus, ReadResult): records of `partition` from `offset` on
+      (max_bytes 0: no byte bound; max_wait_ns > 0: a long poll at the readable
+      end, in virtual time). On error the result has no records and
+      next_offset == offset. OUT_OF_RANGE: `offset` is below the first retained
+      offset, which the status carries.
+    save_bookmarks([Bookmark]) -> BrokerStatus: stores them at the broker. Only
+      resume points of a committed checkpoint may be saved.
+    load_bookmarks() -> (BrokerStatus, [Bookmark]): the bookmarks stored so
+      far (never-bookmarked partitions are left out).
     """
 
     def pull(self, max_messages):
@@ -105,6 +249,18 @@ class BrokerClient:
     def extend_lease(self, receipts, extension_ns):
         raise NotImplementedError
 
+    def list_partitions(self):
+        return _unimplemented("list_partitions"), []
+
+    def read(self, partition, offset, max_records=64, max_bytes=0, max_wait_ns=0):
+        return _unimplemented("read"), ReadResult(next_offset=offset)
+
+    def save_bookmarks(self, bookmarks):
+        return _unimplemented("save_bookmarks")
+
+    def load_bookmarks(self):
+        return _unimplemented("load_bookmarks"), []
+
 
 class OpenInfo:
     """What open is told.
@@ -115,18 +271,24 @@ class OpenInfo:
     redelivery_horizon_ns: the broker redelivers an acked message no later than
       this long after the ack, so dedup memory of acked messages may be dropped
       after it.
+    spans: log shape: the spans (Span) this reader holds, each from its resume
+      point.
+    new_partitions_held: log shape: partitions that appear after open are held
+      too, from offset 0.
     """
 
     __slots__ = ("incarnation", "restore", "checkpoint_id", "checkpoint_state",
-                 "redelivery_horizon_ns")
+                 "redelivery_horizon_ns", "spans", "new_partitions_held")
 
     def __init__(self, incarnation=0, restore=False, checkpoint_id=0, checkpoint_state=b"",
-                 redelivery_horizon_ns=0):
+                 redelivery_horizon_ns=0, spans=(), new_partitions_held=False):
         self.incarnation = incarnation
         self.restore = restore
         self.checkpoint_id = checkpoint_id
         self.checkpoint_state = checkpoint_state
         self.redelivery_horizon_ns = redelivery_horizon_ns
+        self.spans = list(spans)
+        self.new_partitions_held = new_partitions_held
 
 
 class SourceError(Exception):
@@ -142,7 +304,12 @@ class SourceError(Exception):
 class Source:
     """A source connector. The host calls open first (again on every new
     incarnation: open must reset all state), then any sequence of advance,
-    checkpoint and committed, one at a time."""
+    checkpoint and committed, one at a time.
+
+    shape: the shape of broker this source reads; a log reader sets
+    `shape = SourceShape.LOG` in its class body."""
+
+    shape = SourceShape.QUEUE
 
     def open(self, info, ctx):
         """Starts an incarnation. Raise SourceError if it cannot start; with
@@ -162,6 +329,13 @@ class Source:
         """Commit notice: checkpoint `checkpoint_id` and every epoch before it are
         durable. Acks for their messages are allowed from now on."""
         raise NotImplementedError
+
+    def resume_points(self):
+        """Log shape: called right after checkpoint returned, in the same
+        connector call: the ResumePoint of every partition the reader holds (the
+        next offset to read after every record emitted so far). Default: none
+        (queue shape)."""
+        return []
 
 
 OPEN, ADVANCE, CHECKPOINT, COMMITTED = "open", "advance", "checkpoint", "committed"
@@ -195,13 +369,29 @@ class _ClockedBroker(BrokerClient):
         status, rejected = self._inner.extend_lease(receipts, extension_ns)
         return self._observe(status), rejected
 
+    def list_partitions(self):
+        status, partitions = self._inner.list_partitions()
+        return self._observe(status), partitions
+
+    def read(self, partition, offset, max_records=64, max_bytes=0, max_wait_ns=0):
+        status, result = self._inner.read(partition, offset, max_records, max_bytes, max_wait_ns)
+        return self._observe(status), result
+
+    def save_bookmarks(self, bookmarks):
+        return self._observe(self._inner.save_bookmarks(bookmarks))
+
+    def load_bookmarks(self):
+        status, bookmarks = self._inner.load_bookmarks()
+        return self._observe(status), bookmarks
+
 
 class Context:
     """Given to every Source call. Collects what an advance produces and keeps
     the virtual now.
 
     Invariants: now never decreases; the step-shaping methods (emit,
-    set_watermark, resume_at, finish) are valid only in an advance call —
+    emit_log_record, report_gap, set_watermark, resume_at, finish) are valid
+    only in an advance call —
     elsewhere they are ignored and recorded as misuse, which the host turns into
     a failed call (FAILED_PRECONDITION) so the mistake surfaces as a protocol
     error.
@@ -214,6 +404,8 @@ class Context:
         self._now_ns = now_ns
         self.broker = _ClockedBroker(broker, self)
         self.records = []  # (message_id, event_time_ns, value) in emission order
+        self.log_records = []  # (partition, offset, event_time_ns, value) in emission order
+        self.gaps = []  # (partition, from_offset, to_offset) in report order
         self.watermark_ns = None
         self.resume_at_ns = None
         self.finished = False
@@ -236,6 +428,20 @@ class Context:
         """Advance only. Adds a record produced from message `message_id`."""
         if self._allowed_here("emit"):
             self.records.append((message_id, event_time_ns, value))
+
+    def emit_log_record(self, partition, offset, event_time_ns, value=b""):
+        """Advance only, log shape. Adds a record produced from the log record
+        at (partition, offset)."""
+        if self._allowed_here("emit_log_record"):
+            self.log_records.append((partition, offset, event_time_ns, value))
+
+    def report_gap(self, partition, from_offset, to_offset):
+        """Advance only, log shape. Offsets [from_offset, to_offset) of
+        `partition` will never be emitted: retention deleted them before they
+        could be read. A reader that skips offsets must say so; skipping
+        silently is a violation."""
+        if self._allowed_here("report_gap"):
+            self.gaps.append((partition, from_offset, to_offset))
 
     def set_watermark(self, watermark_ns):
         """Advance only. The watermark after this step's records; the last call
