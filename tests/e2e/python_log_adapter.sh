@@ -90,7 +90,7 @@ mutant resume_before_checkpoint log_steady_river_gauges 1 resume-exact
 mutant global_resume_point log_steady_river_gauges 1 offset-gap
 mutant fastest_partition_watermark log_hot_partition_rail_axle_counters 1 late-record
 mutant idle_partition_stalls log_idle_partitions_snow_pillows 1 watermark-stall
-mutant silent_skip log_retention_race_snow_stakes 1 silent-skip
+mutant silent_skip log_retention_race_pollen_traps 1 silent-skip
 mutant ignore_new_partitions log_partition_growth_wind_turbines 1 new-partition
 
 else
