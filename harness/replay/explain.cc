@@ -278,7 +278,10 @@ absl::StatusOr<ExplainOutput> ExplainTrace(const std::string& path, const Explai
         for (Section& s : sections) {
           const bool proving = s.proving.contains(e.seq());
           const std::uint64_t m = MessageOf(e);
-          const bool about = proving || (m != 0 && s.messages.contains(m));
+          // A message's few events are all worth showing; a partition's many
+          // only near the proving events.
+          const bool about = proving || (m != 0 && s.messages.contains(m) &&
+                                         (!IsLogKey(m) || s.InWindow(e.seq())));
           bool show = about;
           if (!show && s.InWindow(e.seq())) {
             show = IsStructural(e) || moved || (s.broker_calls && e.has_broker_call());

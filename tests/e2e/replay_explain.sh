@@ -31,6 +31,14 @@ runs=(
   "mutant_no_watermark_restore commit_failures_cold_chain 1 watermark-regression"
   "mutant_receipt_as_message_id broker_restart_greenhouse 1 protocol-error"
   "mutant_tight_retry_loop flaky_acks_orchard_sensors 1 retry-storm"
+  "mutant_log_bookmark_on_read log_bookmark_crash_storm_seismographs 1 position-before-commit"
+  "mutant_log_fastest_partition_watermark log_hot_partition_rail_axle_counters 1 late-record"
+  "mutant_log_global_resume_point log_bookmark_crash_storm_seismographs 1 offset-gap"
+  "mutant_log_idle_partition_stalls log_idle_partitions_snow_pillows 1 watermark-stall"
+  "mutant_log_ignore_new_partitions log_partition_growth_wind_turbines 1 new-partition"
+  "mutant_log_resume_after_checkpoint log_bookmark_crash_storm_seismographs 1 resume-exact"
+  "mutant_log_resume_before_checkpoint log_bookmark_crash_storm_seismographs 1 resume-exact"
+  "mutant_log_silent_skip log_retention_race_pollen_traps 1 silent-skip"
 )
 # Every mutant of the zoo but the wall-clock one is in the list.
 for f in "$bin"/mutant_*; do
