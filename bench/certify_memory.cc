@@ -27,6 +27,7 @@
 
 #include "absl/strings/str_cat.h"
 #include "fixtures/connectors/reference_source.h"
+#include "bench/bench_support.h"
 #include "harness/edge/private_dir.h"
 #include "harness/inprocess/in_process_port.h"
 #include "harness/report/html_timeline.h"
@@ -50,15 +51,6 @@ faults { crash_rate: 0.02 }
 profile { guarantee: EXACTLY_ONCE }
 )";
 
-// Peak resident set size of this process, in KiB (from /proc/self/status).
-long PeakRssKib() {
-  std::ifstream in("/proc/self/status");
-  std::string line;
-  while (std::getline(in, line)) {
-    if (line.rfind("VmHWM:", 0) == 0) return std::atol(line.c_str() + 6);
-  }
-  return -1;
-}
 
 }  // namespace
 
@@ -116,7 +108,7 @@ int main(int argc, char** argv) {
   std::vector<std::pair<std::uint64_t, long>> seen;
   options.progress = [&](const CertifyOptions::Progress& p, const v1::RunRecord&) {
     while (next_mark < marks.size() && p.done >= marks[next_mark]) {
-      seen.emplace_back(p.done, PeakRssKib());
+      seen.emplace_back(p.done, bench::StatusKb("VmHWM"));
       std::printf("after %6llu runs (%llu failed): peak RSS %6ld KiB\n", static_cast<unsigned long long>(p.done),
                   static_cast<unsigned long long>(p.failed), seen.back().second);
       std::fflush(stdout);
@@ -125,7 +117,7 @@ int main(int argc, char** argv) {
   };
   std::printf("certify in-process, %llu runs of %s, --jobs %u, first-failure traces kept; start: peak RSS %ld KiB\n",
               static_cast<unsigned long long>(runs), failing ? "the ack-on-pull mutant" : "the reference source",
-              jobs, PeakRssKib());
+              jobs, bench::StatusKb("VmHWM"));
   auto result = Certify(*suite, options);
   if (!result.ok()) {
     std::fprintf(stderr, "%s\n", std::string(result.status().message()).c_str());
@@ -162,7 +154,7 @@ int main(int argc, char** argv) {
     }
     std::ifstream in(path, std::ios::binary | std::ios::ate);
     std::printf("after the %s (%lld B written): peak RSS %ld KiB\n", what, static_cast<long long>(in.tellg()),
-                PeakRssKib());
+                bench::StatusKb("VmHWM"));
   };
   write("JSON report", "report.json", [&](TextOut out) {
     auto reader = result->runs->Read();
@@ -181,7 +173,7 @@ int main(int argc, char** argv) {
     return absl::OkStatus();
   });
   std::printf("first-failure traces kept: %zu (one per failed invariant)\n", kept.size());
-  const long end = PeakRssKib();
+  const long end = bench::StatusKb("VmHWM");
   std::printf("peak RSS with every report written: %ld KiB\n", end);
   if (seen.size() >= 2 && seen.back().first > seen.front().first) {
     const double per_run = static_cast<double>(seen.back().second - seen.front().second) * 1024.0 /

@@ -24,27 +24,13 @@
 #include <string>
 #include <vector>
 
+#include "bench/bench_support.h"
 #include "harness/oracle/oracle.h"
 
 namespace weir {
 namespace {
 
 using v1::TraceEvent;
-
-long VmHwmKb() {
-  std::ifstream in("/proc/self/status");
-  std::string line;
-  while (std::getline(in, line)) {
-    if (line.rfind("VmHWM:", 0) == 0) return std::strtol(line.c_str() + 6, nullptr, 10);
-  }
-  return -1;
-}
-
-class NoOp : public TraceObserver {
- public:
-  void OnEvent(const TraceEvent& e) override { sum_ += e.seq(); }
-  std::uint64_t sum_ = 0;
-};
 
 constexpr std::uint64_t kBatch = 16;          // records per read
 constexpr std::uint64_t kStepsPerEpoch = 64;
@@ -176,7 +162,7 @@ int Main(int argc, char** argv) {
   }
   using Clock = std::chrono::steady_clock;
 
-  NoOp noop;
+  bench::NoOpObserver noop;
   auto t0 = Clock::now();
   const std::uint64_t events = Generate(offsets, partitions, &noop, [](std::uint64_t) {});
   const double gen_s = std::chrono::duration<double>(Clock::now() - t0).count();
@@ -190,7 +176,7 @@ int Main(int argc, char** argv) {
   t0 = Clock::now();
   Generate(offsets, partitions, &oracle, [&](std::uint64_t n) {
     for (std::uint64_t m : at) {
-      if (n == m) marks.emplace_back(n, VmHwmKb());
+      if (n == m) marks.emplace_back(n, bench::StatusKb("VmHWM"));
     }
   });
   const Verdict v = oracle.Finish();
@@ -209,7 +195,7 @@ int Main(int argc, char** argv) {
   for (const auto& [n, kb] : marks) {
     std::printf("VmHWM after %5.1fM offsets: %ld kB\n", static_cast<double>(n) / 1e6, kb);
   }
-  std::printf("VmHWM at end:               %ld kB\n", VmHwmKb());
+  std::printf("VmHWM at end:               %ld kB\n", bench::StatusKb("VmHWM"));
   std::printf("verdict: passed=%d duplicate_records=%llu deleted_unread=%llu\n", v.passed(),
               static_cast<unsigned long long>(v.duplicate_records),
               static_cast<unsigned long long>(v.deleted_unread));

@@ -26,27 +26,13 @@
 #include <string>
 #include <vector>
 
+#include "bench/bench_support.h"
 #include "harness/oracle/oracle.h"
 
 namespace weir {
 namespace {
 
 using v1::TraceEvent;
-
-long VmHwmKb() {
-  std::ifstream in("/proc/self/status");
-  std::string line;
-  while (std::getline(in, line)) {
-    if (line.rfind("VmHWM:", 0) == 0) return std::strtol(line.c_str() + 6, nullptr, 10);
-  }
-  return -1;
-}
-
-class NoOp : public TraceObserver {
- public:
-  void OnEvent(const TraceEvent& e) override { sum_ += e.seq(); }
-  std::uint64_t sum_ = 0;
-};
 
 constexpr std::uint64_t kPerStep = 4;         // messages published and pulled per step
 constexpr std::uint64_t kStepsPerEpoch = 16;  // steps between checkpoints
@@ -171,7 +157,7 @@ int Main(int argc, char** argv) {
   const std::uint64_t target = argc > 1 ? std::strtoull(argv[1], nullptr, 10) : 10'000'000;
 
   // Pass 1: generation alone.
-  NoOp noop;
+  bench::NoOpObserver noop;
   auto t0 = std::chrono::steady_clock::now();
   const std::uint64_t n_gen = Generate(target, &noop, [](std::uint64_t) {});
   auto t1 = std::chrono::steady_clock::now();
@@ -190,7 +176,7 @@ int Main(int argc, char** argv) {
   auto t2 = std::chrono::steady_clock::now();
   const std::uint64_t n = Generate(target, &oracle, [&](std::uint64_t seq) {
     if (next_mark < std::size(marks) && seq == marks[next_mark]) {
-      hwm.emplace_back(seq, VmHwmKb());
+      hwm.emplace_back(seq, bench::StatusKb("VmHWM"));
       ++next_mark;
     }
   });
@@ -201,7 +187,7 @@ int Main(int argc, char** argv) {
 
   std::printf("events: %llu (generation pass %llu, checksum %llu)\n",
               static_cast<unsigned long long>(n), static_cast<unsigned long long>(n_gen),
-              static_cast<unsigned long long>(noop.sum_ % 1000));
+              static_cast<unsigned long long>(noop.sum % 1000));
   std::printf("generation only:   %.3f s  (%.2f M events/s)\n", gen_s, n / gen_s / 1e6);
   std::printf("generation+oracle: %.3f s  (raw %.2f M events/s)\n", total_s, n / total_s / 1e6);
   std::printf("oracle only:       %.3f s  (%.2f M events/s)\n", oracle_s,
@@ -209,7 +195,7 @@ int Main(int argc, char** argv) {
   for (const auto& [at, kb] : hwm) {
     std::printf("VmHWM after %5.1fM events: %ld kB\n", at / 1e6, kb);
   }
-  std::printf("VmHWM at end:               %ld kB\n", VmHwmKb());
+  std::printf("VmHWM at end:               %ld kB\n", bench::StatusKb("VmHWM"));
   std::printf("verdict: passed=%d duplicate_records=%llu late_records=%llu\n", v.passed(),
               static_cast<unsigned long long>(v.duplicate_records),
               static_cast<unsigned long long>(v.late_records));

@@ -19,6 +19,7 @@
 #include <string>
 #include <vector>
 
+#include "bench/bench_support.h"
 #include "harness/edge/grpc_run.h"
 #include "harness/oracle/verdict.h"
 #include "harness/scenario/scenario_file.h"
@@ -26,16 +27,6 @@
 
 namespace weir {
 namespace {
-
-long StatusKb(const char* field) {
-  std::ifstream in("/proc/self/status");
-  std::string line;
-  const std::string prefix = std::string(field) + ":";
-  while (std::getline(in, line)) {
-    if (line.rfind(prefix, 0) == 0) return std::strtol(line.c_str() + prefix.size(), nullptr, 10);
-  }
-  return -1;
-}
 
 // Prints memory figures as the count of published messages crosses each
 // milestone, with the largest number of messages published and not yet
@@ -58,8 +49,8 @@ class Milestones : public TraceObserver {
     std::printf("%10llu %-9s %10llu events  max unacked %7llu  VmHWM %7ld kB  VmRSS %7ld kB\n",
                 static_cast<unsigned long long>(count), what,
                 static_cast<unsigned long long>(events),
-                static_cast<unsigned long long>(max_backlog_), StatusKb("VmHWM"),
-                StatusKb("VmRSS"));
+                static_cast<unsigned long long>(max_backlog_), bench::StatusKb("VmHWM"),
+                bench::StatusKb("VmRSS"));
     std::fflush(stdout);
   }
   bool all_reached() const { return next_ == at_.size(); }
