@@ -69,6 +69,17 @@ class ConnectorPort {
                                                    v1::CommittedResponse* response,
                                                    BrokerEndpoint& broker) = 0;
 
+  // Many readers (log shape): Assign, Revoke and Cut of the Connector service.
+  // A port that cannot carry them answers kCallFailed.
+  [[nodiscard]] virtual ConnectorFailure Assign(const v1::AssignRequest& request,
+                                                v1::AssignResponse* response,
+                                                BrokerEndpoint& broker);
+  [[nodiscard]] virtual ConnectorFailure Revoke(const v1::RevokeRequest& request,
+                                                v1::RevokeResponse* response,
+                                                BrokerEndpoint& broker);
+  [[nodiscard]] virtual ConnectorFailure Cut(const v1::CutRequest& request,
+                                             v1::CutResponse* response, BrokerEndpoint& broker);
+
   // Ends the live incarnation at once (SIGKILL to its process group, then
   // reaped, for the gRPC edge). Idempotent; safe when none is alive.
   virtual void Kill() = 0;

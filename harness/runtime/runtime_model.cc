@@ -40,6 +40,25 @@ const char* FailureKindName(ConnectorFailure::Kind kind) {
   return "unknown";
 }
 
+namespace {
+ConnectorFailure NotCarried(const char* call) {
+  ConnectorFailure f;
+  f.kind = ConnectorFailure::Kind::kCallFailed;
+  f.detail = std::string(call) + " is not carried by this connector port (several readers need it)";
+  return f;
+}
+}  // namespace
+
+ConnectorFailure ConnectorPort::Assign(const v1::AssignRequest&, v1::AssignResponse*, BrokerEndpoint&) {
+  return NotCarried("Assign");
+}
+ConnectorFailure ConnectorPort::Revoke(const v1::RevokeRequest&, v1::RevokeResponse*, BrokerEndpoint&) {
+  return NotCarried("Revoke");
+}
+ConnectorFailure ConnectorPort::Cut(const v1::CutRequest&, v1::CutResponse*, BrokerEndpoint&) {
+  return NotCarried("Cut");
+}
+
 RuntimeModel::RuntimeModel(const v1::Scenario& scenario, BrokerModel& broker,
                            BrokerSession& session, ConnectorPort& port, TraceLog& trace,
                            FaultSource& faults)
