@@ -71,6 +71,8 @@ class BrokerModel {
 
   // Log shape: partitions 0 .. partition_count() - 1 exist now (queue: 0).
   virtual std::uint32_t partition_count() const { return 0; }
+  // Log shape: the next offset partition p will append (0 in the queue shape).
+  virtual std::uint64_t partition_end(std::uint32_t /*p*/) const { return 0; }
 
   // A new incarnation starts: it has read nothing yet.
   virtual void OnIncarnationStart() {}

@@ -82,6 +82,19 @@ std::string DescribeDecision(const v1::FaultDecision& d) {
       }
       return s;
     }
+    case v1::FaultDecision::kCut: {
+      std::string s = absl::StrCat(at, "cut partition ", d.cut().partition(), " at ", d.cut().at_ppm() / 10000.0,
+                                   " % of the rest, tail to reader ", d.cut().to_reader());
+      if (d.cut().crash() != v1::CRASH_POINT_UNSPECIFIED) {
+        absl::StrAppend(&s, ", crash ", v1::CrashPoint_Name(d.cut().crash()));
+      }
+      return s;
+    }
+    case v1::FaultDecision::kMove:
+      return absl::StrCat(at, "move partition ", d.move().partition(), " from reader ", d.move().from_reader(),
+                          " to reader ", d.move().to_reader(), d.move().crash_in_revoke() ? ", crash IN_REVOKE" : "");
+    case v1::FaultDecision::kMembership:
+      return absl::StrCat(at, "reader ", d.membership().reader(), d.membership().joins() ? " joins" : " leaves");
     case v1::FaultDecision::FAULT_NOT_SET: break;
   }
   return at + "no fault";

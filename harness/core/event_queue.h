@@ -1,8 +1,8 @@
 // File: event_queue.h
 //
-// The discrete-event queue of a run: events ordered by virtual time, and events
-// at the same time in the order they were pushed (FIFO), so a run never depends
-// on heap layout.
+// The discrete-event queue of a run: events ordered by virtual time, then by
+// rank (lower first; 0 unless given), then in the order they were pushed
+// (FIFO), so a run never depends on heap layout.
 //
 // Example:
 //   EventQueue<Kind> q;
@@ -29,8 +29,8 @@ class EventQueue {
     Payload payload;
   };
 
-  void Push(VirtualTime time, Payload payload) {
-    heap_.push(Item{time, next_seq_++, std::move(payload)});
+  void Push(VirtualTime time, Payload payload, std::uint64_t rank = 0) {
+    heap_.push(Item{time, rank, next_seq_++, std::move(payload)});
   }
   bool empty() const { return heap_.empty(); }
   std::size_t size() const { return heap_.size(); }
@@ -47,12 +47,14 @@ class EventQueue {
  private:
   struct Item {
     VirtualTime time;
+    std::uint64_t rank;
     std::uint64_t seq;
     Payload payload;
   };
   struct Later {
     bool operator()(const Item& a, const Item& b) const {
       if (a.time != b.time) return a.time > b.time;
+      if (a.rank != b.rank) return a.rank > b.rank;
       return a.seq > b.seq;
     }
   };

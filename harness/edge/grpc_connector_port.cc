@@ -251,4 +251,19 @@ ConnectorFailure GrpcConnectorPort::Committed(const v1::CommittedRequest& reques
   return Invoke("Committed", request, response, broker);
 }
 
+ConnectorFailure GrpcConnectorPort::Assign(const v1::AssignRequest& request,
+                                           v1::AssignResponse* response, BrokerEndpoint& broker) {
+  return Invoke("Assign", request, response, broker);
+}
+
+ConnectorFailure GrpcConnectorPort::Revoke(const v1::RevokeRequest& request,
+                                           v1::RevokeResponse* response, BrokerEndpoint& broker) {
+  return Invoke("Revoke", request, response, broker);
+}
+
+ConnectorFailure GrpcConnectorPort::Cut(const v1::CutRequest& request, v1::CutResponse* response,
+                                        BrokerEndpoint& broker) {
+  return Invoke("Cut", request, response, broker);
+}
+
 }  // namespace weir

@@ -66,6 +66,12 @@ class GrpcConnectorPort : public ConnectorPort {
                               v1::CheckpointResponse* response, BrokerEndpoint& broker) override;
   ConnectorFailure Committed(const v1::CommittedRequest& request, v1::CommittedResponse* response,
                              BrokerEndpoint& broker) override;
+  ConnectorFailure Assign(const v1::AssignRequest& request, v1::AssignResponse* response,
+                          BrokerEndpoint& broker) override;
+  ConnectorFailure Revoke(const v1::RevokeRequest& request, v1::RevokeResponse* response,
+                          BrokerEndpoint& broker) override;
+  ConnectorFailure Cut(const v1::CutRequest& request, v1::CutResponse* response,
+                       BrokerEndpoint& broker) override;
   void Kill() override;
 
  private:

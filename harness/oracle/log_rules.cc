@@ -21,40 +21,73 @@ std::string Range(std::uint64_t from, std::uint64_t to) {
                         : absl::StrCat("offsets [", from, ", ", to, ")");
 }
 
+std::string SpanText(std::uint32_t p, std::uint64_t start, std::optional<std::uint64_t> end) {
+  return absl::StrCat("partition ", p, " [", start, ", ",
+                      end.has_value() ? absl::StrCat(*end) : std::string("open"), ")");
+}
+
+std::optional<std::uint64_t> EndOf(const v1::SpanHeld& s) {
+  return s.has_end_offset() ? std::optional<std::uint64_t>(s.end_offset()) : std::nullopt;
+}
+
 }  // namespace
 
-LogRules::LogRules(const v1::Profile& profile, Verdict& verdict, ReportFn report)
+LogRules::LogRules(const v1::Profile& profile, Verdict& verdict, ReportFn report, std::uint32_t readers)
     : exactly_once_(profile.guarantee() == v1::Profile::EXACTLY_ONCE),
       gaps_allowed_(profile.gaps_allowed()),
       idle_timeout_(ClaimsWatermark(profile) ? Millis(profile.idle_timeout_ms()) : 0),
       idle_max_lag_(Millis(profile.has_idle_max_lag_ms() ? profile.idle_max_lag_ms()
                                                          : profile.idle_timeout_ms())),
+      many_(readers > 1),
       verdict_(verdict),
-      report_(std::move(report)) {}
+      report_(std::move(report)),
+      views_(std::max<std::uint32_t>(readers, 1)) {}
 
-void LogRules::UpdateCaughtUp(Partition& part, VirtualTime t) {
-  const bool caught_up = part.expected_next >= part.appended;
-  if (caught_up && part.caught_up_since < 0) part.caught_up_since = t;
-  if (!caught_up) part.caught_up_since = -1;
+void LogRules::SwitchTo(std::uint32_t r) {
+  if (r == cur_ || r >= views_.size()) return;
+  std::swap(v_, views_[cur_]);
+  std::swap(v_, views_[r]);
+  cur_ = r;
+}
+
+void LogRules::UpdateCaughtUp(const Partition& part, Live& live, VirtualTime t) {
+  const bool caught_up = live.expected_next >= part.appended;
+  if (caught_up && live.caught_up_since < 0) live.caught_up_since = t;
+  if (!caught_up) live.caught_up_since = -1;
 }
 
 void LogRules::OnAppended(const TraceEvent& e) {
   active_ = true;
-  Partition& part = At(e.appended().partition());
+  const std::uint32_t p = e.appended().partition();
+  Partition& part = At(p);
   part.appended = std::max(part.appended, e.appended().offset() + 1);
-  if (part.held) UpdateCaughtUp(part, e.t_ns());
+  if (p < v_.live.size() && v_.live[p].held) UpdateCaughtUp(part, v_.live[p], e.t_ns());
+  if (many_) {
+    for (std::uint32_t r = 0; r < views_.size(); ++r) {
+      if (r == cur_ || p >= views_[r].live.size() || !views_[r].live[p].held) continue;
+      UpdateCaughtUp(part, views_[r].live[p], e.t_ns());
+    }
+  }
 }
 
 void LogRules::OnPartitionAdded(const TraceEvent& e) {
   active_ = true;
-  Partition& part = At(e.partition_added().partition());
+  const std::uint32_t p = e.partition_added().partition();
+  Partition& part = At(p);
   part.added = MakeRef(e);
-  if (new_partitions_held_ && !part.held) {
-    part.held = true;
-    part.resume = 0;
-    part.expected_next = 0;
-    part.first_read_pending = true;
-    UpdateCaughtUp(part, e.t_ns());
+  for (std::uint32_t r = 0; r < views_.size(); ++r) {
+    View& v = ViewOf(r);
+    if (!v.new_partitions_held) continue;
+    Live& live = LiveOf(v, p);
+    if (live.held) continue;
+    live.held = true;
+    live.start = 0;
+    live.end.reset();
+    live.resume = 0;
+    live.expected_next = 0;
+    live.emitted_high = 0;
+    live.first_read_pending = true;
+    UpdateCaughtUp(part, live, e.t_ns());
   }
 }
 
@@ -79,29 +112,31 @@ void LogRules::OnLogRead(const TraceEvent& e) {
   active_ = true;
   const auto& x = e.log_read();
   Partition& part = At(x.partition());
+  Live& live = L(x.partition());
   part.ever_read = true;
-  part.last_read = MakeRef(e);
-  if (part.first_read_pending) {
-    part.first_read_pending = false;
-    if (x.offset() != part.resume) {
-      const bool skip = x.offset() > part.resume;
-      const std::uint64_t by = skip ? x.offset() - part.resume : part.resume - x.offset();
+  live.last_read = MakeRef(e);
+  if (live.first_read_pending) {
+    live.first_read_pending = false;
+    if (x.offset() != live.resume) {
+      const bool skip = x.offset() > live.resume;
+      const std::uint64_t by = skip ? x.offset() - live.resume : live.resume - x.offset();
       if (skip || exactly_once_) {
+        const EventRef& opened = v_.opened;
         report_(Invariant::kResumeExact,
-                absl::StrCat("After ", opened_.f[0] != 0 ? "restoring checkpoint " : "opening",
-                             opened_.f[0] != 0 ? std::to_string(opened_.f[1]) : std::string(),
+                absl::StrCat("After ", opened.f[0] != 0 ? "restoring checkpoint " : "opening",
+                             opened.f[0] != 0 ? std::to_string(opened.f[1]) : std::string(),
                              ", incarnation ", e.incarnation(), " first read partition ",
                              x.partition(), " at offset ", x.offset(), " but its resume point is ",
-                             part.resume, ": a ", skip ? "skip" : "rewind", " of ", by,
+                             live.resume, ": a ", skip ? "skip" : "rewind", " of ", by,
                              by == 1 ? " offset." : " offsets."),
-                {opened_}, &e);
+                {live.held_since.valid() ? live.held_since : opened}, &e);
       } else {
         ++verdict_.rewinds;
       }
     }
   }
   if (!x.out_of_range()) {
-    part.read_next = std::max(part.read_next, x.next_offset());
+    live.read_next = std::max(live.read_next, x.next_offset());
     part.read_high = std::max(part.read_high, x.next_offset());
   }
 }
@@ -110,15 +145,16 @@ void LogRules::OnBookmarkSaved(const TraceEvent& e) {
   active_ = true;
   const auto& x = e.bookmark_saved();
   Partition& part = At(x.partition());
-  part.last_bookmark = MakeRef(e);
-  if (x.next_offset() > part.committed_resume) {
+  const std::uint64_t committed =
+      x.partition() < v_.committed_resume.size() ? v_.committed_resume[x.partition()] : 0;
+  if (x.next_offset() > committed) {
     report_(Invariant::kPositionBeforeCommit,
             absl::StrCat("The broker received a bookmark for partition ", x.partition(),
                          " at offset ", x.next_offset(),
-                         ", beyond its resume point in the last committed checkpoint (",
-                         part.committed_resume, "): offsets [", part.committed_resume, ", ",
-                         x.next_offset(), ") were not durably committed."),
-            {part.first_commit, part.last_emitted}, &e);
+                         ", beyond its resume point in the last committed checkpoint (", committed,
+                         "): offsets [", committed, ", ", x.next_offset(),
+                         ") were not durably committed."),
+            {part.first_commit, L(x.partition()).last_emitted}, &e);
   }
 }
 
@@ -129,9 +165,10 @@ void LogRules::OnGapReported(const TraceEvent& e) {
   verdict_.gap_offsets +=
       x.to_offset() - x.from_offset() - part.gaps.CountIn(x.from_offset(), x.to_offset());
   part.gaps.Insert(x.from_offset(), x.to_offset());
-  if (part.held && x.from_offset() <= part.expected_next) {
-    part.expected_next = std::max(part.expected_next, x.to_offset());
-    UpdateCaughtUp(part, e.t_ns());
+  Live& live = L(x.partition());
+  if (live.held && x.from_offset() <= live.expected_next) {
+    live.expected_next = std::max(live.expected_next, x.to_offset());
+    UpdateCaughtUp(part, live, e.t_ns());
   }
 }
 
@@ -140,65 +177,110 @@ void LogRules::OnEmitted(const TraceEvent& e) {
   const auto& x = e.emitted();
   const std::uint64_t o = x.offset();
   Partition& part = At(x.partition());
-  if (o >= part.read_next) {
+  Live& live = L(x.partition());
+  if (o >= live.read_next) {
     report_(Invariant::kProtocolError,
             absl::StrCat("Step ", x.step(), " emitted a record of partition ", x.partition(),
                          " offset ", o, ", which incarnation ", e.incarnation(),
-                         " never read (it read up to offset ", part.read_next, ")."),
-            {part.last_read}, &e);
+                         " never read (it read up to offset ", live.read_next, ")."),
+            {live.last_read}, &e);
   }
-  if (o > part.expected_next) {
+  if (many_ && (!live.held || o < live.start || (live.end.has_value() && o >= *live.end))) {
+    report_(Invariant::kRecordOutsideSpan,
+            absl::StrCat("Step ", x.step(), " of reader ", e.reader(), " emitted partition ",
+                         x.partition(), " offset ", o, ", outside what the reader holds (",
+                         live.held ? SpanText(x.partition(), live.start, live.end)
+                                   : absl::StrCat("no span of partition ", x.partition()),
+                         ")."),
+            {live.held_since}, &e);
+  }
+  if (o > live.expected_next) {
     // Offsets skipped over: fine when reported as a gap; a silent jump past
     // records retention deleted is the violation this rule is about. A jump
     // over records still held shows at the end as offset-gap.
     const std::uint64_t deleted_to = std::min(o, part.first_retained);
-    const auto unreported = part.gaps.Missing(part.expected_next, deleted_to);
+    const auto unreported = part.gaps.Missing(live.expected_next, deleted_to);
     if (!unreported.empty()) {
-      const std::uint64_t n = deleted_to - part.expected_next -
-                              part.gaps.CountIn(part.expected_next, deleted_to);
+      const std::uint64_t n = deleted_to - live.expected_next -
+                              part.gaps.CountIn(live.expected_next, deleted_to);
       report_(Invariant::kSilentSkip,
               absl::StrCat("Step ", x.step(), " emitted partition ", x.partition(), " offset ", o,
-                           " after offset ", part.expected_next,
+                           " after offset ", live.expected_next,
                            " without reporting a gap: ", n,
                            " deleted records (", Range(unreported.front().first,
                                                        unreported.back().second),
                            ") were skipped silently."),
-              {part.last_retention, part.last_emitted}, &e);
+              {part.last_retention, live.last_emitted}, &e);
     }
   }
-  part.expected_next = std::max(part.expected_next, o + 1);
-  if (!part.frontier.has_value() || x.event_time_ns() > *part.frontier) {
-    part.frontier = x.event_time_ns();
+  live.expected_next = std::max(live.expected_next, o + 1);
+  live.emitted_high = std::max(live.emitted_high, o + 1);
+  if (!live.frontier.has_value() || x.event_time_ns() > *live.frontier) {
+    live.frontier = x.event_time_ns();
   }
   // As MakeRef would build it, without its dispatch: this is the hot path.
-  EventRef& ref = part.last_emitted;
+  EventRef& ref = live.last_emitted;
   ref.seq = e.seq();
   ref.t = e.t_ns();
   ref.incarnation = e.incarnation();
+  ref.reader = e.reader();
   ref.kind = TraceEvent::kEmitted;
   ref.f[0] = 0;
   ref.f[1] = x.event_time_ns();
   ref.f[2] = static_cast<std::int64_t>(x.step());
   ref.f[3] = static_cast<std::int64_t>(LogRecordKey(x.partition(), o));
-  UpdateCaughtUp(part, e.t_ns());
-  if (part.open_epoch == epoch_ && open_.runs[part.open_run].to == o) {
-    ++open_.runs[part.open_run].to;
+  UpdateCaughtUp(part, live, e.t_ns());
+  Epoch& open = v_.open;
+  if (live.open_epoch == v_.epoch && open.runs[live.open_run].to == o) {
+    ++open.runs[live.open_run].to;
   } else {
-    part.open_epoch = epoch_;
-    part.open_run = open_.runs.size();
-    open_.runs.push_back(Run{x.partition(), o, o + 1});
+    live.open_epoch = v_.epoch;
+    live.open_run = open.runs.size();
+    open.runs.push_back(Run{x.partition(), o, o + 1});
   }
 }
 
 void LogRules::OnCheckpoint(const TraceEvent& e) {
   Epoch& epoch = pending_[e.checkpoint().checkpoint_id()];
-  epoch.runs.insert(epoch.runs.end(), open_.runs.begin(), open_.runs.end());
+  epoch.runs.insert(epoch.runs.end(), v_.open.runs.begin(), v_.open.runs.end());
+  for (const auto& r : v_.open.runs) At(r.partition).last_emitted = L(r.partition).last_emitted;
+  std::vector<bool> named;
   for (const auto& r : e.checkpoint().resume_points()) {
-    epoch.resume_points.emplace_back(r.partition(), r.next_offset());
+    epoch.resume_points.push_back(ResumeAt{e.reader(), r.partition(), r.next_offset()});
+    if (!many_) continue;
+    if (r.partition() >= named.size()) named.resize(r.partition() + 1);
+    named[r.partition()] = true;
+    const Live* live = r.partition() < v_.live.size() ? &v_.live[r.partition()] : nullptr;
+    if (live == nullptr || !live->held) {
+      report_(Invariant::kCheckpointCoverage,
+              absl::StrCat("Checkpoint ", e.checkpoint().checkpoint_id(), " of reader ", e.reader(),
+                           " names a resume point for partition ", r.partition(),
+                           ", which the reader does not hold."),
+              {live != nullptr ? live->held_since : EventRef{}}, &e);
+    } else if (r.next_offset() < live->start ||
+               (live->end.has_value() && r.next_offset() > *live->end)) {
+      report_(Invariant::kCheckpointCoverage,
+              absl::StrCat("Checkpoint ", e.checkpoint().checkpoint_id(), " of reader ", e.reader(),
+                           " puts the resume point of partition ", r.partition(), " at offset ",
+                           r.next_offset(), ", outside the span it holds (",
+                           SpanText(r.partition(), live->start, live->end), ")."),
+              {live->held_since}, &e);
+    }
+  }
+  if (many_) {
+    for (std::uint32_t p = 0; p < v_.live.size(); ++p) {
+      if (!v_.live[p].held || (p < named.size() && named[p])) continue;
+      report_(Invariant::kCheckpointCoverage,
+              absl::StrCat("Checkpoint ", e.checkpoint().checkpoint_id(), " of reader ", e.reader(),
+                           " names no resume point for ", SpanText(p, v_.live[p].start, v_.live[p].end),
+                           ", which the reader holds: restored, it would lose that span."),
+              {v_.live[p].held_since}, &e);
+      break;  // one cause: the checkpoint
+    }
   }
   epoch.checkpoint = MakeRef(e);
-  open_.runs.clear();
-  ++epoch_;
+  v_.open.runs.clear();
+  ++v_.epoch;
 }
 
 void LogRules::OnCommitted(const TraceEvent& e) {
@@ -221,7 +303,13 @@ void LogRules::OnCommitted(const TraceEvent& e) {
     duplicates += already;
     if (!part.first_commit.valid()) part.first_commit = committed;
   }
-  for (const auto& [p, next] : epoch.resume_points) At(p).committed_resume = next;
+  for (const ResumeAt& r : epoch.resume_points) {
+    View& v = ViewOf(r.reader < views_.size() ? r.reader : 0);
+    if (r.partition >= v.committed_resume.size()) v.committed_resume.resize(r.partition + 1);
+    v.committed_resume[r.partition] = r.next;
+    Partition& part = At(r.partition);
+    part.committed_resume = many_ ? std::max(part.committed_resume, r.next) : r.next;
+  }
   verdict_.duplicate_records += duplicates;
   if (duplicates > 0 && exactly_once_) {
     std::vector<EventRef> cited = {epoch.checkpoint, At(example->first).first_commit};
@@ -239,51 +327,143 @@ void LogRules::OnCommitFailed(const TraceEvent& e) {
 }
 
 void LogRules::DiscardUncommitted() {
-  open_.runs.clear();
-  ++epoch_;
+  v_.open.runs.clear();
+  ++v_.epoch;
+  // A checkpoint is pending only inside its cycle, where a crash aborts it
+  // for every reader (or comes after its commit).
   pending_.clear();
 }
 
 void LogRules::OnCrashed(const TraceEvent& /*e*/) { DiscardUncommitted(); }
 
+void LogRules::Hold(Live& live, std::uint32_t p, const v1::SpanHeld& span, const TraceEvent& e) {
+  live.held = true;
+  live.start = span.start_offset();
+  live.end = EndOf(span);
+  live.held_since = MakeRef(e);
+  live.resume = span.start_offset();
+  live.expected_next = span.start_offset();
+  live.emitted_high = span.start_offset();
+  live.first_read_pending = true;
+  live.frontier.reset();
+  live.caught_up_since = -1;
+  UpdateCaughtUp(At(p), live, e.t_ns());
+  if (many_) CheckDoubleHolding(p, live, e);
+}
+
+void LogRules::CheckDoubleHolding(std::uint32_t p, const Live& live, const TraceEvent& e) {
+  for (std::uint32_t r = 0; r < views_.size(); ++r) {
+    if (r == cur_) continue;
+    const View& other = views_[r];
+    if (!other.live_reader || p >= other.live.size() || !other.live[p].held) continue;
+    const Live& o = other.live[p];
+    // [live.start, live.end) against [o.start, o.end): the reader's unread
+    // part is what counts for o, which may have read on past its start.
+    const std::uint64_t a = std::max(live.start, o.start);
+    const std::uint64_t b = std::min(live.end.value_or(UINT64_MAX), o.end.value_or(UINT64_MAX));
+    if (a >= b) continue;
+    report_(Invariant::kDoubleHolding,
+            absl::StrCat("Reader ", e.reader(), " was given ", SpanText(p, live.start, live.end),
+                         " while reader ", r, " holds ", SpanText(p, o.start, o.end),
+                         ": offsets from ", a, " on are held twice."),
+            {o.held_since}, &e);
+    return;
+  }
+}
+
 void LogRules::OnOpened(const TraceEvent& e) {
   DiscardUncommitted();
-  opened_ = MakeRef(e);
-  incarnation_ = e.incarnation();
-  stall_reported_ = false;
-  new_partitions_held_ = e.opened().new_partitions_held();
+  v_.opened = MakeRef(e);
+  v_.incarnation = e.incarnation();
+  v_.stall_reported = false;
+  v_.live_reader = true;
+  v_.new_partitions_held = e.opened().new_partitions_held();
   if (e.opened().spans_size() > 0) active_ = true;
-  for (Partition& part : partitions_) {
-    part.held = false;
-    part.first_read_pending = false;
-    part.read_next = 0;
-    part.frontier.reset();
-    part.caught_up_since = -1;
+  for (Live& live : v_.live) {  // what it read and emitted before stays citable
+    live.held = false;
+    live.start = 0;
+    live.end.reset();
+    live.held_since = EventRef{};
+    live.first_read_pending = false;
+    live.read_next = 0;
+    live.frontier.reset();
+    live.caught_up_since = -1;
   }
-  for (const auto& span : e.opened().spans()) {
-    Partition& part = At(span.partition());
-    part.held = true;
-    part.resume = span.start_offset();
-    part.expected_next = span.start_offset();
-    part.first_read_pending = true;
-    UpdateCaughtUp(part, e.t_ns());
-  }
-  if (new_partitions_held_) {
+  for (const auto& span : e.opened().spans()) Hold(L(span.partition()), span.partition(), span, e);
+  if (v_.new_partitions_held) {
     for (std::uint32_t p = 0; p < partitions_.size(); ++p) {
-      Partition& part = partitions_[p];
-      if (part.held) continue;
-      part.held = true;
-      part.resume = 0;
-      part.expected_next = 0;
-      part.first_read_pending = true;
-      UpdateCaughtUp(part, e.t_ns());
+      Live& live = L(p);
+      if (live.held) continue;
+      v1::SpanHeld all;
+      all.set_partition(p);
+      Hold(live, p, all, e);
     }
+  }
+}
+
+void LogRules::OnAssigned(const TraceEvent& e) {
+  active_ = true;
+  for (const auto& span : e.assigned().spans()) Hold(L(span.partition()), span.partition(), span, e);
+}
+
+void LogRules::OnRevoked(const TraceEvent& e) {
+  for (const auto& span : e.revoked().spans()) {
+    Live& live = L(span.partition());
+    live = Live{};
+  }
+}
+
+void LogRules::OnReaderLeft(const TraceEvent& /*e*/) {
+  DiscardUncommitted();
+  for (Live& live : v_.live) live = Live{};
+  v_.live_reader = false;
+}
+
+void LogRules::OnCut(const TraceEvent& e) {
+  const auto& x = e.cut();
+  const std::uint32_t p = x.held().partition();
+  Live& live = L(p);
+  const std::optional<std::uint64_t> held_end = EndOf(x.held());
+  const std::optional<std::uint64_t> head_end = EndOf(x.head());
+  std::string wrong;
+  if (x.head().start_offset() != x.held().start_offset()) {
+    wrong = absl::StrCat("the head starts at ", x.head().start_offset(), ", not where the span did (",
+                         x.held().start_offset(), ")");
+  } else if (!x.has_tail() && head_end != held_end) {
+    wrong = "the cut was declined, but the head is not the whole span";
+  } else if (x.has_tail() && (!head_end.has_value() || x.tail().start_offset() != *head_end)) {
+    wrong = !head_end.has_value()
+                ? std::string("the head has no end")
+                : absl::StrCat("the tail starts at ", x.tail().start_offset(), " but the head ends at ",
+                               *head_end,
+                               x.tail().start_offset() < *head_end
+                                   ? ": the two overlap"
+                                   : absl::StrCat(": offsets [", *head_end, ", ", x.tail().start_offset(),
+                                                  ") belong to neither"));
+  } else if (x.has_tail() && EndOf(x.tail()) != held_end) {
+    wrong = "the tail does not end where the span did";
+  } else if (head_end.has_value() && live.held && live.emitted_high > *head_end) {
+    wrong = absl::StrCat("the head ends at ", *head_end, " but the reader had already emitted up to offset ",
+                         live.emitted_high - 1);
+  }
+  if (!wrong.empty()) {
+    report_(Invariant::kCutConservation,
+            absl::StrCat("Reader ", e.reader(), " answered a cut of ",
+                         SpanText(p, x.held().start_offset(), held_end), " with head ",
+                         SpanText(p, x.head().start_offset(), head_end), x.has_tail() ? " and tail " : "",
+                         x.has_tail() ? SpanText(p, x.tail().start_offset(), EndOf(x.tail())) : std::string(),
+                         ": ", wrong, "."),
+            {live.held_since}, &e);
+  }
+  if (x.has_tail() && live.held) {
+    live.end = head_end;
+    live.held_since = MakeRef(e);
   }
 }
 
 void LogRules::OnStepped(const TraceEvent& e, std::optional<std::int64_t> watermark,
                          const EventRef& watermark_ref) {
-  if (!active_ || idle_timeout_ == 0 || stall_reported_) return;
+  if (!active_ || idle_timeout_ == 0 || v_.stall_reported) return;
   CheckPartitionStall(e, watermark, watermark_ref);
 }
 
@@ -294,25 +474,27 @@ void LogRules::CheckPartitionStall(const TraceEvent& e, std::optional<std::int64
   std::optional<std::uint32_t> idle_partition;
   std::optional<std::int64_t> lowest;  // lowest frontier among partitions still active
   std::uint32_t lowest_partition = 0;
-  for (std::uint32_t p = 0; p < partitions_.size(); ++p) {
-    const Partition& part = partitions_[p];
-    if (!part.held) continue;
-    const bool idle = part.caught_up_since >= 0 && t - part.caught_up_since > idle_after;
+  for (std::uint32_t p = 0; p < v_.live.size(); ++p) {
+    const Live& live = v_.live[p];
+    if (!live.held) continue;
+    // A closed span read to its end holds nothing back.
+    if (live.end.has_value() && live.expected_next >= *live.end) continue;
+    const bool idle = live.caught_up_since >= 0 && t - live.caught_up_since > idle_after;
     if (idle) {
       if (!idle_partition.has_value()) idle_partition = p;
       continue;
     }
-    if (!part.frontier.has_value()) return;  // cannot tell where it stands yet
-    if (!lowest.has_value() || *part.frontier < *lowest) {
-      lowest = part.frontier;
+    if (!live.frontier.has_value()) return;  // cannot tell where it stands yet
+    if (!lowest.has_value() || *live.frontier < *lowest) {
+      lowest = live.frontier;
       lowest_partition = p;
     }
   }
   if (!idle_partition.has_value() || !lowest.has_value()) return;
   const std::int64_t floor = *lowest - idle_max_lag_;
   if (watermark.has_value() && *watermark >= floor) return;
-  stall_reported_ = true;
-  const Partition& idle = partitions_[*idle_partition];
+  v_.stall_reported = true;
+  const Live& idle = v_.live[*idle_partition];
   report_(Invariant::kWatermarkStall,
           absl::StrCat("Partition ", *idle_partition, " has had nothing to read for ",
                        FormatTime(t - idle.caught_up_since), " (longer than the profile's ",
@@ -351,6 +533,16 @@ void LogRules::OnRunEnded(const TraceEvent& e) {
     }
     for (const auto& [a, b] : holes) lost += b - a;
     if (lost == 0) continue;
+    // The latest read and record of the partition by any reader.
+    EventRef last_read, last_emitted = part.last_emitted;
+    for (std::uint32_t r = 0; r < views_.size(); ++r) {
+      const View& v = ViewOf(r);
+      if (p >= v.live.size()) continue;
+      if (v.live[p].last_read.seq >= last_read.seq) last_read = v.live[p].last_read;
+      if (v.live[p].last_emitted.valid() && v.live[p].last_emitted.seq >= last_emitted.seq) {
+        last_emitted = v.live[p].last_emitted;
+      }
+    }
     report_(Invariant::kOffsetGap,
             absl::StrCat(part.ever_read ? "Partition " : "Partition (never read) ", p, ": ", lost,
                          lost == 1 ? " offset has" : " offsets have",
@@ -360,7 +552,7 @@ void LogRules::OnRunEnded(const TraceEvent& e) {
                          holes.size() > 1 ? absl::StrCat(", and ", holes.size() - 1, " more ranges")
                                           : std::string(),
                          "."),
-            {part.last_read, part.last_emitted, part.last_retention}, &e);
+            {last_read, last_emitted, part.last_retention}, &e);
   }
 }
 

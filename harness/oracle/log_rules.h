@@ -42,6 +42,22 @@
 //     Not checked while such a partition has emitted nothing yet.
 //   protocol-error: a record of an offset the emitting incarnation never read.
 //
+// Many readers (readers > 1; docs/many-readers.md). Every rule above that is
+// about "the incarnation" is judged per reader (each reader's view of each
+// partition: the span it holds, where it read and emitted); the committed
+// output, retention and gaps are shared. A bookmark is judged against the
+// saving reader's own committed resume point. And:
+//   record-outside-span: a record's offset lies in a span its reader holds at
+//     that moment: [start as told, end), not revoked, not cut away.
+//   double-holding: when a span is assigned or opened, no other live reader
+//     holds any offset of it.
+//   cut-conservation: the head of a cut starts where the span did, the tail
+//     starts where the head ends and ends where the span did (or the cut is
+//     declined: the head is the whole span), and the head holds every offset
+//     the reader has emitted from the span.
+//   checkpoint-coverage: a reader's checkpoint names a resume point for every
+//     partition it holds and for no other, each within its span.
+//
 // Memory: O(partitions + holes): per partition a few counters and offset
 // ranges (committed, deleted unread, reported gaps, the open and pending
 // epochs), each a handful of ranges for a reader that goes in order; never
@@ -72,7 +88,8 @@ class LogRules {
   using ReportFn = std::function<void(Invariant, const std::string&, std::vector<EventRef>,
                                       const v1::TraceEvent*)>;
 
-  LogRules(const v1::Profile& profile, Verdict& verdict, ReportFn report);
+  // readers: the run's reader slots (1: one reader; the many-reader rules off).
+  LogRules(const v1::Profile& profile, Verdict& verdict, ReportFn report, std::uint32_t readers = 1);
 
   // True once any log event was seen: the run's broker is a log.
   bool active() const { return active_; }
@@ -94,35 +111,47 @@ class LogRules {
   void OnStepped(const v1::TraceEvent& e, std::optional<std::int64_t> watermark,
                  const EventRef& watermark_ref);
   void OnRunEnded(const v1::TraceEvent& e);
+  // Many readers.
+  void OnAssigned(const v1::TraceEvent& e);
+  void OnRevoked(const v1::TraceEvent& e);
+  void OnCut(const v1::TraceEvent& e);
+  void OnReaderLeft(const v1::TraceEvent& e);
+  // Makes reader r's view the current one (every per-reader event first).
+  void SwitchTo(std::uint32_t r);
 
  private:
+  // A partition as the broker and the committed output know it (shared).
   struct Partition {
-    // The broker's side.
     std::uint64_t appended = 0;        // next offset to be appended
     std::uint64_t first_retained = 0;
     EventRef added;                    // partition_added (invalid for the initial ones)
     EventRef last_retention;
-    // The committed side.
     OffsetRanges committed;
     EventRef first_commit;             // the commit that first put a record of it in the output
-    std::uint64_t committed_resume = 0;  // in the last committed checkpoint
+    std::uint64_t committed_resume = 0;  // the highest committed resume point of any reader
     OffsetRanges deleted_unread;       // excused losses
     OffsetRanges gaps;                 // reported by the connector
     std::uint64_t read_high = 0;       // the furthest any read got
     bool ever_read = false;
-    // The live incarnation.
+    EventRef last_emitted;             // by any reader (kept at commit time)
+  };
+  // One reader's view of one partition, for its live incarnation.
+  struct Live {
     bool held = false;
+    std::uint64_t start = 0;           // the span's start as the reader was told
+    std::optional<std::uint64_t> end;  // unset: open
+    EventRef held_since;               // the opened, assigned or cut event
     std::uint64_t resume = 0;          // what Open (or the partition's start) gave it
     bool first_read_pending = false;
     std::uint64_t expected_next = 0;   // next offset to emit, in order
+    std::uint64_t emitted_high = 0;    // one past the highest offset emitted from the span
     std::uint64_t read_next = 0;       // the furthest this incarnation read
     std::optional<std::int64_t> frontier;  // largest event time emitted
     VirtualTime caught_up_since = -1;  // -1: has records left to emit
     EventRef last_read;
     EventRef last_emitted;
-    EventRef last_bookmark;
-    // The run of the open epoch this partition extends: open_.runs[open_run]
-    // when open_epoch == epoch_ (the open epoch's number).
+    // The run of the open epoch this partition extends: open.runs[open_run]
+    // when open_epoch == the view's epoch.
     std::size_t open_run = 0;
     std::uint64_t open_epoch = 0;
   };
@@ -132,40 +161,63 @@ class LogRules {
     std::uint64_t from;
     std::uint64_t to;  // exclusive
   };
+  struct ResumeAt {
+    std::uint32_t reader;
+    std::uint32_t partition;
+    std::uint64_t next;
+  };
   // Records of one epoch, as runs: a reader going in order makes one run per
   // partition, so an epoch costs a vector, not a set per partition. An offset
   // emitted twice within the epoch shows when the runs are committed one by
-  // one.
+  // one. With several readers a pending epoch gathers every reader's part.
   struct Epoch {
     std::vector<Run> runs;
-    std::vector<std::pair<std::uint32_t, std::uint64_t>> resume_points;
+    std::vector<ResumeAt> resume_points;
     EventRef checkpoint;
+  };
+  // One reader: its partitions' live views, its open epoch, its incarnation.
+  struct View {
+    std::vector<Live> live;
+    std::vector<std::uint64_t> committed_resume;  // by partition; survives restarts
+    Epoch open;
+    std::uint64_t epoch = 1;  // number of the open epoch; a new one at every checkpoint or crash
+    std::uint64_t incarnation = 0;
+    EventRef opened;
+    bool stall_reported = false;  // one violation per incarnation
+    bool new_partitions_held = false;
+    bool live_reader = false;     // opened and not left
   };
 
   Partition& At(std::uint32_t p) {
     if (p >= partitions_.size()) partitions_.resize(static_cast<std::size_t>(p) + 1);
     return partitions_[p];
   }
-  void UpdateCaughtUp(Partition& part, VirtualTime t);
+  static Live& LiveOf(View& v, std::uint32_t p) {
+    if (p >= v.live.size()) v.live.resize(static_cast<std::size_t>(p) + 1);
+    return v.live[p];
+  }
+  Live& L(std::uint32_t p) { return LiveOf(v_, p); }
+  View& ViewOf(std::uint32_t r) { return r == cur_ ? v_ : views_[r]; }
+  void UpdateCaughtUp(const Partition& part, Live& live, VirtualTime t);
   void DiscardUncommitted();
   void CheckPartitionStall(const v1::TraceEvent& e, std::optional<std::int64_t> watermark,
                            const EventRef& watermark_ref);
+  void Hold(Live& live, std::uint32_t p, const v1::SpanHeld& span, const v1::TraceEvent& e);
+  void CheckDoubleHolding(std::uint32_t p, const Live& live, const v1::TraceEvent& e);
 
   const bool exactly_once_;
   const bool gaps_allowed_;
   const VirtualDuration idle_timeout_;  // 0: the partition stall rule is off
   const VirtualDuration idle_max_lag_;
+  const bool many_;
   Verdict& verdict_;
   ReportFn report_;
   bool active_ = false;
-  bool new_partitions_held_ = false;
   std::vector<Partition> partitions_;
-  Epoch open_;
-  std::uint64_t epoch_ = 1;  // number of the open epoch; a new one at every checkpoint or crash
   std::map<std::uint64_t, Epoch> pending_;  // by checkpoint id
-  std::uint64_t incarnation_ = 0;
-  EventRef opened_;
-  bool stall_reported_ = false;  // one violation per incarnation
+  View v_;                    // the current reader's view
+  std::vector<View> views_;   // every reader's; views_[cur_] is stale while current
+  std::uint32_t cur_ = 0;
 };
 
 }  // namespace weir

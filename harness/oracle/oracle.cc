@@ -24,7 +24,7 @@ bool ClaimsWatermark(const v1::Profile& p) {
 
 }  // namespace
 
-Oracle::Oracle(const v1::Profile& profile, v1::SourceShape shape)
+Oracle::Oracle(const v1::Profile& profile, v1::SourceShape shape, std::uint32_t readers)
     : exactly_once_(profile.guarantee() == v1::Profile::EXACTLY_ONCE),
       lateness_bounded_(profile.watermark_policy() == v1::Profile::BOUNDED_LATENESS),
       allowed_lateness_(Millis(profile.allowed_lateness_ms())),
@@ -33,11 +33,18 @@ Oracle::Oracle(const v1::Profile& profile, v1::SourceShape shape)
                                                          : profile.idle_timeout_ms())),
       min_backoff_(Millis(profile.min_backoff_ms())),
       max_lead_(Millis(profile.max_watermark_lead_ms())),
+      many_(readers > 1),
+      saved_(readers > 1 ? readers : 0),
       log_(profile, verdict_,
            [this](Invariant invariant, const std::string& sentence, std::vector<EventRef> cited,
                   const TraceEvent* current) {
              Report(invariant, sentence, std::move(cited), current);
-           }) {
+           },
+           readers) {
+  for (Invariant i : {Invariant::kRecordOutsideSpan, Invariant::kDoubleHolding,
+                      Invariant::kCutConservation, Invariant::kCheckpointCoverage}) {
+    verdict_.at(i).applies = many_ && shape == v1::LOG;
+  }
   const bool log = shape == v1::LOG;
   for (Invariant i : {Invariant::kOffsetGap, Invariant::kPositionBeforeCommit,
                       Invariant::kResumeExact, Invariant::kSilentSkip, Invariant::kNewPartition}) {
@@ -49,6 +56,29 @@ Oracle::Oracle(const v1::Profile& profile, v1::SourceShape shape)
   verdict_.at(Invariant::kRetryStorm).checked = min_backoff_ > 0;
   verdict_.at(Invariant::kWatermarkStall).checked = idle_timeout_ > 0;
   verdict_.at(Invariant::kLateRecord).checked = lateness_bounded_;
+}
+
+void Oracle::SwitchTo(std::uint32_t r) {
+  if (!many_ || r == current_ || r >= saved_.size()) return;
+  const auto park = [this](PerReader& p) {
+    std::swap(open_epoch_, p.open_epoch);
+    std::swap(watermark_, p.watermark);
+    std::swap(watermark_ref_, p.watermark_ref);
+    std::swap(opened_ref_, p.opened_ref);
+    std::swap(finished_ref_, p.finished_ref);
+    std::swap(regressed_, p.regressed);
+    std::swap(reported_watermark_, p.reported_watermark);
+    std::swap(reported_ref_, p.reported_ref);
+    std::swap(awaiting_, p.awaiting);
+    std::swap(idle_, p.idle);
+    std::swap(idle_reported_, p.idle_reported);
+    std::swap(idle_since_, p.idle_since);
+    std::swap(ahead_, p.ahead);
+    std::swap(methods_, p.methods);
+  };
+  park(saved_[current_]);  // the members go to their slot…
+  park(saved_[r]);         // …and r's come out of its
+  current_ = r;
 }
 
 void Oracle::Report(Invariant invariant, const std::string& sentence,
@@ -72,13 +102,16 @@ void Oracle::Report(Invariant invariant, const std::string& sentence,
     last_seq = ref.seq;
     if (current != nullptr && ref.seq == current->seq()) continue;
     // A connector's failure keeps text a reference cannot rebuild.
+    const std::string prefix = many_ ? absl::StrCat("reader ", ref.reader, ": ") : std::string();
     v.evidence.push_back(Evidence{ref.seq, ref.t, ref.incarnation,
-                                  failure_ref_.valid() && ref.seq == failure_ref_.seq ? failure_what_
-                                                                                      : DescribeEvent(Rebuild(ref))});
+                                  prefix + (failure_ref_.valid() && ref.seq == failure_ref_.seq
+                                                ? failure_what_
+                                                : DescribeEvent(Rebuild(ref)))});
   }
   if (current != nullptr) {
-    v.evidence.push_back(
-        Evidence{current->seq(), current->t_ns(), current->incarnation(), DescribeEvent(*current)});
+    const std::string prefix = many_ ? absl::StrCat("reader ", current->reader(), ": ") : std::string();
+    v.evidence.push_back(Evidence{current->seq(), current->t_ns(), current->incarnation(),
+                                  prefix + DescribeEvent(*current)});
   }
   result.first.push_back(std::move(v));
 }
@@ -111,6 +144,10 @@ void Oracle::DiscardUncommitted() {
 
 void Oracle::OnEvent(const TraceEvent& e) {
   ++verdict_.events;
+  if (many_) {
+    SwitchTo(e.reader());
+    log_.SwitchTo(e.reader());
+  }
   switch (e.kind_case()) {
     case TraceEvent::kPublished: {
       MessageState& m = messages_[e.published().message_id()];
@@ -177,6 +214,7 @@ void Oracle::OnEvent(const TraceEvent& e) {
     case TraceEvent::kOpened:
       log_.OnOpened(e);
       DiscardUncommitted();
+      combined_.reset();
       opened_ref_ = MakeRef(e);
       finished_ref_ = EventRef{};
       regressed_ = false;
@@ -262,6 +300,24 @@ void Oracle::OnEvent(const TraceEvent& e) {
       break;
     case TraceEvent::kBrokerCallFailed:
       OnBrokerCallFailed(e);
+      break;
+    case TraceEvent::kAssigned:
+      log_.OnAssigned(e);
+      EndIdle();
+      break;
+    case TraceEvent::kRevoked:
+      log_.OnRevoked(e);
+      break;
+    case TraceEvent::kCut:
+      log_.OnCut(e);
+      break;
+    case TraceEvent::kReaderLeft:
+      log_.OnReaderLeft(e);
+      open_epoch_.clear();
+      combined_.reset();
+      break;
+    case TraceEvent::kReaderJoined:
+      combined_.reset();
       break;
     default:
       break;
@@ -445,6 +501,20 @@ void Oracle::OnStepped(const TraceEvent& e) {
     // Cite the step that first reported this value: for a stall, where it stuck.
     if (reported_watermark_ != x.watermark_ns()) reported_ref_ = MakeRef(e);
     reported_watermark_ = x.watermark_ns();
+  }
+  if (x.has_combined_watermark_ns()) {
+    // Several readers: the least of their watermarks must not go back either,
+    // except across a reader's (re)open, join or leave.
+    if (combined_.has_value() && x.combined_watermark_ns() < *combined_) {
+      Report(Invariant::kWatermarkRegression,
+             absl::StrCat("The combined watermark of the live readers went back from ", FormatTime(*combined_),
+                          " to ", FormatTime(x.combined_watermark_ns()), " after step ", x.step(), "."),
+             {combined_ref_}, &e);
+    }
+    if (!combined_.has_value() || x.combined_watermark_ns() > *combined_) {
+      combined_ = x.combined_watermark_ns();
+      combined_ref_ = MakeRef(e);
+    }
   }
   log_.OnStepped(e, reported_watermark_, reported_ref_);
   if (!x.broker_idle() || awaiting_ > 0) {

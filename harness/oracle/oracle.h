@@ -93,7 +93,11 @@ class Oracle : public TraceObserver {
  public:
   // `shape`: the run's broker shape. The log rules live in LogRules
   // (log_rules.h); the rules of the other shape do not apply to a run.
-  explicit Oracle(const v1::Profile& profile, v1::SourceShape shape = v1::QUEUE);
+  // `readers`: the run's reader slots; with more than one, every rule about
+  // "the incarnation" is judged per reader (the events' reader field) and the
+  // many-reader rules apply (log_rules.h).
+  explicit Oracle(const v1::Profile& profile, v1::SourceShape shape = v1::QUEUE,
+                  std::uint32_t readers = 1);
 
   void OnEvent(const v1::TraceEvent& event) override;
   // The verdict over every event seen. Call once, after the last event.
@@ -149,7 +153,12 @@ class Oracle : public TraceObserver {
     return m.delivered_in == incarnation && m.emitted_in != incarnation &&
            m.committed_records == 0;
   }
-  void EndIdle() { idle_ = false; }
+  void EndIdle() {
+    idle_ = false;
+    for (PerReader& r : saved_) r.idle = false;
+  }
+  // Many readers: makes reader r's per-incarnation state the members'.
+  void SwitchTo(std::uint32_t r);
   static std::string ReportTail(const std::string& tail);
   void OnConnectorFailure(const v1::TraceEvent& e, const std::string& call, Invariant invariant,
                           const std::string& sentence);
@@ -217,6 +226,28 @@ class Oracle : public TraceObserver {
   const VirtualDuration max_lead_;  // watermark-ahead
   bool ahead_ = false;              // the last watermark was ahead (already reported)
   absl::flat_hash_map<std::string, MethodState> methods_;
+  // Many readers: the per-incarnation members above, parked for the readers
+  // that are not the current one (saved_[current_] is stale meanwhile).
+  struct PerReader {
+    std::vector<PendingRecord> open_epoch;
+    std::optional<std::int64_t> watermark;
+    EventRef watermark_ref, opened_ref, finished_ref;
+    bool regressed = false;
+    std::optional<std::int64_t> reported_watermark;
+    EventRef reported_ref;
+    std::uint64_t awaiting = 0;
+    bool idle = false, idle_reported = false;
+    EventRef idle_since;
+    bool ahead = false;
+    absl::flat_hash_map<std::string, MethodState> methods;
+  };
+  const bool many_;
+  std::vector<PerReader> saved_;
+  std::uint32_t current_ = 0;
+  // The combined watermark (stepped.combined_watermark_ns) and since when it
+  // is judged: a reader that opens, joins or leaves starts a new stretch.
+  std::optional<std::int64_t> combined_;
+  EventRef combined_ref_;
   LogRules log_;
 };
 

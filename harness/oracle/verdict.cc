@@ -58,6 +58,10 @@ const char* InvariantName(Invariant invariant) {
     case Invariant::kResumeExact: return "resume-exact";
     case Invariant::kSilentSkip: return "silent-skip";
     case Invariant::kNewPartition: return "new-partition";
+    case Invariant::kRecordOutsideSpan: return "record-outside-span";
+    case Invariant::kDoubleHolding: return "double-holding";
+    case Invariant::kCutConservation: return "cut-conservation";
+    case Invariant::kCheckpointCoverage: return "checkpoint-coverage";
     case Invariant::kConnectorError: return "connector-error";
     case Invariant::kWatermarkAhead: return "watermark-ahead";
     case Invariant::kLivelock: return "livelock";
@@ -140,6 +144,18 @@ const char* InvariantRule(Invariant invariant) {
              "runtime.max_same_time_steps steps in a row (default 1,000) may ask to be called again "
              "at the virtual time they began, nor may such steps go on for more than "
              "runtime.max_same_time_wall_ms of wall time (default 10,000).";
+    case Invariant::kRecordOutsideSpan:
+      return "Many readers: every record a reader emits lies in a span it holds at that moment "
+             "(assigned to it, not revoked, not cut away).";
+    case Invariant::kDoubleHolding:
+      return "Many readers: no offset is held by two live readers at the same moment.";
+    case Invariant::kCutConservation:
+      return "Many readers: a cut's head and tail are disjoint, together are exactly the span that "
+             "was cut, and the head holds every offset the reader had already emitted from it.";
+    case Invariant::kCheckpointCoverage:
+      return "Many readers: a reader's checkpoint names a resume point for every span it holds, "
+             "including spans received since its last checkpoint, and for no other partition; "
+             "each resume point lies within its span.";
     case Invariant::kCount:
       break;
   }

@@ -36,6 +36,11 @@ enum class Invariant : int {
   kConnectorError,
   kWatermarkAhead,
   kLivelock,
+  // Many readers (log shape).
+  kRecordOutsideSpan,
+  kDoubleHolding,
+  kCutConservation,
+  kCheckpointCoverage,
   kCount,  // not an invariant
 };
 
@@ -51,7 +56,7 @@ struct Evidence {
   std::uint64_t seq = 0;
   VirtualTime t = 0;
   std::uint64_t incarnation = 0;
-  std::string what;
+  std::string what;  // with several readers, begins "reader N: "
 };
 
 struct Violation {

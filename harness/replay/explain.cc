@@ -47,6 +47,11 @@ std::uint64_t MessageOf(const TraceEvent& e) {
     case TraceEvent::kPartitionAdded: return PartitionTag(e.partition_added().partition());
     case TraceEvent::kBookmarkSaved: return PartitionTag(e.bookmark_saved().partition());
     case TraceEvent::kGapReported: return PartitionTag(e.gap_reported().partition());
+    case TraceEvent::kCut: return PartitionTag(e.cut().held().partition());
+    case TraceEvent::kAssigned:
+      return e.assigned().spans_size() == 1 ? PartitionTag(e.assigned().spans(0).partition()) : 0;
+    case TraceEvent::kRevoked:
+      return e.revoked().spans_size() == 1 ? PartitionTag(e.revoked().spans(0).partition()) : 0;
     case TraceEvent::kBrokerCallFailed:
       return e.broker_call_failed().has_partition() ? PartitionTag(e.broker_call_failed().partition())
                                                     : 0;
@@ -76,6 +81,11 @@ bool IsStructural(const TraceEvent& e) {
     case TraceEvent::kRunEnded:
     case TraceEvent::kBrokerCallFailed:
     case TraceEvent::kFaultApplied:
+    case TraceEvent::kAssigned:
+    case TraceEvent::kRevoked:
+    case TraceEvent::kCut:
+    case TraceEvent::kReaderLeft:
+    case TraceEvent::kReaderJoined:
       return true;
     default:
       return false;
@@ -138,7 +148,8 @@ absl::StatusOr<ExplainOutput> ExplainTrace(const std::string& path, const Explai
   // Pass 1: the oracle, and the overview's commits and crashes.
   ExplainOutput out;
   RunTimelines& tl = out.timelines;
-  Oracle oracle(header.scenario().profile(), header.scenario().has_log() ? v1::LOG : v1::QUEUE);
+  Oracle oracle(header.scenario().profile(), header.scenario().has_log() ? v1::LOG : v1::QUEUE,
+                std::max<std::uint32_t>(1, header.scenario().readers().count()));
   if (absl::Status st = ForEachEvent(path, [&](const TraceEvent& e) {
         oracle.OnEvent(e);
         tl.overview.end_ns = e.t_ns();

@@ -45,6 +45,11 @@ Lane LaneOf(const TraceEvent& e) {
     case TraceEvent::kCommitNotice:
     case TraceEvent::kCrashed:
     case TraceEvent::kRunEnded:
+    case TraceEvent::kAssigned:
+    case TraceEvent::kRevoked:
+    case TraceEvent::kCut:
+    case TraceEvent::kReaderLeft:
+    case TraceEvent::kReaderJoined:
       return kRuntime;
     default:
       return kBroker;
@@ -79,6 +84,11 @@ const char* ClassOf(const TraceEvent& e) {
       return e.broker_call_failed().code() == 8 ? "throttle" : "broker-error";
     case TraceEvent::kFaultApplied: return "fault";
     case TraceEvent::kBrokerCall: return "call";
+    case TraceEvent::kAssigned: return "assigned";
+    case TraceEvent::kRevoked: return "revoked";
+    case TraceEvent::kCut: return "cut";
+    case TraceEvent::kReaderLeft: return "reader-left";
+    case TraceEvent::kReaderJoined: return "reader-joined";
     default: return "other";
   }
 }

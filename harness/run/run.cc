@@ -1,5 +1,6 @@
 #include "harness/run/run.h"
 
+#include <algorithm>
 #include <chrono>
 #include <cstdio>
 #include <memory>
@@ -70,7 +71,19 @@ class TraceFile : public TraceEncoder::LineSink {
 
 const char* WeirVersion() { return "0.1.0"; }
 
+std::uint32_t ReaderCount(const v1::Scenario& scenario) {
+  return std::max<std::uint32_t>(1, scenario.readers().count());
+}
+
 absl::StatusOr<RunOutput> RunWithPort(const RunSpec& spec, ConnectorPort& port) {
+  return RunWithPorts(spec, {&port});
+}
+
+absl::StatusOr<RunOutput> RunWithPorts(const RunSpec& spec, const std::vector<ConnectorPort*>& ports) {
+  if (ports.size() != ReaderCount(spec.scenario)) {
+    return absl::InvalidArgumentError(absl::StrCat("the scenario has ", ReaderCount(spec.scenario),
+                                                   " readers, but ", ports.size(), " connector ports were given"));
+  }
   std::unique_ptr<TraceFile> file;
   if (!spec.trace_path.empty()) {
     auto f = TraceFile::Create(spec.trace_path);
@@ -79,7 +92,8 @@ absl::StatusOr<RunOutput> RunWithPort(const RunSpec& spec, ConnectorPort& port) 
   }
 
   TraceLog trace;
-  Oracle oracle(spec.scenario.profile(), spec.scenario.has_log() ? v1::LOG : v1::QUEUE);
+  Oracle oracle(spec.scenario.profile(), spec.scenario.has_log() ? v1::LOG : v1::QUEUE,
+                ReaderCount(spec.scenario));
   TraceEncoder encoder(file.get());
   trace.AddObserver(&encoder);
   trace.AddObserver(&oracle);
@@ -102,7 +116,7 @@ absl::StatusOr<RunOutput> RunWithPort(const RunSpec& spec, ConnectorPort& port) 
     session = std::make_unique<BrokerSession>(*queue, trace, faults);
     broker = queue.get();
   }
-  RuntimeModel runtime(spec.scenario, *broker, *session, port, trace, faults);
+  RuntimeModel runtime(spec.scenario, *broker, *session, ports, trace, faults);
   runtime.set_wall_clock([] {  // the livelock bound in wall time
     return std::chrono::duration_cast<std::chrono::milliseconds>(std::chrono::steady_clock::now().time_since_epoch())
         .count();
@@ -110,7 +124,7 @@ absl::StatusOr<RunOutput> RunWithPort(const RunSpec& spec, ConnectorPort& port) 
 
   RunOutput out;
   out.summary = runtime.Run();
-  port.Kill();
+  for (ConnectorPort* port : ports) port->Kill();
   out.verdict = oracle.Finish();
   out.digest = encoder.FinishDigest();
   out.events = encoder.events();

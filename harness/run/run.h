@@ -63,6 +63,11 @@ struct RunOutput {
 // the end. Errors are harness faults (cannot write the trace…), or CANCELLED
 // when spec.stop became true.
 [[nodiscard]] absl::StatusOr<RunOutput> RunWithPort(const RunSpec& spec, ConnectorPort& port);
+// Many readers: one port per reader slot (ReaderCount(spec.scenario) of them).
+[[nodiscard]] absl::StatusOr<RunOutput> RunWithPorts(const RunSpec& spec,
+                                                     const std::vector<ConnectorPort*>& ports);
+// The scenario's reader slots: readers.count, or 1.
+std::uint32_t ReaderCount(const v1::Scenario& scenario);
 
 // The version string written into traces and reports.
 const char* WeirVersion();

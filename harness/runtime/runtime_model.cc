@@ -1,6 +1,7 @@
 #include "harness/runtime/runtime_model.h"
 
 #include <algorithm>
+#include <numeric>
 #include <string_view>
 #include <utility>
 
@@ -20,6 +21,9 @@ const char* CrashPointName(v1::CrashPoint point) {
     case v1::AFTER_COMMIT_BEFORE_NOTICE: return "after-commit-before-notice";
     case v1::IN_NOTICE_AFTER_ACK: return "in-notice-after-ack";
     case v1::IN_NOTICE_AFTER_BOOKMARK_SAVE: return "in-notice-after-bookmark-save";
+    case v1::IN_CUT: return "in-cut";
+    case v1::AFTER_CUT: return "after-cut";
+    case v1::IN_REVOKE: return "in-revoke";
     default: return "unspecified";
   }
 }
@@ -62,21 +66,34 @@ ConnectorFailure ConnectorPort::Cut(const v1::CutRequest&, v1::CutResponse*, Bro
 RuntimeModel::RuntimeModel(const v1::Scenario& scenario, BrokerModel& broker,
                            BrokerSession& session, ConnectorPort& port, TraceLog& trace,
                            FaultSource& faults)
+    : RuntimeModel(scenario, broker, session, std::vector<ConnectorPort*>{&port}, trace, faults) {}
+
+RuntimeModel::RuntimeModel(const v1::Scenario& scenario, BrokerModel& broker,
+                           BrokerSession& session, std::vector<ConnectorPort*> ports,
+                           TraceLog& trace, FaultSource& faults)
     : scenario_(scenario),
       broker_(broker),
       session_(session),
-      port_(port),
       gate_(session),
       trace_(trace),
       faults_(faults),
-      hard_end_(SaturatingAdd(broker.last_publish_time(), Millis(scenario.runtime().drain_bound_ms()))) {}
+      hard_end_(SaturatingAdd(broker.last_publish_time(), Millis(scenario.runtime().drain_bound_ms()))) {
+  readers_.resize(ports.size());
+  for (std::size_t i = 0; i < ports.size(); ++i) readers_[i].port = ports[i];
+}
+
+void RuntimeModel::Select(std::uint32_t r) {
+  selected_ = r;
+  trace_.set_reader(r);
+  trace_.set_incarnation(readers_[r].incarnation);
+}
 
 template <typename Request, typename Response, typename Method>
 ConnectorFailure RuntimeModel::Call(Method method, Request& request, Response* response) {
   request.set_now_ns(now_);
   broker_.AdvanceTo(now_);
   session_.BeginCall(now_);
-  ConnectorFailure failure = (port_.*method)(request, response, gate_);
+  ConnectorFailure failure = (readers_[selected_].port->*method)(request, response, gate_);
   now_ = std::max(now_, session_.EndCall());
   broker_.AdvanceTo(now_);  // a call that only failed or waited moved the clock, not the broker
   return failure;
@@ -132,45 +149,85 @@ void RuntimeModel::TraceProtocolError(const char* call, std::string detail) {
   trace_.Commit();
 }
 
-bool RuntimeModel::StartIncarnation() {
-  ++incarnation_;
-  trace_.set_incarnation(incarnation_);
-  finished_ = false;
-  same_time_steps_ = 0;
-  open_epoch_.clear();
-  if (ConnectorFailure f = port_.Start(incarnation_); !f.ok()) {
+std::vector<std::uint32_t> RuntimeModel::LiveReaders() const {
+  std::vector<std::uint32_t> live;
+  for (std::uint32_t r = 0; r < readers_.size(); ++r) {
+    if (readers_[r].live) live.push_back(r);
+  }
+  return live;
+}
+
+void RuntimeModel::PushStep(VirtualTime t, std::uint32_t r) {
+  // One reader: FIFO, as ever. Several: readers due at one time in a seeded
+  // order (rank 0 is left to the checkpoint timer, which goes first).
+  const std::uint64_t rank =
+      many() ? 1 + static_cast<std::uint64_t>(faults_.Int("reader_order", ++order_draws_, 0, 1 << 30)) : 0;
+  queue_.Push(t, Event{EventKind::kStep, readers_[r].incarnation, r}, rank);
+}
+
+namespace {
+void FillSpan(v1::SpanHeld* out, std::uint32_t p, std::uint64_t start, std::optional<std::uint64_t> end) {
+  out->set_partition(p);
+  out->set_start_offset(start);
+  if (end.has_value()) out->set_end_offset(*end);
+}
+}  // namespace
+
+bool RuntimeModel::StartIncarnation(std::uint32_t r) {
+  Reader& reader = R(r);
+  reader.incarnation = ++incarnations_;
+  reader.live = true;
+  Select(r);
+  reader.finished = false;
+  reader.same_time_steps = 0;
+  reader.open_epoch.clear();
+  if (ConnectorFailure f = reader.port->Start(reader.incarnation); !f.ok()) {
     TraceFailure("Start", f);
     return false;
   }
   v1::OpenRequest request;
-  request.set_incarnation(incarnation_);
+  request.set_incarnation(reader.incarnation);
   request.set_redelivery_horizon_ns(Millis(scenario_.broker().redelivery_horizon_ms()));
-  const auto& latest = store_.latest();
+  if (many()) {
+    request.set_reader(r);
+    request.set_readers(static_cast<std::uint32_t>(readers_.size()));
+  }
+  const auto& latest = reader.committed;
   if (latest.has_value()) {
     request.set_restore(true);
     request.set_checkpoint_id(latest->id);
     request.set_checkpoint_state(latest->state);
   }
-  watermark_ = latest.has_value() ? latest->watermark : std::nullopt;
-  const bool log = broker_.shape() == v1::LOG;
-  if (log) {
+  reader.watermark = latest.has_value() ? latest->watermark : std::nullopt;
+  if (log() && !many()) {
     // The reader holds every partition, each from its committed resume point
     // (or from offset 0), and every partition added later.
     broker_.AdvanceTo(now_);
     const std::uint32_t n = broker_.partition_count();
-    std::size_t r = 0;
+    std::size_t i = 0;
     for (std::uint32_t p = 0; p < n; ++p) {
       std::uint64_t start = 0;
       if (latest.has_value()) {
         const auto& points = latest->resume_points;
-        while (r < points.size() && points[r].partition < p) ++r;
-        if (r < points.size() && points[r].partition == p) start = points[r].next_offset;
+        while (i < points.size() && points[i].partition < p) ++i;
+        if (i < points.size() && points[i].partition == p) start = points[i].next_offset;
       }
       auto* span = request.add_spans();
       span->set_partition(p);
       span->set_start_offset(start);
     }
     request.set_new_partitions_held(true);
+  } else if (log()) {
+    // Several readers: the spans this one holds, each from its committed
+    // resume point; partitions added later come by Assign.
+    for (auto& [p, span] : reader.spans) {
+      span.start = span.committed_next;
+      span.emitted_next = span.committed_next;
+      auto* out = request.add_spans();
+      out->set_partition(p);
+      out->set_start_offset(span.start);
+      if (span.end.has_value()) out->set_end_offset(*span.end);
+    }
   }
   broker_.OnIncarnationStart();
 
@@ -182,12 +239,10 @@ bool RuntimeModel::StartIncarnation() {
     if (latest->watermark.has_value()) x->set_watermark_ns(*latest->watermark);
   }
   for (const v1::Span& span : request.spans()) {
-    auto* held = x->add_spans();
-    held->set_partition(span.partition());
-    held->set_start_offset(span.start_offset());
-    if (span.has_end_offset()) held->set_end_offset(span.end_offset());
+    FillSpan(x->add_spans(), span.partition(), span.start_offset(),
+             span.has_end_offset() ? std::optional<std::uint64_t>(span.end_offset()) : std::nullopt);
   }
-  if (log) x->set_new_partitions_held(true);
+  if (request.new_partitions_held()) x->set_new_partitions_held(true);
   trace_.Commit();
 
   v1::OpenResponse response;
@@ -201,15 +256,16 @@ bool RuntimeModel::StartIncarnation() {
     TraceProtocolError("Open", std::string("the connector reads a ") +
                                    (reads == v1::LOG ? "log" : "queue") +
                                    ", but this scenario's broker is a " +
-                                   (log ? "log" : "queue"));
+                                   (log() ? "log" : "queue"));
     return false;
   }
-  queue_.Push(now_, Event{EventKind::kStep, incarnation_});
+  PushStep(now_, r);
   return true;
 }
 
-bool RuntimeModel::CrashAndRestart(const char* point) {
-  port_.Kill();
+bool RuntimeModel::CrashAndRestart(std::uint32_t r, const char* point) {
+  Select(r);
+  R(r).port->Kill();
   ++crashes_;
   {
     auto& e = trace_.Append(now_);
@@ -220,11 +276,331 @@ bool RuntimeModel::CrashAndRestart(const char* point) {
     crash_loop_ = true;
     return false;
   }
-  return StartIncarnation();  // clears the open epoch, opens from the store's latest
+  return StartIncarnation(r);  // clears its open epoch, opens from its last committed part
 }
 
-bool RuntimeModel::DoStep() {
+bool RuntimeModel::CrashAndRestartAll(const char* point) {
+  for (std::uint32_t r : LiveReaders()) {
+    if (!CrashAndRestart(r, point)) return false;
+  }
+  return true;
+}
+
+void RuntimeModel::AssignInitialSpans() {
+  if (!log() || !many()) return;
+  broker_.AdvanceTo(now_);
+  const std::vector<std::uint32_t> live = LiveReaders();
+  known_partitions_ = broker_.partition_count();
+  for (std::uint32_t p = 0; p < known_partitions_; ++p) {
+    R(live[p % live.size()]).spans[p] = HeldSpan{};
+  }
+}
+
+bool RuntimeModel::SendAssign(std::uint32_t r, std::vector<std::pair<std::uint32_t, HeldSpan>> spans,
+                              const char* why) {
+  if (spans.empty()) return true;
+  Select(r);
+  v1::AssignRequest request;
+  {
+    auto& e = trace_.Append(now_);
+    auto* x = e.mutable_assigned();
+    x->set_why(why);
+    for (auto& [p, span] : spans) {
+      span.emitted_next = span.committed_next;
+      span.start = span.committed_next;
+      FillSpan(x->add_spans(), p, span.start, span.end);
+      auto* out = request.add_spans();
+      out->set_partition(p);
+      out->set_start_offset(span.start);
+      if (span.end.has_value()) out->set_end_offset(*span.end);
+      R(r).spans[p] = span;
+    }
+    trace_.Commit();
+  }
+  v1::AssignResponse response;
+  if (ConnectorFailure f = Call(&ConnectorPort::Assign, request, &response); !f.ok()) {
+    TraceFailure("Assign", f);
+    return false;
+  }
+  return true;
+}
+
+bool RuntimeModel::SendRevoke(std::uint32_t r, const std::vector<std::uint32_t>& partitions,
+                              const char* why, bool crash_in_revoke) {
+  if (partitions.empty()) return true;
+  Select(r);
+  v1::RevokeRequest request;
+  {
+    auto& e = trace_.Append(now_);
+    auto* x = e.mutable_revoked();
+    x->set_why(why);
+    for (std::uint32_t p : partitions) {
+      auto it = R(r).spans.find(p);
+      if (it == R(r).spans.end()) continue;
+      FillSpan(x->add_spans(), p, it->second.start, it->second.end);
+      request.add_partitions(p);
+      R(r).spans.erase(it);
+    }
+    trace_.Commit();
+  }
+  v1::RevokeResponse response;
+  ConnectorFailure f = Call(&ConnectorPort::Revoke, request, &response);
+  // Killed inside Revoke: the revocation stands (the spans were committed up
+  // to their resume points); the reader restarts with what it has left.
+  if (crash_in_revoke) return CrashAndRestart(r, CrashPointName(v1::IN_REVOKE));
+  if (!f.ok()) {
+    TraceFailure("Revoke", f);
+    return false;
+  }
+  return true;
+}
+
+bool RuntimeModel::AssignNewPartitions() {
+  if (!log() || !many()) return true;
+  const std::uint32_t n = broker_.partition_count();
+  while (known_partitions_ < n) {
+    const std::uint32_t p = known_partitions_++;
+    const std::vector<std::uint32_t> live = LiveReaders();
+    if (live.empty()) return true;
+    if (!SendAssign(live[p % live.size()], {{p, HeldSpan{}}}, "new-partition")) return false;
+  }
+  return true;
+}
+
+std::optional<std::uint32_t> RuntimeModel::PickReceiver(std::uint32_t p, std::uint32_t not_r,
+                                                       std::string_view stream, std::uint64_t k) {
+  std::vector<std::uint32_t> can;
+  for (std::uint32_t r : LiveReaders()) {
+    if (r != not_r && !R(r).spans.contains(p)) can.push_back(r);
+  }
+  if (can.empty()) return std::nullopt;
+  return can[faults_.Int(stream, k, 0, static_cast<std::int64_t>(can.size()) - 1)];
+}
+
+bool RuntimeModel::MaybeCut(std::uint32_t r, std::uint64_t k, bool* crashed) {
+  *crashed = false;
+  if (!log() || !many()) return true;
+  const auto& cfg = scenario_.readers();
+  // The spans of r with offsets left (as far as the log has appended).
+  const auto remaining_end = [&](std::uint32_t p, const HeldSpan& s) {
+    return s.end.has_value() ? *s.end : std::max(broker_.partition_end(p), s.emitted_next);
+  };
+  auto d = faults_.Decide(v1::STEP, k, v1::FaultDecision::kCut, now_, [&](v1::FaultDecision* out) {
+    if (!faults_.Chance("cut", k, cfg.cut_rate())) return false;
+    std::vector<std::uint32_t> cuttable;
+    for (const auto& [p, s] : R(r).spans) {
+      if (remaining_end(p, s) > s.emitted_next || !s.end.has_value()) cuttable.push_back(p);
+    }
+    if (cuttable.empty()) return false;
+    const std::uint32_t p = cuttable[faults_.Int("cut.partition", k, 0, static_cast<std::int64_t>(cuttable.size()) - 1)];
+    const auto to = PickReceiver(p, r, "cut.to", k);
+    if (!to.has_value()) return false;
+    auto* c = out->mutable_cut();
+    c->set_partition(p);
+    c->set_at_ppm(static_cast<std::uint32_t>(faults_.Int("cut.at", k, 100000, 900000)));
+    c->set_to_reader(*to);
+    if (faults_.Chance("cut_crash", k, cfg.cut_crash_rate())) {
+      c->set_crash(faults_.Int("cut_crash.point", k, 0, 1) == 0 ? v1::IN_CUT : v1::AFTER_CUT);
+    }
+    return true;
+  });
+  if (!d.has_value()) return true;
+  const v1::Cut& cut = d->cut();
+  auto it = R(r).spans.find(cut.partition());
+  // A plan's cut that no longer fits the run (shrinking moved things) does nothing.
+  if (it == R(r).spans.end() || cut.to_reader() >= readers_.size() || cut.to_reader() == r ||
+      !R(cut.to_reader()).live || R(cut.to_reader()).spans.contains(cut.partition())) {
+    return true;
+  }
+  const std::uint32_t p = cut.partition();
+  const HeldSpan held = it->second;
+  const std::uint64_t from = held.emitted_next;
+  const std::uint64_t end = remaining_end(p, held);
+  const std::uint64_t at = from + static_cast<std::uint64_t>(
+                                      (static_cast<unsigned __int128>(end > from ? end - from : 0) * cut.at_ppm()) / 1000000);
+  Select(r);
+  v1::CutRequest request;
+  request.set_partition(p);
+  request.set_at_offset(at);
+  v1::CutResponse response;
+  ConnectorFailure f = Call(&ConnectorPort::Cut, request, &response);
+  if (cut.crash() == v1::IN_CUT) {
+    *crashed = true;  // the answer is never used: nothing changes hands
+    return CrashAndRestart(r, CrashPointName(v1::IN_CUT));
+  }
+  if (!f.ok()) {
+    TraceFailure("Cut", f);
+    return false;
+  }
+  const v1::Span& h = response.head();
+  const bool has_tail = response.has_tail();
+  const v1::Span& t = response.tail();
+  std::string bad;
+  if (h.partition() != p || (has_tail && t.partition() != p)) {
+    bad = "names another partition";
+  } else if (has_tail && (!h.has_end_offset() || h.end_offset() < h.start_offset() ||
+                          (t.has_end_offset() && t.end_offset() < t.start_offset()))) {
+    bad = "has a head without an end, or a span that ends before it starts";
+  } else if (has_tail && (held.end.has_value() != t.has_end_offset())) {
+    bad = held.end.has_value() ? "gives an open tail of a closed span" : "gives a closed tail of an open span";
+  }
+  if (!bad.empty()) {
+    TraceProtocolError("Cut", "the answer to a cut of partition " + std::to_string(p) + " " + bad +
+                                  "; nothing changes hands");
+    return true;
+  }
+  {
+    auto& e = trace_.Append(now_);
+    auto* x = e.mutable_cut();
+    FillSpan(x->mutable_held(), p, held.start, held.end);
+    x->set_at_offset(at);
+    FillSpan(x->mutable_head(), p, h.start_offset(),
+             h.has_end_offset() ? std::optional<std::uint64_t>(h.end_offset()) : std::nullopt);
+    if (has_tail) {
+      FillSpan(x->mutable_tail(), p, t.start_offset(),
+               t.has_end_offset() ? std::optional<std::uint64_t>(t.end_offset()) : std::nullopt);
+    }
+    x->set_to_reader(cut.to_reader());
+    trace_.Commit();
+  }
+  if (has_tail) {
+    it->second.end = h.end_offset();  // the reader keeps [start, head end)
+    HeldSpan tail;
+    tail.committed_next = t.start_offset();
+    if (t.has_end_offset()) tail.end = t.end_offset();
+    if (!SendAssign(cut.to_reader(), {{p, tail}}, "cut")) return false;
+  }
+  if (cut.crash() == v1::AFTER_CUT) {
+    *crashed = true;
+    return CrashAndRestart(r, CrashPointName(v1::AFTER_CUT));
+  }
+  return true;
+}
+
+bool RuntimeModel::MaybeRebalance(std::uint64_t id) {
+  if (!many()) return true;
+  const auto& cfg = scenario_.readers();
+  if (log()) {
+    auto d = faults_.Decide(v1::CHECKPOINT, id, v1::FaultDecision::kMove, now_, [&](v1::FaultDecision* out) {
+      if (!faults_.Chance("move", id, cfg.move_rate())) return false;
+      std::vector<std::pair<std::uint32_t, std::uint32_t>> held;  // (reader, partition)
+      for (std::uint32_t r : LiveReaders()) {
+        for (const auto& [p, s] : R(r).spans) held.emplace_back(r, p);
+      }
+      if (held.empty()) return false;
+      const auto [from, p] = held[faults_.Int("move.span", id, 0, static_cast<std::int64_t>(held.size()) - 1)];
+      const auto to = PickReceiver(p, from, "move.to", id);
+      if (!to.has_value()) return false;
+      auto* m = out->mutable_move();
+      m->set_partition(p);
+      m->set_from_reader(from);
+      m->set_to_reader(*to);
+      m->set_crash_in_revoke(faults_.Chance("move_crash", id, cfg.move_crash_rate()));
+      return true;
+    });
+    if (d.has_value()) {
+      const v1::Move& m = d->move();
+      const std::uint32_t p = m.partition();
+      if (m.from_reader() < readers_.size() && m.to_reader() < readers_.size() &&
+          m.from_reader() != m.to_reader() && R(m.from_reader()).live && R(m.to_reader()).live &&
+          R(m.from_reader()).spans.contains(p) && !R(m.to_reader()).spans.contains(p)) {
+        const HeldSpan span = R(m.from_reader()).spans.at(p);
+        if (!SendRevoke(m.from_reader(), {p}, "move", m.crash_in_revoke())) return false;
+        if (!SendAssign(m.to_reader(), {{p, span}}, "move")) return false;
+      }
+    }
+  }
+  auto d = faults_.Decide(v1::CHECKPOINT, id, v1::FaultDecision::kMembership, now_, [&](v1::FaultDecision* out) {
+    if (!faults_.Chance("membership", id, cfg.membership_rate())) return false;
+    const std::vector<std::uint32_t> live = LiveReaders();
+    std::vector<std::uint32_t> out_now;
+    for (std::uint32_t r = 0; r < readers_.size(); ++r) {
+      if (!R(r).live) out_now.push_back(r);
+    }
+    const bool join = !out_now.empty() && (live.size() <= 1 || faults_.Int("membership.kind", id, 0, 1) == 0);
+    if (!join && live.size() <= 1) return false;
+    const auto& pool = join ? out_now : live;
+    auto* m = out->mutable_membership();
+    m->set_reader(pool[faults_.Int("membership.reader", id, 0, static_cast<std::int64_t>(pool.size()) - 1)]);
+    m->set_joins(join);
+    return true;
+  });
+  if (!d.has_value() || d->membership().reader() >= readers_.size()) return true;
+  const std::uint32_t who = d->membership().reader();
+  ++membership_changes_;
+  if (d->membership().joins()) {
+    if (R(who).live) return true;
+    R(who).committed.reset();  // a reader that joins starts fresh
+    R(who).spans.clear();
+    if (!StartIncarnation(who)) return false;
+    {
+      auto& e = trace_.Append(now_);
+      e.mutable_reader_joined();
+      trace_.Commit();
+    }
+    if (!log()) return true;
+    // It takes spans from the readers holding the most, down to a fair share.
+    const std::vector<std::uint32_t> live = LiveReaders();
+    std::size_t total = 0;
+    for (std::uint32_t r : live) total += R(r).spans.size();
+    const std::size_t share = total / live.size();
+    while (R(who).spans.size() < share) {
+      std::uint32_t richest = who;
+      for (std::uint32_t r : live) {
+        if (r != who && R(r).spans.size() > R(richest).spans.size()) richest = r;
+      }
+      if (richest == who || R(richest).spans.size() <= share) break;
+      // Its last span of a partition the joiner does not hold.
+      std::optional<std::uint32_t> p;
+      for (auto it = R(richest).spans.rbegin(); it != R(richest).spans.rend(); ++it) {
+        if (!R(who).spans.contains(it->first)) {
+          p = it->first;
+          break;
+        }
+      }
+      if (!p.has_value()) break;
+      const HeldSpan span = R(richest).spans.at(*p);
+      if (!SendRevoke(richest, {*p}, "join", false)) return false;
+      if (!SendAssign(who, {{*p, span}}, "join")) return false;
+    }
+    return true;
+  }
+  if (!R(who).live || LiveReaders().size() <= 1) return true;
+  // Leaving: every span must find a reader that holds none of its partition.
+  std::vector<std::pair<std::uint32_t, std::uint32_t>> to;  // (partition, receiver)
+  std::uint64_t salt = 0;
+  for (const auto& [p, s] : R(who).spans) {
+    auto receiver = PickReceiver(p, who, "leave.to", id * 1024 + salt++);
+    if (!receiver.has_value()) return true;  // nowhere to put it: it stays
+    to.emplace_back(p, *receiver);
+  }
+  std::vector<std::pair<std::uint32_t, HeldSpan>> spans(R(who).spans.begin(), R(who).spans.end());
+  std::vector<std::uint32_t> partitions;
+  for (const auto& [p, s] : spans) partitions.push_back(p);
+  if (!SendRevoke(who, partitions, "leave", false)) return false;
+  Select(who);
+  R(who).port->Kill();
+  R(who).live = false;
+  R(who).open_epoch.clear();  // empty: the checkpoint just took it
+  {
+    auto& e = trace_.Append(now_);
+    e.mutable_reader_left();
+    trace_.Commit();
+  }
+  for (std::size_t i = 0; i < spans.size(); ++i) {
+    if (!SendAssign(to[i].second, {spans[i]}, "leave")) return false;
+  }
+  return true;
+}
+
+bool RuntimeModel::DoStep(std::uint32_t r) {
   const std::uint64_t k = ++step_;
+  Select(r);
+  bool cut_crashed = false;
+  if (!MaybeCut(r, k, &cut_crashed)) return false;
+  if (cut_crashed) return true;
+  Select(r);
+  Reader& reader = R(r);
   std::optional<v1::Crash> crash;
   if (auto d = faults_.Decide(v1::STEP, k, v1::FaultDecision::kCrash, now_,
                               [&](v1::FaultDecision* out) {
@@ -237,7 +613,7 @@ bool RuntimeModel::DoStep() {
     crash = d->crash();
   }
   if (crash.has_value() && crash->point() == v1::BEFORE_STEP) {
-    return CrashAndRestart(CrashPointName(v1::BEFORE_STEP));
+    return CrashAndRestart(r, CrashPointName(v1::BEFORE_STEP));
   }
   const bool in_step = crash.has_value() && crash->point() == v1::IN_STEP_AFTER_BROKER_CALL;
   if (in_step) gate_.Arm(CrashGate::Count::kAnyCall, crash->after_calls());
@@ -251,7 +627,7 @@ bool RuntimeModel::DoStep() {
   gate_.Disarm();
   // The gate decides, not the failure kind: a port that let the call finish
   // anyway still gets its incarnation killed and its answer discarded.
-  if (fired) return CrashAndRestart(CrashPointName(v1::IN_STEP_AFTER_BROKER_CALL));
+  if (fired) return CrashAndRestart(r, CrashPointName(v1::IN_STEP_AFTER_BROKER_CALL));
   if (!f.ok()) {
     TraceFailure("Advance", f);
     return false;
@@ -276,30 +652,36 @@ bool RuntimeModel::DoStep() {
     x->set_partition(gap.partition());
     x->set_from_offset(gap.from_offset());
     x->set_to_offset(gap.to_offset());
-    x->set_step(step_);
+    x->set_step(k);
     trace_.Commit();
+    if (auto it = reader.spans.find(gap.partition()); it != reader.spans.end()) {
+      it->second.emitted_next = std::max(it->second.emitted_next, gap.to_offset());
+    }
   }
-  for (const v1::Record& r : response.records()) {
-    const std::optional<RecordKey> key = broker_.Identify(r, &why);
+  for (const v1::Record& rec : response.records()) {
+    const std::optional<RecordKey> key = broker_.Identify(rec, &why);
     if (!key.has_value()) {
       TraceProtocolError("Advance", "record " + why);
       continue;
     }
-    open_epoch_.push_back(*key);
+    reader.open_epoch.push_back(*key);
     ++accepted;
     auto& e = trace_.Append(now_);
     auto* x = e.mutable_emitted();
-    if (r.has_offset()) {
-      x->set_partition(r.partition());
-      x->set_offset(r.offset());
+    if (rec.has_offset()) {
+      x->set_partition(rec.partition());
+      x->set_offset(rec.offset());
+      if (auto it = reader.spans.find(rec.partition()); it != reader.spans.end()) {
+        it->second.emitted_next = std::max(it->second.emitted_next, rec.offset() + 1);
+      }
     } else {
-      x->set_message_id(r.message_id());
+      x->set_message_id(rec.message_id());
     }
-    x->set_event_time_ns(r.event_time_ns());
-    x->set_step(step_);
+    x->set_event_time_ns(rec.event_time_ns());
+    x->set_step(k);
     trace_.Commit();
   }
-  if (response.has_watermark_ns()) watermark_ = response.watermark_ns();
+  if (response.has_watermark_ns()) reader.watermark = response.watermark_ns();
 
   VirtualTime resume_at = now_;
   if (response.next_case() == v1::AdvanceResponse::kResumeAtNs) {
@@ -310,44 +692,60 @@ bool RuntimeModel::DoStep() {
     }
     resume_at = std::max(resume_at, now_);
   } else if (response.next_case() == v1::AdvanceResponse::kFinished) {
-    finished_ = response.finished();
+    reader.finished = response.finished();
   }
 
   auto& e = trace_.Append(now_);
   auto* x = e.mutable_stepped();
-  x->set_step(step_);
+  x->set_step(k);
   x->set_records(accepted);
   if (response.has_watermark_ns()) x->set_watermark_ns(response.watermark_ns());
-  x->set_resume_at_ns(finished_ ? kNever : resume_at);
-  x->set_finished(finished_);
+  x->set_resume_at_ns(reader.finished ? kNever : resume_at);
+  x->set_finished(reader.finished);
   x->set_broker_idle(broker_.IdleAt(now_));  // for the oracle's watermark-stall rule
+  if (many()) {
+    std::optional<VirtualTime> combined;
+    bool all = true;
+    for (std::uint32_t i : LiveReaders()) {
+      if (!R(i).watermark.has_value()) {
+        all = false;
+        break;
+      }
+      combined = combined.has_value() ? std::min(*combined, *R(i).watermark) : *R(i).watermark;
+    }
+    if (all && combined.has_value()) x->set_combined_watermark_ns(*combined);
+  }
   trace_.Commit();
 
-  if (!finished_) {
+  if (!reader.finished) {
     if (resume_at != asked_at) {
-      same_time_steps_ = 0;
-    } else if (Livelocked()) {
+      reader.same_time_steps = 0;
+    } else if (Livelocked(reader)) {
       return false;
     }
-    queue_.Push(resume_at, Event{EventKind::kStep, incarnation_});
+    PushStep(resume_at, r);
   }
   const std::uint64_t every = scenario_.runtime().checkpoint_every_records();
-  if (every > 0 && open_epoch_.size() >= every) return DoCheckpointCycle();
+  if (every > 0) {
+    std::size_t open = 0;
+    for (const Reader& each : readers_) open += each.open_epoch.size();
+    if (open >= every) return DoCheckpointCycle();
+  }
   return true;
 }
 
-bool RuntimeModel::Livelocked() {
-  const auto& r = scenario_.runtime();
-  const std::uint64_t max_steps = r.max_same_time_steps() > 0 ? r.max_same_time_steps() : kDefaultMaxSameTimeSteps;
-  const std::int64_t max_wall_ms = r.max_same_time_wall_ms() > 0 ? r.max_same_time_wall_ms() : kDefaultMaxSameTimeWallMs;
+bool RuntimeModel::Livelocked(Reader& reader) {
+  const auto& rp = scenario_.runtime();
+  const std::uint64_t max_steps = rp.max_same_time_steps() > 0 ? rp.max_same_time_steps() : kDefaultMaxSameTimeSteps;
+  const std::int64_t max_wall_ms = rp.max_same_time_wall_ms() > 0 ? rp.max_same_time_wall_ms() : kDefaultMaxSameTimeWallMs;
   const std::int64_t wall_now = wall_clock_ms_ ? wall_clock_ms_() : 0;
-  if (++same_time_steps_ == 1) same_time_since_wall_ms_ = wall_now;
-  const std::int64_t wall_ms = wall_now - same_time_since_wall_ms_;
+  if (++reader.same_time_steps == 1) reader.same_time_since_wall_ms = wall_now;
+  const std::int64_t wall_ms = wall_now - reader.same_time_since_wall_ms;
   const bool by_wall = wall_clock_ms_ && wall_ms > max_wall_ms;
-  if (same_time_steps_ <= max_steps && !by_wall) return false;
+  if (reader.same_time_steps <= max_steps && !by_wall) return false;
   auto& e = trace_.Append(now_);
   auto* x = e.mutable_livelock();
-  x->set_steps(same_time_steps_);
+  x->set_steps(reader.same_time_steps);
   // The wall time reaches the trace only when it decided: otherwise the trace
   // would depend on the machine's speed.
   x->set_wall_ms(by_wall ? wall_ms : 0);
@@ -371,35 +769,40 @@ bool RuntimeModel::DoCheckpointCycle() {
   const std::uint64_t id = next_checkpoint_id_++;
   ScheduleCheckpointTimer();
 
-  v1::CheckpointRequest request;
-  request.set_checkpoint_id(id);
-  v1::CheckpointResponse response;
-  if (ConnectorFailure f = Call(&ConnectorPort::Checkpoint, request, &response); !f.ok()) {
-    TraceFailure("Checkpoint", f);
-    return false;
-  }
-  std::vector<RecordKey> epoch;
-  epoch.swap(open_epoch_);
-  std::vector<ResumePoint> resume_points;
-  for (const v1::ResumePoint& r : response.resume_points()) {
-    resume_points.push_back(ResumePoint{r.partition(), r.next_offset()});
-  }
-  std::stable_sort(resume_points.begin(), resume_points.end(),
-                   [](const ResumePoint& a, const ResumePoint& b) { return a.partition < b.partition; });
-  {
+  // Every live reader answers, in index order.
+  std::vector<TakenPart> taken;
+  for (std::uint32_t r : LiveReaders()) {
+    Select(r);
+    v1::CheckpointRequest request;
+    request.set_checkpoint_id(id);
+    v1::CheckpointResponse response;
+    if (ConnectorFailure f = Call(&ConnectorPort::Checkpoint, request, &response); !f.ok()) {
+      TraceFailure("Checkpoint", f);
+      return false;
+    }
+    Reader& reader = R(r);
+    TakenPart part{r, {}, CommittedPart{id, std::move(*response.mutable_state()), reader.watermark, {}}};
+    part.epoch.swap(reader.open_epoch);
+    for (const v1::ResumePoint& rp : response.resume_points()) {
+      part.part.resume_points.push_back(ResumePoint{rp.partition(), rp.next_offset()});
+    }
+    std::stable_sort(part.part.resume_points.begin(), part.part.resume_points.end(),
+                     [](const ResumePoint& a, const ResumePoint& b) { return a.partition < b.partition; });
     auto& e = trace_.Append(now_);
     auto* x = e.mutable_checkpoint();
     x->set_checkpoint_id(id);
-    x->set_records(static_cast<std::uint32_t>(epoch.size()));
-    if (watermark_.has_value()) x->set_watermark_ns(*watermark_);
-    x->set_state_bytes(response.state().size());
-    for (const ResumePoint& r : resume_points) {
+    x->set_records(static_cast<std::uint32_t>(part.epoch.size()));
+    if (reader.watermark.has_value()) x->set_watermark_ns(*reader.watermark);
+    x->set_state_bytes(part.part.state.size());
+    for (const ResumePoint& rp : part.part.resume_points) {
       auto* y = x->add_resume_points();
-      y->set_partition(r.partition);
-      y->set_next_offset(r.next_offset);
+      y->set_partition(rp.partition);
+      y->set_next_offset(rp.next_offset);
     }
     trace_.Commit();
+    taken.push_back(std::move(part));
   }
+  const std::vector<std::uint32_t> live = LiveReaders();
 
   // Crash points of this checkpoint: one drawn out of the three, by its own
   // streams so that turning commit failures on or off does not move them.
@@ -412,20 +815,26 @@ bool RuntimeModel::DoCheckpointCycle() {
             // The notice acknowledges with acks (queue) or bookmark saves (log).
             const v1::CrashPoint kPoints[] = {v1::AFTER_CHECKPOINT_BEFORE_COMMIT,
                                               v1::AFTER_COMMIT_BEFORE_NOTICE,
-                                              broker_.shape() == v1::LOG
-                                                  ? v1::IN_NOTICE_AFTER_BOOKMARK_SAVE
-                                                  : v1::IN_NOTICE_AFTER_ACK};
+                                              log() ? v1::IN_NOTICE_AFTER_BOOKMARK_SAVE
+                                                    : v1::IN_NOTICE_AFTER_ACK};
             auto* c = out->mutable_crash();
             c->set_point(kPoints[faults_.Int("checkpoint_crash.point", id, 0, 2)]);
             if (c->point() == kPoints[2]) c->set_after_calls(1);
+            if (many()) {
+              c->set_reader(live[faults_.Int("checkpoint_crash.reader", id, 0,
+                                             static_cast<std::int64_t>(live.size()) - 1)]);
+            }
             return true;
           })) {
     crash = d->crash();
   }
   const auto crash_at = [&](v1::CrashPoint p) { return crash.has_value() && crash->point() == p; };
-  // The taken checkpoint is dropped with the epoch: it never reaches the store.
+  const std::uint32_t crash_reader =
+      crash.has_value() && crash->reader() < readers_.size() && R(crash->reader()).live ? crash->reader() : live.front();
+  // The taken checkpoint is dropped with every reader's epoch: it never
+  // reaches the store, and every reader restarts from the last committed one.
   if (crash_at(v1::AFTER_CHECKPOINT_BEFORE_COMMIT)) {
-    return CrashAndRestart(CrashPointName(v1::AFTER_CHECKPOINT_BEFORE_COMMIT));
+    return CrashAndRestartAll(CrashPointName(v1::AFTER_CHECKPOINT_BEFORE_COMMIT));
   }
 
   const auto failure = faults_.Decide(
@@ -443,55 +852,94 @@ bool RuntimeModel::DoCheckpointCycle() {
     auto& e = trace_.Append(now_);
     e.mutable_commit_failed()->set_checkpoint_id(id);
     trace_.Commit();
-    return CrashAndRestart("commit-failed");
+    return CrashAndRestartAll("commit-failed");
   }
 
-  store_.Commit(CommittedCheckpoint{id, std::move(*response.mutable_state()), watermark_,
-                                    std::move(resume_points)},
-                epoch);
+  std::vector<RecordKey> all;
+  for (const TakenPart& part : taken) all.insert(all.end(), part.epoch.begin(), part.epoch.end());
+  store_.Commit(CommittedCheckpoint{id, taken.size() == 1 ? taken.front().part.state : std::string(),
+                                    taken.size() == 1 ? taken.front().part.watermark : std::nullopt,
+                                    taken.size() == 1 ? taken.front().part.resume_points
+                                                      : std::vector<ResumePoint>{}},
+                all);
+  for (TakenPart& part : taken) {
+    Reader& reader = R(part.reader);
+    for (const ResumePoint& rp : part.part.resume_points) {
+      if (auto it = reader.spans.find(rp.partition); it != reader.spans.end()) {
+        it->second.committed_next = rp.next_offset;
+      }
+    }
+    reader.committed = std::move(part.part);
+  }
   ++checkpoints_;
+  Select(live.front());
   {
     auto& e = trace_.Append(now_);
     e.mutable_committed()->set_checkpoint_id(id);
     trace_.Commit();
   }
-  // Committed but never noticed: the notice is not retried; leases expire.
-  if (crash_at(v1::AFTER_COMMIT_BEFORE_NOTICE)) {
-    return CrashAndRestart(CrashPointName(v1::AFTER_COMMIT_BEFORE_NOTICE));
+  for (std::uint32_t r : live) {
+    if (!R(r).live) continue;
+    // Committed but never noticed: the notice is not retried; leases expire.
+    if (crash_at(v1::AFTER_COMMIT_BEFORE_NOTICE) && r == crash_reader) {
+      if (!CrashAndRestart(r, CrashPointName(v1::AFTER_COMMIT_BEFORE_NOTICE))) return false;
+      continue;
+    }
+    Select(r);
+    {
+      auto& e = trace_.Append(now_);
+      e.mutable_commit_notice()->set_checkpoint_id(id);
+      trace_.Commit();
+    }
+    const bool notice_crash = r == crash_reader && (crash_at(v1::IN_NOTICE_AFTER_ACK) ||
+                                                    crash_at(v1::IN_NOTICE_AFTER_BOOKMARK_SAVE));
+    if (notice_crash) gate_.Arm(CrashGate::Count::kAckCalls, crash->after_calls());
+    v1::CommittedRequest notice;
+    notice.set_checkpoint_id(id);
+    v1::CommittedResponse ignored;
+    ConnectorFailure f = Call(&ConnectorPort::Committed, notice, &ignored);
+    const bool fired = gate_.fired();
+    gate_.Disarm();
+    if (fired) {
+      if (!CrashAndRestart(r, CrashPointName(crash->point()))) return false;
+      continue;
+    }
+    if (!f.ok()) {
+      TraceFailure("Committed", f);
+      return false;
+    }
   }
-
-  {
-    auto& e = trace_.Append(now_);
-    e.mutable_commit_notice()->set_checkpoint_id(id);
-    trace_.Commit();
-  }
-  const bool notice_crash =
-      crash_at(v1::IN_NOTICE_AFTER_ACK) || crash_at(v1::IN_NOTICE_AFTER_BOOKMARK_SAVE);
-  if (notice_crash) gate_.Arm(CrashGate::Count::kAckCalls, crash->after_calls());
-  v1::CommittedRequest notice;
-  notice.set_checkpoint_id(id);
-  v1::CommittedResponse ignored;
-  ConnectorFailure f = Call(&ConnectorPort::Committed, notice, &ignored);
-  const bool fired = gate_.fired();
-  gate_.Disarm();
-  if (fired) return CrashAndRestart(CrashPointName(crash->point()));
-  if (!f.ok()) {
-    TraceFailure("Committed", f);
-    return false;
-  }
-  return true;
+  return MaybeRebalance(id);
 }
 
 bool RuntimeModel::AllCommitted() const {
   // A log reader's emitted records wait in the open epoch even when retention
   // has since deleted them from the log: the run goes on until they commit.
-  return broker_.Drained(store_) && (broker_.shape() != v1::LOG || open_epoch_.empty());
+  if (!broker_.Drained(store_)) return false;
+  if (!log()) return true;
+  for (const Reader& r : readers_) {
+    if (!r.open_epoch.empty()) return false;
+  }
+  return true;
+}
+
+bool RuntimeModel::AllFinished() const {
+  for (const Reader& r : readers_) {
+    if (r.live && (!r.finished || !r.open_epoch.empty())) return false;
+  }
+  return true;
 }
 
 RunSummary RuntimeModel::Run() {
   RunSummary summary;
   std::string reason;
-  bool ok = StartIncarnation();
+  const std::uint32_t count = static_cast<std::uint32_t>(readers_.size());
+  const std::uint32_t initial =
+      scenario_.readers().initial() > 0 ? std::min(scenario_.readers().initial(), count) : count;
+  for (std::uint32_t r = 0; r < initial; ++r) R(r).live = true;
+  AssignInitialSpans();
+  bool ok = true;
+  for (std::uint32_t r = 0; r < initial && ok; ++r) ok = StartIncarnation(r);
   if (ok) ScheduleCheckpointTimer();
 
   while (ok && reason.empty()) {
@@ -513,14 +961,20 @@ RunSummary RuntimeModel::Run() {
     // Publishes and lease expiries up to now reach the trace before anything
     // the runtime does at now: trace order is time order.
     broker_.AdvanceTo(now_);
+    if (!AssignNewPartitions()) {
+      ok = false;
+      break;
+    }
     switch (event.kind) {
-      case EventKind::kStep:
-        if (event.generation != incarnation_ || finished_) continue;
-        ok = DoStep();
+      case EventKind::kStep: {
+        const Reader& reader = R(event.reader);
+        if (!reader.live || event.generation != reader.incarnation || reader.finished) continue;
+        ok = DoStep(event.reader);
         break;
+      }
       case EventKind::kCheckpointDue:
         if (event.generation != checkpoint_timer_generation_) continue;
-        if (finished_ && open_epoch_.empty() && store_.latest().has_value()) {
+        if (AllFinished() && store_.latest().has_value()) {
           reason = "connector finished";
           continue;
         }
@@ -535,13 +989,13 @@ RunSummary RuntimeModel::Run() {
     reason = "connector failed";
     summary.connector_failed = true;
   }
-  port_.Kill();
+  for (Reader& r : readers_) r.port->Kill();
   broker_.AdvanceTo(now_);
 
   summary.end_reason = reason;
   summary.end_time = now_;
   summary.steps = step_;
-  summary.incarnations = incarnation_;
+  summary.incarnations = incarnations_;
   summary.crashes = crashes_;
   summary.checkpoints = checkpoints_;
   summary.published = broker_.published();

@@ -80,7 +80,11 @@ const char* ExpectedSite(const v1::FaultDecision& d) {
     case v1::FaultDecision::kLostBookmark:
       return s == v1::SAVE_BOOKMARKS ? nullptr : "SAVE_BOOKMARKS";
     case v1::FaultDecision::kCommitFailure:
+    case v1::FaultDecision::kMove:
+    case v1::FaultDecision::kMembership:
       return s == v1::CHECKPOINT ? nullptr : "CHECKPOINT";
+    case v1::FaultDecision::kCut:
+      return s == v1::STEP ? nullptr : "STEP";
     case v1::FaultDecision::kCrash:
       switch (d.crash().point()) {
         case v1::BEFORE_STEP:
@@ -91,6 +95,10 @@ const char* ExpectedSite(const v1::FaultDecision& d) {
         case v1::IN_NOTICE_AFTER_ACK:
         case v1::IN_NOTICE_AFTER_BOOKMARK_SAVE:
           return s == v1::CHECKPOINT ? nullptr : "CHECKPOINT (a checkpoint crash point)";
+        case v1::IN_CUT:
+        case v1::AFTER_CUT:
+        case v1::IN_REVOKE:
+          return "a Cut (IN_CUT, AFTER_CUT) or a Move (IN_REVOKE) decision, not a crash of its own";
         default:
           return nullptr;  // no crash point: reported at the crash field instead
       }

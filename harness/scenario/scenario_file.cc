@@ -9,6 +9,9 @@
 namespace weir {
 namespace {
 
+// Reader processes a scenario may ask for.
+constexpr std::uint32_t kMaxReaders = 16;
+
 // One year of virtual time: larger durations are surely typos.
 constexpr std::int64_t kMaxMillis = 365LL * 24 * 3600 * 1000;
 
@@ -60,6 +63,28 @@ void ValidateLog(TextFile& f, const v1::LogConfig& l) {
   CheckMillis(f, l.broker_restart_ms(), "log", "broker_restart_ms", false);
 }
 
+void ValidateReaders(TextFile& f, const v1::Scenario& s) {
+  const auto& r = s.readers();
+  f.Require(r.count() >= 1 && r.count() <= kMaxReaders, {"readers", "count"},
+            absl::StrCat("readers.count is ", r.count(), "; expected 1 ..", kMaxReaders));
+  f.Require(r.initial() <= r.count(), {"readers", "initial"},
+            absl::StrCat("readers.initial is ", r.initial(), "; expected 0 (all) .. readers.count (",
+                         r.count(), ")"));
+  const std::pair<double, const char*> rates[] = {{r.cut_rate(), "cut_rate"},
+                                                  {r.move_rate(), "move_rate"},
+                                                  {r.membership_rate(), "membership_rate"},
+                                                  {r.cut_crash_rate(), "cut_crash_rate"},
+                                                  {r.move_crash_rate(), "move_crash_rate"}};
+  for (const auto& [v, field] : rates) {
+    f.Require(v >= 0 && v <= 1, {"readers", field},
+              absl::StrCat("readers.", field, " is ", v, "; expected a probability in [0, 1]"));
+  }
+  if (!s.has_log()) {
+    f.Require(r.cut_rate() == 0 && r.move_rate() == 0, {"readers", r.cut_rate() != 0 ? "cut_rate" : "move_rate"},
+              "cuts and moves need spans: expected them only with a log { … } broker");
+  }
+}
+
 void Validate(TextFile& f, const v1::Scenario& s) {
   const auto& w = s.workload();
   f.Require(s.has_workload(), {"workload"}, "expected a workload { … } block");
@@ -86,6 +111,7 @@ void Validate(TextFile& f, const v1::Scenario& s) {
   }
   ValidateFaults(f, s.faults());
   ValidateProfile(f, s.profile(), /*in_scenario=*/true);
+  if (s.has_readers()) ValidateReaders(f, s);
   const auto& r = s.runtime();
   CheckMillis(f, r.checkpoint_interval_ms(), "runtime", "checkpoint_interval_ms", false);
   CheckMillis(f, r.drain_bound_ms(), "runtime", "drain_bound_ms", false);

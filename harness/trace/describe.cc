@@ -10,6 +10,18 @@ std::string Watermark(bool has, std::int64_t value) {
   return has ? FormatTime(value) : std::string("none");
 }
 
+// "partition 3 [120, 200)" or "partition 3 [120, open)".
+std::string Span(const v1::SpanHeld& s) {
+  return absl::StrCat("partition ", s.partition(), " [", s.start_offset(), ", ",
+                      s.has_end_offset() ? absl::StrCat(s.end_offset()) : std::string("open"), ")");
+}
+
+std::string Spans(const google::protobuf::RepeatedPtrField<v1::SpanHeld>& spans) {
+  std::string out;
+  for (const auto& s : spans) absl::StrAppend(&out, out.empty() ? "" : ", ", Span(s));
+  return out.empty() ? std::string("no spans") : out;
+}
+
 }  // namespace
 
 std::string DescribeEvent(const v1::TraceEvent& e) {
@@ -152,6 +164,22 @@ std::string DescribeEvent(const v1::TraceEvent& e) {
                           e.bookmark_saved().partition(), " at offset ",
                           e.bookmark_saved().next_offset(),
                           e.bookmark_saved().lost() ? " (lost by a fault)" : "");
+    case TraceEvent::kAssigned:
+      return absl::StrCat("reader ", e.reader(), " was assigned ", Spans(e.assigned().spans()), " (",
+                          e.assigned().why(), ")");
+    case TraceEvent::kRevoked:
+      return absl::StrCat("reader ", e.reader(), " gave up ", Spans(e.revoked().spans()), " (",
+                          e.revoked().why(), ")");
+    case TraceEvent::kCut:
+      return absl::StrCat("reader ", e.reader(), " cut ", Span(e.cut().held()), " (asked at offset ",
+                          e.cut().at_offset(), "): keeps ", Span(e.cut().head()),
+                          e.cut().has_tail() ? absl::StrCat(", gives ", Span(e.cut().tail()), " to reader ",
+                                                            e.cut().to_reader())
+                                             : std::string(", declined"));
+    case TraceEvent::kReaderLeft:
+      return absl::StrCat("reader ", e.reader(), " left");
+    case TraceEvent::kReaderJoined:
+      return absl::StrCat("reader ", e.reader(), " joined");
     case TraceEvent::kGapReported:
       return absl::StrCat("step ", e.gap_reported().step(), " reported a gap in partition ",
                           e.gap_reported().partition(), ": offsets [",

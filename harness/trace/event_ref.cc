@@ -31,6 +31,7 @@ EventRef MakeRef(const v1::TraceEvent& e) {
   r.seq = e.seq();
   r.t = e.t_ns();
   r.incarnation = e.incarnation();
+  r.reader = e.reader();
   r.kind = e.kind_case();
   switch (r.kind) {
     case TraceEvent::kPublished:
@@ -149,6 +150,23 @@ EventRef MakeRef(const v1::TraceEvent& e) {
       r.f[2] = S(e.gap_reported().to_offset());
       r.f[3] = S(e.gap_reported().step());
       break;
+    case TraceEvent::kAssigned:
+    case TraceEvent::kRevoked: {
+      const auto& spans = r.kind == TraceEvent::kAssigned ? e.assigned().spans() : e.revoked().spans();
+      if (!spans.empty()) {
+        r.f[0] = spans[0].partition();
+        r.f[1] = S(spans[0].start_offset());
+        r.f[2] = spans[0].has_end_offset() ? S(spans[0].end_offset()) : -1;
+      }
+      r.f[3] = spans.size();
+      break;
+    }
+    case TraceEvent::kCut:
+      r.f[0] = e.cut().held().partition();
+      r.f[1] = S(e.cut().head().end_offset());
+      r.f[2] = e.cut().has_tail() ? S(e.cut().tail().start_offset()) : -1;
+      r.f[3] = e.cut().to_reader();
+      break;
     default:
       break;
   }
@@ -161,7 +179,38 @@ v1::TraceEvent Rebuild(const EventRef& r) {
   e.set_seq(r.seq);
   e.set_t_ns(r.t);
   e.set_incarnation(r.incarnation);
+  e.set_reader(r.reader);
   switch (r.kind) {
+    case TraceEvent::kAssigned:
+    case TraceEvent::kRevoked: {
+      auto* spans = r.kind == TraceEvent::kAssigned ? e.mutable_assigned()->mutable_spans()
+                                                    : e.mutable_revoked()->mutable_spans();
+      if (r.f[3] > 0) {
+        auto* s = spans->Add();
+        s->set_partition(static_cast<std::uint32_t>(r.f[0]));
+        s->set_start_offset(U(r.f[1]));
+        if (r.f[2] >= 0) s->set_end_offset(U(r.f[2]));
+      }
+      break;
+    }
+    case TraceEvent::kCut: {
+      auto* x = e.mutable_cut();
+      x->mutable_held()->set_partition(static_cast<std::uint32_t>(r.f[0]));
+      x->mutable_head()->set_partition(static_cast<std::uint32_t>(r.f[0]));
+      x->mutable_head()->set_end_offset(U(r.f[1]));
+      if (r.f[2] >= 0) {
+        x->mutable_tail()->set_partition(static_cast<std::uint32_t>(r.f[0]));
+        x->mutable_tail()->set_start_offset(U(r.f[2]));
+      }
+      x->set_to_reader(static_cast<std::uint32_t>(r.f[3]));
+      break;
+    }
+    case TraceEvent::kReaderLeft:
+      e.mutable_reader_left();
+      break;
+    case TraceEvent::kReaderJoined:
+      e.mutable_reader_joined();
+      break;
     case TraceEvent::kPublished: {
       auto* x = e.mutable_published();
       x->set_message_id(U(r.f[0]));

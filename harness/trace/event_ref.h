@@ -1,7 +1,8 @@
 // File: event_ref.h
 //
 // A compact, copyable reference to a trace event: its position, time,
-// incarnation, kind and up to four numeric fields. Enough to describe the
+// incarnation, reader, kind and up to four numeric fields (for span events,
+// the first span only). Enough to describe the
 // event later (as a proving event in a report) without keeping the event.
 // String fields are not kept; events whose meaning lives in a string (exits,
 // protocol errors) are described when they happen.
@@ -18,6 +19,7 @@ struct EventRef {
   std::uint64_t seq = 0;
   std::int64_t t = 0;
   std::uint64_t incarnation = 0;
+  std::uint32_t reader = 0;
   v1::TraceEvent::KindCase kind = v1::TraceEvent::KIND_NOT_SET;
   std::int64_t f[4] = {0, 0, 0, 0};
   // Bit 0: has a watermark; for stepped also bit 1 finished, bit 2 broker idle.

@@ -7,6 +7,7 @@ v1::TraceEvent& TraceLog::Append(VirtualTime t) {
   current_.set_seq(next_seq_);
   current_.set_t_ns(t);
   current_.set_incarnation(incarnation_);
+  current_.set_reader(reader_);
   return current_;
 }
 

@@ -36,6 +36,8 @@ class TraceLog {
 
   void set_incarnation(std::uint64_t incarnation) { incarnation_ = incarnation; }
   std::uint64_t incarnation() const { return incarnation_; }
+  // Many readers: the reader the following events speak for (0 with one).
+  void set_reader(std::uint32_t reader) { reader_ = reader; }
 
   // Starts the next event at virtual time t; fill its kind, then call Commit().
   // REQUIRES: the previous event was committed.
@@ -50,6 +52,7 @@ class TraceLog {
   v1::TraceEvent current_;
   std::uint64_t next_seq_ = 0;
   std::uint64_t incarnation_ = 0;
+  std::uint32_t reader_ = 0;
 };
 
 }  // namespace weir

@@ -100,6 +100,9 @@ class LogModel final : public BrokerModel {
   }
   std::uint64_t first_retained(std::uint32_t p) const { return partitions_[p].first_retained; }
   std::uint64_t next_offset(std::uint32_t p) const { return partitions_[p].next; }
+  std::uint64_t partition_end(std::uint32_t p) const override {
+    return p < partitions_.size() ? partitions_[p].next : 0;
+  }
   // Records held in every partition (for tests and memory figures).
   std::size_t retained_records() const;
 
