@@ -13,11 +13,15 @@
 // down.
 // Checkpoint: the next offset per partition; Committed(N) saves the resume
 // points of checkpoint N as bookmarks.
+// Many readers: a span may end (it stops reading there); Assign adds spans,
+// Revoke drops them, Cut(p, at) keeps [start, max(at, next)) and gives the
+// rest. The many-reader bugs below break exactly one of those.
 #pragma once
 
 #include <algorithm>
 #include <map>
 #include <optional>
+#include <set>
 #include <string>
 #include <vector>
 
@@ -34,6 +38,13 @@ struct LogBugs {
   bool fastest_watermark = false;      // late-record under bounded lateness
   bool idle_stalls = false;            // watermark-stall (an idle partition holds it back)
   bool global_resume_point = false;    // offset-gap: one resume point (the largest) for all
+  // Many readers.
+  bool cut_tail_emit = false;          // record-outside-span: reads on into the tail it gave
+  bool cut_overlap = false;            // cut-conservation: the tail starts one before the head's end
+  bool cut_drops_first = false;        // cut-conservation: the tail starts one after the head's end
+  bool keeps_revoked = false;          // record-outside-span: reads on what was revoked
+  bool checkpoint_forgets_assigned = false;  // checkpoint-coverage: names only spans held at the last one
+  bool trusts_state = false;           // record-outside-span: on restore reads what its state names
 };
 
 class FakeLogReader : public ConnectorPort {
@@ -45,6 +56,8 @@ class FakeLogReader : public ConnectorPort {
 
   ConnectorFailure Start(std::uint64_t) override {
     parts_.clear();
+    revoked_.clear();
+    named_.clear();
     epochs_.clear();
     watermark_.reset();
     listed_ = false;
@@ -61,10 +74,68 @@ class FakeLogReader : public ConnectorPort {
       if (rq.restore() && bugs_.resume_minus_one && start > 0) start -= 1;
       parts_[span.partition()].next = start;
     }
+    for (const auto& span : rq.spans()) {
+      if (span.has_end_offset()) parts_[span.partition()].end = span.end_offset();
+      parts_[span.partition()].start = parts_[span.partition()].next;
+      named_.insert(span.partition());
+    }
     if (rq.restore()) {
       const std::string& s = rq.checkpoint_state();
-      if (!s.empty()) watermark_ = std::stoll(s);
+      const std::size_t bar = s.find('|');
+      const std::string w = s.substr(0, bar);
+      if (!w.empty()) watermark_ = std::stoll(w);
+      // The state also lists "p:next," of the spans held at the checkpoint.
+      if (bugs_.trusts_state && bar != std::string::npos) {
+        std::size_t i = bar + 1;
+        while (i < s.size()) {
+          const std::size_t colon = s.find(':', i), comma = s.find(',', i);
+          const auto p = static_cast<std::uint32_t>(std::stoul(s.substr(i, colon - i)));
+          if (!parts_.contains(p)) parts_[p].next = std::stoull(s.substr(colon + 1, comma - colon - 1));
+          i = comma + 1;
+        }
+      }
     }
+    return {};
+  }
+  ConnectorFailure Assign(const v1::AssignRequest& rq, v1::AssignResponse*, BrokerEndpoint&) override {
+    for (const auto& span : rq.spans()) {
+      Part& part = parts_[span.partition()];
+      part = Part{};
+      part.next = part.start = span.start_offset();
+      if (span.has_end_offset()) part.end = span.end_offset();
+      revoked_.erase(span.partition());
+    }
+    return {};
+  }
+  ConnectorFailure Revoke(const v1::RevokeRequest& rq, v1::RevokeResponse*, BrokerEndpoint&) override {
+    for (std::uint32_t p : rq.partitions()) {
+      if (bugs_.keeps_revoked) {
+        revoked_.insert(p);  // still read (the bug), but no longer checkpointed
+      } else {
+        parts_.erase(p);
+      }
+      named_.erase(p);
+    }
+    return {};
+  }
+  ConnectorFailure Cut(const v1::CutRequest& rq, v1::CutResponse* rs, BrokerEndpoint&) override {
+    auto it = parts_.find(rq.partition());
+    if (it == parts_.end()) return {};
+    Part& part = it->second;
+    const std::uint64_t c = std::max(rq.at_offset(), part.next);
+    auto* head = rs->mutable_head();
+    head->set_partition(rq.partition());
+    head->set_start_offset(part.start);
+    if (part.end.has_value() && c >= *part.end) {  // nothing to give: declined
+      head->set_end_offset(*part.end);
+      return {};
+    }
+    head->set_end_offset(bugs_.cut_overlap ? c + 1 : c);
+    auto* tail = rs->mutable_tail();
+    tail->set_partition(rq.partition());
+    tail->set_start_offset(bugs_.cut_drops_first ? c + 1 : c);
+    if (part.end.has_value()) tail->set_end_offset(*part.end);
+    if (!bugs_.cut_tail_emit) part.end = bugs_.cut_overlap ? c + 1 : c;
     return {};
   }
   ConnectorFailure Advance(const v1::AdvanceRequest& rq, v1::AdvanceResponse* rs,
@@ -82,9 +153,12 @@ class FakeLogReader : public ConnectorPort {
     }
     bool all_caught_up = true;
     for (auto& [p, part] : parts_) {
+      if (part.end.has_value() && part.next >= *part.end) continue;  // a closed span, done
       v1::ReadRequest read;
       read.set_partition(p);
-      read.set_max_records(16);
+      read.set_max_records(part.end.has_value()
+                               ? static_cast<std::uint32_t>(std::min<std::uint64_t>(16, *part.end - part.next))
+                               : 16);
       v1::ReadResponse got;
       CallStatus st;
       // At most twice: after a gap, read again at once from the first retained
@@ -136,6 +210,7 @@ class FakeLogReader : public ConnectorPort {
     std::optional<std::int64_t> candidate;
     bool hold = false;
     for (const auto& [p, part] : parts_) {
+      if (part.end.has_value() && part.next >= *part.end) continue;  // done: holds nothing back
       const bool idle = part.caught_up_since.has_value() && now - *part.caught_up_since > idle_timeout;
       std::optional<std::int64_t> value;
       if (idle && !bugs_.idle_stalls) {
@@ -160,13 +235,20 @@ class FakeLogReader : public ConnectorPort {
   ConnectorFailure Checkpoint(const v1::CheckpointRequest& rq, v1::CheckpointResponse* rs,
                               BrokerEndpoint&) override {
     auto& snapshot = epochs_[rq.checkpoint_id()];
+    std::string spans;
+    std::set<std::uint32_t> named_now;
     for (const auto& [p, part] : parts_) {
+      if (revoked_.contains(p)) continue;
+      named_now.insert(p);
+      if (bugs_.checkpoint_forgets_assigned && !named_.contains(p)) continue;
+      spans += std::to_string(p) + ":" + std::to_string(part.next) + ",";
       auto* r = rs->add_resume_points();
       r->set_partition(p);
       r->set_next_offset(part.next);
       snapshot[p] = part.next;
     }
-    rs->set_state(watermark_.has_value() ? std::to_string(*watermark_) : std::string());
+    named_ = std::move(named_now);
+    rs->set_state((watermark_.has_value() ? std::to_string(*watermark_) : std::string()) + "|" + spans);
     return {};
   }
   ConnectorFailure Committed(const v1::CommittedRequest& rq, v1::CommittedResponse*,
@@ -191,6 +273,8 @@ class FakeLogReader : public ConnectorPort {
 
  private:
   struct Part {
+    std::uint64_t start = 0;
+    std::optional<std::uint64_t> end;
     std::uint64_t next = 0;
     std::optional<std::int64_t> frontier;
     std::optional<VirtualTime> caught_up_since;
@@ -205,6 +289,8 @@ class FakeLogReader : public ConnectorPort {
   std::optional<std::int64_t> watermark_;
   bool new_held_ = false;
   bool listed_ = false;
+  std::set<std::uint32_t> revoked_;  // keeps_revoked: still read, never named
+  std::set<std::uint32_t> named_;    // held at the last checkpoint (or Open)
 };
 
 }  // namespace weir::testing
