@@ -7,9 +7,11 @@
 # invariant seen failing.
 #   queue  reference_connector, mutant_*.cc but mutant_log_*, scenarios but log_*
 #   log    log_reference_connector, mutant_log_*.cc, scenarios log_*
+#   readers  log_reference_connector, mutant_readers_*.cc, scenarios readers_* with a
+#          log { } block (a readers_* queue scenario runs in the queue matrix)
 #
 # Usage: scripts/detection_matrix.sh [--build DIR] [--seeds N] [--jobs N]
-#                                    [--shape queue|log|all] [--scenarios 'GLOB'] [--keep DIR]
+#                                    [--shape queue|log|readers|all] [--scenarios 'GLOB'] [--keep DIR]
 #   --seeds N     seeds 1..N per (connector, scenario)          (default 5)
 #   --jobs N      runs in parallel                              (default 2)
 #   --shape S     which matrices                                (default all)
@@ -40,7 +42,7 @@ while [[ $# -gt 0 ]]; do
   esac
 done
 [[ "$seeds" =~ ^[1-9][0-9]*$ ]] || { echo "detection_matrix.sh: --seeds needs a positive count" >&2; exit 2; }
-[[ "$shape" =~ ^(queue|log|all)$ ]] || { echo "detection_matrix.sh: --shape is queue, log or all" >&2; exit 2; }
+[[ "$shape" =~ ^(queue|log|readers|all)$ ]] || { echo "detection_matrix.sh: --shape is queue, log, readers or all" >&2; exit 2; }
 
 weir="$build/harness/weir"
 bin="$build/fixtures/connectors"
@@ -55,21 +57,28 @@ expected_of() {
 # The connectors and scenarios of each shape.
 queue_mutants=()
 log_mutants=()
+readers_mutants=()
 for f in "$root"/fixtures/connectors/mutant_*.cc; do
   m="$(basename "$f" .cc)"
   [[ -x "$bin/$m" ]] || { echo "detection_matrix.sh: $bin/$m not built" >&2; exit 2; }
-  if [[ "$m" == mutant_log_* ]]; then log_mutants+=("$m"); else queue_mutants+=("$m"); fi
+  if [[ "$m" == mutant_log_* ]]; then log_mutants+=("$m");
+  elif [[ "$m" == mutant_readers_* ]]; then readers_mutants+=("$m");
+  else queue_mutants+=("$m"); fi
 done
 queue_scenarios=()
 log_scenarios=()
+readers_scenarios=()
 # shellcheck disable=SC2206
 for s in $scenario_glob; do
   [[ -f "$s" ]] || continue
-  if [[ "$(basename "$s")" == log_* ]]; then log_scenarios+=("$s"); else queue_scenarios+=("$s"); fi
+  if [[ "$(basename "$s")" == log_* ]]; then log_scenarios+=("$s");
+  elif [[ "$(basename "$s")" == readers_* ]] && grep -q '^log *{' "$s"; then readers_scenarios+=("$s");
+  else queue_scenarios+=("$s"); fi
 done
 shapes=()
-[[ "$shape" != log && ${#queue_scenarios[@]} -gt 0 ]] && shapes+=(queue)
-[[ "$shape" != queue && ${#log_scenarios[@]} -gt 0 ]] && shapes+=(log)
+[[ "$shape" =~ ^(queue|all)$ && ${#queue_scenarios[@]} -gt 0 ]] && shapes+=(queue)
+[[ "$shape" =~ ^(log|all)$ && ${#log_scenarios[@]} -gt 0 ]] && shapes+=(log)
+[[ "$shape" =~ ^(readers|all)$ && ${#readers_scenarios[@]} -gt 0 && ${#readers_mutants[@]} -gt 0 ]] && shapes+=(readers)
 [[ ${#shapes[@]} -gt 0 ]] || { echo "detection_matrix.sh: no scenario of the chosen shape" >&2; exit 2; }
 for r in reference_connector log_reference_connector; do
   [[ -x "$bin/$r" ]] || { echo "detection_matrix.sh: $bin/$r not built" >&2; exit 2; }
@@ -85,7 +94,7 @@ jobs_file="$out/jobs"
 add_jobs() {  # add_jobs SHAPE
   local -n ms="${1}_mutants" ss="${1}_scenarios"
   local ref=reference_connector c s n
-  [[ "$1" == log ]] && ref=log_reference_connector
+  [[ "$1" != queue ]] && ref=log_reference_connector
   for c in "$ref" "${ms[@]}"; do
     for s in "${ss[@]}"; do
       for ((n = 1; n <= seeds; n++)); do
@@ -117,7 +126,7 @@ status=0
 matrix() {
   local -n mutants="${1}_mutants" scenarios="${1}_scenarios"
   local ref=reference_connector
-  [[ "$1" == log ]] && ref=log_reference_connector
+  [[ "$1" != queue ]] && ref=log_reference_connector
   # Invariants the oracle checks: the verdict table of the first reference run.
   local first_ref="$out/$ref.$(basename "${scenarios[0]}" .scenario).1.out"
   local known
