@@ -190,6 +190,11 @@ int RunCommand(RunFlags& flags) {
               static_cast<unsigned long long>(s.broker_calls),
               static_cast<unsigned long long>(s.max_broker_calls_in_one_call),
               static_cast<unsigned long long>(s.ignored_receipts));
+  if (s.readers > 1) {
+    std::printf("readers    %u; %llu cuts, %llu moves, %llu joins, %llu leaves\n", s.readers,
+                static_cast<unsigned long long>(s.cuts), static_cast<unsigned long long>(s.moves),
+                static_cast<unsigned long long>(s.joins), static_cast<unsigned long long>(s.leaves));
+  }
   std::printf("digest     %s\n", out->digest.c_str());
   std::printf("faults     %d applied%s\n", out->plan.decisions_size(),
               flags.plan.empty() ? " (drawn from the scenario's rates)" : " (from the given plan)");

@@ -2,6 +2,7 @@
 
 #include <algorithm>
 #include <cstdint>
+#include <map>
 #include <optional>
 #include <set>
 #include <tuple>
@@ -237,6 +238,40 @@ absl::StatusOr<ExplainOutput> ExplainTrace(const std::string& path, const Explai
   }
 
   // Pass 3: the timelines.
+  const bool many = header.scenario().readers().count() > 1;
+  // Many readers: what each reader holds as the trace goes (reader ->
+  // partition -> [start, end)), written under each violation when it is detected.
+  std::map<std::uint32_t, std::map<std::uint32_t, std::pair<std::uint64_t, std::optional<std::uint64_t>>>> held;
+  auto track_spans = [&](const TraceEvent& e) {
+    auto end_of = [](const v1::SpanHeld& x) {
+      return x.has_end_offset() ? std::optional<std::uint64_t>(x.end_offset()) : std::nullopt;
+    };
+    if (e.has_opened()) {
+      held[e.reader()].clear();
+      for (const auto& x : e.opened().spans()) held[e.reader()][x.partition()] = {x.start_offset(), end_of(x)};
+    } else if (e.has_assigned()) {
+      for (const auto& x : e.assigned().spans()) held[e.reader()][x.partition()] = {x.start_offset(), end_of(x)};
+    } else if (e.has_revoked()) {
+      for (const auto& x : e.revoked().spans()) held[e.reader()].erase(x.partition());
+    } else if (e.has_cut() && e.cut().has_tail()) {
+      auto& mine = held[e.reader()];
+      if (auto it = mine.find(e.cut().held().partition()); it != mine.end()) it->second.second = end_of(e.cut().head());
+    } else if (e.has_reader_left()) {
+      held.erase(e.reader());
+    }
+  };
+  auto held_text = [&] {
+    std::string text = "    spans held then:";
+    for (const auto& [r, spans] : held) {
+      absl::StrAppend(&text, "\n      reader ", r, ":");
+      if (spans.empty()) absl::StrAppend(&text, " none");
+      for (const auto& [p, range] : spans) {
+        absl::StrAppend(&text, " ", p, "[", range.first, ",",
+                        range.second.has_value() ? absl::StrCat(*range.second) : std::string("open"), ")");
+      }
+    }
+    return text + "\n";
+  };
   absl::flat_hash_map<std::uint64_t, std::optional<std::int64_t>> watermark;  // per incarnation
   // Drawn records whose epoch is still open: (section, event index).
   std::vector<std::pair<std::size_t, std::size_t>> open_epoch;
@@ -262,7 +297,8 @@ absl::StatusOr<ExplainOutput> ExplainTrace(const std::string& path, const Explai
       return drawn;
     }
     if (ev.incarnation() != s.last_incarnation) {
-      absl::StrAppend(&s.text, "  incarnation ", ev.incarnation(), "\n");
+      absl::StrAppend(&s.text, many ? absl::StrCat("  reader ", ev.reader(), ", incarnation ") : "  incarnation ",
+                      ev.incarnation(), "\n");
       s.last_incarnation = ev.incarnation();
     }
     absl::StrAppend(&s.text, absl::StrFormat("    %s #%-7d %12s  %s\n", proving ? "=>" : "  ", ev.seq(),
@@ -271,6 +307,7 @@ absl::StatusOr<ExplainOutput> ExplainTrace(const std::string& path, const Explai
     return drawn;
   };
   if (absl::Status st = ForEachEvent(path, [&](const TraceEvent& e) {
+        if (many) track_spans(e);
         if (e.has_checkpoint()) {
           // The checkpoint closes the epoch of its incarnation; a record of
           // an earlier incarnation was discarded with its epoch at the crash.
@@ -308,6 +345,10 @@ absl::StatusOr<ExplainOutput> ExplainTrace(const std::string& path, const Explai
             s.pending_fault.reset();
           }
           emit(s, e, proving, show, true);
+          if (many && e.seq() == s.violation->detected_seq && s.lines < kMaxLines) {
+            absl::StrAppend(&s.text, held_text());
+            ++s.lines;
+          }
         }
       });
       !st.ok()) {

@@ -20,9 +20,8 @@ using v1::TraceEvent;
 constexpr int kLeft = 96;   // lane labels
 constexpr int kCol = 16;    // one column per event
 constexpr int kRight = 24;
-constexpr int kLaneY[3] = {62, 106, 150};  // broker, connector, runtime
-constexpr int kWmTop = 196, kWmBottom = 316;  // watermark panel
-constexpr int kHeight = 340;
+constexpr int kLaneGap = 44;  // between lanes: broker, connector (one per reader), runtime
+constexpr int kBrokerY = 62;
 // Overview geometry.
 constexpr int kOverviewWidth = 960, kOverviewLeft = 96, kOverviewHeight = 64;
 
@@ -45,12 +44,13 @@ Lane LaneOf(const TraceEvent& e) {
     case TraceEvent::kCommitNotice:
     case TraceEvent::kCrashed:
     case TraceEvent::kRunEnded:
-    case TraceEvent::kAssigned:
+      return kRuntime;
+    case TraceEvent::kAssigned:  // what a reader holds: on its own lane
     case TraceEvent::kRevoked:
     case TraceEvent::kCut:
     case TraceEvent::kReaderLeft:
     case TraceEvent::kReaderJoined:
-      return kRuntime;
+      return kConnector;
     default:
       return kBroker;
   }
@@ -127,33 +127,61 @@ std::string Marker(const TraceEvent& e, int x, int y) {
 
 int ColumnX(std::size_t i) { return kLeft + static_cast<int>(i) * kCol + kCol / 2; }
 
+// The lanes of one timeline: the broker, one connector lane per reader shown
+// ("connector" with one reader, "reader N" with several), the runtime, then
+// the watermark panel.
+struct Layout {
+  explicit Layout(std::uint32_t readers) : readers(std::max<std::uint32_t>(1, readers)) {}
+  int Y(Lane lane, std::uint32_t reader = 0) const {
+    switch (lane) {
+      case kBroker: return kBrokerY;
+      case kConnector: return kBrokerY + kLaneGap * (1 + static_cast<int>(std::min(reader, readers - 1)));
+      case kRuntime: break;
+    }
+    return kBrokerY + kLaneGap * (1 + static_cast<int>(readers));
+  }
+  int Y(const TraceEvent& e) const { return Y(LaneOf(e), e.reader()); }
+  int WmTop() const { return Y(kRuntime) + 46; }
+  int WmBottom() const { return WmTop() + 120; }
+  int Height() const { return WmBottom() + 24; }
+  std::uint32_t readers;
+};
+
 std::string TimelineSvg(const ViolationTimeline& v) {
   const std::size_t n = v.events.size();
   const int width = kLeft + static_cast<int>(n) * kCol + kRight;
+  std::uint32_t readers = 1;
+  for (const TimelineEvent& te : v.events) readers = std::max(readers, te.event.reader() + 1);
+  const Layout lay(readers);
+  const int wm_top = lay.WmTop(), wm_bottom = lay.WmBottom(), height = lay.Height();
   std::string out = absl::StrFormat(
       "<svg class=\"timeline\" xmlns=\"http://www.w3.org/2000/svg\" width=\"%d\" height=\"%d\" "
       "viewBox=\"0 0 %d %d\" role=\"img\">\n",
-      width, kHeight, width, kHeight);
+      width, height, width, height);
 
-  // Incarnations as shaded bands, labelled.
-  for (std::size_t i = 0; i < n;) {
+  // Incarnations as shaded bands, labelled (one reader: several readers'
+  // incarnations interleave, and each lane says whose events it holds).
+  for (std::size_t i = 0; i < n && readers == 1;) {
     std::size_t j = i;
     const std::uint64_t inc = v.events[i].event.incarnation();
     while (j < n && v.events[j].event.incarnation() == inc) ++j;
     const int x0 = kLeft + static_cast<int>(i) * kCol;
     absl::StrAppend(&out, absl::StrFormat("<rect class=\"band b%d\" x=\"%d\" y=\"20\" width=\"%d\" height=\"%d\"/>"
                                           "<text class=\"inc\" x=\"%d\" y=\"16\">incarnation %d</text>\n",
-                                          inc % 2, x0, static_cast<int>(j - i) * kCol, kWmBottom - 16, x0 + 2,
+                                          inc % 2, x0, static_cast<int>(j - i) * kCol, wm_bottom - 16, x0 + 2,
                                           inc));
     i = j;
   }
   // Lanes.
-  const char* lane_names[3] = {"broker", "connector", "runtime"};
-  for (int l = 0; l < 3; ++l) {
+  std::vector<std::pair<int, std::string>> lanes = {{lay.Y(kBroker), "broker"}};
+  for (std::uint32_t r = 0; r < readers; ++r) {
+    lanes.emplace_back(lay.Y(kConnector, r), readers == 1 ? std::string("connector") : absl::StrCat("reader ", r));
+  }
+  lanes.emplace_back(lay.Y(kRuntime), "runtime");
+  for (const auto& [y, name] : lanes) {
     absl::StrAppend(&out, absl::StrFormat("<line class=\"lane\" x1=\"%d\" y1=\"%d\" x2=\"%d\" y2=\"%d\"/>"
                                           "<text class=\"lane-name\" x=\"4\" y=\"%d\">%s</text>\n",
-                                          kLeft, kLaneY[l], width - kRight, kLaneY[l], kLaneY[l] + 4,
-                                          lane_names[l]));
+                                          kLeft, y, width - kRight, y, y + 4, name));
   }
   // Time labels along the top of the lanes, every ten columns.
   for (std::size_t i = 0; i < n; i += 10) {
@@ -174,8 +202,8 @@ std::string TimelineSvg(const ViolationTimeline& v) {
       if (it != delivery.end()) {
         const int x0 = ColumnX(it->second), x1 = ColumnX(i);
         absl::StrAppend(&out, absl::StrFormat("<path class=\"join receipt-join\" d=\"M%d %dQ%d %d %d %d\"/>\n", x0,
-                                              kLaneY[kBroker] - 5, (x0 + x1) / 2, kLaneY[kBroker] - 26, x1,
-                                              kLaneY[kBroker] - 5));
+                                              lay.Y(kBroker) - 5, (x0 + x1) / 2, lay.Y(kBroker) - 26, x1,
+                                              lay.Y(kBroker) - 5));
       }
     }
     if (e.has_committed()) {
@@ -183,7 +211,7 @@ std::string TimelineSvg(const ViolationTimeline& v) {
         if (v.events[k].event.has_emitted() && v.events[k].epoch_checkpoint == e.committed().checkpoint_id()) {
           absl::StrAppend(&out, absl::StrFormat("<line class=\"join commit-join\" x1=\"%d\" y1=\"%d\" x2=\"%d\" "
                                                 "y2=\"%d\"/>\n",
-                                                ColumnX(i), kLaneY[kRuntime], ColumnX(k), kLaneY[kConnector]));
+                                                ColumnX(i), lay.Y(kRuntime), ColumnX(k), lay.Y(v.events[k].event)));
         }
       }
     }
@@ -192,8 +220,8 @@ std::string TimelineSvg(const ViolationTimeline& v) {
       if (it != last_record.end()) {
         absl::StrAppend(&out, absl::StrFormat("<line class=\"join ack-join%s\" x1=\"%d\" y1=\"%d\" x2=\"%d\" "
                                               "y2=\"%d\"/>\n",
-                                              v.events[i].proving ? " bad" : "", ColumnX(i), kLaneY[kBroker],
-                                              ColumnX(it->second), kLaneY[kConnector]));
+                                              v.events[i].proving ? " bad" : "", ColumnX(i), lay.Y(kBroker),
+                                              ColumnX(it->second), lay.Y(v.events[it->second].event)));
       }
     }
   }
@@ -201,16 +229,19 @@ std::string TimelineSvg(const ViolationTimeline& v) {
   for (std::size_t i = 0; i < n; ++i) {
     if (!v.events[i].event.has_crashed()) continue;
     absl::StrAppend(&out, absl::StrFormat("<line class=\"crash-rule\" x1=\"%d\" y1=\"20\" x2=\"%d\" y2=\"%d\"/>\n",
-                                          ColumnX(i), ColumnX(i), kWmBottom));
+                                          ColumnX(i), ColumnX(i), wm_bottom));
   }
   // Markers.
   for (std::size_t i = 0; i < n; ++i) {
     const TimelineEvent& te = v.events[i];
     const TraceEvent& e = te.event;
-    const int x = ColumnX(i), y = kLaneY[LaneOf(e)];
+    const int x = ColumnX(i), y = lay.Y(e);
     absl::StrAppend(&out, "<g class=\"ev ", ClassOf(e), te.proving ? " proving" : "", "\" data-seq=\"", e.seq(),
                     "\"><title>", EscapeMarkup(absl::StrCat("#", e.seq(), " at ", FormatTime(e.t_ns()),
-                                                            ", incarnation ", e.incarnation(), ": ",
+                                                            ", incarnation ", e.incarnation(),
+                                                            readers > 1 ? absl::StrCat(" (reader ", e.reader(), ")")
+                                                                        : std::string(),
+                                                            ": ",
                                                             DescribeEvent(e), Detail(e))),
                     "</title>");
     if (te.proving) absl::StrAppend(&out, absl::StrFormat("<circle class=\"ring\" cx=\"%d\" cy=\"%d\" r=\"9\"/>", x, y));
@@ -231,34 +262,50 @@ std::string TimelineSvg(const ViolationTimeline& v) {
   }
   absl::StrAppend(&out, absl::StrFormat("<text class=\"lane-name\" x=\"4\" y=\"%d\">event time</text>"
                                         "<line class=\"lane\" x1=\"%d\" y1=\"%d\" x2=\"%d\" y2=\"%d\"/>\n",
-                                        kWmTop + 10, kLeft, kWmBottom, width - kRight, kWmBottom));
+                                        wm_top + 10, kLeft, wm_bottom, width - kRight, wm_bottom));
   if (!lo.has_value()) {
     absl::StrAppend(&out, absl::StrFormat("<text class=\"tick\" x=\"%d\" y=\"%d\">no records or watermarks in "
                                           "this stretch</text>\n",
-                                          kLeft + 4, kWmTop + 40));
+                                          kLeft + 4, wm_top + 40));
   } else {
     const double span = *hi > *lo ? static_cast<double>(*hi - *lo) : 1.0;
     auto y = [&](std::int64_t t) {
-      return kWmBottom - 6 - static_cast<double>(t - *lo) / span * (kWmBottom - kWmTop - 12);
+      return wm_bottom - 6 - static_cast<double>(t - *lo) / span * (wm_bottom - wm_top - 12);
     };
     absl::StrAppend(&out, absl::StrFormat("<text class=\"tick\" x=\"4\" y=\"%d\">%s</text>"
                                           "<text class=\"tick\" x=\"4\" y=\"%d\">%s</text>\n",
-                                          kWmTop + 24, FormatTime(*hi), kWmBottom - 4, FormatTime(*lo)));
-    std::optional<std::int64_t> wm;
-    std::uint64_t inc = n > 0 ? v.events[0].event.incarnation() : 0;
-    std::string path;
-    auto flush = [&] {
+                                          wm_top + 24, FormatTime(*hi), wm_bottom - 4, FormatTime(*lo)));
+    // One watermark line per reader, broken at each of its restarts.
+    struct Line {
+      std::optional<std::int64_t> wm;
+      std::uint64_t inc = 0;
+      std::string path;
+    };
+    std::vector<Line> lines(readers);
+    for (std::uint32_t r = 0; r < readers; ++r) {
+      for (std::size_t i = 0; i < n; ++i) {
+        if (v.events[i].event.reader() == r) {
+          lines[r].inc = v.events[i].event.incarnation();
+          break;
+        }
+      }
+    }
+    auto flush = [&](std::string& path) {
       if (!path.empty()) absl::StrAppend(&out, "<path class=\"watermark\" d=\"", path, "\"/>\n");
       path.clear();
     };
     for (std::size_t i = 0; i < n; ++i) {
       const TraceEvent& e = v.events[i].event;
       const int x = ColumnX(i);
-      if (e.incarnation() != inc) {
+      Line& line = lines[std::min(e.reader(), readers - 1)];
+      auto& wm = line.wm;
+      auto& path = line.path;
+      const bool own = readers == 1 || e.has_stepped() || e.has_opened() || e.has_emitted();
+      if (own && e.incarnation() != line.inc) {
         if (wm.has_value()) absl::StrAppend(&path, absl::StrFormat("H%d", x - kCol / 2));
-        flush();
+        flush(path);
         wm.reset();
-        inc = e.incarnation();
+        line.inc = e.incarnation();
       }
       std::optional<std::int64_t> next;
       if (e.has_stepped() && e.stepped().has_watermark_ns()) next = e.stepped().watermark_ns();
@@ -277,8 +324,10 @@ std::string TimelineSvg(const ViolationTimeline& v) {
         wm = next;
       }
     }
-    if (wm.has_value() && n > 0) absl::StrAppend(&path, absl::StrFormat("H%d", ColumnX(n - 1) + kCol / 2));
-    flush();
+    for (Line& line : lines) {
+      if (line.wm.has_value() && n > 0) absl::StrAppend(&line.path, absl::StrFormat("H%d", ColumnX(n - 1) + kCol / 2));
+      flush(line.path);
+    }
   }
   out += "</svg>\n";
   return out;

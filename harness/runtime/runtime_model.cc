@@ -464,6 +464,7 @@ bool RuntimeModel::MaybeCut(std::uint32_t r, std::uint64_t k, bool* crashed) {
     trace_.Commit();
   }
   if (has_tail) {
+    ++cuts_;
     it->second.end = h.end_offset();  // the reader keeps [start, head end)
     HeldSpan tail;
     tail.committed_next = t.start_offset();
@@ -505,6 +506,7 @@ bool RuntimeModel::MaybeRebalance(std::uint64_t id) {
           m.from_reader() != m.to_reader() && R(m.from_reader()).live && R(m.to_reader()).live &&
           R(m.from_reader()).spans.contains(p) && !R(m.to_reader()).spans.contains(p)) {
         const HeldSpan span = R(m.from_reader()).spans.at(p);
+        ++moves_;
         if (!SendRevoke(m.from_reader(), {p}, "move", m.crash_in_revoke())) return false;
         if (!SendAssign(m.to_reader(), {{p, span}}, "move")) return false;
       }
@@ -527,9 +529,9 @@ bool RuntimeModel::MaybeRebalance(std::uint64_t id) {
   });
   if (!d.has_value() || d->membership().reader() >= readers_.size()) return true;
   const std::uint32_t who = d->membership().reader();
-  ++membership_changes_;
   if (d->membership().joins()) {
     if (R(who).live) return true;
+    ++joins_;
     R(who).committed.reset();  // a reader that joins starts fresh
     R(who).spans.clear();
     if (!StartIncarnation(who)) return false;
@@ -574,6 +576,7 @@ bool RuntimeModel::MaybeRebalance(std::uint64_t id) {
     if (!receiver.has_value()) return true;  // nowhere to put it: it stays
     to.emplace_back(p, *receiver);
   }
+  ++leaves_;
   std::vector<std::pair<std::uint32_t, HeldSpan>> spans(R(who).spans.begin(), R(who).spans.end());
   std::vector<std::uint32_t> partitions;
   for (const auto& [p, s] : spans) partitions.push_back(p);
@@ -1004,6 +1007,11 @@ RunSummary RuntimeModel::Run() {
   summary.broker_calls = session_.calls_total();
   summary.max_broker_calls_in_one_call = session_.max_calls_in_window();
   summary.ignored_receipts = broker_.ignored_receipts();
+  summary.readers = static_cast<std::uint32_t>(readers_.size());
+  summary.cuts = cuts_;
+  summary.moves = moves_;
+  summary.joins = joins_;
+  summary.leaves = leaves_;
 
   auto& e = trace_.Append(now_);
   auto* x = e.mutable_run_ended();

@@ -105,6 +105,13 @@ struct RunSummary {
   std::uint64_t broker_calls = 0;
   std::uint64_t max_broker_calls_in_one_call = 0;
   std::uint64_t ignored_receipts = 0;
+  // Many readers: reader slots, and what changed hands (cuts answered with a
+  // tail, moves, joins, leaves).
+  std::uint32_t readers = 1;
+  std::uint64_t cuts = 0;
+  std::uint64_t moves = 0;
+  std::uint64_t joins = 0;
+  std::uint64_t leaves = 0;
 };
 
 class RuntimeModel {
@@ -238,7 +245,7 @@ class RuntimeModel {
   bool crash_loop_ = false;
   std::uint32_t known_partitions_ = 0;  // many readers: partitions handed out so far
   std::uint64_t order_draws_ = 0;       // seeded order of readers due at one time
-  std::uint64_t membership_changes_ = 0;
+  std::uint64_t cuts_ = 0, moves_ = 0, joins_ = 0, leaves_ = 0;
 };
 
 }  // namespace weir

@@ -57,6 +57,8 @@ bad scenario-huge "$WORK/huge.scenario:1:1: file is 50000000 bytes; expected at 
 bad lint-scenario "$BAD/zero_messages.scenario:2:3:" -- "$WEIR" lint "$BAD/zero_messages.scenario"
 bad log-zero-partitions "$BAD/log_zero_partitions.scenario:3:3: log.partitions is 0; expected 1 ..1000" -- "${RUN[@]}" --scenario "$BAD/log_zero_partitions.scenario"
 bad log-every-partition-idle "$BAD/log_every_partition_idle.scenario:4:3: .*names every partition" -- "${RUN[@]}" --scenario "$BAD/log_every_partition_idle.scenario"
+bad readers-too-many "$BAD/readers_too_many.scenario:3:11: readers.count is 17; expected 1 ..16" -- "${RUN[@]}" --scenario "$BAD/readers_too_many.scenario"
+bad readers-cut-on-queue "$BAD/readers_cut_on_queue.scenario:3:20: cuts and moves need spans" -- "${RUN[@]}" --scenario "$BAD/readers_cut_on_queue.scenario"
 bad log-growth-without-count "$BAD/log_growth_without_count.scenario:4:3: log.growth\[0\].count is 0; expected at least 1" -- "${RUN[@]}" --scenario "$BAD/log_growth_without_count.scenario"
 
 # Profile files.
