@@ -1,5 +1,7 @@
 #include "harness/inprocess/in_process_port.h"
 
+#include <algorithm>
+
 #include "absl/strings/str_cat.h"
 #include "harness/suite/certify.h"
 
@@ -138,6 +140,7 @@ ConnectorFailure InProcessPort::Open(const v1::OpenRequest& request, v1::OpenRes
     return Misuse("Open", absl::StrCat("answered ", st.error_code(), " ", st.error_message()), st.error_code());
   }
   adapter::WriteOpen(*source_, response);
+  told_.Opened(adapter::OpenInfoFrom(request));
   return {};
 }
 
@@ -172,9 +175,62 @@ ConnectorFailure InProcessPort::Committed(const v1::CommittedRequest& request,
   return {};
 }
 
+ConnectorFailure InProcessPort::Assign(const v1::AssignRequest& request, v1::AssignResponse*,
+                                       BrokerEndpoint& broker) {
+  if (source_ == nullptr) return NotAlive();
+  EndpointClient client(broker);
+  adapter::Context ctx(adapter::CallKind::kAssign, request.now_ns(), client);
+  grpc::Status st = adapter::RunAssign(*source_, request, ctx, &told_);
+  if (!st.ok()) {
+    return Misuse("Assign", absl::StrCat("answered ", st.error_code(), " ", st.error_message()),
+                  st.error_code());
+  }
+  if (!ctx.misuse().empty()) return Misuse("Assign", ctx.misuse());
+  return {};
+}
+
+ConnectorFailure InProcessPort::Revoke(const v1::RevokeRequest& request, v1::RevokeResponse*,
+                                       BrokerEndpoint& broker) {
+  if (source_ == nullptr) return NotAlive();
+  EndpointClient client(broker);
+  adapter::Context ctx(adapter::CallKind::kRevoke, request.now_ns(), client);
+  grpc::Status st = adapter::RunRevoke(*source_, request, ctx, &told_);
+  if (!st.ok()) {
+    return Misuse("Revoke", absl::StrCat("answered ", st.error_code(), " ", st.error_message()),
+                  st.error_code());
+  }
+  if (!ctx.misuse().empty()) return Misuse("Revoke", ctx.misuse());
+  return {};
+}
+
+ConnectorFailure InProcessPort::Cut(const v1::CutRequest& request, v1::CutResponse* response,
+                                    BrokerEndpoint& broker) {
+  if (source_ == nullptr) return NotAlive();
+  EndpointClient client(broker);
+  adapter::Context ctx(adapter::CallKind::kCut, request.now_ns(), client);
+  adapter::RunCut(*source_, request, ctx, &told_, response);
+  if (!ctx.misuse().empty()) return Misuse("Cut", ctx.misuse());
+  return {};
+}
+
+std::uint32_t ReaderSlots(const v1::Scenario& scenario) {
+  return scenario.has_readers() ? std::max<std::uint32_t>(1, scenario.readers().count()) : 1;
+}
+
+std::vector<std::unique_ptr<InProcessPort>> MakeInProcessPorts(const InProcessPort::Factory& factory,
+                                                               std::uint32_t readers) {
+  std::vector<std::unique_ptr<InProcessPort>> ports;
+  ports.reserve(readers);
+  for (std::uint32_t i = 0; i < readers; ++i) ports.push_back(std::make_unique<InProcessPort>(factory));
+  return ports;
+}
+
 absl::StatusOr<RunOutput> RunInProcess(const RunSpec& spec, const InProcessPort::Factory& factory) {
-  InProcessPort port(factory);
-  return RunWithPort(spec, port);
+  // One port per reader slot. Until RunWithPort takes one port per reader, a
+  // run drives the first alone (a scenario without readers has one slot).
+  std::vector<std::unique_ptr<InProcessPort>> ports =
+      MakeInProcessPorts(factory, ReaderSlots(spec.scenario));
+  return RunWithPort(spec, *ports.front());
 }
 
 absl::StatusOr<v1::SuiteReport> CertifyInProcess(const std::string& suite_path,
