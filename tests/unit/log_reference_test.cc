@@ -642,12 +642,15 @@ TEST(LogReaders, RevokeStopsReadingAtOnceAndForgetsTheSpan) {
   d.Checkpoint(1);
   d.Committed(1);
   ASSERT_TRUE(d.Revoke({1}).ok());
+  const std::size_t calls_before = d.log.calls.size();
   d.log.Append(1, 5 * kSecond, 10);
   d.log.Append(0, 12 * kSecond, 1);
   d.RunUntil(d.log.now_ns + 2 * kSecond);
-  EXPECT_EQ(d.OffsetsOf(1), Range(0, 5)) << "nothing read after the revoke";
+  EXPECT_EQ(d.OffsetsOf(1), Range(0, 5)) << "nothing emitted after the revoke";
   EXPECT_EQ(d.OffsetsOf(0), Range(0, 6));
-  for (const std::string& call : d.log.calls) EXPECT_NE(call.rfind("Read 1@", 0), 0u) << call;
+  for (std::size_t i = calls_before; i < d.log.calls.size(); ++i) {
+    EXPECT_NE(d.log.calls[i].rfind("Read 1@", 0), 0u) << "read after the revoke: " << d.log.calls[i];
+  }
   EXPECT_EQ(d.watermarks.back(), 12 * kSecond) << "a revoked span is forgotten";
   EXPECT_EQ(Pairs(d.Checkpoint(2)), (Points{{0, 6}}));
 }
@@ -701,8 +704,9 @@ TEST(LogReaders, CutHeadAndTailAreDisjointMakeTheSpanAndHoldEveryEmittedOffset) 
     for (std::uint64_t o : before) EXPECT_LT(o, *head.end_offset) << "the head holds every emitted offset";
     // Afterwards the reader reads its head to the end and nothing of the tail.
     d.RunUntil(d.log.now_ns + 5 * kSecond);
-    EXPECT_EQ(d.OffsetsOf(0), Range(3, *head.end_offset));
-    EXPECT_EQ(Pairs(d.Checkpoint(1)), (Points{{0, *head.end_offset}}));
+    const std::uint64_t read_to = std::min<std::uint64_t>(*head.end_offset, 300);  // the log's end
+    EXPECT_EQ(d.OffsetsOf(0), Range(3, read_to));
+    EXPECT_EQ(Pairs(d.Checkpoint(1)), (Points{{0, read_to}}));
   }
 }
 
