@@ -1,7 +1,5 @@
 #include "harness/inprocess/in_process_port.h"
 
-#include <algorithm>
-
 #include "absl/strings/str_cat.h"
 #include "harness/suite/certify.h"
 
@@ -213,10 +211,6 @@ ConnectorFailure InProcessPort::Cut(const v1::CutRequest& request, v1::CutRespon
   return {};
 }
 
-std::uint32_t ReaderSlots(const v1::Scenario& scenario) {
-  return scenario.has_readers() ? std::max<std::uint32_t>(1, scenario.readers().count()) : 1;
-}
-
 std::vector<std::unique_ptr<InProcessPort>> MakeInProcessPorts(const InProcessPort::Factory& factory,
                                                                std::uint32_t readers) {
   std::vector<std::unique_ptr<InProcessPort>> ports;
@@ -226,11 +220,12 @@ std::vector<std::unique_ptr<InProcessPort>> MakeInProcessPorts(const InProcessPo
 }
 
 absl::StatusOr<RunOutput> RunInProcess(const RunSpec& spec, const InProcessPort::Factory& factory) {
-  // One port per reader slot. Until RunWithPort takes one port per reader, a
-  // run drives the first alone (a scenario without readers has one slot).
   std::vector<std::unique_ptr<InProcessPort>> ports =
-      MakeInProcessPorts(factory, ReaderSlots(spec.scenario));
-  return RunWithPort(spec, *ports.front());
+      MakeInProcessPorts(factory, ReaderCount(spec.scenario));
+  std::vector<ConnectorPort*> each;
+  each.reserve(ports.size());
+  for (const auto& port : ports) each.push_back(port.get());
+  return RunWithPorts(spec, each);
 }
 
 absl::StatusOr<v1::SuiteReport> CertifyInProcess(const std::string& suite_path,

@@ -64,15 +64,13 @@ class InProcessPort : public ConnectorPort {
   adapter::SpansTold told_;  // many readers: the spans the source holds, for Cut
 };
 
-// How many connector processes (reader slots) a run of `scenario` has: its
-// readers.count, or 1.
-[[nodiscard]] std::uint32_t ReaderSlots(const v1::Scenario& scenario);
-
-// One port per reader slot, each making its sources from `factory`.
+// One port per reader slot (ReaderCount in harness/run/run.h), each making
+// its sources from `factory`.
 [[nodiscard]] std::vector<std::unique_ptr<InProcessPort>> MakeInProcessPorts(
     const InProcessPort::Factory& factory, std::uint32_t readers);
 
-// One run of (scenario, seed) against a fresh Source per incarnation.
+// One run of (scenario, seed) against a fresh Source per incarnation of each
+// reader.
 [[nodiscard]] absl::StatusOr<RunOutput> RunInProcess(const RunSpec& spec,
                                                      const InProcessPort::Factory& factory);
 
