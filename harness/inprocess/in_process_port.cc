@@ -138,6 +138,7 @@ ConnectorFailure InProcessPort::Open(const v1::OpenRequest& request, v1::OpenRes
     return Misuse("Open", absl::StrCat("answered ", st.error_code(), " ", st.error_message()), st.error_code());
   }
   adapter::WriteOpen(*source_, response);
+  told_.Opened(adapter::OpenInfoFrom(request));
   return {};
 }
 
@@ -172,9 +173,59 @@ ConnectorFailure InProcessPort::Committed(const v1::CommittedRequest& request,
   return {};
 }
 
+ConnectorFailure InProcessPort::Assign(const v1::AssignRequest& request, v1::AssignResponse*,
+                                       BrokerEndpoint& broker) {
+  if (source_ == nullptr) return NotAlive();
+  EndpointClient client(broker);
+  adapter::Context ctx(adapter::CallKind::kAssign, request.now_ns(), client);
+  grpc::Status st = adapter::RunAssign(*source_, request, ctx, &told_);
+  if (!st.ok()) {
+    return Misuse("Assign", absl::StrCat("answered ", st.error_code(), " ", st.error_message()),
+                  st.error_code());
+  }
+  if (!ctx.misuse().empty()) return Misuse("Assign", ctx.misuse());
+  return {};
+}
+
+ConnectorFailure InProcessPort::Revoke(const v1::RevokeRequest& request, v1::RevokeResponse*,
+                                       BrokerEndpoint& broker) {
+  if (source_ == nullptr) return NotAlive();
+  EndpointClient client(broker);
+  adapter::Context ctx(adapter::CallKind::kRevoke, request.now_ns(), client);
+  grpc::Status st = adapter::RunRevoke(*source_, request, ctx, &told_);
+  if (!st.ok()) {
+    return Misuse("Revoke", absl::StrCat("answered ", st.error_code(), " ", st.error_message()),
+                  st.error_code());
+  }
+  if (!ctx.misuse().empty()) return Misuse("Revoke", ctx.misuse());
+  return {};
+}
+
+ConnectorFailure InProcessPort::Cut(const v1::CutRequest& request, v1::CutResponse* response,
+                                    BrokerEndpoint& broker) {
+  if (source_ == nullptr) return NotAlive();
+  EndpointClient client(broker);
+  adapter::Context ctx(adapter::CallKind::kCut, request.now_ns(), client);
+  adapter::RunCut(*source_, request, ctx, &told_, response);
+  if (!ctx.misuse().empty()) return Misuse("Cut", ctx.misuse());
+  return {};
+}
+
+std::vector<std::unique_ptr<InProcessPort>> MakeInProcessPorts(const InProcessPort::Factory& factory,
+                                                               std::uint32_t readers) {
+  std::vector<std::unique_ptr<InProcessPort>> ports;
+  ports.reserve(readers);
+  for (std::uint32_t i = 0; i < readers; ++i) ports.push_back(std::make_unique<InProcessPort>(factory));
+  return ports;
+}
+
 absl::StatusOr<RunOutput> RunInProcess(const RunSpec& spec, const InProcessPort::Factory& factory) {
-  InProcessPort port(factory);
-  return RunWithPort(spec, port);
+  std::vector<std::unique_ptr<InProcessPort>> ports =
+      MakeInProcessPorts(factory, ReaderCount(spec.scenario));
+  std::vector<ConnectorPort*> each;
+  each.reserve(ports.size());
+  for (const auto& port : ports) each.push_back(port.get());
+  return RunWithPorts(spec, each);
 }
 
 absl::StatusOr<v1::SuiteReport> CertifyInProcess(const std::string& suite_path,

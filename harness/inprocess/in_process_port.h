@@ -16,12 +16,17 @@
 //   auto report = CertifyInProcess("fixtures/suites/quick.suite", make);
 //   EXPECT_EQ(report->runs_size(), report->pairs_total());
 //
+// Many readers: one port per reader, each with its own Source per incarnation
+// from the same factory (the source learns its index from OpenInfo::reader);
+// MakeInProcessPorts makes them.
+//
 // Thread safety: one simulation thread per port.
 #pragma once
 
 #include <functional>
 #include <memory>
 #include <string>
+#include <vector>
 
 #include "absl/status/statusor.h"
 #include "harness/run/run.h"
@@ -45,14 +50,27 @@ class InProcessPort : public ConnectorPort {
                               v1::CheckpointResponse* response, BrokerEndpoint& broker) override;
   ConnectorFailure Committed(const v1::CommittedRequest& request, v1::CommittedResponse* response,
                              BrokerEndpoint& broker) override;
+  ConnectorFailure Assign(const v1::AssignRequest& request, v1::AssignResponse* response,
+                          BrokerEndpoint& broker) override;
+  ConnectorFailure Revoke(const v1::RevokeRequest& request, v1::RevokeResponse* response,
+                          BrokerEndpoint& broker) override;
+  ConnectorFailure Cut(const v1::CutRequest& request, v1::CutResponse* response,
+                       BrokerEndpoint& broker) override;
   void Kill() override { source_.reset(); }
 
  private:
   Factory factory_;
   std::unique_ptr<adapter::Source> source_;
+  adapter::SpansTold told_;  // many readers: the spans the source holds, for Cut
 };
 
-// One run of (scenario, seed) against a fresh Source per incarnation.
+// One port per reader slot (ReaderCount in harness/run/run.h), each making
+// its sources from `factory`.
+[[nodiscard]] std::vector<std::unique_ptr<InProcessPort>> MakeInProcessPorts(
+    const InProcessPort::Factory& factory, std::uint32_t readers);
+
+// One run of (scenario, seed) against a fresh Source per incarnation of each
+// reader.
 [[nodiscard]] absl::StatusOr<RunOutput> RunInProcess(const RunSpec& spec,
                                                      const InProcessPort::Factory& factory);
 

@@ -1,11 +1,13 @@
 // Tests for the log shape of the C++ adapter (adapters/cpp/include/weir/adapter/source.h):
 // what a step carries (log records, gaps), what Open and Checkpoint answer for
-// a log source, the default broker calls of a queue-only client, and the gRPC
+// a log source, the default broker calls of a queue-only client, the gRPC
 // broker client's reading of an out-of-range read (the status and trailing
-// metadata of proto/weir/v1/broker.proto, Broker.Read).
+// metadata of proto/weir/v1/broker.proto, Broker.Read), and the many-readers
+// calls (Assign, Revoke, Cut) as the hosts run them.
 #include <chrono>
 #include <cstdint>
 #include <memory>
+#include <optional>
 #include <string>
 #include <vector>
 
@@ -235,6 +237,200 @@ TEST(AdapterLog, ReadsThroughTheContextMoveNowAndCarryTheFirstRetainedOffset) {
   ASSERT_EQ(got.records.size(), 1u);
   EXPECT_TRUE(got.caught_up());
   EXPECT_EQ(ctx.now(), 700);
+}
+
+// Many readers.
+
+TEST(AdapterReaders, OpenInfoCarriesTheReaderAndTheSlots) {
+  v1::OpenRequest request;
+  request.set_reader(2);
+  request.set_readers(3);
+  const OpenInfo info = OpenInfoFrom(request);
+  EXPECT_EQ(info.reader, 2u);
+  EXPECT_EQ(info.readers, 3u);
+
+  const OpenInfo single = OpenInfoFrom(v1::OpenRequest());
+  EXPECT_EQ(single.reader, 0u);
+  EXPECT_EQ(single.readers, 1u) << "unset: one reader";
+}
+
+// Records what the many-readers calls were given; Cut answers at the
+// proposed offset, or declines when told to.
+class SpanSource : public LogSource {
+ public:
+  grpc::Status Assign(const std::vector<Span>& spans, Context& ctx) override {
+    assigned = spans;
+    ReadOnce(ctx);
+    return assign_answer;
+  }
+  grpc::Status Revoke(const std::vector<std::uint32_t>& partitions, Context& ctx) override {
+    revoked = partitions;
+    ReadOnce(ctx);
+    return grpc::Status::OK;
+  }
+  CutAnswer Cut(const Span& held, std::uint64_t at_offset, Context& ctx) override {
+    cut_held = held;
+    ReadOnce(ctx);
+    if (decline) return CutAnswer::Decline(held);
+    return CutAnswer{Span{held.partition, held.start_offset, at_offset},
+                     Span{held.partition, at_offset, held.end_offset}};
+  }
+  void ReadOnce(Context& ctx) {
+    ReadResult got;
+    (void)ctx.broker().Read(0, 0, {}, &got);
+    now_after_read = ctx.now();
+  }
+  std::vector<Span> assigned;
+  std::vector<std::uint32_t> revoked;
+  std::optional<Span> cut_held;
+  grpc::Status assign_answer = grpc::Status::OK;
+  bool decline = false;
+  std::int64_t now_after_read = 0;
+};
+
+v1::AssignRequest AssignOf(std::vector<Span> spans, std::int64_t now_ns = 0) {
+  v1::AssignRequest request;
+  request.set_now_ns(now_ns);
+  for (const Span& span : spans) {
+    v1::Span* out = request.add_spans();
+    out->set_partition(span.partition);
+    out->set_start_offset(span.start_offset);
+    if (span.end_offset.has_value()) out->set_end_offset(*span.end_offset);
+  }
+  return request;
+}
+
+v1::CutRequest CutOf(std::uint32_t partition, std::uint64_t at) {
+  v1::CutRequest request;
+  request.set_partition(partition);
+  request.set_at_offset(at);
+  return request;
+}
+
+Span SpanOf(const v1::Span& s) {
+  return Span{s.partition(), s.start_offset(),
+              s.has_end_offset() ? std::optional<std::uint64_t>(s.end_offset()) : std::nullopt};
+}
+
+TEST(AdapterReaders, ASourceWithoutManyReadersFailsAssignAndRevokeAndDeclinesCuts) {
+  QueueOnlyBroker broker;
+  LogSource source;  // overrides none of the three
+  SpansTold told;
+  OpenInfo info;
+  info.spans = {{2, 5, std::nullopt}, {4, 1, 9}};
+  told.Opened(info);
+
+  Context assign(CallKind::kAssign, 0, broker);
+  const grpc::Status assigned = RunAssign(source, AssignOf({{7, 0, {}}}), assign, &told);
+  EXPECT_EQ(assigned.error_code(), grpc::StatusCode::UNIMPLEMENTED);
+  EXPECT_EQ(told.Held(7), (Span{7, 0, std::nullopt})) << "a failed Assign tells nothing";
+
+  Context revoke(CallKind::kRevoke, 0, broker);
+  v1::RevokeRequest request;
+  request.add_partitions(2);
+  EXPECT_EQ(RunRevoke(source, request, revoke, &told).error_code(), grpc::StatusCode::UNIMPLEMENTED);
+  EXPECT_EQ(told.Held(2), (Span{2, 5, std::nullopt})) << "a failed Revoke keeps the span";
+
+  // The decline names the whole span as Open told it.
+  for (const Span& span : info.spans) {
+    Context cut(CallKind::kCut, 0, broker);
+    v1::CutResponse response;
+    RunCut(source, CutOf(span.partition, span.start_offset + 1), cut, &told, &response);
+    EXPECT_TRUE(cut.misuse().empty());
+    EXPECT_EQ(SpanOf(response.head()), span);
+    EXPECT_FALSE(response.has_tail());
+  }
+}
+
+TEST(AdapterReaders, AssignRevokeAndCutReachTheSourceWithTheSpansItHolds) {
+  CannedLogBroker broker;
+  SpanSource source;
+  SpansTold told;
+  OpenInfo info;
+  info.spans = {{1, 40, std::nullopt}};
+  told.Opened(info);
+
+  Context assign(CallKind::kAssign, 10, broker);
+  ASSERT_TRUE(RunAssign(source, AssignOf({{3, 7, 20}, {5, 4, {}}}, 10), assign, &told).ok());
+  EXPECT_EQ(source.assigned, (std::vector<Span>{{3, 7, 20}, {5, 4, std::nullopt}}));
+
+  // Cut sees the span as told: from Open, from Assign, and untold from 0.
+  struct Case {
+    std::uint32_t partition;
+    Span held;
+  };
+  for (const Case& c : {Case{1, {1, 40, std::nullopt}}, Case{3, {3, 7, 20}}, Case{9, {9, 0, std::nullopt}}}) {
+    source.decline = true;
+    Context cut(CallKind::kCut, 0, broker);
+    v1::CutResponse response;
+    RunCut(source, CutOf(c.partition, 12), cut, &told, &response);
+    ASSERT_TRUE(source.cut_held.has_value());
+    EXPECT_EQ(*source.cut_held, c.held);
+  }
+
+  // After a cut the source holds the head: the next Cut names it.
+  source.decline = false;
+  Context first(CallKind::kCut, 0, broker);
+  v1::CutResponse answer;
+  RunCut(source, CutOf(3, 12), first, &told, &answer);
+  EXPECT_EQ(SpanOf(answer.head()), (Span{3, 7, 12}));
+  ASSERT_TRUE(answer.has_tail());
+  EXPECT_EQ(SpanOf(answer.tail()), (Span{3, 12, 20}));
+  EXPECT_EQ(told.Held(3), (Span{3, 7, 12}));
+
+  Context revoke(CallKind::kRevoke, 0, broker);
+  v1::RevokeRequest request;
+  request.add_partitions(3);
+  request.add_partitions(1);
+  ASSERT_TRUE(RunRevoke(source, request, revoke, &told).ok());
+  EXPECT_EQ(source.revoked, (std::vector<std::uint32_t>{3, 1}));
+  EXPECT_EQ(told.Held(3), (Span{3, 0, std::nullopt})) << "forgotten";
+  EXPECT_EQ(told.Held(5), (Span{5, 4, std::nullopt})) << "not revoked";
+  EXPECT_EQ(told.Held(1), (Span{1, 0, std::nullopt}));
+
+  // A reopened source starts from Open's spans alone.
+  info.spans = {{3, 50, std::nullopt}};
+  told.Opened(info);
+  EXPECT_EQ(told.Held(3), (Span{3, 50, std::nullopt}));
+}
+
+TEST(AdapterReaders, AnAssignErrorIsTheSourcesOwnStatus) {
+  QueueOnlyBroker broker;
+  SpanSource source;
+  source.assign_answer = grpc::Status(grpc::StatusCode::FAILED_PRECONDITION, "already held");
+  SpansTold told;
+  Context ctx(CallKind::kAssign, 0, broker);
+  const grpc::Status status = RunAssign(source, AssignOf({{3, 7, {}}}), ctx, &told);
+  EXPECT_EQ(status.error_code(), grpc::StatusCode::FAILED_PRECONDITION);
+  EXPECT_EQ(status.error_message(), "already held");
+  EXPECT_EQ(told.Held(3), (Span{3, 0, std::nullopt}));
+}
+
+TEST(AdapterReaders, TheBrokerMovesNowInsideTheCallsAndStepsCannotBeShaped) {
+  CannedLogBroker broker;
+  broker.answer_now_ns = 900;
+  SpanSource source;
+  SpansTold told;
+
+  Context assign(CallKind::kAssign, 100, broker);
+  ASSERT_TRUE(RunAssign(source, AssignOf({{0, 0, {}}}, 100), assign, &told).ok());
+  EXPECT_EQ(source.now_after_read, 900);
+  EXPECT_EQ(assign.now(), 900);
+
+  Context cut(CallKind::kCut, 950, broker);
+  v1::CutResponse response;
+  RunCut(source, CutOf(0, 3), cut, &told, &response);
+  EXPECT_EQ(cut.now(), 950) << "now never goes back";
+
+  Context revoke(CallKind::kRevoke, 0, broker);
+  revoke.EmitLogRecord(0, 1, 2);
+  EXPECT_NE(revoke.misuse().find("EmitLogRecord called during Revoke"), std::string::npos);
+  Context in_cut(CallKind::kCut, 0, broker);
+  in_cut.SetWatermark(5);
+  EXPECT_NE(in_cut.misuse().find("SetWatermark called during Cut"), std::string::npos);
+  Context in_assign(CallKind::kAssign, 0, broker);
+  in_assign.ReportGap(0, 1, 2);
+  EXPECT_NE(in_assign.misuse().find("ReportGap called during Assign"), std::string::npos);
 }
 
 // A Broker service whose Read fails OUT_OF_RANGE the way weir's does, with

@@ -127,5 +127,141 @@ TEST(InProcess, SilentSkipIsCaughtInProcessToo) {
   EXPECT_GT(out->verdict.at(Invariant::kSilentSkip).violations, 0u);
 }
 
+// Many readers: the in-process port carries Assign, Revoke and Cut to its
+// source, and makes one port per reader slot, each with its own source.
+
+// An endpoint with an empty log: every partition listed has no records.
+class EmptyLogEndpoint final : public BrokerEndpoint {
+ public:
+  CallStatus Pull(const v1::PullRequest&, v1::PullResponse*) override { return {}; }
+  CallStatus Ack(const v1::AckRequest&, v1::AckResponse*) override { return {}; }
+  CallStatus Nack(const v1::NackRequest&, v1::NackResponse*) override { return {}; }
+  CallStatus ExtendLease(const v1::ExtendLeaseRequest&, v1::ExtendLeaseResponse*) override { return {}; }
+  CallStatus ListPartitions(const v1::ListPartitionsRequest&, v1::ListPartitionsResponse*) override {
+    return {};
+  }
+  CallStatus Read(const v1::ReadRequest& request, v1::ReadResponse* response) override {
+    ++reads;
+    response->set_partition(request.partition());
+    response->set_next_offset(request.offset());
+    response->set_readable_end(request.offset());
+    return {};
+  }
+  void OnStrayCall(const std::string&) override {}
+  int reads = 0;
+};
+
+v1::OpenRequest OpenOfReader(std::uint32_t reader) {
+  v1::OpenRequest request;
+  request.set_incarnation(1);
+  request.set_reader(reader);
+  request.set_readers(2);
+  v1::Span* span = request.add_spans();
+  span->set_partition(4);
+  span->set_start_offset(20);
+  return request;
+}
+
+TEST(InProcessReaders, ThePortCarriesAssignRevokeAndCut) {
+  EmptyLogEndpoint broker;
+  InProcessPort port([] { return std::make_unique<fixtures::LogReferenceSource>(); });
+  v1::CutRequest cut;
+  cut.set_partition(4);
+  cut.set_at_offset(50);
+  v1::CutResponse answer;
+  EXPECT_EQ(port.Cut(cut, &answer, broker).kind, ConnectorFailure::Kind::kExited) << "none alive";
+
+  ASSERT_TRUE(port.Start(1).ok());
+  v1::OpenResponse opened;
+  ASSERT_TRUE(port.Open(OpenOfReader(1), &opened, broker).ok());
+  ASSERT_TRUE(port.Cut(cut, &answer, broker).ok());
+  EXPECT_EQ(answer.head().partition(), 4u);
+  EXPECT_EQ(answer.head().start_offset(), 20u);
+  EXPECT_EQ(answer.head().end_offset(), 50u);
+  ASSERT_TRUE(answer.has_tail());
+  EXPECT_EQ(answer.tail().start_offset(), 50u);
+  EXPECT_FALSE(answer.tail().has_end_offset());
+
+  v1::AssignRequest assign;
+  v1::Span* span = assign.add_spans();
+  span->set_partition(6);
+  span->set_start_offset(3);
+  span->set_end_offset(9);
+  v1::AssignResponse assigned;
+  ASSERT_TRUE(port.Assign(assign, &assigned, broker).ok());
+  v1::CheckpointRequest checkpoint;
+  checkpoint.set_checkpoint_id(1);
+  v1::CheckpointResponse state;
+  ASSERT_TRUE(port.Checkpoint(checkpoint, &state, broker).ok());
+  ASSERT_EQ(state.resume_points_size(), 2);
+  EXPECT_EQ(state.resume_points(1).partition(), 6u);
+  EXPECT_EQ(state.resume_points(1).next_offset(), 3u);
+
+  v1::RevokeRequest revoke;
+  revoke.add_partitions(4);
+  v1::RevokeResponse revoked;
+  ASSERT_TRUE(port.Revoke(revoke, &revoked, broker).ok());
+  checkpoint.set_checkpoint_id(2);
+  state.Clear();
+  ASSERT_TRUE(port.Checkpoint(checkpoint, &state, broker).ok());
+  ASSERT_EQ(state.resume_points_size(), 1);
+  EXPECT_EQ(state.resume_points(0).partition(), 6u);
+}
+
+TEST(InProcessReaders, ASourceWithoutManyReadersAnswersAssignAsAConnectorError) {
+  EmptyLogEndpoint broker;
+  InProcessPort port(Reference());
+  ASSERT_TRUE(port.Start(1).ok());
+  v1::OpenResponse opened;
+  ASSERT_TRUE(port.Open(v1::OpenRequest(), &opened, broker).ok());
+  v1::AssignResponse assigned;
+  const ConnectorFailure assign = port.Assign(v1::AssignRequest(), &assigned, broker);
+  EXPECT_EQ(assign.kind, ConnectorFailure::Kind::kConnectorError);
+  EXPECT_EQ(assign.code, static_cast<int>(grpc::StatusCode::UNIMPLEMENTED));
+  v1::RevokeResponse revoked;
+  EXPECT_EQ(port.Revoke(v1::RevokeRequest(), &revoked, broker).code,
+            static_cast<int>(grpc::StatusCode::UNIMPLEMENTED));
+  v1::CutRequest cut;
+  cut.set_partition(2);
+  cut.set_at_offset(7);
+  v1::CutResponse answer;
+  ASSERT_TRUE(port.Cut(cut, &answer, broker).ok());
+  EXPECT_EQ(answer.head().partition(), 2u) << "declines: the whole span";
+  EXPECT_FALSE(answer.has_tail());
+}
+
+TEST(InProcessReaders, OnePortPerReaderSlotEachWithItsOwnSource) {
+  v1::Scenario scenario;
+  scenario.mutable_readers()->set_count(3);
+
+  int made = 0;
+  auto ports = MakeInProcessPorts(
+      [&made] {
+        ++made;
+        return std::make_unique<fixtures::LogReferenceSource>();
+      },
+      ReaderCount(scenario));
+  ASSERT_EQ(ports.size(), 3u);
+  EmptyLogEndpoint broker;
+  for (std::uint32_t r = 0; r < 3; ++r) {
+    ASSERT_TRUE(ports[r]->Start(1).ok());
+    v1::OpenResponse opened;
+    ASSERT_TRUE(ports[r]->Open(OpenOfReader(r), &opened, broker).ok());
+  }
+  EXPECT_EQ(made, 3);
+  // A cut of reader 0's span leaves reader 1's whole.
+  v1::CutRequest cut;
+  cut.set_partition(4);
+  cut.set_at_offset(30);
+  v1::CutResponse first;
+  ASSERT_TRUE(ports[0]->Cut(cut, &first, broker).ok());
+  EXPECT_EQ(first.head().end_offset(), 30u);
+  cut.set_at_offset(40);
+  v1::CutResponse second;
+  ASSERT_TRUE(ports[1]->Cut(cut, &second, broker).ok());
+  EXPECT_EQ(second.head().end_offset(), 40u);
+  EXPECT_EQ(second.tail().start_offset(), 40u);
+}
+
 }  // namespace
 }  // namespace weir

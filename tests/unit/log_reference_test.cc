@@ -1,6 +1,8 @@
 // Tests for the log reference connector (fixtures/connectors/log_reference_source.h)
 // against a small in-memory log: what it emits, the gaps it reports, the resume
-// points and bookmarks it gives, its watermark and its broker calls while idle.
+// points and bookmarks it gives, its watermark and its broker calls while idle,
+// and with several readers its spans (Assign, Revoke, Cut) and the readers
+// mutants.
 // weir's own log broker and oracle judge it end to end (log scenarios and the
 // detection matrix); these pin the behaviour its header promises.
 #include "fixtures/connectors/log_reference_source.h"
@@ -100,6 +102,10 @@ class FakeLog : public adapter::BrokerClient {
 
   BrokerStatus SaveBookmarks(const std::vector<adapter::Bookmark>& bookmarks) override {
     calls.push_back("SaveBookmarks");
+    if (failing_saves > 0) {
+      --failing_saves;
+      return Fail(grpc::StatusCode::UNAVAILABLE);
+    }
     saves.push_back(bookmarks);
     return Ok();
   }
@@ -108,6 +114,7 @@ class FakeLog : public adapter::BrokerClient {
   std::map<std::uint32_t, Part> parts;
   std::map<std::uint32_t, bool> unavailable;
   std::int64_t throttle_reads_until_ns = 0;
+  int failing_saves = 0;  // this many SaveBookmarks calls fail UNAVAILABLE
   int lists = 0;
   int reads = 0;
   std::vector<std::string> calls;
@@ -146,13 +153,61 @@ class Driver {
     info.incarnation = ++incarnation;
     info.spans = std::move(spans);
     info.new_partitions_held = new_partitions_held;
+    info.readers = readers;
     if (restore.has_value()) {
       info.restore = true;
       info.checkpoint_id = restore->first;
       info.checkpoint_state = restore->second;
     }
     next_step_ns = log.now_ns;
-    return source.Open(info, ctx);
+    grpc::Status status = source.Open(info, ctx);
+    if (status.ok()) told.Opened(info);
+    return status;
+  }
+
+  // Many readers, through the adapter's host helpers (as Serve runs them).
+  grpc::Status Assign(const std::vector<adapter::Span>& spans) {
+    Context ctx(CallKind::kAssign, log.now_ns, log);
+    v1::AssignRequest request;
+    request.set_now_ns(log.now_ns);
+    for (const adapter::Span& span : spans) {
+      v1::Span* out = request.add_spans();
+      out->set_partition(span.partition);
+      out->set_start_offset(span.start_offset);
+      if (span.end_offset.has_value()) out->set_end_offset(*span.end_offset);
+    }
+    grpc::Status status = adapter::RunAssign(source, request, ctx, &told);
+    EXPECT_TRUE(ctx.misuse().empty()) << ctx.misuse();
+    next_step_ns = std::min(next_step_ns, log.now_ns);  // the runtime steps it soon
+    return status;
+  }
+
+  grpc::Status Revoke(const std::vector<std::uint32_t>& partitions) {
+    Context ctx(CallKind::kRevoke, log.now_ns, log);
+    v1::RevokeRequest request;
+    for (std::uint32_t p : partitions) request.add_partitions(p);
+    grpc::Status status = adapter::RunRevoke(source, request, ctx, &told);
+    EXPECT_TRUE(ctx.misuse().empty()) << ctx.misuse();
+    return status;
+  }
+
+  // The answer as (head, tail).
+  std::pair<adapter::Span, std::optional<adapter::Span>> Cut(std::uint32_t partition, std::uint64_t at) {
+    Context ctx(CallKind::kCut, log.now_ns, log);
+    v1::CutRequest request;
+    request.set_partition(partition);
+    request.set_at_offset(at);
+    v1::CutResponse response;
+    adapter::RunCut(source, request, ctx, &told, &response);
+    EXPECT_TRUE(ctx.misuse().empty()) << ctx.misuse();
+    auto span_of = [](const v1::Span& sp) {
+      return adapter::Span{sp.partition(), sp.start_offset(),
+                           sp.has_end_offset() ? std::optional<std::uint64_t>(sp.end_offset())
+                                               : std::nullopt};
+    };
+    std::optional<adapter::Span> tail;
+    if (response.has_tail()) tail = span_of(response.tail());
+    return {span_of(response.head()), tail};
   }
 
   // One Advance at the time the previous one asked for.
@@ -199,6 +254,8 @@ class Driver {
 
   FakeLog log;
   LogReferenceSource source;
+  adapter::SpansTold told;
+  std::uint32_t readers = 1;
   std::uint64_t incarnation = 0;
   std::int64_t next_step_ns = 0;
   std::vector<Emitted> emitted;
@@ -550,6 +607,290 @@ TEST(LogReference, AnUnavailablePartitionBacksOffAloneWhileOthersAreRead) {
   d.log.unavailable.erase(0);
   d.RunUntil(d.log.now_ns + 10 * kSecond);
   EXPECT_EQ(d.OffsetsOf(0), Range(0, 10));
+}
+
+// Many readers.
+
+using Points = std::vector<std::pair<std::uint32_t, std::uint64_t>>;
+
+TEST(LogReaders, AssignAddsSpansReadOnlyWithinThem) {
+  Driver d;
+  d.readers = 2;
+  d.log.Append(0, 0, 5);
+  d.log.Append(1, 0, 20);
+  d.log.Append(2, 0, 20);  // never given to this reader
+  ASSERT_TRUE(d.Open({{0, 0, {}}}, /*new_partitions_held=*/false).ok());
+  d.RunUntil(1 * kSecond);
+  EXPECT_TRUE(d.OffsetsOf(1).empty());
+  ASSERT_TRUE(d.Assign({{1, 5, 12}}).ok());
+  d.RunUntil(5 * kSecond);
+  EXPECT_EQ(d.OffsetsOf(0), Range(0, 5));
+  EXPECT_EQ(d.OffsetsOf(1), Range(5, 12));
+  EXPECT_TRUE(d.OffsetsOf(2).empty()) << "never takes up a partition by itself";
+  EXPECT_EQ(Pairs(d.Checkpoint(1)), (Points{{0, 5}, {1, 12}})) << "a finished closed span is named too";
+}
+
+TEST(LogReaders, RevokeStopsReadingAtOnceAndForgetsTheSpan) {
+  Driver d;
+  d.readers = 2;
+  d.log.Append(0, 10 * kSecond, 5);
+  d.log.Append(1, 4 * kSecond, 5);
+  ASSERT_TRUE(d.Open({{0, 0, {}}, {1, 0, {}}}, false).ok());
+  d.Step();
+  ASSERT_FALSE(d.watermarks.empty());
+  EXPECT_EQ(d.watermarks.back(), 4 * kSecond) << "partition 1 holds the watermark back";
+  d.Checkpoint(1);
+  d.Committed(1);
+  ASSERT_TRUE(d.Revoke({1}).ok());
+  const std::size_t calls_before = d.log.calls.size();
+  d.log.Append(1, 5 * kSecond, 10);
+  d.log.Append(0, 12 * kSecond, 1);
+  d.RunUntil(d.log.now_ns + 2 * kSecond);
+  EXPECT_EQ(d.OffsetsOf(1), Range(0, 5)) << "nothing emitted after the revoke";
+  EXPECT_EQ(d.OffsetsOf(0), Range(0, 6));
+  for (std::size_t i = calls_before; i < d.log.calls.size(); ++i) {
+    EXPECT_NE(d.log.calls[i].rfind("Read 1@", 0), 0u) << "read after the revoke: " << d.log.calls[i];
+  }
+  EXPECT_EQ(d.watermarks.back(), 12 * kSecond) << "a revoked span is forgotten";
+  EXPECT_EQ(Pairs(d.Checkpoint(2)), (Points{{0, 6}}));
+}
+
+TEST(LogReaders, RevokeDropsABookmarkNotYetSaved) {
+  Driver d;
+  d.readers = 2;
+  d.log.Append(0, 0, 5);
+  d.log.Append(1, 0, 5);
+  ASSERT_TRUE(d.Open({{0, 0, {}}, {1, 0, {}}}, false).ok());
+  d.Step();
+  d.Checkpoint(1);
+  d.log.failing_saves = 1;
+  d.Committed(1);  // the save fails: checkpoint 1's bookmarks wait for a retry
+  ASSERT_TRUE(d.log.saves.empty());
+  ASSERT_TRUE(d.Revoke({1}).ok());
+  d.RunUntil(d.log.now_ns + 10 * kSecond);
+  ASSERT_EQ(d.log.saves.size(), 1u);
+  EXPECT_EQ(Pairs(d.log.saves[0]), (Points{{0, 5}})) << "the revoked partition's bookmark is not ours";
+}
+
+TEST(LogReaders, CutHeadAndTailAreDisjointMakeTheSpanAndHoldEveryEmittedOffset) {
+  struct Case {
+    std::optional<std::uint64_t> end;
+    int steps;          // steps before the cut (64 records each)
+    std::uint64_t at;   // the proposed tail start
+  };
+  const std::vector<Case> cases = {
+      {std::nullopt, 0, 0},  {std::nullopt, 0, 30}, {std::nullopt, 1, 10}, {std::nullopt, 1, 64},
+      {std::nullopt, 1, 90}, {std::nullopt, 2, 500}, {150, 1, 10},         {150, 1, 100},
+      {150, 0, 149},
+  };
+  for (const Case& c : cases) {
+    SCOPED_TRACE(testing::Message() << "end " << (c.end ? std::to_string(*c.end) : "open") << " steps "
+                                    << c.steps << " at " << c.at);
+    Driver d;
+    d.readers = 2;
+    d.log.Append(0, 0, 300);
+    ASSERT_TRUE(d.Open({{0, 3, c.end}}, false).ok());
+    for (int i = 0; i < c.steps; ++i) d.Step();
+    const std::vector<std::uint64_t> before = d.OffsetsOf(0);
+    const auto [head, tail] = d.Cut(0, c.at);
+    ASSERT_TRUE(tail.has_value()) << "the span has offsets left";
+    EXPECT_EQ(head.partition, 0u);
+    EXPECT_EQ(tail->partition, 0u);
+    EXPECT_EQ(head.start_offset, 3u) << "the head starts where the span did";
+    ASSERT_TRUE(head.end_offset.has_value());
+    EXPECT_EQ(tail->start_offset, *head.end_offset) << "disjoint, nothing between";
+    EXPECT_EQ(tail->end_offset, c.end) << "the tail ends where the span did";
+    EXPECT_GE(*head.end_offset, c.at) << "never earlier than asked: the reader keeps nothing read ahead";
+    for (std::uint64_t o : before) EXPECT_LT(o, *head.end_offset) << "the head holds every emitted offset";
+    // Afterwards the reader reads its head to the end and nothing of the tail.
+    d.RunUntil(d.log.now_ns + 5 * kSecond);
+    const std::uint64_t read_to = std::min<std::uint64_t>(*head.end_offset, 300);  // the log's end
+    EXPECT_EQ(d.OffsetsOf(0), Range(3, read_to));
+    EXPECT_EQ(Pairs(d.Checkpoint(1)), (Points{{0, read_to}}));
+  }
+}
+
+TEST(LogReaders, CutTakesTheNextOffsetToEmitWhenAskedForLess) {
+  Driver d;
+  d.readers = 2;
+  d.log.Append(0, 0, 300);
+  ASSERT_TRUE(d.Open({{0, 0, {}}}, false).ok());
+  d.Step();  // emits 0..63
+  const auto [head, tail] = d.Cut(0, 10);
+  EXPECT_EQ(head, (adapter::Span{0, 0, 64}));
+  EXPECT_EQ(tail, (adapter::Span{0, 64, std::nullopt}));
+}
+
+TEST(LogReaders, CutDeclinesAtTheEndOfAClosedSpan) {
+  Driver d;
+  d.readers = 2;
+  d.log.Append(0, 0, 100);
+  ASSERT_TRUE(d.Open({{0, 10, 30}}, false).ok());
+  {
+    const auto [head, tail] = d.Cut(0, 30);  // nothing read, asked at the end
+    EXPECT_FALSE(tail.has_value());
+    EXPECT_EQ(head, (adapter::Span{0, 10, 30}));
+  }
+  {
+    const auto [head, tail] = d.Cut(0, 45);  // past the end
+    EXPECT_FALSE(tail.has_value());
+    EXPECT_EQ(head, (adapter::Span{0, 10, 30}));
+  }
+  d.RunUntil(2 * kSecond);
+  EXPECT_EQ(d.OffsetsOf(0), Range(10, 30)) << "a declined cut keeps the whole span";
+  const auto [head, tail] = d.Cut(0, 12);  // read to its end: nothing left to give
+  EXPECT_FALSE(tail.has_value());
+  EXPECT_EQ(head, (adapter::Span{0, 10, 30}));
+}
+
+TEST(LogReaders, CutOfASecondTailKeepsTheFirstCutsEnd) {
+  Driver d;
+  d.readers = 2;
+  d.log.Append(0, 0, 300);
+  ASSERT_TRUE(d.Open({{0, 0, {}}}, false).ok());
+  ASSERT_EQ(d.Cut(0, 200).second, (adapter::Span{0, 200, std::nullopt}));
+  const auto [head, tail] = d.Cut(0, 150);
+  EXPECT_EQ(head, (adapter::Span{0, 0, 150}));
+  EXPECT_EQ(tail, (adapter::Span{0, 150, 200}));
+}
+
+TEST(LogReaders, AFinishedClosedSpanDoesNotHoldTheWatermarkBack) {
+  Driver d;
+  d.readers = 2;
+  d.log.Append(0, 2 * kSecond, 5);
+  d.log.Append(1, 9 * kSecond, 5);
+  ASSERT_TRUE(d.Open({{0, 0, 5}, {1, 0, {}}}, false).ok());
+  d.Step();
+  d.log.Append(1, 11 * kSecond, 1);
+  d.RunUntil(d.log.now_ns + kSecond);
+  ASSERT_FALSE(d.watermarks.empty());
+  EXPECT_EQ(d.watermarks.back(), 11 * kSecond);
+}
+
+// A checkpoint state of a reader that held partition 0 up to offset 64.
+std::string StateAt64() {
+  Driver first;
+  first.log.Append(0, 0, 100);
+  EXPECT_TRUE(first.Open({{0, 0, {}}}).ok());
+  first.Step();
+  return first.Checkpoint(1).state();
+}
+
+TEST(LogReaders, WithSeveralReadersOpensSpansAreTheResumePoints) {
+  const std::string state = StateAt64();
+  Driver d;
+  d.readers = 2;
+  d.log.Append(0, 0, 100);
+  d.log.Append(1, 0, 100);
+  // The state says partition 0 at 64; the spans say otherwise: they win.
+  ASSERT_TRUE(d.Open({{0, 80, {}}, {1, 10, {}}}, false, std::make_pair(std::uint64_t{1}, state)).ok());
+  d.RunUntil(2 * kSecond);
+  EXPECT_EQ(d.OffsetsOf(0), Range(80, 100));
+  EXPECT_EQ(d.OffsetsOf(1), Range(10, 100));
+
+  Driver single;  // one reader: the same disagreement is a bad checkpoint
+  EXPECT_EQ(single.Open({{0, 80, {}}}, false, std::make_pair(std::uint64_t{1}, state)).error_code(),
+            grpc::StatusCode::INVALID_ARGUMENT);
+}
+
+// The readers mutants: each flag changes exactly the behaviour it names.
+
+TEST(LogReadersMutants, TailEmitKeepsReadingTheTailItGaveAway) {
+  for (bool bug : {false, true}) {
+    LogBugs bugs;
+    bugs.readers_tail_emit = bug;
+    Driver d(bugs);
+    d.readers = 2;
+    d.log.Append(0, 0, 100);
+    ASSERT_TRUE(d.Open({{0, 0, {}}}, false).ok());
+    const auto [head, tail] = d.Cut(0, 40);
+    EXPECT_EQ(head, (adapter::Span{0, 0, 40})) << "the answer is the reference's";
+    EXPECT_EQ(tail, (adapter::Span{0, 40, std::nullopt}));
+    d.RunUntil(2 * kSecond);
+    EXPECT_EQ(d.OffsetsOf(0), Range(0, bug ? 100 : 40));
+  }
+}
+
+TEST(LogReadersMutants, CutOverlapAndDropsFirstMoveOnlyTheTailsStart) {
+  for (int bug = 0; bug < 3; ++bug) {
+    LogBugs bugs;
+    bugs.readers_cut_overlap = bug == 1;
+    bugs.readers_cut_drops_first = bug == 2;
+    Driver d(bugs);
+    d.readers = 2;
+    d.log.Append(0, 0, 100);
+    ASSERT_TRUE(d.Open({{0, 0, 90}}, false).ok());
+    const auto [head, tail] = d.Cut(0, 40);
+    EXPECT_EQ(head, (adapter::Span{0, 0, 40}));
+    const std::uint64_t start = bug == 0 ? 40 : bug == 1 ? 39 : 41;
+    EXPECT_EQ(tail, (adapter::Span{0, start, 90}));
+    d.RunUntil(2 * kSecond);
+    EXPECT_EQ(d.OffsetsOf(0), Range(0, 40)) << "the reader itself keeps to its head";
+  }
+}
+
+TEST(LogReadersMutants, KeepsRevokedReadsAPartitionTakenAway) {
+  for (bool bug : {false, true}) {
+    LogBugs bugs;
+    bugs.readers_keeps_revoked = bug;
+    Driver d(bugs);
+    d.readers = 2;
+    d.log.Append(0, 0, 5);
+    d.log.Append(1, 0, 5);
+    ASSERT_TRUE(d.Open({{0, 0, {}}, {1, 0, {}}}, false).ok());
+    d.Step();
+    ASSERT_TRUE(d.Revoke({1}).ok());
+    d.log.Append(1, 0, 5);
+    d.RunUntil(d.log.now_ns + 10 * kSecond);
+    EXPECT_EQ(d.OffsetsOf(1), Range(0, bug ? 10 : 5));
+    EXPECT_EQ(d.OffsetsOf(0), Range(0, 5));
+  }
+}
+
+TEST(LogReadersMutants, CheckpointForgetsAssignedOmitsSpansNewSinceTheLastCheckpoint) {
+  for (bool bug : {false, true}) {
+    LogBugs bugs;
+    bugs.readers_checkpoint_forgets_assigned = bug;
+    Driver d(bugs);
+    d.readers = 2;
+    d.log.Append(0, 0, 5);
+    d.log.Append(1, 0, 5);
+    ASSERT_TRUE(d.Open({{0, 0, {}}}, false).ok());
+    d.Step();
+    ASSERT_TRUE(d.Assign({{1, 2, {}}}).ok());
+    d.Step();
+    EXPECT_EQ(d.OffsetsOf(1), Range(2, 5)) << "the span is read either way";
+    EXPECT_EQ(Pairs(d.Checkpoint(1)), bug ? (Points{{0, 5}}) : (Points{{0, 5}, {1, 5}}));
+    EXPECT_EQ(Pairs(d.Checkpoint(2)), (Points{{0, 5}, {1, 5}})) << "held at the previous checkpoint";
+  }
+  // Restored: a span Open gives that the restored state did not name.
+  const std::string state = StateAt64();
+  for (bool bug : {false, true}) {
+    LogBugs bugs;
+    bugs.readers_checkpoint_forgets_assigned = bug;
+    Driver d(bugs);
+    d.readers = 2;
+    d.log.Append(0, 0, 64);
+    d.log.Append(1, 0, 3);
+    ASSERT_TRUE(d.Open({{0, 64, {}}, {1, 0, {}}}, false, std::make_pair(std::uint64_t{1}, state)).ok());
+    EXPECT_EQ(Pairs(d.Checkpoint(2)), bug ? (Points{{0, 64}}) : (Points{{0, 64}, {1, 0}}));
+  }
+}
+
+TEST(LogReadersMutants, TrustsRestoredStateReadsWhatItsStateNamesNotOpensSpans) {
+  const std::string state = StateAt64();
+  for (bool bug : {false, true}) {
+    LogBugs bugs;
+    bugs.readers_trusts_restored_state = bug;
+    Driver d(bugs);
+    d.readers = 2;
+    d.log.Append(0, 0, 100);
+    d.log.Append(1, 0, 100);
+    ASSERT_TRUE(d.Open({{1, 90, {}}}, false, std::make_pair(std::uint64_t{1}, state)).ok());
+    d.RunUntil(2 * kSecond);
+    EXPECT_EQ(d.OffsetsOf(0), bug ? Range(64, 100) : Range(0, 0));
+    EXPECT_EQ(d.OffsetsOf(1), bug ? Range(0, 0) : Range(90, 100));
+  }
 }
 
 }  // namespace

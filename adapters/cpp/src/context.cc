@@ -13,6 +13,9 @@ const char* CallName(CallKind call) {
     case CallKind::kAdvance: return "Advance";
     case CallKind::kCheckpoint: return "Checkpoint";
     case CallKind::kCommitted: return "Committed";
+    case CallKind::kAssign: return "Assign";
+    case CallKind::kRevoke: return "Revoke";
+    case CallKind::kCut: return "Cut";
   }
   return "?";
 }
@@ -180,6 +183,8 @@ OpenInfo OpenInfoFrom(const v1::OpenRequest& request) {
     if (s.has_end_offset()) span.end_offset = s.end_offset();
   }
   info.new_partitions_held = request.new_partitions_held();
+  info.reader = request.reader();
+  info.readers = std::max<std::uint32_t>(1, request.readers());
   return info;
 }
 
@@ -197,6 +202,99 @@ void RunCheckpoint(Source& source, std::uint64_t checkpoint_id, Context& ctx,
     out->set_partition(p.partition);
     out->set_next_offset(p.next_offset);
   }
+}
+
+}  // namespace weir::adapter
+
+namespace weir::adapter {
+namespace {
+
+Span SpanFrom(const v1::Span& s) {
+  Span span;
+  span.partition = s.partition();
+  span.start_offset = s.start_offset();
+  if (s.has_end_offset()) span.end_offset = s.end_offset();
+  return span;
+}
+
+void WriteSpan(const Span& span, v1::Span* out) {
+  out->set_partition(span.partition);
+  out->set_start_offset(span.start_offset);
+  if (span.end_offset.has_value()) out->set_end_offset(*span.end_offset);
+}
+
+bool ByPartition(const Span& a, const Span& b) { return a.partition < b.partition; }
+
+}  // namespace
+
+grpc::Status Source::Assign(const std::vector<Span>&, Context&) {
+  return grpc::Status(grpc::StatusCode::UNIMPLEMENTED,
+                      "this source does not take spans by Assign (several readers need it)");
+}
+
+grpc::Status Source::Revoke(const std::vector<std::uint32_t>&, Context&) {
+  return grpc::Status(grpc::StatusCode::UNIMPLEMENTED,
+                      "this source does not give up spans by Revoke (several readers need it)");
+}
+
+CutAnswer Source::Cut(const Span& held, std::uint64_t, Context&) { return CutAnswer::Decline(held); }
+
+void SpansTold::Opened(const OpenInfo& info) {
+  spans_.clear();
+  Assigned(info.spans);
+}
+
+void SpansTold::Assigned(const std::vector<Span>& spans) {
+  for (const Span& span : spans) {
+    auto it = std::lower_bound(spans_.begin(), spans_.end(), span, ByPartition);
+    if (it != spans_.end() && it->partition == span.partition) {
+      *it = span;
+    } else {
+      spans_.insert(it, span);
+    }
+  }
+}
+
+void SpansTold::Revoked(const std::vector<std::uint32_t>& partitions) {
+  for (std::uint32_t partition : partitions) {
+    auto it = std::lower_bound(spans_.begin(), spans_.end(), Span{partition, 0, {}}, ByPartition);
+    if (it != spans_.end() && it->partition == partition) spans_.erase(it);
+  }
+}
+
+void SpansTold::Cut(const CutAnswer& answer) { Assigned({answer.head}); }
+
+Span SpansTold::Held(std::uint32_t partition) const {
+  auto it = std::lower_bound(spans_.begin(), spans_.end(), Span{partition, 0, {}}, ByPartition);
+  if (it != spans_.end() && it->partition == partition) return *it;
+  return Span{partition, 0, std::nullopt};
+}
+
+grpc::Status RunAssign(Source& source, const v1::AssignRequest& request, Context& ctx,
+                       SpansTold* told) {
+  std::vector<Span> spans;
+  spans.reserve(static_cast<std::size_t>(request.spans_size()));
+  for (const v1::Span& s : request.spans()) spans.push_back(SpanFrom(s));
+  grpc::Status status = source.Assign(spans, ctx);
+  if (status.ok()) told->Assigned(spans);
+  return status;
+}
+
+grpc::Status RunRevoke(Source& source, const v1::RevokeRequest& request, Context& ctx,
+                       SpansTold* told) {
+  const std::vector<std::uint32_t> partitions(request.partitions().begin(),
+                                              request.partitions().end());
+  grpc::Status status = source.Revoke(partitions, ctx);
+  if (status.ok()) told->Revoked(partitions);
+  return status;
+}
+
+void RunCut(Source& source, const v1::CutRequest& request, Context& ctx, SpansTold* told,
+            v1::CutResponse* response) {
+  const CutAnswer answer = source.Cut(told->Held(request.partition()), request.at_offset(), ctx);
+  told->Cut(answer);
+  WriteSpan(answer.head, response->mutable_head());
+  if (answer.tail.has_value()) WriteSpan(*answer.tail, response->mutable_tail());
 }
 
 }  // namespace weir::adapter

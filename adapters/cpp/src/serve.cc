@@ -60,7 +60,10 @@ class ConnectorCalls {
     const OpenInfo info = OpenInfoFrom(request);
     return Guarded("Open", ctx, [&] {
       grpc::Status status = source_.Open(info, ctx);
-      if (status.ok()) WriteOpen(source_, response);
+      if (status.ok()) {
+        WriteOpen(source_, response);
+        told_.Opened(info);
+      }
       return status;
     });
   }
@@ -91,9 +94,28 @@ class ConnectorCalls {
     });
   }
 
+  grpc::Status Assign(const v1::AssignRequest& request, v1::AssignResponse*) {
+    Context ctx(CallKind::kAssign, request.now_ns(), broker_);
+    return Guarded("Assign", ctx, [&] { return RunAssign(source_, request, ctx, &told_); });
+  }
+
+  grpc::Status Revoke(const v1::RevokeRequest& request, v1::RevokeResponse*) {
+    Context ctx(CallKind::kRevoke, request.now_ns(), broker_);
+    return Guarded("Revoke", ctx, [&] { return RunRevoke(source_, request, ctx, &told_); });
+  }
+
+  grpc::Status Cut(const v1::CutRequest& request, v1::CutResponse* response) {
+    Context ctx(CallKind::kCut, request.now_ns(), broker_);
+    return Guarded("Cut", ctx, [&] {
+      RunCut(source_, request, ctx, &told_, response);
+      return grpc::Status::OK;
+    });
+  }
+
  private:
   Source& source_;
   BrokerClient& broker_;
+  SpansTold told_;  // many readers: the spans the source holds, for Cut
 };
 
 template <typename Request, typename Response>
@@ -258,6 +280,12 @@ int Serve(Source& source) {
   new MethodCall<v1::CommittedRequest, v1::CommittedResponse>(
       {service, queue.get(), calls, handlers},
       {&Svc::RequestCommitted, &ConnectorCalls::Committed});
+  new MethodCall<v1::AssignRequest, v1::AssignResponse>(
+      {service, queue.get(), calls, handlers}, {&Svc::RequestAssign, &ConnectorCalls::Assign});
+  new MethodCall<v1::RevokeRequest, v1::RevokeResponse>(
+      {service, queue.get(), calls, handlers}, {&Svc::RequestRevoke, &ConnectorCalls::Revoke});
+  new MethodCall<v1::CutRequest, v1::CutResponse>(
+      {service, queue.get(), calls, handlers}, {&Svc::RequestCut, &ConnectorCalls::Cut});
 
   if (!WriteAll(ready_fd, ListenedAddress(listen_address, selected_port) + "\n", &error)) {
     // gRPC requires the awaited calls back before the queue goes.

@@ -37,6 +37,19 @@
 //                 ahead of the committed resume point is the log twin of an ack
 //                 before the commit.
 //
+// Many readers (log shape; a scenario's readers.count > 1): several connector
+// processes read one log, each holding its own spans (at most one per
+// partition). OpenInfo::reader/readers say which reader this is; a restored
+// reader gets its own last committed state, but OpenInfo::spans are what it
+// holds now, which need not be what that state remembers. Three more calls,
+// each with the broker usable and none of the step-shaping Context methods:
+//     Assign      more spans, each from its resume point;
+//     Revoke      spans taken away (whole), right after a commit notice: stop
+//                 reading and emitting them at once and forget them;
+//     Cut         give up the unread tail of one held span: answer the head kept
+//                 and the tail given up (CutAnswer), or decline. A single reader
+//                 never sees these calls.
+//
 // Time: Context::now() is the virtual now. It starts at the call's now and moves
 // forward as broker answers arrive. Source code must never read a wall clock and
 // must draw any randomness from a PRNG seeded deterministically (e.g. from the
@@ -209,7 +222,7 @@ class BrokerClient {
 };
 
 // Which connector call a Context belongs to.
-enum class CallKind { kOpen, kAdvance, kCheckpoint, kCommitted };
+enum class CallKind { kOpen, kAdvance, kCheckpoint, kCommitted, kAssign, kRevoke, kCut };
 
 // Given to every Source call. Collects what an Advance produces and keeps the
 // virtual now.
@@ -310,6 +323,22 @@ struct OpenInfo {
   std::vector<Span> spans;
   // Log shape: partitions that appear after Open are held too, from offset 0.
   bool new_partitions_held = false;
+  // Many readers: this reader's index (0-based) and how many reader slots the
+  // run has (1 when the request leaves it unset: a single reader).
+  std::uint32_t reader = 0;
+  std::uint32_t readers = 1;
+};
+
+// Many readers, log shape: what a Cut answers. For the cut offset c the reader
+// chose (never below an offset it has emitted from the span): head = [the held
+// span's start, c), tail = [c, the held span's end); disjoint, together exactly
+// the held span, the head holding every offset emitted from it. Without a tail
+// the reader declines and the head is the whole held span.
+struct CutAnswer {
+  Span head;
+  std::optional<Span> tail;
+  // Declines: keeps all of `held`.
+  static CutAnswer Decline(const Span& held) { return CutAnswer{held, std::nullopt}; }
 };
 
 // Which shape of broker a source reads (OpenResponse.shape); it must be the
@@ -350,6 +379,26 @@ class Source {
   // call: the resume point of every partition the reader holds (the next offset
   // to read after every record emitted so far). Default: none (queue shape).
   virtual std::vector<ResumePoint> ResumePoints() { return {}; }
+
+  // Many readers, log shape (see the protocol at the top of this file). A
+  // non-OK status from Assign or Revoke fails the call with that status (a
+  // connector-error). Defaults: Assign and Revoke answer UNIMPLEMENTED, so a
+  // source that does not override them fails any run with several readers
+  // that moves spans; Cut declines.
+  //
+  // Takes up `spans`, each from its start offset (its resume point); an open
+  // end means the live log. Never a partition the reader already holds.
+  [[nodiscard]] virtual grpc::Status Assign(const std::vector<Span>& spans, Context& ctx);
+  // Gives up the spans of `partitions` (whole): nothing of them is read or
+  // emitted from now on.
+  [[nodiscard]] virtual grpc::Status Revoke(const std::vector<std::uint32_t>& partitions,
+                                            Context& ctx);
+  // Gives up the unread tail of the span it holds of `held.partition`, the
+  // runtime asking for the tail to begin at `at_offset`. `held` is the span as
+  // the host told it to the source (Open, Assign, earlier Cut answers; from
+  // offset 0 for a partition taken up through new_partitions_held); the
+  // source's own view wins where they differ.
+  [[nodiscard]] virtual CutAnswer Cut(const Span& held, std::uint64_t at_offset, Context& ctx);
 };
 
 // For hosts (Serve, weir's in-process harness): the same translation of the
@@ -363,5 +412,31 @@ void WriteOpen(const Source& source, v1::OpenResponse* response);
 // Runs Checkpoint and then ResumePoints, writing both into *response.
 void RunCheckpoint(Source& source, std::uint64_t checkpoint_id, Context& ctx,
                    v1::CheckpointResponse* response);
+
+// Many readers. The spans a source has been told it holds, kept by a host so
+// that Cut can name the held span: reset by Open, grown by Assign, shrunk by
+// Revoke, and narrowed to the head of each Cut answer. A partition never told
+// (taken up through new_partitions_held) is held from offset 0, open ended.
+class SpansTold {
+ public:
+  void Opened(const OpenInfo& info);
+  void Assigned(const std::vector<Span>& spans);
+  void Revoked(const std::vector<std::uint32_t>& partitions);
+  void Cut(const CutAnswer& answer);
+  Span Held(std::uint32_t partition) const;
+
+ private:
+  std::vector<Span> spans_;  // by partition, ascending
+};
+
+// Runs Assign / Revoke with the request's spans or partitions, keeping *told.
+[[nodiscard]] grpc::Status RunAssign(Source& source, const v1::AssignRequest& request, Context& ctx,
+                                     SpansTold* told);
+[[nodiscard]] grpc::Status RunRevoke(Source& source, const v1::RevokeRequest& request, Context& ctx,
+                                     SpansTold* told);
+// Runs Cut on the held span of the request's partition and writes the answer
+// into *response, keeping *told.
+void RunCut(Source& source, const v1::CutRequest& request, Context& ctx, SpansTold* told,
+            v1::CutResponse* response);
 
 }  // namespace weir::adapter
