@@ -39,14 +39,17 @@ runs=(
   "mutant_log_resume_after_checkpoint log_bookmark_crash_storm_seismographs 1 resume-exact"
   "mutant_log_resume_before_checkpoint log_bookmark_crash_storm_seismographs 1 resume-exact"
   "mutant_log_silent_skip log_retention_race_pollen_traps 1 silent-skip"
+  "mutant_readers_checkpoint_forgets_assigned readers_frequent_cuts_seismographs 1 checkpoint-coverage"
+  "mutant_readers_cut_drops_first readers_frequent_cuts_seismographs 1 cut-conservation"
+  "mutant_readers_cut_overlap readers_frequent_cuts_seismographs 1 cut-conservation"
+  "mutant_readers_keeps_revoked readers_hot_rebalance_wind_farms 1 record-outside-span"
+  "mutant_readers_tail_emit readers_frequent_cuts_seismographs 1 record-outside-span"
+  "mutant_readers_trusts_restored_state readers_frequent_cuts_seismographs 1 record-outside-span"
 )
 # Every mutant of the zoo but the wall-clock one is in the list.
 for f in "$bin"/mutant_*; do
   m="$(basename "$f")"
   [[ -x "$f" && "$m" != mutant_wall_clock ]] || continue
-  # The many-readers mutants fail only in runs with several readers, which
-  # have scenarios of their own (readers_*); they are listed once those run.
-  [[ "$m" != mutant_readers_* ]] || continue
   # A here-string, not a pipe: under pipefail, grep -q leaving early would
   # fail the pipeline with printf's SIGPIPE.
   grep -q "^$m " <<<"$(printf '%s\n' "${runs[@]}")" || fail "$m has no failing run in this test"
@@ -70,7 +73,12 @@ for r in "${runs[@]}"; do
   grep -q "^violation [0-9]* of [0-9]*: $inv: " "$tmp/$m.explain" ||
     { cat "$tmp/$m.explain" >&2; fail "explain of $m does not name $inv"; }
   grep -Eq '^    => #[0-9]+ ' "$tmp/$m.explain" || fail "explain of $m marks no proving event"
-  grep -q '^  incarnation [0-9]' "$tmp/$m.explain" || fail "explain of $m shows no incarnation"
+  grep -Eq '^  (reader [0-9]+, )?incarnation [0-9]' "$tmp/$m.explain" || fail "explain of $m shows no incarnation"
+  if [[ "$m" == mutant_readers_* ]]; then
+    # Several readers: events by reader, and what each held when it went wrong.
+    grep -Eq '^  reader [0-9]+, incarnation [0-9]' "$tmp/$m.explain" || fail "explain of $m names no reader"
+    grep -q '^    spans held then:' "$tmp/$m.explain" || fail "explain of $m shows no spans held"
+  fi
   echo "ok   $m: replay identical ($digest), explain names $inv"
 done
 
