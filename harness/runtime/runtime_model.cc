@@ -482,6 +482,15 @@ bool RuntimeModel::MaybeRebalance(std::uint64_t id) {
   if (!many()) return true;
   const auto& cfg = scenario_.readers();
   if (log()) {
+    // A closed span committed to its end is done: released, so that its
+    // partition can take a tail again.
+    for (std::uint32_t r : LiveReaders()) {
+      std::vector<std::uint32_t> done;
+      for (const auto& [p, span] : R(r).spans) {
+        if (span.end.has_value() && span.committed_next >= *span.end) done.push_back(p);
+      }
+      if (!SendRevoke(r, done, "done", false)) return false;
+    }
     auto d = faults_.Decide(v1::CHECKPOINT, id, v1::FaultDecision::kMove, now_, [&](v1::FaultDecision* out) {
       if (!faults_.Chance("move", id, cfg.move_rate())) return false;
       std::vector<std::pair<std::uint32_t, std::uint32_t>> held;  // (reader, partition)

@@ -2,8 +2,8 @@
 # End-to-end: determinism over the bundled scenarios: the same
 # scenario, seed and connector binary must give the same trace, byte for byte.
 # Every bundled scenario × seeds 1..SEEDS runs twice with the real reference
-# connector of its shape over gRPC (log_*.scenario: log_reference_connector,
-# found beside REFERENCE_CONNECTOR); both runs of each (scenario, seed) must
+# connector of its shape over gRPC (a scenario with a log { } block:
+# log_reference_connector, found beside REFERENCE_CONNECTOR); both runs of each (scenario, seed) must
 # exit 0 and print the same `digest` line (SHA-256 over the trace's event lines).
 #
 # Usage: determinism.sh WEIR REFERENCE_CONNECTOR SCENARIO_DIR [SEEDS [JOBS]]
@@ -22,7 +22,7 @@ export WEIR REF LOG_REF WORK
 run_one() {
   local scenario=$1 seed=$2 pass=$3 name out rc connector=$REF
   name=$(basename "$scenario" .scenario)
-  [[ $name == log_* ]] && connector=$LOG_REF
+  grep -q '^log *{' "$scenario" && connector=$LOG_REF
   out="$WORK/$name.$seed.$pass.out"
   "$WEIR" run --scenario "$scenario" --seed "$seed" --connector "$connector" >"$out" 2>&1
   rc=$?
