@@ -5,12 +5,13 @@ Source base class, and the lock-step rules (one call at a time, the broker
 usable, the step-shaping Context methods refused)."""
 
 import unittest
+from concurrent.futures import ThreadPoolExecutor
 
 import grpc
 
 from weir.adapter import BrokerClient, BrokerStatus, Source, SourceError, SourceShape, Span
 from weir.adapter import server as serve_module
-from weir.v1 import connector_pb2
+from weir.v1 import connector_pb2, connector_pb2_grpc
 
 
 class RecordingContext:
@@ -270,6 +271,58 @@ class CutTest(unittest.TestCase):
         self.assertEqual(rc.code, grpc.StatusCode.FAILED_PRECONDITION)
         self.assertIn("report_gap called during cut", rc.details)
         self.assertEqual(got.ByteSize(), 0)
+
+
+class OverGrpcTest(unittest.TestCase):
+    """The three calls through a real gRPC server and stub over loopback."""
+
+    def test_assign_cut_and_revoke_round_trip(self):
+        class Spans(Minimal):
+            def assign(self, spans, ctx):
+                self.assigned = spans
+
+            def revoke(self, partitions, ctx):
+                self.revoked = partitions
+
+            def cut(self, partition, at_offset, ctx):
+                return Span(partition, 4, at_offset), Span(partition, at_offset, None)
+
+        source = Spans()
+        server = grpc.server(ThreadPoolExecutor(max_workers=1), options=[("grpc.so_reuseport", 0)])
+        connector_pb2_grpc.add_ConnectorServicer_to_server(
+            serve_module._ConnectorService(source, ClockBroker()), server)
+        port = server.add_insecure_port("127.0.0.1:0")
+        server.start()
+        self.addCleanup(server.stop, None)
+        channel = grpc.insecure_channel(f"127.0.0.1:{port}")
+        self.addCleanup(channel.close)
+        stub = connector_pb2_grpc.ConnectorStub(channel)
+
+        request = connector_pb2.AssignRequest(now_ns=5)
+        request.spans.add(partition=8, start_offset=4)
+        stub.Assign(request, timeout=10)
+        self.assertEqual(source.assigned, [Span(8, 4, None)])
+        got = stub.Cut(connector_pb2.CutRequest(partition=8, at_offset=11), timeout=10)
+        self.assertEqual((span_of(got.head), span_of(got.tail)), (Span(8, 4, 11), Span(8, 11)))
+        stub.Revoke(connector_pb2.RevokeRequest(partitions=[8]), timeout=10)
+        self.assertEqual(source.revoked, [8])
+
+    def test_the_defaults_answer_unimplemented_on_the_wire(self):
+        server = grpc.server(ThreadPoolExecutor(max_workers=1), options=[("grpc.so_reuseport", 0)])
+        connector_pb2_grpc.add_ConnectorServicer_to_server(
+            serve_module._ConnectorService(Minimal(), ClockBroker()), server)
+        port = server.add_insecure_port("127.0.0.1:0")
+        server.start()
+        self.addCleanup(server.stop, None)
+        channel = grpc.insecure_channel(f"127.0.0.1:{port}")
+        self.addCleanup(channel.close)
+        stub = connector_pb2_grpc.ConnectorStub(channel)
+        with self.assertRaises(grpc.RpcError) as failed:
+            stub.Assign(connector_pb2.AssignRequest(), timeout=10)
+        self.assertEqual(failed.exception.code(), grpc.StatusCode.UNIMPLEMENTED)
+        got = stub.Cut(connector_pb2.CutRequest(partition=3, at_offset=1), timeout=10)
+        self.assertEqual(span_of(got.head), Span(3, 0, None))
+        self.assertFalse(got.HasField("tail"))
 
 
 if __name__ == "__main__":
