@@ -15,8 +15,9 @@ import traceback
 
 import grpc
 
-from .source import (ADVANCE, CHECKPOINT, COMMITTED, OPEN, Bookmark, BrokerClient, BrokerStatus,
-                     Context, OpenInfo, ReadResult, SourceError, SourceShape, Span)
+from .source import (ADVANCE, ASSIGN, CHECKPOINT, COMMITTED, CUT, OPEN, REVOKE, Bookmark,
+                     BrokerClient, BrokerStatus, Context, OpenInfo, ReadResult, SourceError,
+                     SourceShape, Span)
 
 try:
     from weir.v1 import broker_pb2, broker_pb2_grpc, connector_pb2, connector_pb2_grpc
@@ -167,14 +168,26 @@ class GrpcBrokerClient(BrokerClient):
                                                       for b in response.bookmarks]
 
 
+def span_from(span):
+    """A Span from a weir.v1.Span (an unset end_offset: open ended)."""
+    return Span(span.partition, span.start_offset,
+                span.end_offset if span.HasField("end_offset") else None)
+
+
+def write_span(span, out):
+    """Writes a Span into the weir.v1.Span `out`."""
+    out.partition = span.partition
+    out.start_offset = span.start_offset
+    if span.end_offset is not None:
+        out.end_offset = span.end_offset
+
+
 def open_info_from(request):
-    """What open is told, from a weir.v1.OpenRequest."""
+    """What open is told, from a weir.v1.OpenRequest (readers 0, unset: one)."""
     return OpenInfo(request.incarnation, request.restore, request.checkpoint_id,
                     request.checkpoint_state, request.redelivery_horizon_ns,
-                    [Span(s.partition, s.start_offset,
-                          s.end_offset if s.HasField("end_offset") else None)
-                     for s in request.spans],
-                    request.new_partitions_held)
+                    [span_from(s) for s in request.spans], request.new_partitions_held,
+                    request.reader, max(1, request.readers))
 
 
 def write_step(ctx, response):
@@ -212,6 +225,49 @@ def run_checkpoint(source, checkpoint_id, ctx, response):
         response.resume_points.add(partition=partition, next_offset=next_offset)
 
 
+class ToldSpans:
+    """The spans the runtime told the source it holds (open, assign) as the cut
+    answers left them, by partition: what a declined cut answers as the head
+    when the source leaves it to the host."""
+
+    def __init__(self):
+        self._spans = {}
+
+    def opened(self, spans):
+        self._spans = {s.partition: s for s in spans}
+
+    def assigned(self, spans):
+        for s in spans:
+            self._spans[s.partition] = s
+
+    def revoked(self, partitions):
+        for p in partitions:
+            self._spans.pop(p, None)
+
+    def cut(self, head):
+        self._spans[head.partition] = head
+
+    def held(self, partition):
+        """The span of `partition`; one the source took up itself (a partition
+        added after open, held from offset 0) is open ended from 0."""
+        return self._spans.get(partition, Span(partition, 0, None))
+
+
+def run_cut(source, told, request, ctx, response):
+    """Runs source.cut and writes its answer into a weir.v1.CutResponse: the
+    head and the tail as the source chose them (the oracle judges them), the
+    span as told when the source declines without naming the head. Returns
+    the head."""
+    answer = source.cut(request.partition, request.at_offset, ctx)
+    head, tail = (None, None) if answer is None else answer
+    if head is None:
+        head = told.held(request.partition)
+    write_span(head, response.head)
+    if tail is not None:
+        write_span(tail, response.tail)
+    return head
+
+
 class _ConnectorService(connector_pb2_grpc.ConnectorServicer):
     """The Connector service; the lock makes the source see one call at a time."""
 
@@ -219,6 +275,7 @@ class _ConnectorService(connector_pb2_grpc.ConnectorServicer):
         self._source = source
         self._broker = broker
         self._lock = threading.Lock()
+        self._told = ToldSpans()
 
     def _guarded(self, name, ctx, grpc_context, body):
         """Runs one source call; an exception or a misuse of the Context fails
@@ -248,6 +305,7 @@ class _ConnectorService(connector_pb2_grpc.ConnectorServicer):
             response = connector_pb2.OpenResponse()
             if self._guarded("open", ctx, grpc_context, lambda: self._source.open(info, ctx)):
                 write_open(self._source, response)
+                self._told.opened(info.spans)
             return response
 
     def Advance(self, request, grpc_context):
@@ -273,6 +331,36 @@ class _ConnectorService(connector_pb2_grpc.ConnectorServicer):
             self._guarded("committed", ctx, grpc_context,
                           lambda: self._source.committed(request.checkpoint_id, ctx))
             return connector_pb2.CommittedResponse()
+
+    def Assign(self, request, grpc_context):
+        with self._lock:
+            ctx = Context(ASSIGN, request.now_ns, self._broker)
+            spans = [span_from(s) for s in request.spans]
+            if self._guarded("assign", ctx, grpc_context,
+                             lambda: self._source.assign(spans, ctx)):
+                self._told.assigned(spans)
+            return connector_pb2.AssignResponse()
+
+    def Revoke(self, request, grpc_context):
+        with self._lock:
+            ctx = Context(REVOKE, request.now_ns, self._broker)
+            partitions = list(request.partitions)
+            if self._guarded("revoke", ctx, grpc_context,
+                             lambda: self._source.revoke(partitions, ctx)):
+                self._told.revoked(partitions)
+            return connector_pb2.RevokeResponse()
+
+    def Cut(self, request, grpc_context):
+        with self._lock:
+            ctx = Context(CUT, request.now_ns, self._broker)
+            response = connector_pb2.CutResponse()
+            head = []
+            if not self._guarded("cut", ctx, grpc_context,
+                                 lambda: head.append(run_cut(self._source, self._told, request,
+                                                             ctx, response))):
+                return connector_pb2.CutResponse()
+            self._told.cut(head[0])
+            return response
 
 
 def _startup_error(what):

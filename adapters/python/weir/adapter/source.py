@@ -37,6 +37,21 @@ Two shapes of broker (Source.shape, fixed by the scenario; docs/log-mode.md):
                 checkpoint N's resume points (never anything newer): a bookmark
                 ahead of the committed resume point is the log twin of an ack
                 before the commit.
+  Many readers (log shape, a scenario's readers.count > 1; info.reader and
+  info.readers say which reader of how many): spans move between readers, in
+  three more calls, lock-step like the others (the broker is usable in them,
+  the step-shaping Context methods are not):
+    assign      more spans, each from its resume point; never a second span of
+                a partition already held.
+    revoke      takes whole spans away (right after a commit notice): stop
+                reading and emitting them at once and forget them.
+    cut         give up the unread tail of one held span: answer the head kept
+                [start as told, c) and the tail given up [c, end) for a cut
+                offset c at or after every offset emitted from it (the head
+                holds them all), or decline (no tail). From then on the span
+                ends at c.
+  A single reader never sees these calls; the defaults answer UNIMPLEMENTED
+  (assign, revoke) and decline (cut).
 
 Time: Context.now is the virtual now. It starts at the call's now and moves
 forward as broker answers arrive. Source code must never read a wall clock and
@@ -275,13 +290,19 @@ class OpenInfo:
       point.
     new_partitions_held: log shape: partitions that appear after open are held
       too, from offset 0.
+    reader, readers: many readers: this reader's index (0-based) and how many
+      reader slots the run has (1 and reader 0 for a single reader). With
+      several, the restored state is this reader's own last committed
+      checkpoint, which may name other partitions than `spans`: the spans are
+      what it holds now (spans move between readers).
     """
 
     __slots__ = ("incarnation", "restore", "checkpoint_id", "checkpoint_state",
-                 "redelivery_horizon_ns", "spans", "new_partitions_held")
+                 "redelivery_horizon_ns", "spans", "new_partitions_held", "reader", "readers")
 
     def __init__(self, incarnation=0, restore=False, checkpoint_id=0, checkpoint_state=b"",
-                 redelivery_horizon_ns=0, spans=(), new_partitions_held=False):
+                 redelivery_horizon_ns=0, spans=(), new_partitions_held=False, reader=0,
+                 readers=1):
         self.incarnation = incarnation
         self.restore = restore
         self.checkpoint_id = checkpoint_id
@@ -289,6 +310,8 @@ class OpenInfo:
         self.redelivery_horizon_ns = redelivery_horizon_ns
         self.spans = list(spans)
         self.new_partitions_held = new_partitions_held
+        self.reader = reader
+        self.readers = readers
 
 
 class SourceError(Exception):
@@ -337,8 +360,34 @@ class Source:
         (queue shape)."""
         return []
 
+    def assign(self, spans, ctx):
+        """Many readers, log shape: hold these spans (Span) too, each from its
+        start_offset (its resume point). Default: fails the call UNIMPLEMENTED
+        (a source that cannot take spans cannot run with several readers)."""
+        raise SourceError("assign is not implemented by this source (several readers need it)",
+                          grpc.StatusCode.UNIMPLEMENTED)
+
+    def revoke(self, partitions, ctx):
+        """Many readers, log shape: give up the whole span of each of these
+        partitions: stop reading and emitting it at once and forget it (and
+        anything read ahead for it). Default: fails the call UNIMPLEMENTED."""
+        raise SourceError("revoke is not implemented by this source (several readers need it)",
+                          grpc.StatusCode.UNIMPLEMENTED)
+
+    def cut(self, partition, at_offset, ctx):
+        """Many readers, log shape: give up the unread tail of the span held of
+        `partition`; the runtime would like the tail to begin at `at_offset`.
+        Returns (head, tail): for the cut offset c chosen (at or after every
+        offset emitted from the span; later or earlier than at_offset),
+        head = Span(partition, start as told, c) and tail = Span(partition, c,
+        end or None); the span then ends at c. Declining: (head, None) with head
+        the whole span, or just None (the host answers the span as open or
+        assign told it). Default: declines."""
+        return None
+
 
 OPEN, ADVANCE, CHECKPOINT, COMMITTED = "open", "advance", "checkpoint", "committed"
+ASSIGN, REVOKE, CUT = "assign", "revoke", "cut"
 
 
 class _ClockedBroker(BrokerClient):
