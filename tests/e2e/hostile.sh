@@ -54,6 +54,12 @@ hostile exit_signal 1 unexpected-exit "signal 11 (SIGSEGV)"
 hostile stderr_flood 1 unexpected-exit "last words: hostile stderr_flood gives up"
 hostile throw_in_step 1 connector-error "reported its own failure in Advance: Advance answered INTERNAL: source threw during Advance: hostile throw_in_step gives up in step 2"
 hostile hang_in_step 1 step-timeout "did not answer Advance within 1000 ms" unix
+# Several readers: misbehaving inside a cut or a revoke is that reader's
+# invariant; every reader process is reaped.
+hostile hang_in_cut 1 step-timeout "did not answer Cut within 1000 ms" tcp "$DIR/readers.scenario"
+hostile exit_in_revoke 1 unexpected-exit "hostile exit_in_revoke gives up" tcp "$DIR/readers.scenario"
+hostile flood_in_cut 0 none "in one connector call" tcp "$DIR/readers.scenario"
+check "hang_in_cut: the report names the reader" grep -Eq "reader [0-9]+: " "$WORK/hang_in_cut.out"
 
 # Figures: repeated and late acks are counted, not silently dropped.
 ignored() { sed -n 's/.* \([0-9]\+\) receipts ignored.*/\1/p' "$WORK/$1.out"; }
