@@ -36,7 +36,8 @@ fi
 echo "== the installed command"
 got=$("$P/bin/weir" --version)
 [[ $got == "weir $VERSION" ]] || fail "weir --version says '$got', expected 'weir $VERSION'"
-"$P/bin/weir" --help | grep -qxF "Bundled scenarios, profiles and suites: $P/share/weir" ||
+help=$("$P/bin/weir" --help)
+grep -qxF "Bundled scenarios, profiles and suites: $P/share/weir" <<<"$help" ||
   fail "weir --help does not name $P/share/weir as its bundled directory"
 
 echo "== the example, built against the prefix alone"
