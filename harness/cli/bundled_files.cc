@@ -51,7 +51,8 @@ std::string ResolveBundled(const std::string& arg, BundledKind kind,
   if (arg.empty() || bundled_dir.empty() || absl::StrContains(arg, '/') || fs::exists(arg, ec)) {
     return arg;
   }
-  const std::string file = absl::EndsWith(arg, ExtensionOf(kind)) ? arg : absl::StrCat(arg, ExtensionOf(kind));
+  const std::string file =
+      absl::EndsWith(arg, ExtensionOf(kind)) ? arg : absl::StrCat(arg, ExtensionOf(kind));
   const fs::path bundled = fs::path(bundled_dir) / SubdirOf(kind) / file;
   return fs::is_regular_file(bundled, ec) ? bundled.string() : arg;
 }

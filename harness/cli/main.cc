@@ -341,7 +341,8 @@ int main(int argc, char** argv) {
   SetWeirProgram(DetectWeirProgram());  // printed command lines work as printed
   CLI::App app{"weir: a deterministic test harness for stream source connectors"};
   app.require_subcommand(1);
-  app.set_version_flag("--version", absl::StrCat("weir ", WeirVersion()), "Print weir's version and exit");
+  app.set_version_flag("--version", absl::StrCat("weir ", WeirVersion()),
+                       "Print weir's version and exit");
   const std::optional<std::string> bundled = BundledDir();
   app.footer(absl::StrCat(
       "Bundled scenarios, profiles and suites: ",
