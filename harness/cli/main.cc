@@ -16,6 +16,7 @@
 
 #include "absl/strings/match.h"
 #include "absl/strings/str_cat.h"
+#include "harness/cli/bundled_files.h"
 #include "harness/cli/command_line.h"
 #include "harness/cli/shrink_command.h"
 #include "harness/cli/stop_signal.h"
@@ -340,10 +341,21 @@ int main(int argc, char** argv) {
   SetWeirProgram(DetectWeirProgram());  // printed command lines work as printed
   CLI::App app{"weir: a deterministic test harness for stream source connectors"};
   app.require_subcommand(1);
+  app.set_version_flag("--version", absl::StrCat("weir ", WeirVersion()),
+                       "Print weir's version and exit");
+  const std::optional<std::string> bundled = BundledDir();
+  app.footer(absl::StrCat(
+      "Bundled scenarios, profiles and suites: ",
+      bundled.value_or("none found (expected in ../share/weir beside the weir binary)"),
+      "\nA bare name picks one: --suite quick, --scenario crash_storm_weather_buoys, "
+      "--profile exactly_once.\n"
+      "Exit codes: 0 every invariant held, 1 an invariant failed, 2 usage or input error, "
+      "3 harness fault, 4 interrupted."));
 
   RunFlags run_flags;
   CLI::App* run = app.add_subcommand("run", "One seeded run of a connector against a scenario");
-  run->add_option("--scenario", run_flags.scenario, "Scenario file (Protobuf text format)")
+  run->add_option("--scenario", run_flags.scenario,
+                  "Scenario file (Protobuf text format), or a bundled scenario's name")
       ->required();
   run->add_option("--seed", run_flags.seed, "Seed (default: a random one, printed first)")
       ->check(WholeNumber());
@@ -355,8 +367,8 @@ int main(int argc, char** argv) {
   run->add_option("--plan", run_flags.plan,
                   "Apply exactly this fault plan (text format) instead of the scenario's rates");
   run->add_option("--profile", run_flags.profile,
-                  "Profile file (Protobuf text format, e.g. fixtures/profiles/exactly_once.profile); "
-                  "overrides the scenario's profile");
+                  "Profile file (Protobuf text format), or a bundled profile's name (exactly_once, "
+                  "at_least_once, …); overrides the scenario's profile");
   run->add_option("--save-plan", run_flags.save_plan,
                   "Write the faults this run applied as a plan file (for --plan)");
 
@@ -388,6 +400,13 @@ int main(int argc, char** argv) {
     const int code = app.exit(e);
     return code == 0 ? 0 : kExitUsage;
   }
+  // Bare names of bundled files (bundled_files.h), resolved before anything
+  // prints them, so replay lines name the file that was read.
+  run_flags.scenario = ResolveBundled(run_flags.scenario, BundledKind::kScenario);
+  run_flags.profile = ResolveBundled(run_flags.profile, BundledKind::kProfile);
+  shrink_flags.scenario = ResolveBundled(shrink_flags.scenario, BundledKind::kScenario);
+  shrink_flags.profile = ResolveBundled(shrink_flags.profile, BundledKind::kProfile);
+  suite_commands.suite = ResolveBundled(suite_commands.suite, BundledKind::kSuite);
   if (run->parsed()) {
     run_flags.seed_given = run->count("--seed") > 0;
     return RunCommand(run_flags);

@@ -441,7 +441,10 @@ int Merge(SuiteCommands& s) {
 
 void AddSuiteCommands(CLI::App& app, SuiteCommands& s) {
   s.certify = app.add_subcommand("certify", "Run a suite against a connector; write reports and a certificate");
-  s.certify->add_option("--suite", s.suite, "Suite file (Protobuf text format)")->required();
+  s.certify
+      ->add_option("--suite", s.suite,
+                   "Suite file (Protobuf text format), or a bundled suite's name (quick, standard, …)")
+      ->required();
   s.certify->add_option("--connector", s.connector, "Connector command 'CMD ARGS…' (no shell)");
   s.certify->add_option("command", s.command, "Connector command after --");
   s.certify->add_option("--jobs", s.jobs, "Runs at a time (default: one per core)")

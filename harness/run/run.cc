@@ -11,6 +11,7 @@
 #include "harness/broker/broker_session.h"
 #include "harness/faults/fault_source.h"
 #include "harness/oracle/oracle.h"
+#include "harness/run/version.h"
 #include "harness/trace/trace_format.h"
 
 namespace weir {
@@ -69,7 +70,7 @@ class TraceFile : public TraceEncoder::LineSink {
 
 }  // namespace
 
-const char* WeirVersion() { return "0.1.0"; }
+const char* WeirVersion() { return WEIR_VERSION; }
 
 std::uint32_t ReaderCount(const v1::Scenario& scenario) {
   return std::max<std::uint32_t>(1, scenario.readers().count());
