@@ -11,6 +11,8 @@
 //      Checkpoint, Committed, Assign, Revoke, Cut, and every broker call).
 //      Target: 8 readers within 1.15x of 1 reader (median of the per-round
 //      ratios).
+//      The same two runs in-process (the log reference linked in, no
+//      processes, no gRPC) show what weir's own work per call costs.
 //   2. memory: 16 readers, 200 partitions, with cuts and moves, at growing run
 //      lengths in one process; weir's own peak resident set (VmHWM; the
 //      readers are separate processes) after each run.
@@ -28,7 +30,9 @@
 #include <vector>
 
 #include "bench/bench_support.h"
+#include "fixtures/connectors/log_reference_source.h"
 #include "harness/edge/grpc_run.h"
+#include "harness/inprocess/in_process_port.h"
 
 namespace weir {
 namespace {
@@ -95,14 +99,18 @@ struct Figure {
   std::uint64_t calls = 0;
 };
 
+// connector empty: the log reference in-process (no processes, no gRPC):
+// what weir's own work per call costs.
 bool Run(const v1::Scenario& s, const std::string& connector, Figure* out) {
   RunSpec spec;
   spec.scenario = s;
   spec.seed = 1;
-  spec.connector_argv = {connector};
+  if (!connector.empty()) spec.connector_argv = {connector};
   CallClock clock;
   spec.observers = {&clock};
-  auto result = RunOverGrpc(spec);
+  auto result = connector.empty()
+                    ? RunInProcess(spec, [] { return std::make_unique<fixtures::LogReferenceSource>(); })
+                    : RunOverGrpc(spec);
   if (!result.ok()) {
     std::fprintf(stderr, "readers_cost: %s\n", std::string(result.status().message()).c_str());
     return false;
@@ -155,6 +163,19 @@ int main(int argc, char** argv) {
               Median(one) / 1000, Median(eight) / 1000, Median(ratio));
   std::printf("result readers_call_us_1 %.1f\nresult readers_call_us_8 %.1f\nresult readers_call_ratio %.3f\n",
               Median(one) / 1000, Median(eight) / 1000, Median(ratio));
+
+  // The same comparison in-process: weir's own work per call, no processes.
+  {
+    std::vector<double> r;
+    Figure a, b;
+    for (int round = 0; round < rounds; ++round) {
+      if (!Run(Steady(records, 1, 16), "", &a) || !Run(Steady(records, 8, 16), "", &b)) return 1;
+      r.push_back(b.ns_per_call / a.ns_per_call);
+    }
+    std::printf("in-process (no processes, no gRPC): 1 reader %.2f us/call, 8 readers %.2f us/call, ratio %.3f\n",
+                a.ns_per_call / 1000, b.ns_per_call / 1000, Median(r));
+    std::printf("result readers_inprocess_ratio %.3f\n", Median(r));
+  }
 
   for (std::uint64_t n : {memory_records, memory_records * 2, memory_records * 4}) {
     v1::Scenario s = Steady(n, 16, 200);
