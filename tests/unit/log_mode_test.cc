@@ -19,6 +19,7 @@ namespace {
 
 using testing::FakeLogReader;
 using testing::LogBugs;
+using testing::Failed;
 using testing::TraceRecorder;
 
 v1::Scenario LogScenario(std::uint64_t records, std::uint32_t partitions) {
@@ -69,18 +70,6 @@ struct LogRun {
   FakeLogReader port;
   RunSummary summary;
 };
-
-std::string Failed(const Verdict& v) {
-  std::string out;
-  for (int i = 0; i < kInvariantCount; ++i) {
-    const auto& r = v.results[i];
-    if (r.checked && r.violations > 0) {
-      out += std::string(InvariantName(static_cast<Invariant>(i))) + ": " +
-             (r.first.empty() ? "" : r.first.front().sentence) + "\n";
-    }
-  }
-  return out;
-}
 
 // FNV-1a 32-bit check values: the FNV reference test vectors (Fowler, Noll,
 // Vo; "FNV hash" test suite: "" -> 0x811c9dc5, "a" -> 0xe40c292c,

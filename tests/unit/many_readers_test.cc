@@ -20,6 +20,7 @@ namespace {
 
 using testing::FakeLogReader;
 using testing::LogBugs;
+using testing::Failed;
 using testing::TraceRecorder;
 
 v1::Scenario ReadersScenario(std::uint32_t readers, std::uint32_t partitions) {
@@ -77,18 +78,6 @@ struct ReadersRun {
   std::vector<std::unique_ptr<FakeLogReader>> ports;
   RunSummary summary;
 };
-
-std::string Failed(const Verdict& v) {
-  std::string out;
-  for (int i = 0; i < kInvariantCount; ++i) {
-    const auto& r = v.results[i];
-    if (r.checked && r.violations > 0) {
-      out += std::string(InvariantName(static_cast<Invariant>(i))) + ": " +
-             (r.first.empty() ? "" : r.first.front().sentence) + "\n";
-    }
-  }
-  return out;
-}
 
 v1::Scenario Stormy(std::uint32_t readers) {
   v1::Scenario s = ReadersScenario(readers, 6);

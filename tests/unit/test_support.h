@@ -6,6 +6,7 @@
 #include <string>
 #include <vector>
 
+#include "harness/oracle/verdict.h"
 #include "harness/trace/trace_log.h"
 #include "weir/v1/scenario.pb.h"
 #include "weir/v1/trace.pb.h"
@@ -21,6 +22,20 @@ inline std::string SourceDir() {
 inline std::string BinaryDir() {
   const char* dir = std::getenv("WEIR_BINARY_DIR");
   return dir != nullptr ? dir : "build";
+}
+
+// Every failed invariant of a verdict with its first sentence, one per line,
+// for a failing expectation's message.
+inline std::string Failed(const Verdict& v) {
+  std::string out;
+  for (int i = 0; i < kInvariantCount; ++i) {
+    const auto& r = v.results[i];
+    if (r.checked && r.violations > 0) {
+      out += std::string(InvariantName(static_cast<Invariant>(i))) + ": " +
+             (r.first.empty() ? "" : r.first.front().sentence) + "\n";
+    }
+  }
+  return out;
 }
 
 // Keeps every event of a trace, for tests only.
