@@ -197,14 +197,22 @@ int RunCommand(RunFlags& flags) {
                 static_cast<unsigned long long>(s.joins), static_cast<unsigned long long>(s.leaves));
   }
   std::printf("digest     %s\n", out->digest.c_str());
-  std::printf("faults     %d applied%s\n", out->plan.decisions_size(),
-              flags.plan.empty() ? " (drawn from the scenario's rates)" : " (from the given plan)");
+  std::string kinds;
+  for (const auto& [fault, n] : out->verdict.faults_applied) absl::StrAppend(&kinds, kinds.empty() ? ": " : "; ", fault, " ×", n);
+  std::printf("faults     %d applied%s%s\n", out->plan.decisions_size(),
+              flags.plan.empty() ? " (drawn from the scenario's rates)" : " (from the given plan)", kinds.c_str());
   if (!flags.trace.empty()) std::printf("trace      %s\n", flags.trace.c_str());
   if (!flags.save_plan.empty()) std::printf("plan       %s\n", flags.save_plan.c_str());
   std::printf("\n%s", FormatVerdictTable(out->verdict).c_str());
   std::printf("%s", FormatViolations(out->verdict).c_str());
   const bool passed = out->verdict.passed();
-  std::printf("\n%s\n", passed ? "PASSED: every invariant held." : "FAILED.");
+  int unexercised = 0;
+  for (const InvariantResult& r : out->verdict.results) unexercised += r.judged() && !r.exercised() ? 1 : 0;
+  if (passed && unexercised > 0) {
+    std::printf("\nPASSED: no invariant failed; %d had no chance to fail in this run (not exercised).\n", unexercised);
+  } else {
+    std::printf("\n%s\n", passed ? "PASSED: every invariant held." : "FAILED.");
+  }
   if (!passed) std::printf("%s", NextStepsHint(flags.trace, replay).c_str());
   std::printf("replay: %s\n", replay.c_str());
   return passed ? kExitPassed : kExitFailed;
@@ -407,6 +415,7 @@ int main(int argc, char** argv) {
   shrink_flags.scenario = ResolveBundled(shrink_flags.scenario, BundledKind::kScenario);
   shrink_flags.profile = ResolveBundled(shrink_flags.profile, BundledKind::kProfile);
   suite_commands.suite = ResolveBundled(suite_commands.suite, BundledKind::kSuite);
+  suite_commands.profile = ResolveBundled(suite_commands.profile, BundledKind::kProfile);
   if (run->parsed()) {
     run_flags.seed_given = run->count("--seed") > 0;
     return RunCommand(run_flags);

@@ -22,6 +22,7 @@
 #include "harness/replay/explain.h"
 #include "harness/report/html_timeline.h"
 #include "harness/report/markup_escape.h"
+#include "harness/scenario/profile_file.h"
 #include "harness/scenario/text_file.h"
 #include "harness/suite/certify.h"
 #include "harness/suite/run_log.h"
@@ -32,6 +33,9 @@ namespace weir {
 namespace {
 
 constexpr int kPassed = 0, kFailed = 1, kUsage = 2, kHarness = 3, kInterrupted = kExitInterrupted;
+// Every run passed, but --require-coverage was given and some judged
+// invariant had no chance to fail in any run.
+constexpr int kNotExercised = 5;
 
 int Usage(const std::string& message) {
   std::fprintf(stderr, "weir: %s\n", message.c_str());
@@ -228,6 +232,15 @@ int Certify(SuiteCommands& s) {
   if (!sha.ok()) return Usage(std::string(sha.status().message()));
 
   CertifyOptions options;
+  if (!s.profile.empty()) {
+    auto profile = LoadProfile(s.profile);
+    if (!profile.ok()) {
+      std::fprintf(stderr, "%s\n", std::string(profile.status().message()).c_str());
+      return kUsage;
+    }
+    options.profile = std::move(*profile);
+    options.profile_path = s.profile;
+  }
   options.connector_argv = argv;
   options.connector_sha256 = *sha;
   options.jobs = s.jobs > 0 ? s.jobs : std::max(1u, std::thread::hardware_concurrency());
@@ -286,7 +299,9 @@ int Certify(SuiteCommands& s) {
               s.suite.c_str(), suite->digest.c_str(), static_cast<unsigned long long>(suite->pairs()),
               options.shard.index, options.shard.count, options.jobs, ShellJoin(argv).c_str(),
               sha->c_str());
-  if (suite->profile.has_value()) {
+  if (options.profile.has_value()) {
+    std::printf("profile %s (--profile, applied to every scenario)\n", options.profile_path.c_str());
+  } else if (suite->profile.has_value()) {
     std::printf("profile %s (from the suite, applied to every scenario)\n", suite->profile_path.c_str());
   }
   std::fflush(stdout);
@@ -294,6 +309,10 @@ int Certify(SuiteCommands& s) {
   if (!result.ok()) {
     std::fprintf(stderr, "weir: harness fault: %s\n", std::string(result.status().message()).c_str());
     return kHarness;
+  }
+  if (!result->head.profile().empty()) {
+    auto profile_sha = FileSha256(result->head.profile());
+    if (profile_sha.ok()) result->head.set_profile_sha256(*profile_sha);
   }
   const SuiteTally& tally = result->tally;
   const v1::Certificate cert = MakeCertificate(result->head, tally);
@@ -308,8 +327,20 @@ int Certify(SuiteCommands& s) {
   if (write_errors > 0 || tally.harness_faults() > 0) return kHarness;
   if (tally.invariant_failures() > 0) return kFailed;
   if (options.shard.count <= 1) {
-    std::printf("%s\n", cert.certified() ? "CERTIFIED: every run of the suite passed."
-                                         : "NOT CERTIFIED: the suite did not run to completion.");
+    if (cert.certified() && s.require_coverage && cert.not_exercised_size() > 0) {
+      std::printf("NOT CERTIFIED (--require-coverage): every run passed, but %d claimed invariant(s) had no "
+                  "chance to fail (see \"not exercised\" above).\n",
+                  cert.not_exercised_size());
+      return kNotExercised;
+    }
+    std::printf("%s%s\n",
+                cert.certified() ? "CERTIFIED: every run of the suite passed."
+                                 : "NOT CERTIFIED: the suite did not run to completion.",
+                cert.certified() && cert.not_exercised_size() > 0
+                    ? absl::StrCat(" The certificate cannot vouch for ", cert.not_exercised_size(),
+                                   " invariant(s) no run exercised; it lists them.")
+                          .c_str()
+                    : "");
     return cert.certified() ? kPassed : kFailed;
   }
   std::printf("shard %u/%u: every run passed; merge the shard reports with weir merge.\n",
@@ -344,6 +375,16 @@ int Verify(SuiteCommands& s) {
   std::printf("VERIFIED: %s certifies %s: suite %s (%s), %llu runs passed, weir %s.\n", s.cert_file.c_str(),
               s.connector_binary.c_str(), cert->suite_name().c_str(), cert->suite_digest().c_str(),
               static_cast<unsigned long long>(cert->runs()), cert->weir_version().c_str());
+  if (!cert->profile().empty()) {
+    std::printf("every run was judged by profile %s (sha256 %s)\n", cert->profile().c_str(),
+                cert->profile_sha256().c_str());
+  }
+  if (cert->not_exercised_size() > 0) {
+    std::string names;
+    for (const auto& n : cert->not_exercised()) absl::StrAppend(&names, names.empty() ? "" : ", ", n);
+    std::printf("not exercised (no run gave them a chance to fail; the certificate cannot vouch for them): %s\n",
+                names.c_str());
+  }
   return kPassed;
 }
 
@@ -431,6 +472,8 @@ int Merge(SuiteCommands& s) {
   head.set_complete(complete && merged.tally.runs() == head.pairs_total());
   head.set_stopped_because(complete ? "" : (stopped.empty() ? "shards missing" : stopped));
   *head.mutable_invariants() = merged.tally.invariants();
+  head.clear_faults_applied();
+  for (const auto& [fault, n] : merged.tally.faults_applied()) AddCount(head.mutable_faults_applied(), fault, n);
   const v1::Certificate cert = MakeCertificate(head, merged.tally);
   std::printf("%s", SuiteSummaryText(head, merged.tally).c_str());
   if (WriteReports(s, merged, cert, nullptr, /*announce=*/false) > 0) return kHarness;
@@ -463,6 +506,12 @@ void AddSuiteCommands(CLI::App& app, SuiteCommands& s) {
                         "Write an HTML report here: summary and a timeline of each invariant's first failure");
   s.certify->add_option("--transport", s.transport, "tcp (default) or unix");
   s.certify->add_option("--progress", s.progress, "auto (bar on a terminal), bar, lines or none");
+  s.certify->add_option("--profile", s.profile,
+                        "Profile file, or a bundled profile's name: what the connector claims; judges every "
+                        "scenario by it (overrides the suite's and the scenarios' own)");
+  s.certify->add_flag("--require-coverage", s.require_coverage,
+                      "Refuse the certificate (exit 5) when an invariant the profile claims had no chance to "
+                      "fail in any run");
 
   s.verify = app.add_subcommand("verify", "Check that a certificate is intact and belongs to a connector binary");
   s.verify->add_option("certificate", s.cert_file, "Certificate file")->required();

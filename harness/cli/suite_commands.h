@@ -28,6 +28,8 @@ struct SuiteCommands {
   std::string json, junit, certificate, html;
   std::string transport = "tcp";
   std::string progress = "auto";
+  std::string profile;            // overrides the suite's and every scenario's profile
+  bool require_coverage = false;  // an invariant not exercised fails certify (exit 5)
   // verify
   std::string cert_file;
   std::string connector_binary;

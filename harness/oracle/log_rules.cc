@@ -491,6 +491,7 @@ void LogRules::CheckPartitionStall(const TraceEvent& e, std::optional<std::int64
     }
   }
   if (!idle_partition.has_value() || !lowest.has_value()) return;
+  ++verdict_.at(Invariant::kWatermarkStall).chances;  // the rule judges an idle partition
   const std::int64_t floor = *lowest - idle_max_lag_;
   if (watermark.has_value() && *watermark >= floor) return;
   v_.stall_reported = true;

@@ -6,6 +6,7 @@
 #include "absl/strings/str_cat.h"
 #include "harness/core/virtual_time.h"
 #include "harness/trace/describe.h"
+#include "weir/v1/faults.pb.h"
 
 namespace weir {
 
@@ -148,6 +149,7 @@ void Oracle::OnEvent(const TraceEvent& e) {
     SwitchTo(e.reader());
     log_.SwitchTo(e.reader());
   }
+  CountChances(e);
   switch (e.kind_case()) {
     case TraceEvent::kPublished: {
       MessageState& m = messages_[e.published().message_id()];
@@ -319,6 +321,117 @@ void Oracle::OnEvent(const TraceEvent& e) {
     case TraceEvent::kReaderJoined:
       combined_.reset();
       break;
+    default:
+      break;
+  }
+}
+
+// "crash at IN_NOTICE", "throttle_retry_after_ms at PULL": the fault's kind
+// (its field in FaultDecision) and where it struck.
+static std::string FaultKey(const v1::FaultDecision& d) {
+  if (d.has_crash()) return absl::StrCat("crash at ", v1::CrashPoint_Name(d.crash().point()));
+  const auto* field = d.GetDescriptor()->FindFieldByNumber(static_cast<int>(d.fault_case()));
+  return absl::StrCat(field != nullptr ? field->name() : "unknown", " at ", v1::Site_Name(d.site()));
+}
+
+void Oracle::CountChances(const TraceEvent& e) {
+  // Records emitted but not committed, or delivered messages awaiting one.
+  const bool in_flight = !open_epoch_.empty() || !pending_.empty() || awaiting_ > 0;
+  const auto out_of_order = [this](std::int64_t event_time) {
+    if (max_event_time_.has_value() && event_time < *max_event_time_) Chance(Invariant::kLateRecord);
+    if (!max_event_time_.has_value() || event_time > *max_event_time_) max_event_time_ = event_time;
+  };
+  switch (e.kind_case()) {
+    case TraceEvent::kPublished:
+      out_of_order(e.published().event_time_ns());
+      break;
+    case TraceEvent::kAppended:
+      out_of_order(e.appended().event_time_ns());
+      if (e.appended().visible_at_ns() > 0) Chance(Invariant::kLateRecord);  // held back
+      break;
+    case TraceEvent::kDelivered:
+      if (e.delivered().attempt() > 1) {
+        Chance(Invariant::kDuplicateOutput);
+        Chance(Invariant::kLateRecord);
+      }
+      break;
+    case TraceEvent::kStepped:
+      for (Invariant i : {Invariant::kStepTimeout, Invariant::kUnexpectedExit, Invariant::kProtocolError,
+                          Invariant::kConnectorError, Invariant::kLivelock}) {
+        Chance(i);
+      }
+      if (e.stepped().has_watermark_ns()) Chance(Invariant::kWatermarkAhead);
+      break;
+    case TraceEvent::kNacked:
+    case TraceEvent::kLeaseExpired:
+      Chance(Invariant::kLostMessage);
+      break;
+    case TraceEvent::kCommitFailed:
+    case TraceEvent::kCrashed:
+      if (in_flight) {
+        Chance(Invariant::kAckBeforeCommit);
+        Chance(Invariant::kLostMessage);
+      }
+      break;
+    case TraceEvent::kCommitted:
+      committed_any_ = true;
+      break;
+    case TraceEvent::kOpened:
+      if (e.opened().restored()) {
+        for (Invariant i : {Invariant::kBadCheckpoint, Invariant::kWatermarkRegression, Invariant::kResumeExact,
+                            Invariant::kOffsetGap}) {
+          Chance(i);
+        }
+        if (committed_any_) Chance(Invariant::kDuplicateOutput);
+      }
+      break;
+    case TraceEvent::kLogRead:
+      if (e.log_read().out_of_range()) {
+        Chance(Invariant::kSilentSkip);
+        Chance(Invariant::kOffsetGap);
+      }
+      break;
+    case TraceEvent::kBookmarkSaved:
+      Chance(Invariant::kPositionBeforeCommit);
+      break;
+    case TraceEvent::kPartitionAdded:
+      Chance(Invariant::kNewPartition);
+      break;
+    case TraceEvent::kAssigned:
+      for (Invariant i : {Invariant::kDoubleHolding, Invariant::kResumeExact, Invariant::kOffsetGap}) Chance(i);
+      if (committed_any_) Chance(Invariant::kDuplicateOutput);
+      spans_changed_ = true;
+      break;
+    case TraceEvent::kRevoked:
+      Chance(Invariant::kRecordOutsideSpan);
+      spans_changed_ = true;
+      break;
+    case TraceEvent::kCut:
+      for (Invariant i : {Invariant::kCutConservation, Invariant::kRecordOutsideSpan, Invariant::kDoubleHolding,
+                          Invariant::kOffsetGap}) {
+        Chance(i);
+      }
+      spans_changed_ = true;
+      break;
+    case TraceEvent::kReaderLeft:
+    case TraceEvent::kReaderJoined:
+      Chance(Invariant::kWatermarkRegression);
+      Chance(Invariant::kDoubleHolding);
+      spans_changed_ = true;
+      break;
+    case TraceEvent::kCheckpoint:
+      if (many_ && spans_changed_) {
+        Chance(Invariant::kCheckpointCoverage);
+        spans_changed_ = false;
+      }
+      break;
+    case TraceEvent::kFaultApplied: {
+      const v1::FaultDecision& d = e.fault_applied().decision();
+      ++verdict_.faults_applied[FaultKey(d)];
+      // A message held back or handed out of order arrives behind later ones.
+      if (d.has_visibility_delay_ms() || d.has_reorder()) Chance(Invariant::kLateRecord);
+      break;
+    }
     default:
       break;
   }
@@ -529,6 +642,7 @@ void Oracle::OnStepped(const TraceEvent& e) {
   if (idle_timeout_ == 0 || idle_reported_) return;
   const VirtualDuration idle_for = e.t_ns() - idle_since_.t;
   if (idle_for <= idle_timeout_) return;
+  Chance(Invariant::kWatermarkStall);
   const VirtualTime floor = e.t_ns() - idle_max_lag_;
   if (reported_watermark_.has_value() && *reported_watermark_ >= floor) return;
   idle_reported_ = true;
@@ -654,6 +768,8 @@ void Oracle::OnBrokerCall(const TraceEvent& e) {
 
 void Oracle::CheckCall(const TraceEvent& e, const std::string& method, MethodState& m) {
   const VirtualTime t = e.t_ns();
+  if (m.throttled.valid()) Chance(Invariant::kThrottleViolation);
+  if (m.transient.valid() && min_backoff_ > 0) Chance(Invariant::kRetryStorm);
   if (m.throttled.valid()) {
     if (t < m.throttled_until && m.throttle_reported) {
       Echo(Invariant::kThrottleViolation);

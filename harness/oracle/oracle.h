@@ -60,6 +60,8 @@
 //   connector-error: a connector_error event (the connector answered a call
 //     with an error status of its own); in Open from a committed checkpoint
 //     it is bad-checkpoint, as every failure of that Open is.
+//   Coverage: every rule also counts its chances, the situations in which it
+//   could have failed (InvariantChance in verdict.h, docs/coverage.md).
 //   protocol-error, besides the runtime's own protocol_error events: a record
 //     of a message not delivered to the emitting incarnation (messages already
 //     retired are not checked: their delivery history is gone), an ack of a
@@ -139,6 +141,11 @@ class Oracle : public TraceObserver {
   // Counts a repeat of a cause already reported (InvariantResult::echoes).
   void Echo(Invariant invariant) { ++verdict_.at(invariant).echoes; }
   void DiscardUncommitted();
+  // Coverage: counts the chances (verdict.h) `e` gives the rules, before the
+  // rules see it. Chances that depend on a rule's own state (a call after a
+  // throttle, a step past the idle timeout) are counted by the rule.
+  void CountChances(const v1::TraceEvent& e);
+  void Chance(Invariant invariant) { ++verdict_.at(invariant).chances; }
   void OnCommitted(const v1::TraceEvent& e);
   void OnAcked(const v1::TraceEvent& e);
   void OnWatermark(const v1::TraceEvent& e, std::int64_t watermark);
@@ -249,6 +256,12 @@ class Oracle : public TraceObserver {
   std::optional<std::int64_t> combined_;
   EventRef combined_ref_;
   LogRules log_;
+  // Coverage state: the highest event time published or appended so far,
+  // whether anything was committed yet, and whether spans changed since the
+  // last checkpoint.
+  std::optional<std::int64_t> max_event_time_;
+  bool committed_any_ = false;
+  bool spans_changed_ = false;
 };
 
 }  // namespace weir

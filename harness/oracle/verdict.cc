@@ -162,4 +162,108 @@ const char* InvariantRule(Invariant invariant) {
   return "";
 }
 
+const char* InvariantChance(Invariant invariant) {
+  switch (invariant) {
+    case Invariant::kAckBeforeCommit:
+      return "a crash or a failed commit while records of delivered messages were emitted but not "
+             "yet committed";
+    case Invariant::kLostMessage:
+      return "a crash, a failed commit, a nack or an expired lease while messages were in flight";
+    case Invariant::kDuplicateOutput:
+      return "a redelivery, or a restore or span move after some output was committed";
+    case Invariant::kWatermarkRegression:
+      return "a restore from a checkpoint, or a reader joining or leaving";
+    case Invariant::kWatermarkStall:
+      return "a step after the source (or a partition) had been idle longer than the idle timeout";
+    case Invariant::kLateRecord:
+      return "a message published (or a record appended) with an event time below one published "
+             "before it, held back by a visibility delay, handed out out of order, or redelivered";
+    case Invariant::kBadCheckpoint:
+      return "an Open from a committed checkpoint";
+    case Invariant::kStepTimeout:
+    case Invariant::kUnexpectedExit:
+    case Invariant::kProtocolError:
+    case Invariant::kConnectorError:
+    case Invariant::kLivelock:
+      return "a step";
+    case Invariant::kThrottleViolation:
+      return "a throttled call followed by another call of the same method";
+    case Invariant::kRetryStorm:
+      return "a transient broker failure followed by another call of the same method";
+    case Invariant::kOffsetGap:
+      return "a restore, a span moved or cut, or a read below the first retained offset";
+    case Invariant::kPositionBeforeCommit:
+      return "a bookmark saved at the broker";
+    case Invariant::kResumeExact:
+      return "a restore or a span assigned with a resume point";
+    case Invariant::kSilentSkip:
+      return "a read below the first retained offset (retention deleted what the reader wanted)";
+    case Invariant::kNewPartition:
+      return "a partition added during the run";
+    case Invariant::kWatermarkAhead:
+      return "a step that reported a watermark";
+    case Invariant::kRecordOutsideSpan:
+      return "a span revoked or cut";
+    case Invariant::kDoubleHolding:
+      return "a span assigned, cut, or a reader joining or leaving";
+    case Invariant::kCutConservation:
+      return "a cut";
+    case Invariant::kCheckpointCoverage:
+      return "a checkpoint after the readers' spans changed";
+    case Invariant::kCount:
+      break;
+  }
+  return "";
+}
+
+const char* InvariantExercisedBy(Invariant invariant) {
+  switch (invariant) {
+    case Invariant::kAckBeforeCommit:
+    case Invariant::kLostMessage:
+    case Invariant::kWatermarkRegression:
+    case Invariant::kBadCheckpoint:
+      return "queue scenarios with crashes or commit failures (crash_storm_weather_buoys, "
+             "commit_failures_cold_chain)";
+    case Invariant::kDuplicateOutput:
+      return "scenarios with redelivery or crashes after commits, under exactly-once "
+             "(heavy_redelivery_bike_docks, crash_storm_weather_buoys)";
+    case Invariant::kWatermarkStall:
+      return "idle scenarios under a profile with idle_timeout_ms (idle_watermark_beehive_scales, "
+             "idle_delayed_pings_avalanche_beacons, log_idle_partitions_snow_pillows)";
+    case Invariant::kLateRecord:
+      return "out-of-order or held-back messages under a BOUNDED_LATENESS profile "
+             "(idle_delayed_pings_avalanche_beacons, log_hot_partition_rail_axle_counters)";
+    case Invariant::kStepTimeout:
+    case Invariant::kUnexpectedExit:
+    case Invariant::kProtocolError:
+    case Invariant::kConnectorError:
+    case Invariant::kLivelock:
+    case Invariant::kWatermarkAhead:
+      return "any scenario whose connector steps and reports a watermark (steady_parcel_scanners)";
+    case Invariant::kThrottleViolation:
+      return "scenarios with broker throttling (throttle_storm_toll_gantries)";
+    case Invariant::kRetryStorm:
+      return "scenarios with transient broker failures under a profile with min_backoff_ms "
+             "(flaky_network_vineyard_probes, log_partition_outage_lighthouse_beacons)";
+    case Invariant::kOffsetGap:
+    case Invariant::kResumeExact:
+      return "log scenarios with crashes (log_bookmark_crash_storm_seismographs)";
+    case Invariant::kPositionBeforeCommit:
+      return "log scenarios whose connector saves bookmarks (log_steady_river_gauges)";
+    case Invariant::kSilentSkip:
+      return "log scenarios where retention outruns the reader (log_retention_race_pollen_traps)";
+    case Invariant::kNewPartition:
+      return "log scenarios with partition growth (log_partition_growth_wind_turbines)";
+    case Invariant::kRecordOutsideSpan:
+    case Invariant::kCutConservation:
+      return "many-reader scenarios with cuts (readers_frequent_cuts_seismographs)";
+    case Invariant::kDoubleHolding:
+    case Invariant::kCheckpointCoverage:
+      return "many-reader scenarios with moves (readers_hot_rebalance_wind_farms)";
+    case Invariant::kCount:
+      break;
+  }
+  return "";
+}
+
 }  // namespace weir

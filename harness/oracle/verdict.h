@@ -7,6 +7,7 @@
 
 #include <array>
 #include <cstdint>
+#include <map>
 #include <string>
 #include <vector>
 
@@ -79,6 +80,14 @@ struct InvariantResult {
   std::uint64_t violations = 0;
   std::uint64_t echoes = 0;
   std::vector<Violation> first;   // the first few, in trace order
+  // Coverage: how many situations arose in which this rule could have failed
+  // (its "chances", docs/coverage.md), e.g. a throttled call followed by
+  // another call of the same method. A judged rule with no chance and no
+  // violation was not exercised: "held" would overstate it.
+  std::uint64_t chances = 0;
+
+  bool judged() const { return checked && applies; }
+  bool exercised() const { return chances > 0 || violations > 0; }
 };
 
 struct Verdict {
@@ -99,6 +108,9 @@ struct Verdict {
   std::uint64_t deleted_unread = 0;
   std::uint64_t gap_offsets = 0;
   std::uint64_t rewinds = 0;
+  // Coverage: fault decisions that took effect, by FaultKey() ("crash at
+  // IN_NOTICE", "throttle at PULL", …).
+  std::map<std::string, std::uint64_t> faults_applied;
 
   bool passed() const {
     for (const auto& r : results) {
@@ -109,6 +121,12 @@ struct Verdict {
   const InvariantResult& at(Invariant i) const { return results[static_cast<int>(i)]; }
   InvariantResult& at(Invariant i) { return results[static_cast<int>(i)]; }
 };
+
+// What a rule's chances are, in one phrase ("a throttled call followed by
+// another call of the same method"), and which kind of scenario gives it
+// some: what a report says of a rule that was not exercised.
+const char* InvariantChance(Invariant invariant);
+const char* InvariantExercisedBy(Invariant invariant);
 
 // The invariants that failed (checked, violations > 0), the one whose kept
 // violation has the earliest cause first (ties: detected earlier, then table

@@ -464,7 +464,7 @@ h1 { font-size: 1.4em; } h2 { font-size: 1.2em; margin-top: 2em; } h3 { font-siz
 code { font: 12px monospace; word-break: break-all; }
 table { border-collapse: collapse; margin: .5em 0; }
 th, td { border: 1px solid #ccc; padding: 2px 8px; text-align: left; vertical-align: top; }
-td.failed { color: #b00; font-weight: bold; } td.passed { color: #070; }
+td.failed { color: #b00; font-weight: bold; } td.passed { color: #070; } td.unexercised { color: #a60; }
 .scroll { overflow-x: auto; border: 1px solid #ddd; }
 .elided, .range { color: #555; font-size: 12px; }
 .inv { color: #b00; }

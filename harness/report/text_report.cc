@@ -8,13 +8,18 @@
 namespace weir {
 
 std::string FormatVerdictTable(const Verdict& verdict) {
-  std::string out = absl::StrFormat("%-22s %-12s %s\n", "invariant", "verdict", "violations");
+  std::string out = absl::StrFormat("%-22s %-13s %10s  %s\n", "invariant", "verdict", "chances", "violations");
   for (int i = 0; i < kInvariantCount; ++i) {
     const auto inv = static_cast<Invariant>(i);
     const InvariantResult& r = verdict.at(inv);
     if (!r.applies) continue;  // the other broker shape's rule
-    const char* word = !r.checked ? "not claimed" : r.violations == 0 ? "held" : "FAILED";
-    out += absl::StrFormat("%-22s %-12s %d%s\n", InvariantName(inv), word, r.violations,
+    // Held means it had a chance to fail and did not (docs/coverage.md).
+    const char* word = !r.checked            ? "not claimed"
+                       : r.violations > 0    ? "FAILED"
+                       : r.chances == 0      ? "not exercised"
+                                             : "held";
+    out += absl::StrFormat("%-22s %-13s %10s  %d%s\n", InvariantName(inv), word,
+                           r.checked ? absl::StrCat(r.chances) : std::string("-"), r.violations,
                            r.echoes > 0 ? absl::StrCat(" (+", r.echoes, " repeats)") : std::string());
   }
   // Figures that never fail a run on their own (see Verdict).

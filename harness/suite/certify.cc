@@ -118,8 +118,11 @@ absl::StatusOr<SuiteResult> Certify(const LoadedSuite& suite, const CertifyOptio
         rec.set_passed(out->verdict.passed());
         for (int i = 0; i < kInvariantCount; ++i) {
           const InvariantResult& r = out->verdict.results[i];
-          if (r.checked && r.violations > 0) rec.add_failed_invariants(InvariantName(static_cast<Invariant>(i)));
+          const char* name = InvariantName(static_cast<Invariant>(i));
+          if (r.checked && r.violations > 0) rec.add_failed_invariants(name);
+          if (r.judged()) AddCount(rec.mutable_chances(), name, r.chances);
         }
+        for (const auto& [fault, n] : out->verdict.faults_applied) AddCount(rec.mutable_faults_applied(), fault, n);
         // The first violation is the one whose cause came earliest (a
         // connector that died is named before the messages it then lost).
         const auto by_cause = ViolationsByCause(out->verdict);
@@ -148,6 +151,7 @@ absl::StatusOr<SuiteResult> Certify(const LoadedSuite& suite, const CertifyOptio
   head.set_complete(stopped.empty() && result.tally.runs() == mine_total);
   head.set_stopped_because(stopped);
   *head.mutable_invariants() = result.tally.invariants();
+  for (const auto& [fault, n] : result.tally.faults_applied()) AddCount(head.mutable_faults_applied(), fault, n);
   return result;
 }
 

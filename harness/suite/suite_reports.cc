@@ -9,6 +9,7 @@
 #include "absl/status/status.h"
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_format.h"
+#include "harness/oracle/verdict.h"
 #include "harness/report/markup_escape.h"
 #include "harness/trace/trace_format.h"
 
@@ -34,6 +35,13 @@ absl::Status FromJson(std::string_view text, google::protobuf::Message* m) {
 }
 
 }  // namespace
+
+const char* CoverageWord(const v1::InvariantSummary& s) {
+  if (s.runs_failed() > 0) return "FAILED";
+  if (s.runs_judged() == 0) return "not judged";
+  if (s.runs_exercised() == 0) return "not exercised";
+  return "held";
+}
 
 // The head is printed without its runs, and the runs are printed one at a
 // time into the place of its empty list: converting a whole report at once
@@ -93,6 +101,17 @@ absl::Status WriteSuiteJUnitXml(const v1::SuiteReport& head, const SuiteTally& t
   property("connector_sha256", head.connector_sha256());
   property("shard", absl::StrCat(head.shard_index(), "/", head.shard_count()));
   property("complete", head.complete() ? "true" : "false");
+  property("profile", head.profile());
+  // Coverage: per judged invariant its verdict word and chances.
+  for (const auto& s : head.invariants()) {
+    if (s.runs_judged() == 0) continue;
+    property(absl::StrCat("coverage.", s.invariant()),
+             absl::StrCat(CoverageWord(s), "; ", s.chances(), " chances in ", s.runs_exercised(), " of ",
+                          s.runs_judged(), " runs"));
+  }
+  std::string not_exercised;
+  for (const auto& name : tally.not_exercised()) absl::StrAppend(&not_exercised, not_exercised.empty() ? "" : ", ", name);
+  property("not_exercised", not_exercised);
   out("  </properties>\n");
   v1::RunRecord run;
   for (;;) {
@@ -136,15 +155,30 @@ std::string SuiteSummaryText(const v1::SuiteReport& head, const SuiteTally& tall
   if (!head.profile().empty()) {
     absl::StrAppend(&out, "profile ", head.profile(), " (applied to every scenario)\n\n");
   }
-  out += absl::StrFormat("%-22s %8s %8s  %s\n", "invariant", "passed", "failed",
-                                    "first failing seed");
+  out += absl::StrFormat("%-22s %-13s %8s %8s %10s  %s\n", "invariant", "verdict", "passed", "failed", "chances",
+                         "first failing seed");
   for (const auto& s : head.invariants()) {
-    absl::StrAppend(&out, absl::StrFormat("%-22s %8d %8d  %s\n", s.invariant(), s.runs_passed(),
-                                          s.runs_failed(),
+    const bool judged = s.runs_judged() > 0;
+    absl::StrAppend(&out, absl::StrFormat("%-22s %-13s %8d %8d %10s  %s\n", s.invariant(), CoverageWord(s),
+                                          s.runs_passed(), s.runs_failed(),
+                                          judged ? absl::StrCat(s.chances()) : std::string("-"),
                                           s.runs_failed() == 0
                                               ? std::string("-")
                                               : absl::StrCat(s.first_failing_scenario(), " seed ",
                                                              s.first_failing_seed())));
+  }
+  for (const auto& name : tally.not_exercised()) {
+    for (int i = 0; i < kInvariantCount; ++i) {
+      const auto inv = static_cast<Invariant>(i);
+      if (name != InvariantName(inv)) continue;
+      absl::StrAppend(&out, "\nnot exercised: ", name, " had no chance to fail in any run (a chance: ",
+                      InvariantChance(inv), ").\n  would exercise it: ", InvariantExercisedBy(inv), "\n");
+    }
+  }
+  if (!tally.faults_applied().empty()) {
+    out += "\nfaults applied:";
+    for (const auto& [fault, n] : tally.faults_applied()) absl::StrAppend(&out, " ", fault, " ×", n, ";");
+    out.back() = '\n';
   }
   for (const auto& s : head.invariants()) {
     if (s.runs_failed() > 0) {
@@ -182,11 +216,15 @@ std::string SuiteSummaryHtml(const v1::SuiteReport& head, const SuiteTally& tall
   fact("runs", absl::StrCat(tally.runs(), " of ", head.pairs_total(), " pairs: ", tally.passed(), " passed, ",
                             tally.failed(), " failed",
                             head.complete() ? "" : absl::StrCat(" (INCOMPLETE: ", head.stopped_because(), ")")));
-  out += "</table>\n<table class=\"invariants\">\n<tr><th>invariant</th><th>runs passed</th><th>runs failed</th>"
-         "<th>first failing seed</th><th>replay</th></tr>\n";
+  out += "</table>\n<table class=\"invariants\">\n<tr><th>invariant</th><th>verdict</th><th>chances</th>"
+         "<th>runs passed</th><th>runs failed</th><th>first failing seed</th><th>replay</th></tr>\n";
   for (const auto& s : head.invariants()) {
     const bool bad = s.runs_failed() > 0;
-    absl::StrAppend(&out, "<tr><td>", EscapeMarkup(s.invariant()), "</td><td>", s.runs_passed(),
+    const std::string word = CoverageWord(s);
+    absl::StrAppend(&out, "<tr><td>", EscapeMarkup(s.invariant()), "</td><td class=\"",
+                    bad ? "failed" : word == "held" ? "passed" : "unexercised", "\">", word, "</td><td>",
+                    s.runs_judged() > 0 ? absl::StrCat(s.chances()) : std::string("&#8211;"), "</td><td>",
+                    s.runs_passed(),
                     "</td><td class=\"", bad ? "failed" : "passed", "\">", s.runs_failed(), "</td><td>",
                     bad ? EscapeMarkup(absl::StrCat(s.first_failing_scenario(), " seed ", s.first_failing_seed()))
                         : std::string("&#8211;"),
@@ -231,6 +269,12 @@ v1::Certificate MakeCertificate(const v1::SuiteReport& head, const SuiteTally& t
   c.set_verdicts(tally.verdicts());
   c.set_certified(head.complete() && head.shard_count() <= 1 && c.runs() == head.pairs_total() &&
                   c.runs_failed() == 0);
+  for (const auto& s : tally.invariants()) {
+    if (s.runs_judged() > 0) AddCount(c.mutable_chances(), s.invariant(), s.chances());
+  }
+  for (const auto& name : tally.not_exercised()) c.add_not_exercised(name);
+  c.set_profile(head.profile());
+  c.set_profile_sha256(head.profile_sha256());
   c.set_seal(CertificateSeal(c));
   return c;
 }

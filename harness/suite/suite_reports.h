@@ -31,6 +31,11 @@
 
 namespace weir {
 
+// An invariant's verdict over a suite: "FAILED", "held", "not exercised"
+// (judged, but no run gave it a chance to fail) or "not judged" (no run's
+// profile claims it, or it is of the other broker shape).
+const char* CoverageWord(const v1::InvariantSummary& summary);
+
 // Error: a run could not be read (the text written so far is then cut short).
 [[nodiscard]] absl::Status WriteSuiteReportJson(const v1::SuiteReport& head, RunReader& runs, TextOut out);
 // Errors name the cause; the caller adds the file name.

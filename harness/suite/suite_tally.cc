@@ -29,9 +29,15 @@ void SuiteTally::Add(const v1::RunRecord& run) {
   } else if (!run.passed()) {
     ++invariant_failures_;
   }
+  for (const v1::Count& f : run.faults_applied()) faults_applied_[f.name()] += f.count();
   for (v1::InvariantSummary& s : invariants_) {
     bool failed = false;
     for (const auto& name : run.failed_invariants()) failed |= name == s.invariant();
+    if (const v1::Count* c = FindCount(run.chances(), s.invariant()); c != nullptr) {
+      s.set_runs_judged(s.runs_judged() + 1);
+      s.set_chances(s.chances() + c->count());
+      if (c->count() > 0 || failed) s.set_runs_exercised(s.runs_exercised() + 1);
+    }
     if (!failed) {
       if (run.harness_error().empty()) s.set_runs_passed(s.runs_passed() + 1);
       continue;
@@ -43,6 +49,14 @@ void SuiteTally::Add(const v1::RunRecord& run) {
     }
     s.set_runs_failed(s.runs_failed() + 1);
   }
+}
+
+std::vector<std::string> SuiteTally::not_exercised() const {
+  std::vector<std::string> out;
+  for (const v1::InvariantSummary& s : invariants_) {
+    if (s.runs_judged() > 0 && s.runs_exercised() == 0 && s.runs_failed() == 0) out.push_back(s.invariant());
+  }
+  return out;
 }
 
 }  // namespace weir

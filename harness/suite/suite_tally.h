@@ -1,8 +1,9 @@
 // File: suite_tally.h
 //
 // What the reports need to know about a suite's runs without reading them:
-// per invariant, runs passed and failed and the first failing run (the
-// InvariantSummary rows of the report), the counts JUnit's <testsuite> and
+// per invariant, runs passed and failed and the first failing run, and its
+// coverage (runs that judged it, runs that exercised it, chances: the
+// InvariantSummary rows of the report), the faults applied, the counts JUnit's <testsuite> and
 // the summaries print, the sum of wall times, the first harness fault, and
 // the verdict string the certificate carries ("P" or "F" per run).
 //
@@ -21,12 +22,30 @@
 #pragma once
 
 #include <cstdint>
+#include <map>
 #include <optional>
 #include <string>
+#include <vector>
 
 #include "weir/v1/suite.pb.h"
 
 namespace weir {
+
+// Appends (name, count) to a list of named counts.
+inline void AddCount(google::protobuf::RepeatedPtrField<v1::Count>* list, const std::string& name,
+                     std::uint64_t count) {
+  v1::Count* c = list->Add();
+  c->set_name(name);
+  c->set_count(count);
+}
+// The count named `name`, or null.
+inline const v1::Count* FindCount(const google::protobuf::RepeatedPtrField<v1::Count>& list,
+                                  const std::string& name) {
+  for (const v1::Count& c : list) {
+    if (c.name() == name) return &c;
+  }
+  return nullptr;
+}
 
 class SuiteTally {
  public:
@@ -56,6 +75,11 @@ class SuiteTally {
   const std::optional<HarnessFault>& first_harness_fault() const { return first_harness_fault_; }
 
   const google::protobuf::RepeatedPtrField<v1::InvariantSummary>& invariants() const { return invariants_; }
+  // Coverage: fault decisions that took effect, summed over the runs.
+  const std::map<std::string, std::uint64_t>& faults_applied() const { return faults_applied_; }
+  // Invariants some run judged that had no chance in any run and never
+  // failed: the suite cannot vouch for them (table order).
+  std::vector<std::string> not_exercised() const;
 
  private:
   std::uint64_t runs_ = 0;
@@ -66,6 +90,7 @@ class SuiteTally {
   std::string verdicts_;
   std::optional<HarnessFault> first_harness_fault_;
   google::protobuf::RepeatedPtrField<v1::InvariantSummary> invariants_;
+  std::map<std::string, std::uint64_t> faults_applied_;
 };
 
 }  // namespace weir

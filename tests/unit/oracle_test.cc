@@ -923,3 +923,151 @@ TEST(Oracle, NoExcuseWhenTheDeadIncarnationMovedPastTheMessageItHeld) {
 
 }  // namespace
 }  // namespace weir
+
+namespace weir {
+namespace {
+
+// Coverage (docs/coverage.md): a rule that never had a chance to fail reads
+// "not exercised", never "held".
+
+TEST(OracleCoverage, ThrottleViolationHasAChanceOnlyWhenTheThrottledMethodIsCalledAgain) {
+  {
+    TraceBuilder t;
+    t.BrokerCallFailed("Pull", Millis(100), 8, Millis(50));  // throttled, never called again
+    const Verdict v = t.End();
+    EXPECT_EQ(v.at(Invariant::kThrottleViolation).chances, 0u);
+    EXPECT_FALSE(v.at(Invariant::kThrottleViolation).exercised());
+    EXPECT_NE(FormatVerdictTable(v).find("throttle-violation     not exercised"), std::string::npos)
+        << FormatVerdictTable(v);
+  }
+  {
+    TraceBuilder t;
+    t.BrokerCallFailed("Pull", Millis(100), 8, Millis(50));
+    t.BrokerCall("Ack", Millis(110), 1);   // another method: no chance for Pull's throttle
+    t.BrokerCall("Pull", Millis(200), 2);  // after the retry-after: judged, held
+    const Verdict v = t.End();
+    EXPECT_EQ(v.at(Invariant::kThrottleViolation).chances, 1u);
+    EXPECT_EQ(v.at(Invariant::kThrottleViolation).violations, 0u);
+    EXPECT_NE(FormatVerdictTable(v).find("throttle-violation     held"), std::string::npos)
+        << FormatVerdictTable(v);
+  }
+}
+
+TEST(OracleCoverage, RetryStormCountsOnlyWhenTheProfileSetsABackoff) {
+  for (std::int64_t backoff : {0, 100}) {
+    TraceBuilder t(v1::Profile::EXACTLY_ONCE, backoff);
+    t.BrokerCallFailed("Pull", Millis(100), 14);
+    t.BrokerCall("Pull", Millis(300), 2);
+    const Verdict v = t.End();
+    EXPECT_EQ(v.at(Invariant::kRetryStorm).chances, backoff > 0 ? 1u : 0u) << backoff;
+    EXPECT_EQ(v.at(Invariant::kRetryStorm).checked, backoff > 0);
+  }
+}
+
+TEST(OracleCoverage, AckBeforeCommitHasAChanceWhenACrashFallsBetweenEmissionAndCommit) {
+  {
+    // Emitted, committed, acked; no fault in between: ack-before-commit could
+    // not have turned into a loss.
+    TraceBuilder t;
+    t.Published(1);
+    t.Delivered(1, 11);
+    t.Emitted(1);
+    t.Checkpoint(1);
+    t.Committed(1);
+    t.Acked(1, 11);
+    const Verdict v = t.End();
+    EXPECT_EQ(v.at(Invariant::kAckBeforeCommit).chances, 0u);
+    EXPECT_EQ(v.at(Invariant::kBadCheckpoint).chances, 0u);
+  }
+  {
+    TraceBuilder t;
+    t.Published(1);
+    t.Delivered(1, 11);
+    t.Emitted(1);
+    t.Checkpoint(1);
+    t.CommitFailed(1);  // the epoch is gone, its message in flight
+    t.Crashed();
+    t.Opened(0, std::nullopt);
+    const Verdict v = t.End();
+    EXPECT_EQ(v.at(Invariant::kAckBeforeCommit).chances, 1u);  // the crash found nothing in flight
+    EXPECT_EQ(v.at(Invariant::kLostMessage).chances, 1u);
+    EXPECT_EQ(v.at(Invariant::kBadCheckpoint).chances, 0u);  // a fresh Open, not a restore
+  }
+}
+
+TEST(OracleCoverage, RestoreGivesBadCheckpointWatermarkAndDuplicateChances) {
+  TraceBuilder t;
+  t.Published(1);
+  t.Delivered(1, 11);
+  t.Emitted(1);
+  t.Checkpoint(1, 5);
+  t.Committed(1);
+  t.Crashed();
+  t.Opened(1, 5);
+  const Verdict v = t.End();
+  EXPECT_EQ(v.at(Invariant::kBadCheckpoint).chances, 1u);
+  EXPECT_EQ(v.at(Invariant::kWatermarkRegression).chances, 1u);
+  EXPECT_EQ(v.at(Invariant::kDuplicateOutput).chances, 1u);  // restored after a commit
+}
+
+TEST(OracleCoverage, LateRecordCountsOutOfOrderArrivals) {
+  TraceBuilder t;
+  t.Published(1, Millis(10));
+  t.Published(2, Millis(30));
+  t.Published(3, Millis(20));  // below one published before it
+  t.Published(4, Millis(40));
+  EXPECT_EQ(t.End().at(Invariant::kLateRecord).chances, 1u);
+}
+
+TEST(OracleCoverage, EveryStepIsAChanceForTheCallRules) {
+  TraceBuilder t;
+  t.Stepped(std::nullopt, false);
+  t.Stepped(Millis(1), false);
+  const Verdict v = t.End();
+  EXPECT_EQ(v.at(Invariant::kStepTimeout).chances, 2u);
+  EXPECT_EQ(v.at(Invariant::kProtocolError).chances, 2u);
+  EXPECT_EQ(v.at(Invariant::kWatermarkAhead).chances, 1u);  // one step reported a watermark
+}
+
+TEST(OracleCoverage, WatermarkStallIsJudgedOnlyOnceTheSourceWasIdleLongerThanTheTimeout) {
+  v1::Profile p;
+  p.set_guarantee(v1::Profile::EXACTLY_ONCE);
+  p.set_watermark_policy(v1::Profile::MONOTONIC);
+  p.set_idle_timeout_ms(1000);
+  {
+    TraceBuilder t(p);
+    t.At(Millis(0)).Stepped(Millis(0), true);
+    t.At(Millis(500)).Stepped(Millis(0), true);  // idle 0.5 s: not yet judged
+    EXPECT_EQ(t.End().at(Invariant::kWatermarkStall).chances, 0u);
+  }
+  {
+    TraceBuilder t(p);
+    t.At(Millis(0)).Stepped(Millis(0), true);
+    t.At(Millis(1500)).Stepped(Millis(1000), true);  // idle 1.5 s, watermark within the lag: held
+    const Verdict v = t.End();
+    EXPECT_EQ(v.at(Invariant::kWatermarkStall).chances, 1u);
+    EXPECT_EQ(v.at(Invariant::kWatermarkStall).violations, 0u);
+  }
+}
+
+TEST(OracleCoverage, FaultsAppliedAreCountedByKindAndPlace) {
+  Oracle oracle(v1::Profile{});
+  v1::TraceEvent e;
+  e.set_seq(1);
+  auto* d = e.mutable_fault_applied()->mutable_decision();
+  d->set_site(v1::PULL);
+  d->set_throttle_retry_after_ms(100);
+  oracle.OnEvent(e);
+  oracle.OnEvent(e);
+  d->Clear();
+  d->set_site(v1::CHECKPOINT);
+  d->mutable_crash()->set_point(v1::AFTER_CHECKPOINT_BEFORE_COMMIT);
+  oracle.OnEvent(e);
+  const Verdict v = oracle.Finish();
+  ASSERT_EQ(v.faults_applied.size(), 2u);
+  EXPECT_EQ(v.faults_applied.at("throttle_retry_after_ms at PULL"), 2u);
+  EXPECT_EQ(v.faults_applied.at("crash at AFTER_CHECKPOINT_BEFORE_COMMIT"), 1u);
+}
+
+}  // namespace
+}  // namespace weir

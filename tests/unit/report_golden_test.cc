@@ -102,6 +102,13 @@ TEST(ReportGolden, PassingRun) {
   f.Send();
   f.Next().mutable_acked()->set_message_id(1);
   f.Send();
+  // One step: the rules judged at every step had a chance (held); the fault
+  // rules had none (not exercised: no crash, throttle or idle period).
+  auto* st = f.Next().mutable_stepped();
+  st->set_step(1);
+  st->set_watermark_ns(0);
+  st->set_resume_at_ns(Millis(7));
+  f.Send();
   ExpectGolden("passing_run", f.End());
 }
 

@@ -10,7 +10,9 @@
 #include <google/protobuf/util/field_mask_util.h>
 #include <google/protobuf/util/json_util.h>
 
+#include <map>
 #include <string>
+#include <vector>
 
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_format.h"
@@ -37,10 +39,19 @@ inline void Summarize(v1::SuiteReport* report) {
     v1::InvariantSummary* s = report->add_invariants();
     s->set_invariant(InvariantName(static_cast<Invariant>(i)));
   }
+  report->clear_faults_applied();
+  std::map<std::string, std::uint64_t> faults;
   for (const v1::RunRecord& run : report->runs()) {
+    for (const v1::Count& f : run.faults_applied()) faults[f.name()] += f.count();
     for (v1::InvariantSummary& s : *report->mutable_invariants()) {
       bool failed = false;
       for (const auto& name : run.failed_invariants()) failed |= name == s.invariant();
+      for (const v1::Count& c : run.chances()) {
+        if (c.name() != s.invariant()) continue;
+        s.set_runs_judged(s.runs_judged() + 1);
+        s.set_chances(s.chances() + c.count());
+        if (c.count() > 0 || failed) s.set_runs_exercised(s.runs_exercised() + 1);
+      }
       if (!failed) {
         if (run.harness_error().empty()) s.set_runs_passed(s.runs_passed() + 1);
         continue;
@@ -53,6 +64,20 @@ inline void Summarize(v1::SuiteReport* report) {
       s.set_runs_failed(s.runs_failed() + 1);
     }
   }
+  for (const auto& [name, n] : faults) {
+    v1::Count* c = report->add_faults_applied();
+    c->set_name(name);
+    c->set_count(n);
+  }
+}
+
+// Judged, never exercised, never failed (coverage), in table order.
+inline std::vector<std::string> NotExercised(const v1::SuiteReport& report) {
+  std::vector<std::string> out;
+  for (const auto& s : report.invariants()) {
+    if (s.runs_judged() > 0 && s.runs_exercised() == 0 && s.runs_failed() == 0) out.push_back(s.invariant());
+  }
+  return out;
 }
 
 inline v1::Certificate MakeCertificate(const v1::SuiteReport& report) {
@@ -74,6 +99,16 @@ inline v1::Certificate MakeCertificate(const v1::SuiteReport& report) {
   c.set_verdicts(verdicts);
   c.set_certified(report.complete() && report.shard_count() <= 1 && c.runs() == report.pairs_total() &&
                   c.runs_failed() == 0);
+  for (const auto& s : report.invariants()) {
+    if (s.runs_judged() > 0) {
+      v1::Count* n = c.add_chances();
+      n->set_name(s.invariant());
+      n->set_count(s.chances());
+    }
+  }
+  for (const auto& name : NotExercised(report)) c.add_not_exercised(name);
+  c.set_profile(report.profile());
+  c.set_profile_sha256(report.profile_sha256());
   c.set_seal(CertificateSeal(c));
   return c;
 }
@@ -130,6 +165,16 @@ inline std::string SuiteJUnitXml(const v1::SuiteReport& report, const std::strin
   property("connector_sha256", report.connector_sha256());
   property("shard", absl::StrCat(report.shard_index(), "/", report.shard_count()));
   property("complete", report.complete() ? "true" : "false");
+  property("profile", report.profile());
+  for (const auto& s : report.invariants()) {
+    if (s.runs_judged() == 0) continue;
+    property(absl::StrCat("coverage.", s.invariant()),
+             absl::StrCat(CoverageWord(s), "; ", s.chances(), " chances in ", s.runs_exercised(), " of ",
+                          s.runs_judged(), " runs"));
+  }
+  std::string not_exercised;
+  for (const auto& name : NotExercised(report)) absl::StrAppend(&not_exercised, not_exercised.empty() ? "" : ", ", name);
+  property("not_exercised", not_exercised);
   out += "  </properties>\n";
   for (const auto& run : report.runs()) {
     absl::StrAppend(&out, "  <testcase name=\"", EscapeMarkup(absl::StrCat("seed ", run.seed())),
@@ -165,15 +210,33 @@ inline std::string SuiteJUnitXml(const v1::SuiteReport& report, const std::strin
 inline std::string SuiteSummaryText(const v1::SuiteReport& report) {
   std::uint64_t failed = 0;
   for (const auto& run : report.runs()) failed += run.passed() ? 0 : 1;
-  std::string out = absl::StrFormat("%-22s %8s %8s  %s\n", "invariant", "passed", "failed",
-                                    "first failing seed");
+  std::string out;
+  if (!report.profile().empty()) {
+    absl::StrAppend(&out, "profile ", report.profile(), " (applied to every scenario)\n\n");
+  }
+  out += absl::StrFormat("%-22s %-13s %8s %8s %10s  %s\n", "invariant", "verdict", "passed", "failed", "chances",
+                         "first failing seed");
   for (const auto& s : report.invariants()) {
-    absl::StrAppend(&out, absl::StrFormat("%-22s %8d %8d  %s\n", s.invariant(), s.runs_passed(),
-                                          s.runs_failed(),
+    absl::StrAppend(&out, absl::StrFormat("%-22s %-13s %8d %8d %10s  %s\n", s.invariant(), CoverageWord(s),
+                                          s.runs_passed(), s.runs_failed(),
+                                          s.runs_judged() > 0 ? absl::StrCat(s.chances()) : std::string("-"),
                                           s.runs_failed() == 0
                                               ? std::string("-")
                                               : absl::StrCat(s.first_failing_scenario(), " seed ",
                                                              s.first_failing_seed())));
+  }
+  for (const auto& name : NotExercised(report)) {
+    for (int i = 0; i < kInvariantCount; ++i) {
+      const auto inv = static_cast<Invariant>(i);
+      if (name != InvariantName(inv)) continue;
+      absl::StrAppend(&out, "\nnot exercised: ", name, " had no chance to fail in any run (a chance: ",
+                      InvariantChance(inv), ").\n  would exercise it: ", InvariantExercisedBy(inv), "\n");
+    }
+  }
+  if (!report.faults_applied().empty()) {
+    out += "\nfaults applied:";
+    for (const v1::Count& f : report.faults_applied()) absl::StrAppend(&out, " ", f.name(), " ×", f.count(), ";");
+    out.back() = '\n';
   }
   for (const auto& s : report.invariants()) {
     if (s.runs_failed() > 0) {
@@ -215,16 +278,21 @@ inline std::string SuiteSummaryHtml(const v1::SuiteReport& report) {
   fact("suite digest", report.suite_digest());
   fact("connector", connector);
   fact("connector sha256", report.connector_sha256());
+  if (!report.profile().empty()) fact("profile (every scenario)", report.profile());
   fact("weir", report.weir_version());
   fact("shard", absl::StrCat(report.shard_index(), "/", report.shard_count()));
   fact("runs", absl::StrCat(report.runs_size(), " of ", report.pairs_total(), " pairs: ",
                             report.runs_size() - static_cast<int>(failed), " passed, ", failed, " failed",
                             report.complete() ? "" : absl::StrCat(" (INCOMPLETE: ", report.stopped_because(), ")")));
-  out += "</table>\n<table class=\"invariants\">\n<tr><th>invariant</th><th>runs passed</th><th>runs failed</th>"
-         "<th>first failing seed</th><th>replay</th></tr>\n";
+  out += "</table>\n<table class=\"invariants\">\n<tr><th>invariant</th><th>verdict</th><th>chances</th>"
+         "<th>runs passed</th><th>runs failed</th><th>first failing seed</th><th>replay</th></tr>\n";
   for (const auto& s : report.invariants()) {
     const bool bad = s.runs_failed() > 0;
-    absl::StrAppend(&out, "<tr><td>", EscapeMarkup(s.invariant()), "</td><td>", s.runs_passed(),
+    const std::string word = CoverageWord(s);
+    absl::StrAppend(&out, "<tr><td>", EscapeMarkup(s.invariant()), "</td><td class=\"",
+                    bad ? "failed" : word == "held" ? "passed" : "unexercised", "\">", word, "</td><td>",
+                    s.runs_judged() > 0 ? absl::StrCat(s.chances()) : std::string("&#8211;"), "</td><td>",
+                    s.runs_passed(),
                     "</td><td class=\"", bad ? "failed" : "passed", "\">", s.runs_failed(), "</td><td>",
                     bad ? EscapeMarkup(absl::StrCat(s.first_failing_scenario(), " seed ", s.first_failing_seed()))
                         : std::string("&#8211;"),

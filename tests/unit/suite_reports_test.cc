@@ -81,6 +81,10 @@ v1::SuiteReport RandomReport(std::mt19937_64& rng, int runs) {
   r.set_shard_index(r.shard_count() == 1 ? 0 : static_cast<std::uint32_t>(rng() % 3));
   r.set_pairs_total(static_cast<std::uint64_t>(runs) * r.shard_count() + (coin(0.2) ? 1 : 0));
   r.set_complete(coin(0.7));
+  if (coin(0.5)) {
+    r.set_profile(pick({"profiles/claimed <lateness>.profile", "event_time_strict.profile"}));
+    r.set_profile_sha256(std::to_string(rng()));
+  }
   if (!r.complete()) r.set_stopped_because(pick({"interrupted by a signal", "stopped after 3 failed runs"}));
   for (int i = 0; i < runs; ++i) {
     v1::RunRecord* run = r.add_runs();
@@ -95,6 +99,13 @@ v1::SuiteReport RandomReport(std::mt19937_64& rng, int runs) {
       run->set_passed(false);
       run->set_harness_error(pick({"connector exited before serving: <status 127>", "cannot bind \"port\" & co"}));
       continue;
+    }
+    // Coverage: some invariants judged (chances, often none), some faults.
+    for (int k = 0; k < kInvariantCount; ++k) {
+      if (coin(0.5)) AddCount(run->mutable_chances(), InvariantName(static_cast<Invariant>(k)), coin(0.3) ? 0 : rng() % 1000);
+    }
+    for (const char* fault : {"crash at IN_NOTICE", "latency_ms at <ACK> & \"x\"", "throttle_retry_after_ms at PULL"}) {
+      if (coin(0.4)) AddCount(run->mutable_faults_applied(), fault, 1 + rng() % 5);
     }
     run->set_passed(coin(0.6));
     if (run->passed()) continue;
@@ -148,6 +159,8 @@ TEST(SuiteReports, StreamedFromARunLogTheyAreByteIdenticalToTheWholeReportOnes) 
       head.clear_runs();
       head.clear_invariants();
       *head.mutable_invariants() = tally.invariants();
+      head.clear_faults_applied();
+      for (const auto& [fault, n] : tally.faults_applied()) AddCount(head.mutable_faults_applied(), fault, n);
       ASSERT_EQ(head.invariants_size(), report.invariants_size());
       for (int i = 0; i < head.invariants_size(); ++i) {
         EXPECT_TRUE(google::protobuf::util::MessageDifferencer::Equals(head.invariants(i), report.invariants(i)))
