@@ -222,7 +222,7 @@ std::string SuiteSummaryHtml(const v1::SuiteReport& head, const SuiteTally& tall
     const bool bad = s.runs_failed() > 0;
     const std::string word = CoverageWord(s);
     absl::StrAppend(&out, "<tr><td>", EscapeMarkup(s.invariant()), "</td><td class=\"",
-                    bad ? "failed" : word == "held" ? "passed" : "unexercised", "\">", word, "</td><td>",
+                    bad ? "verdict failed" : word == "held" ? "verdict passed" : "verdict unexercised", "\">", word, "</td><td>",
                     s.runs_judged() > 0 ? absl::StrCat(s.chances()) : std::string("&#8211;"), "</td><td>",
                     s.runs_passed(),
                     "</td><td class=\"", bad ? "failed" : "passed", "\">", s.runs_failed(), "</td><td>",

@@ -40,7 +40,7 @@ sys.exit(0 if ok else 1)' "$WORK/q.json"
 check "JUnit: not_exercised property names throttle-violation" \
   grep -qE '<property name="not_exercised" value="[^"]*throttle-violation' "$WORK/q.xml"
 check "JUnit: coverage property per judged rule" grep -q '<property name="coverage.step-timeout" value="held; ' "$WORK/q.xml"
-check "HTML: not exercised in the verdict column" grep -q 'class="unexercised">not exercised<' "$WORK/q.html"
+check "HTML: not exercised in the verdict column" grep -q 'class="verdict unexercised">not exercised<' "$WORK/q.html"
 check "certificate lists throttle-violation as not exercised" /usr/bin/python3 -c '
 import json, sys
 c = json.load(open(sys.argv[1]))

@@ -66,7 +66,7 @@ mutant() {  # mutant NAME INVARIANT
     --max-failures 1 --progress none >"$out" 2>&1
   local rc=$?
   check "mutant_$1 certify exits 1 (got $rc)" test $rc -eq 1
-  check "mutant_$1 fails $2" grep -Eq "^$2 +[0-9]+ +[1-9][0-9]* " "$out"
+  check "mutant_$1 fails $2" grep -Eq "^$2 +FAILED +[0-9]+ +[1-9][0-9]* " "$out"
   [ $rc -eq 1 ] || tail -n 20 "$out"
 }
 mutant ack_on_pull ack-before-commit
