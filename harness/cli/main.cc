@@ -18,6 +18,7 @@
 #include "absl/strings/str_cat.h"
 #include "harness/cli/bundled_files.h"
 #include "harness/cli/command_line.h"
+#include "harness/cli/search_command.h"
 #include "harness/cli/shrink_command.h"
 #include "harness/cli/stop_signal.h"
 #include "harness/cli/suite_commands.h"
@@ -384,6 +385,8 @@ int main(int argc, char** argv) {
   AddSuiteCommands(app, suite_commands);
   ShrinkFlags shrink_flags;
   AddShrinkCommand(app, shrink_flags);
+  SearchFlags search_flags;
+  AddSearchCommand(app, search_flags);
 
   std::vector<std::string> lint_files;
   CLI::App* lint = app.add_subcommand("lint", "Validate scenario (.scenario) and plan (.plan) files");
@@ -414,6 +417,8 @@ int main(int argc, char** argv) {
   run_flags.profile = ResolveBundled(run_flags.profile, BundledKind::kProfile);
   shrink_flags.scenario = ResolveBundled(shrink_flags.scenario, BundledKind::kScenario);
   shrink_flags.profile = ResolveBundled(shrink_flags.profile, BundledKind::kProfile);
+  for (std::string& s : search_flags.scenarios) s = ResolveBundled(s, BundledKind::kScenario);
+  search_flags.profile = ResolveBundled(search_flags.profile, BundledKind::kProfile);
   suite_commands.suite = ResolveBundled(suite_commands.suite, BundledKind::kSuite);
   suite_commands.profile = ResolveBundled(suite_commands.profile, BundledKind::kProfile);
   if (run->parsed()) {
@@ -425,5 +430,6 @@ int main(int argc, char** argv) {
   if (explain->parsed()) return ExplainCommand(explain_trace, explain_html);
   if (int rc = RunSuiteCommand(suite_commands); rc >= 0) return rc;
   if (int rc = RunShrinkCommand(shrink_flags); rc >= 0) return rc;
+  if (int rc = RunSearchCommand(search_flags); rc >= 0) return rc;
   return kExitUsage;
 }

@@ -1,0 +1,244 @@
+#include "harness/cli/search_command.h"
+
+#include <unistd.h>
+
+#include <chrono>
+#include <cstdio>
+#include <filesystem>
+
+#include <google/protobuf/text_format.h>
+
+#include "absl/strings/str_cat.h"
+#include "absl/strings/str_join.h"
+#include "harness/cli/command_line.h"
+#include "harness/cli/stop_signal.h"
+#include "harness/edge/grpc_run.h"
+#include "harness/scenario/plan_file.h"
+#include "harness/scenario/profile_file.h"
+#include "harness/scenario/scenario_file.h"
+#include "harness/scenario/text_file.h"
+#include "harness/search/guided_search.h"
+#include "harness/suite/certify.h"
+
+namespace weir {
+namespace {
+
+constexpr int kNothingFound = 0, kFound = 1, kUsage = 2, kHarness = 3;
+
+int Usage(const std::string& message) {
+  std::fprintf(stderr, "weir: %s\n", message.c_str());
+  return kUsage;
+}
+
+std::string Names(const std::vector<Invariant>& invariants) {
+  std::vector<std::string> names;
+  for (Invariant i : invariants) names.push_back(InvariantName(i));
+  return absl::StrJoin(names, ", ");
+}
+
+// The scenario a candidate runs: the loaded one, with its swarm's fault kinds
+// switched off.
+v1::Scenario AsRun(const v1::Scenario& scenario, const SearchCandidate& c) {
+  v1::Scenario s = scenario;
+  SwitchOff(c.switched_off, s.mutable_faults());
+  return s;
+}
+
+// A finding as one scenario file: the scenario as it ran, every drawn fault
+// switched off and the failing plan as scripted decisions (applied in draw
+// mode exactly as the plan is in plan mode), so `weir run --scenario F --seed
+// S` and a suite naming it replay the failing run without a plan file.
+v1::Scenario Replayable(const v1::Scenario& as_run, const v1::FaultPlan& plan) {
+  v1::Scenario s = as_run;
+  SwitchOff(RatesOn(s.faults()), s.mutable_faults());
+  // Throttling by a token bucket or windows is the broker's behaviour, not a
+  // decision in the plan: keep it as it ran.
+  if (as_run.faults().has_token_bucket()) *s.mutable_faults()->mutable_token_bucket() = as_run.faults().token_bucket();
+  *s.mutable_faults()->mutable_throttle_windows() = as_run.faults().throttle_windows();
+  s.mutable_faults()->clear_scripted();
+  for (const auto& d : plan.decisions()) *s.mutable_faults()->add_scripted() = d;
+  return s;
+}
+
+}  // namespace
+
+void AddSearchCommand(CLI::App& app, SearchFlags& f) {
+  CLI::App* c = app.add_subcommand(
+      "search", "Spend a budget of runs looking for a failure, guided by coverage (or --blind seeds)");
+  f.command = c;
+  c->add_option("--scenario", f.scenarios, "Scenario file (repeat for several), or a bundled scenario's name")
+      ->required();
+  c->add_option("inputs", f.inputs, "The connector command after --");
+  c->add_option("--connector", f.connector, "Connector command 'CMD ARGS…' (no shell)");
+  c->add_option("--profile", f.profile, "Profile file overriding every scenario's (the connector's claim)");
+  c->add_option("--transport", f.transport, "tcp (loopback, default) or unix");
+  c->add_option("--budget", f.budget, "Runs to spend at most (default 200)");
+  c->add_option("--search-seed", f.search_seed, "Seed of the search's own choices (default 1)");
+  c->add_option("--first-seed", f.first_seed, "First run seed drawn (default 1)");
+  c->add_flag("--blind", f.blind, "Blind seeds with every fault kind on (the baseline), no feedback");
+  c->add_flag("--collect", f.collect, "Go on after the first failure: one finding per distinct set of failures");
+  c->add_option("--out", f.out, "Directory for the findings (default weir-search)");
+  c->add_option("--coverage", f.coverage, "Write the features seen after each run here (one count per line)");
+  c->add_option("--max-seconds", f.max_seconds, "Start no run after this much wall time (default 600; 0: no limit)");
+  c->add_option("--progress", f.progress, "auto (one updating line on a terminal), lines or none");
+}
+
+int RunSearchCommand(SearchFlags& f) {
+  if (f.command == nullptr || !f.command->parsed()) return -1;
+  Transport transport;
+  if (f.transport == "tcp") {
+    transport = Transport::kTcp;
+  } else if (f.transport == "unix") {
+    transport = Transport::kUnix;
+  } else {
+    return Usage("--transport is '" + f.transport + "'; expected tcp or unix");
+  }
+  if (f.progress != "auto" && f.progress != "lines" && f.progress != "none") {
+    return Usage("--progress is '" + f.progress + "'; expected auto, lines or none");
+  }
+  if (f.budget == 0) return Usage("--budget is 0; expected at least one run");
+  if (f.max_seconds < 0) return Usage("--max-seconds must be >= 0");
+  if (f.out.empty()) return Usage("--out is empty; expected a directory for the findings");
+  if (absl::Status st = CheckOutputPath("--coverage", f.coverage); !st.ok()) return Usage(std::string(st.message()));
+  std::vector<std::string> argv;
+  if (!f.connector.empty() && !f.inputs.empty()) {
+    return Usage("give the connector either as --connector 'CMD ARGS' or after --, not both");
+  }
+  if (!f.connector.empty()) {
+    auto split = SplitCommandLine(f.connector);
+    if (!split.ok()) return Usage(absl::StrCat("--connector ", split.status().message()));
+    argv = *split;
+  } else {
+    argv = f.inputs;
+  }
+  if (argv.empty()) return Usage("no connector command; expected --connector 'CMD ARGS…'");
+  if (!ResolveExecutable(argv[0]).has_value()) {
+    return Usage("--connector: '" + argv[0] + "' is not an executable file (nor found on PATH)");
+  }
+  std::optional<v1::Profile> profile;
+  if (!f.profile.empty()) {
+    auto p = LoadProfile(f.profile);
+    if (!p.ok()) {
+      std::fprintf(stderr, "%s\n", std::string(p.status().message()).c_str());
+      return kUsage;
+    }
+    profile = std::move(*p);
+  }
+  std::vector<v1::Scenario> scenarios;
+  SearchOptions options;
+  for (const std::string& path : f.scenarios) {
+    auto s = LoadScenario(path);
+    if (!s.ok()) {
+      std::fprintf(stderr, "%s\n", std::string(s.status().message()).c_str());
+      return kUsage;
+    }
+    if (profile.has_value()) *s->mutable_profile() = *profile;
+    options.scenarios.push_back(SearchScenario{RatesOn(s->faults())});
+    scenarios.push_back(std::move(*s));
+  }
+  std::error_code ec;
+  std::filesystem::create_directories(f.out, ec);
+  if (ec || !std::filesystem::is_directory(f.out)) {
+    return Usage(absl::StrCat("--out: cannot create directory '", f.out, "': ", ec.message()));
+  }
+
+  const std::atomic<bool>* stop = InstallStopSignals();
+  const auto start = std::chrono::steady_clock::now();
+  const auto elapsed = [&] { return std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count(); };
+  options.budget = f.budget;
+  options.seed = f.search_seed;
+  options.first_seed = f.first_seed;
+  options.blind = f.blind;
+  options.collect = f.collect;
+  options.stop = [&] { return stop->load() || (f.max_seconds > 0 && elapsed() >= f.max_seconds); };
+  const bool tty = f.progress == "auto" && ::isatty(STDOUT_FILENO);
+  options.progress = [&](const SearchProgress& p) {
+    if (f.progress == "none") return;
+    if (tty) {
+      std::printf("\rsearch: %llu/%llu runs, %zu features, corpus %zu, %zu failure(s) ",
+                  static_cast<unsigned long long>(p.runs), static_cast<unsigned long long>(f.budget), p.features,
+                  p.corpus, p.findings);
+    } else if (p.runs % 10 == 0 || p.findings > 0) {
+      std::printf("search: %llu/%llu runs, %zu features, corpus %zu, %zu failure(s)\n",
+                  static_cast<unsigned long long>(p.runs), static_cast<unsigned long long>(f.budget), p.features,
+                  p.corpus, p.findings);
+    }
+    std::fflush(stdout);
+  };
+
+  std::printf("weir search: %zu scenario(s), budget %llu runs, %s, connector %s\n", scenarios.size(),
+              static_cast<unsigned long long>(f.budget), f.blind ? "blind seeds" : "guided by coverage",
+              ShellJoin(argv).c_str());
+  std::fflush(stdout);
+  auto result = GuidedSearch(options, [&](const SearchCandidate& c) -> absl::StatusOr<SearchFeedback> {
+    RunSpec spec;
+    spec.scenario = AsRun(scenarios[c.scenario], c);
+    spec.scenario_path = f.scenarios[c.scenario];
+    spec.seed = c.seed;
+    spec.connector_argv = argv;
+    spec.transport = transport;
+    spec.plan = c.plan;
+    spec.stop = stop;
+    auto out = RunOverGrpc(spec);
+    if (!out.ok()) return out.status();
+    return SearchFeedback{FailedByCause(out->verdict), FeaturesOf(out->verdict), out->plan};
+  });
+  if (tty) std::printf("\n");
+  if (stop->load()) {
+    std::fprintf(stderr, "weir: interrupted by signal %d: the connector was killed\n", StopSignal());
+    return kExitInterrupted;
+  }
+  if (!result.ok()) {
+    std::fprintf(stderr, "weir: harness fault: %s\n", std::string(result.status().message()).c_str());
+    return kHarness;
+  }
+  if (!f.coverage.empty()) {
+    std::string text;
+    for (std::size_t n : result->features_after_run) absl::StrAppend(&text, n, "\n");
+    if (absl::Status st = WriteFileAtomically(f.coverage, text); !st.ok()) {
+      std::fprintf(stderr, "weir: %s\n", std::string(st.message()).c_str());
+      return kHarness;
+    }
+  }
+  std::printf("%llu runs, %zu features seen, corpus of %zu plans, %.1f s\n",
+              static_cast<unsigned long long>(result->runs), result->features, result->corpus, elapsed());
+  if (result->findings.empty()) {
+    std::printf("no failure found within the budget.\n");
+    return kNothingFound;
+  }
+  int k = 0;
+  for (const SearchFinding& found : result->findings) {
+    ++k;
+    const v1::Scenario as_run = AsRun(scenarios[found.candidate.scenario], found.candidate);
+    const v1::Scenario replayable = Replayable(as_run, *found.candidate.plan);
+    const std::string base = absl::StrCat(f.out, "/find-", k);
+    std::string scenario_text;
+    google::protobuf::TextFormat::PrintToString(replayable, &scenario_text);
+    scenario_text = absl::StrCat("# Found by weir search (run ", found.run, ") from ", f.scenarios[found.candidate.scenario],
+                                 ", seed ", found.candidate.seed, ": fails ", Names(found.failed),
+                                 ".\n# Drawn faults are off; the failing run's fault plan is scripted below.\n",
+                                 scenario_text);
+    const std::string suite_text =
+        absl::StrCat("# Regression suite for find-", k, " (weir search): fails ", Names(found.failed), ".\nname: \"find-", k,
+                     "\"\nscenarios: [\"find-", k, ".scenario\"]\nseeds: 1\nfirst_seed: ", found.candidate.seed, "\n");
+    for (const auto& [path, text] :
+         {std::pair{base + ".scenario", scenario_text}, std::pair{base + ".suite", suite_text},
+          std::pair{base + ".plan",
+                    FormatFaultPlan(*found.candidate.plan, absl::StrCat("found by weir search: fails ", Names(found.failed)))}}) {
+      if (absl::Status st = WriteFileAtomically(path, text); !st.ok()) {
+        std::fprintf(stderr, "weir: %s\n", std::string(st.message()).c_str());
+        return kHarness;
+      }
+    }
+    std::printf("\nFOUND %s at run %llu (%s, seed %llu, %d fault decisions)\n  files:   %s.{scenario,plan,suite}\n",
+                Names(found.failed).c_str(), static_cast<unsigned long long>(found.run),
+                f.scenarios[found.candidate.scenario].c_str(), static_cast<unsigned long long>(found.candidate.seed),
+                found.candidate.plan->decisions_size(), base.c_str());
+    std::printf("  replay:  %s\n", ReplayLine(base + ".scenario", found.candidate.seed, transport, "", "", argv).c_str());
+    std::printf("  certify: %s certify --suite %s --connector %s\n", WeirProgram().c_str(),
+                ShellQuote(base + ".suite").c_str(), ShellQuote(ShellJoin(argv)).c_str());
+  }
+  return kFound;
+}
+
+}  // namespace weir
