@@ -9,10 +9,13 @@
 #include <google/protobuf/text_format.h>
 
 #include "absl/strings/str_cat.h"
+#include "absl/strings/str_format.h"
 #include "absl/strings/str_join.h"
 #include "harness/cli/command_line.h"
 #include "harness/cli/stop_signal.h"
 #include "harness/edge/grpc_run.h"
+#include "harness/report/html_timeline.h"
+#include "harness/report/markup_escape.h"
 #include "harness/scenario/plan_file.h"
 #include "harness/scenario/profile_file.h"
 #include "harness/scenario/scenario_file.h"
@@ -60,6 +63,36 @@ v1::Scenario Replayable(const v1::Scenario& as_run, const v1::FaultPlan& plan) {
   return s;
 }
 
+// The HTML page: features seen against runs (an SVG line), and the findings
+// with their replay lines. Everything shown is escaped.
+std::string SearchHtml(const SearchResult& r, const std::vector<std::string>& finding_lines, bool blind) {
+  constexpr double kW = 640, kH = 240, kPad = 40;
+  const std::size_t n = r.features_after_run.size();
+  const std::size_t top = std::max<std::size_t>(1, n == 0 ? 1 : r.features_after_run.back());
+  std::string points;
+  for (std::size_t i = 0; i < n; ++i) {
+    const double x = kPad + (kW - 2 * kPad) * (n == 1 ? 0.0 : static_cast<double>(i) / static_cast<double>(n - 1));
+    const double y = kH - kPad - (kH - 2 * kPad) * static_cast<double>(r.features_after_run[i]) / static_cast<double>(top);
+    absl::StrAppend(&points, i == 0 ? "" : " ", absl::StrFormat("%.1f,%.1f", x, y));
+  }
+  std::string body = absl::StrCat(
+      "<h1>weir search</h1>\n<p>", r.runs, " runs (", blind ? "blind seeds" : "guided by coverage", "), ", r.features,
+      " features seen, corpus of ", r.corpus, " plans, ", r.findings.size(), " finding(s).</p>\n",
+      "<svg class=\"coverage\" width=\"", kW, "\" height=\"", kH, "\" viewBox=\"0 0 ", kW, " ", kH,
+      "\" xmlns=\"http://www.w3.org/2000/svg\" role=\"img\"><title>features seen against runs</title>",
+      "<line x1=\"", kPad, "\" y1=\"", kH - kPad, "\" x2=\"", kW - kPad, "\" y2=\"", kH - kPad,
+      "\" stroke=\"#888\"/><line x1=\"", kPad, "\" y1=\"", kPad, "\" x2=\"", kPad, "\" y2=\"", kH - kPad,
+      "\" stroke=\"#888\"/><text x=\"", kW / 2, "\" y=\"", kH - 8, "\" text-anchor=\"middle\">runs (", n,
+      ")</text><text x=\"8\" y=\"", kPad - 10, "\">features (", top, ")</text>",
+      "<polyline fill=\"none\" stroke=\"#07a\" stroke-width=\"2\" points=\"", points, "\"/></svg>\n");
+  if (!finding_lines.empty()) {
+    body += "<h2>Findings</h2>\n<ul>\n";
+    for (const std::string& line : finding_lines) absl::StrAppend(&body, "<li><code>", EscapeMarkup(line), "</code></li>\n");
+    body += "</ul>\n";
+  }
+  return HtmlPage("weir search", body);
+}
+
 }  // namespace
 
 void AddSearchCommand(CLI::App& app, SearchFlags& f) {
@@ -79,6 +112,7 @@ void AddSearchCommand(CLI::App& app, SearchFlags& f) {
   c->add_flag("--collect", f.collect, "Go on after the first failure: one finding per distinct set of failures");
   c->add_option("--out", f.out, "Directory for the findings (default weir-search)");
   c->add_option("--coverage", f.coverage, "Write the features seen after each run here (one count per line)");
+  c->add_option("--html", f.html, "Write an HTML page here: coverage against runs, and the findings");
   c->add_option("--max-seconds", f.max_seconds, "Start no run after this much wall time (default 600; 0: no limit)");
   c->add_option("--progress", f.progress, "auto (one updating line on a terminal), lines or none");
 }
@@ -99,7 +133,9 @@ int RunSearchCommand(SearchFlags& f) {
   if (f.budget == 0) return Usage("--budget is 0; expected at least one run");
   if (f.max_seconds < 0) return Usage("--max-seconds must be >= 0");
   if (f.out.empty()) return Usage("--out is empty; expected a directory for the findings");
-  if (absl::Status st = CheckOutputPath("--coverage", f.coverage); !st.ok()) return Usage(std::string(st.message()));
+  for (const auto& [flag, path] : {std::pair{"--coverage", f.coverage}, std::pair{"--html", f.html}}) {
+    if (absl::Status st = CheckOutputPath(flag, path); !st.ok()) return Usage(std::string(st.message()));
+  }
   std::vector<std::string> argv;
   if (!f.connector.empty() && !f.inputs.empty()) {
     return Usage("give the connector either as --connector 'CMD ARGS' or after --, not both");
@@ -202,9 +238,18 @@ int RunSearchCommand(SearchFlags& f) {
   }
   std::printf("%llu runs, %zu features seen, corpus of %zu plans, %.1f s\n",
               static_cast<unsigned long long>(result->runs), result->features, result->corpus, elapsed());
+  std::vector<std::string> finding_lines;
+  const auto write_html = [&]() -> bool {
+    if (f.html.empty()) return true;
+    if (absl::Status st = WriteFileAtomically(f.html, SearchHtml(*result, finding_lines, f.blind)); !st.ok()) {
+      std::fprintf(stderr, "weir: %s\n", std::string(st.message()).c_str());
+      return false;
+    }
+    return true;
+  };
   if (result->findings.empty()) {
     std::printf("no failure found within the budget.\n");
-    return kNothingFound;
+    return write_html() ? kNothingFound : kHarness;
   }
   int k = 0;
   for (const SearchFinding& found : result->findings) {
@@ -234,11 +279,13 @@ int RunSearchCommand(SearchFlags& f) {
                 Names(found.failed).c_str(), static_cast<unsigned long long>(found.run),
                 f.scenarios[found.candidate.scenario].c_str(), static_cast<unsigned long long>(found.candidate.seed),
                 found.candidate.plan->decisions_size(), base.c_str());
-    std::printf("  replay:  %s\n", ReplayLine(base + ".scenario", found.candidate.seed, transport, "", "", argv).c_str());
+    const std::string replay = ReplayLine(base + ".scenario", found.candidate.seed, transport, "", "", argv);
+    finding_lines.push_back(absl::StrCat(Names(found.failed), " at run ", found.run, ": ", replay));
+    std::printf("  replay:  %s\n", replay.c_str());
     std::printf("  certify: %s certify --suite %s --connector %s\n", WeirProgram().c_str(),
                 ShellQuote(base + ".suite").c_str(), ShellQuote(ShellJoin(argv)).c_str());
   }
-  return kFound;
+  return write_html() ? kFound : kHarness;
 }
 
 }  // namespace weir

@@ -9,7 +9,8 @@
 // decisions, so it replays without a plan file), find-K.plan (the plan, for
 // weir run --plan and weir shrink) and find-K.suite (certify's regression
 // suite for it), with the replay and certify lines printed. --coverage FILE
-// writes the features seen after each run (one number per line) for a plot.
+// writes the features seen after each run (one number per line); --html a
+// page that plots them against the runs and lists the findings.
 //
 // Exit codes: 0 no failure found within the budget; 1 a failure was found
 // (files written); 2 usage or input error; 3 harness fault; 4 interrupted.
@@ -37,6 +38,7 @@ struct SearchFlags {
   bool collect = false;
   std::string out = "weir-search";
   std::string coverage;
+  std::string html;
   double max_seconds = 600;
   std::string progress = "auto";
 };
