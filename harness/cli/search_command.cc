@@ -53,12 +53,9 @@ v1::Scenario AsRun(const v1::Scenario& scenario, const SearchCandidate& c) {
 // S` and a suite naming it replay the failing run without a plan file.
 v1::Scenario Replayable(const v1::Scenario& as_run, const v1::FaultPlan& plan) {
   v1::Scenario s = as_run;
-  SwitchOff(RatesOn(s.faults()), s.mutable_faults());
-  // Throttling by a token bucket or windows is the broker's behaviour, not a
-  // decision in the plan: keep it as it ran.
-  if (as_run.faults().has_token_bucket()) *s.mutable_faults()->mutable_token_bucket() = as_run.faults().token_bucket();
-  *s.mutable_faults()->mutable_throttle_windows() = as_run.faults().throttle_windows();
-  s.mutable_faults()->clear_scripted();
+  // Every fault the run applied is a decision of its plan — throttles drawn
+  // from a token bucket or window too — so nothing else may be drawn.
+  s.mutable_faults()->Clear();
   for (const auto& d : plan.decisions()) *s.mutable_faults()->add_scripted() = d;
   return s;
 }

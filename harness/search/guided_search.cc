@@ -3,6 +3,7 @@
 #include <algorithm>
 #include <cmath>
 
+#include "absl/container/flat_hash_map.h"
 #include "absl/container/flat_hash_set.h"
 #include "absl/strings/match.h"
 #include "absl/strings/str_cat.h"
@@ -27,6 +28,7 @@ struct Entry {
   std::size_t scenario;
   std::uint64_t seed;
   v1::FaultPlan plan;
+  std::vector<std::string> features;
 };
 
 // A key for "this exact run was tried": scenario, seed, and the plan or the
@@ -60,8 +62,11 @@ class Search {
       if (!fb.ok()) return fb.status();
       ++result_.runs;
       bool is_new = false;
-      for (const std::string& f : fb->features) is_new |= seen_.insert(f).second;
-      if (is_new && !options_.blind) corpus_.push_back(Entry{c.scenario, c.seed, fb->plan});
+      for (const std::string& f : fb->features) {
+        is_new |= seen_.insert(f).second;
+        ++hits_[f];
+      }
+      if (is_new && !options_.blind) corpus_.push_back(Entry{c.scenario, c.seed, fb->plan, fb->features});
       result_.features_after_run.push_back(seen_.size());
       if (!fb->failed.empty()) {
         std::vector<Invariant> failed = fb->failed;
@@ -94,15 +99,19 @@ class Search {
 
   SearchCandidate Next() {
     SearchCandidate c;
-    c.scenario = Below(options_.scenarios.size());
-    if (options_.blind) {
+    // Fresh draws visit the scenarios in turn, each with the next seed.
+    const auto fresh = [&] {
+      c.scenario = next_scenario_++ % options_.scenarios.size();
       c.seed = options_.first_seed + next_seed_++;
+    };
+    if (options_.blind) {
+      fresh();
       return c;
     }
-    // Explore (a fresh seed, a swarm of fault kinds) a third of the time, and
-    // whenever there is nothing to mutate yet; else mutate a corpus plan.
-    if (corpus_.empty() || Coin(1.0 / 3)) {
-      c.seed = options_.first_seed + next_seed_++;
+    // Explore (a fresh seed, maybe a swarm of fault kinds) half of the time,
+    // and whenever there is nothing to mutate yet; else mutate a corpus plan.
+    if (corpus_.empty() || Coin(0.5)) {
+      fresh();
       // Half of the fresh draws keep every kind on; the others are a swarm.
       if (Coin(0.5)) {
         for (const std::string& f : options_.scenarios[c.scenario].rates_on) {
@@ -111,9 +120,22 @@ class Search {
       }
       return c;
     }
-    // Newer entries first: they carry the most recent news.
+    // Half of the time the entry with the rarest feature (seen in the fewest
+    // runs; ties: the newest), else any: rare situations are closest to the
+    // states no run has explored yet.
     const std::size_t n = corpus_.size();
-    const std::size_t pick = Coin(0.5) ? n - 1 - Below(std::min<std::size_t>(n, 4)) : Below(n);
+    std::size_t pick = Below(n);
+    if (Coin(0.5)) {
+      std::uint64_t best = ~std::uint64_t{0};
+      for (std::size_t i = 0; i < n; ++i) {
+        std::uint64_t rarest = ~std::uint64_t{0};
+        for (const std::string& f : corpus_[i].features) rarest = std::min<std::uint64_t>(rarest, hits_[f]);
+        if (rarest <= best) {
+          best = rarest;
+          pick = i;
+        }
+      }
+    }
     const Entry& e = corpus_[pick];
     c.scenario = e.scenario;
     c.seed = e.seed;
@@ -127,7 +149,7 @@ class Search {
   void Mutate(v1::FaultPlan* plan, std::size_t scenario) {
     auto* ds = plan->mutable_decisions();
     const int size = ds->size();
-    switch (Below(5)) {
+    switch (Below(6)) {
       case 0:  // drop one
         if (size > 1) {
           ds->DeleteSubrange(static_cast<int>(Below(static_cast<std::uint64_t>(size))), 1);
@@ -159,6 +181,22 @@ class Search {
         *ds->Add() = std::move(d);
         return;
       }
+      case 4: {  // pair up: a decision of this or another plan, right next to one of this plan's
+        if (size == 0) break;
+        const v1::FaultDecision& anchor = ds->Get(static_cast<int>(Below(static_cast<std::uint64_t>(size))));
+        std::vector<const v1::FaultDecision*> same_site;
+        for (const Entry& e : corpus_) {
+          if (e.scenario != scenario) continue;
+          for (const auto& d : e.plan.decisions()) {
+            if (d.site() == anchor.site() && d.fault_case() != anchor.fault_case()) same_site.push_back(&d);
+          }
+        }
+        if (same_site.empty()) break;
+        v1::FaultDecision d = *same_site[Below(same_site.size())];
+        d.set_position(anchor.position() + 1);  // the very next call or step
+        *ds->Add() = std::move(d);
+        return;
+      }
       default: {  // weaken one
         if (size == 0) break;
         auto* d = ds->Mutable(static_cast<int>(Below(static_cast<std::uint64_t>(size))));
@@ -182,8 +220,10 @@ class Search {
   const SearchRun& run_;
   PrngStream rng_;
   std::uint64_t next_seed_ = 0;
+  std::uint64_t next_scenario_ = 0;
   std::vector<Entry> corpus_;
   absl::flat_hash_set<std::string> seen_;
+  absl::flat_hash_map<std::string, std::uint64_t> hits_;  // runs that showed each feature
   absl::flat_hash_set<std::string> tried_;
   std::set<std::string> distinct_;
   SearchResult result_;

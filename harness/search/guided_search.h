@@ -19,9 +19,11 @@
 // joins the corpus with the plan it actually applied. Mutations of a corpus
 // plan: drop a decision, move one (its position ±1..3), copy one from another
 // corpus plan of the same scenario (two faults that were each seen alone meet
-// in one run), copy one to another position, weaken one (halve a latency,
-// delay or retry-after). Blind mode (`blind`) draws seed after seed with every
-// fault kind on, for comparison.
+// in one run), pair one up (a decision of another kind at the same site put at
+// the very next position after one of the plan's), copy one to another
+// position, weaken one (halve a latency, delay or retry-after). Fresh draws (half of the runs) visit the scenarios in
+// turn. Blind mode (`blind`) draws seed after seed, the scenarios in turn, with
+// every fault kind on, for comparison.
 //
 // The search stops at the first failing run (or, with `collect`, goes on and
 // keeps one finding per distinct set of failed invariants) or when the budget

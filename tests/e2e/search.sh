@@ -3,9 +3,9 @@
 # it as a scenario, a plan and a suite that each replay it (same digest as the
 # run under the plan); the reference connector gives "no failure" (exit 0);
 # the coverage file grows with the runs; bad flags exit 2.
-# Usage: search.sh WEIR REFERENCE MUTANT_NO_DEDUP_IN_CHECKPOINT SCENARIO_DIR
+# Usage: search.sh WEIR REFERENCE MUTANT_NO_DEDUP_IN_CHECKPOINT IGNORE_RETRY_AFTER SCENARIO_DIR
 set -uo pipefail
-WEIR=$1 REF=$2 MUTANT=$3 SCEN=$4
+WEIR=$1 REF=$2 MUTANT=$3 THROTTLE_MUTANT=$4 SCEN=$5
 source "$(dirname "${BASH_SOURCE[0]}")/lib.sh"
 WORK=$(mktemp -d)
 trap 'rm -rf "$WORK"' EXIT
@@ -35,6 +35,19 @@ check "…and lists the finding" grep -q 'duplicate-output at run' "$WORK/s.html
 runs=$(sed -n 's/^\([0-9]*\) runs, .* features seen.*/\1/p' "$WORK/m.out")
 check "the coverage file has one line per run ($runs)" test "$(wc -l <"$WORK/cov.txt")" = "$runs"
 check "…never decreasing" awk 'NR > 1 && $1 < prev { exit 1 } { prev = $1 }' "$WORK/cov.txt"
+
+# Throttles drawn from a token bucket are decisions of the plan too: the
+# finding's scenario draws nothing else, and replays the run exactly.
+"$WEIR" search --scenario "$SCEN/throttle_storm_toll_gantries.scenario" --budget 30 --out "$WORK/thr" \
+  --progress none -- "$THROTTLE_MUTANT" >"$WORK/t.out" 2>&1
+check "throttle mutant: found (exit $?)" grep -q '^FOUND throttle-violation' "$WORK/t.out"
+tseed=$(sed -n 's/^FOUND .*, seed \([0-9]*\),.*/\1/p' "$WORK/t.out")
+"$WEIR" run --scenario "$WORK/thr/find-1.scenario" --seed "$tseed" --connector "$THROTTLE_MUTANT" >"$WORK/t1.out" 2>&1
+"$WEIR" run --scenario "$SCEN/throttle_storm_toll_gantries.scenario" --seed "$tseed" --plan "$WORK/thr/find-1.plan" \
+  --connector "$THROTTLE_MUTANT" >"$WORK/t2.out" 2>&1
+t1=$(awk '$1 == "digest" { print $2 }' "$WORK/t1.out")
+t2=$(awk '$1 == "digest" { print $2 }' "$WORK/t2.out")
+check "…its scenario replays the run under its plan ($t1)" test -n "$t1" -a "$t1" = "$t2"
 
 "$WEIR" search --scenario "$SCEN/steady_parcel_scanners.scenario" --budget 4 --out "$WORK/none" --progress none \
   --connector "$REF" >"$WORK/r.out" 2>&1
