@@ -169,14 +169,19 @@ absl::StatusOr<SuiteResult> Certify(const LoadedSuite& suite, const CertifyOptio
               rec.set_divergence(absl::StrCat("event #", compared.diverged_at, ": expected ", compared.expected_what,
                                               ", got ", compared.got_what));
             }
+            // A run that failed an invariant keeps that as its first
+            // violation (the bug it found); a passing one is failed here.
+            const bool had_violation = !rec.first_violation().empty();
             rec.set_passed(false);
             rec.add_failed_invariants(kNondeterministicOutcome);
-            rec.set_first_violation(absl::StrCat(
-                kNondeterministicOutcome, ": the same scenario, seed and connector gave trace digest ", out->digest,
-                ", then ", (*again)->digest,
-                rec.divergence().empty() ? std::string() : absl::StrCat("; first difference at ", rec.divergence()),
-                " (the connector reads the wall clock, uses unseeded randomness or races threads: its failures "
-                "cannot be replayed)"));
+            if (!had_violation) {
+              rec.set_first_violation(absl::StrCat(
+                  kNondeterministicOutcome, ": the same scenario, seed and connector gave trace digest ",
+                  out->digest, ", then ", (*again)->digest,
+                  rec.divergence().empty() ? std::string() : absl::StrCat("; first difference at ", rec.divergence()),
+                  " (the connector reads the wall clock, uses unseeded randomness or races threads: its failures "
+                  "cannot be replayed)"));
+            }
           }
         }
       }

@@ -19,9 +19,11 @@
 // Determinism recheck (recheck.h): a run in the sample, and with any rule
 // but none every run that failed an invariant, is run a second time right
 // after the first, with the same spec; when the two trace digests differ the
-// run fails as "nondeterministic" (kNondeterministicOutcome), its record naming both
-// digests and, when both traces were written (first_failures or
-// scratch_dir), the first differing event as `weir replay` finds it.
+// run fails as "nondeterministic" (kNondeterministicOutcome, added to its
+// failed_invariants), its record naming both digests and, when both traces
+// were written (first_failures or scratch_dir), the first differing event as
+// `weir replay` finds it. A run that had passed gets that as its first
+// violation; one that failed an invariant keeps its own.
 //
 // Thread safety: Certify() blocks; `progress` is called from worker threads
 // under an internal lock.

@@ -322,6 +322,7 @@ TEST(CertificateSignature, SignedCertificatesVerifyAndAnyEditOfAnyFieldIsRejecte
   // The signed bytes: the documented context, then the message without its signature.
   const std::string signed_bytes = CertificateSignedBytes(cert);
   EXPECT_EQ(signed_bytes.rfind("weir.v1.Certificate signature\n", 0), 0u);
+  EXPECT_EQ(kCertificateSignatureContext.size(), 30u);  // as docs/certificates.md says
   EXPECT_TRUE(trusted.Verify(signed_bytes, cert.signature()));
   // Ed25519 is deterministic (RFC 8032 section 5.1.6): the same bytes again.
   v1::Certificate again = FullCertificate();
