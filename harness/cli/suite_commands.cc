@@ -10,8 +10,8 @@
 #include <cstdlib>
 #include <fstream>
 #include <map>
-#include <optional>
 #include <memory>
+#include <optional>
 #include <thread>
 #include <variant>
 

@@ -83,7 +83,8 @@ absl::Status CreateExclusive(const std::string& path, mode_t mode, std::string_v
   const int fd = ::open(path.c_str(), O_WRONLY | O_CREAT | O_EXCL | O_NOFOLLOW | O_CLOEXEC, mode);
   if (fd < 0) {
     if (errno == EEXIST) return absl::AlreadyExistsError(absl::StrCat(path, ": already exists"));
-    return absl::InternalError(absl::StrCat(path, ": cannot create: ", std::strerror(errno)));
+    // A path that cannot be created is the caller's input error (exit 2).
+    return absl::InvalidArgumentError(absl::StrCat(path, ": cannot create: ", std::strerror(errno)));
   }
   absl::Status st = ::fchmod(fd, mode) == 0
                         ? WriteAll(fd, path, text)

@@ -76,7 +76,8 @@ class Ed25519Key {
 // `weir keygen`: a new key pair written to `path` (private, PKCS#8 PEM, mode
 // 0600, created exclusively: never through an existing file or link) and
 // `path`.pub (public, mode 0644). Either file existing is AlreadyExists
-// unless `force`, which replaces both. Returns the key.
+// unless `force`, which replaces both; a path that cannot be created is
+// InvalidArgument; a failed write is Internal. Returns the key.
 [[nodiscard]] absl::StatusOr<Ed25519Key> WriteNewKeyPair(const std::string& path, bool force);
 
 // A signing key file: PermissionDenied when group or others have any access
