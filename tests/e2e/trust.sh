@@ -137,7 +137,7 @@ check "merge refuses a world-readable signing key (exit 2)" test $? -eq 2
 # 8. The determinism recheck catches a connector that reads the wall clock:
 #    it passes every invariant, yet its runs cannot be replayed.
 "$WEIR" certify --suite "$TINY" --connector "$WALL" --progress none --jobs 2 --recheck all \
-  --certificate wall.cert --json wall.json --junit wall.xml --signing-key ci.key >wall.out 2>&1
+  --certificate wall.cert --json wall.json --junit wall.xml --html wall.html --signing-key ci.key >wall.out 2>&1
 rc=$?
 check "certify refuses the wall-clock connector (exit 1, got $rc)" test $rc -eq 1
 check "  no oracle invariant failed" bash -c "! grep -E '^[a-z-]+ +[0-9]+ +[1-9]' wall.out"
@@ -154,6 +154,11 @@ ok = runs and all(r["digest"] != r["recheck_digest"] and r["divergence"].startsw
                   and r["first_violation"].startswith("nondeterministic: ") for r in runs)
 sys.exit(0 if ok else 1)' wall.json
 check "JUnit shows it as a failure" grep -q '<failure type="nondeterministic"' wall.xml
+check "the HTML summary has the recheck row" grep -q 'determinism recheck.*9 rerun, [1-9][0-9]* diverged' wall.html
+# Without --html the traces compared go to a scratch directory instead of the
+# first-failure one: the first difference is found there too.
+"$WEIR" certify --suite "$TINY" --connector "$WALL" --progress none --jobs 2 --recheck all >wall-plain.out 2>&1
+check "without --html, too, the first differing event is named" grep -q '^  first difference: event #' wall-plain.out
 check "the certificate is not certified and counts the divergence" \
   test "$(field wall.cert certified)/$(field wall.cert runs_diverged)" = "False/$diverged"
 "$WEIR" verify wall.cert --connector-binary "$WALL" --trusted-key ci.key.pub >v-wall.out 2>&1
