@@ -11,7 +11,9 @@
 #include <fstream>
 #include <map>
 #include <memory>
+#include <optional>
 #include <thread>
+#include <variant>
 
 #include "absl/strings/numbers.h"
 #include "absl/strings/str_cat.h"
@@ -24,8 +26,11 @@
 #include "harness/report/markup_escape.h"
 #include "harness/scenario/profile_file.h"
 #include "harness/scenario/text_file.h"
+#include "harness/suite/certificate_trust.h"
 #include "harness/suite/certify.h"
+#include "harness/suite/recheck.h"
 #include "harness/suite/run_log.h"
+#include "harness/suite/signature.h"
 #include "harness/suite/suite_reports.h"
 #include "harness/trace/trace_format.h"
 
@@ -52,6 +57,26 @@ absl::StatusOr<std::string> FileSha256(const std::string& path) {
     h.Update(std::string_view(buf.data(), static_cast<std::size_t>(in.gcount())));
   }
   return h.HexDigest();
+}
+
+// --signing-key: the key, nullopt when not given, or the exit code of a
+// usage error (a key file others can read, not a key, no --certificate).
+std::variant<std::optional<Ed25519Key>, int> LoadSigningKey(const SuiteCommands& s) {
+  if (s.signing_key.empty()) return std::optional<Ed25519Key>();
+  if (s.certificate.empty()) return Usage("--signing-key signs the certificate; give --certificate FILE too");
+  auto key = ReadSigningKeyFile(s.signing_key);
+  if (!key.ok()) return Usage(absl::StrCat("--signing-key ", key.status().message()));
+  return std::optional<Ed25519Key>(std::move(*key));
+}
+
+// Signs `cert` when a key was given; prints why not and returns false on error.
+bool MaybeSign(const std::optional<Ed25519Key>& key, v1::Certificate* cert) {
+  if (!key.has_value()) return true;
+  if (absl::Status st = SignCertificate(*key, cert); !st.ok()) {
+    std::fprintf(stderr, "weir: harness fault: cannot sign the certificate: %s\n", std::string(st.message()).c_str());
+    return false;
+  }
+  return true;
 }
 
 void Touch(const char* env) {
@@ -230,6 +255,16 @@ int Certify(SuiteCommands& s) {
   }
   auto sha = FileSha256(*binary);
   if (!sha.ok()) return Usage(std::string(sha.status().message()));
+  auto recheck_rule = ParseRecheckRule(s.recheck);
+  if (!recheck_rule.ok()) return Usage(std::string(recheck_rule.status().message()));
+  auto signing = LoadSigningKey(s);
+  if (std::holds_alternative<int>(signing)) return std::get<int>(signing);
+  const std::optional<Ed25519Key>& signing_key = std::get<0>(signing);
+  auto weir_sha = FileSha256("/proc/self/exe");
+  if (!weir_sha.ok()) {
+    std::fprintf(stderr, "weir: harness fault: %s\n", std::string(weir_sha.status().message()).c_str());
+    return kHarness;
+  }
 
   CertifyOptions options;
   if (!s.profile.empty()) {
@@ -241,6 +276,8 @@ int Certify(SuiteCommands& s) {
     options.profile = std::move(*profile);
     options.profile_path = s.profile;
   }
+  options.recheck = RecheckSample(*recheck_rule, suite->digest, suite->pairs());
+  options.weir_sha256 = *weir_sha;
   options.connector_argv = argv;
   options.connector_sha256 = *sha;
   options.jobs = s.jobs > 0 ? s.jobs : std::max(1u, std::thread::hardware_concurrency());
@@ -251,15 +288,19 @@ int Certify(SuiteCommands& s) {
   options.stop = stop;
   std::unique_ptr<PrivateDir> trace_dir;
   std::unique_ptr<FirstFailureTraces> first_failures;
-  if (!s.html.empty()) {
+  if (!s.html.empty() || options.recheck->RechecksFailures()) {
     auto dir = PrivateDir::Create();
     if (!dir.ok()) {
       std::fprintf(stderr, "weir: harness fault: %s\n", std::string(dir.status().message()).c_str());
       return kHarness;
     }
     trace_dir = std::move(*dir);
-    first_failures = std::make_unique<FirstFailureTraces>(trace_dir->path());
-    options.first_failures = first_failures.get();
+    if (!s.html.empty()) {
+      first_failures = std::make_unique<FirstFailureTraces>(trace_dir->path());
+      options.first_failures = first_failures.get();
+    } else {
+      options.scratch_dir = trace_dir->path();  // the recheck's traces
+    }
   }
 
   const bool tty = s.progress == "bar" || (s.progress == "auto" && ::isatty(STDOUT_FILENO));
@@ -304,6 +345,7 @@ int Certify(SuiteCommands& s) {
   } else if (suite->profile.has_value()) {
     std::printf("profile %s (from the suite, applied to every scenario)\n", suite->profile_path.c_str());
   }
+  std::printf("determinism recheck: %s\n", options.recheck->Describe().c_str());
   std::fflush(stdout);
   auto result = weir::Certify(*suite, options);
   if (!result.ok()) {
@@ -315,9 +357,13 @@ int Certify(SuiteCommands& s) {
     if (profile_sha.ok()) result->head.set_profile_sha256(*profile_sha);
   }
   const SuiteTally& tally = result->tally;
-  const v1::Certificate cert = MakeCertificate(result->head, tally);
+  v1::Certificate cert = MakeCertificate(result->head, tally);
+  if (!MaybeSign(signing_key, &cert)) return kHarness;
   std::printf("\n%s", SuiteSummaryText(result->head, tally).c_str());
   const int write_errors = WriteReports(s, *result, cert, first_failures.get(), /*announce=*/true);
+  if (signing_key.has_value() && write_errors == 0) {
+    std::printf("%-12s %s (Ed25519)\n", "signed by", cert.key_fingerprint().c_str());
+  }
 
   if (stop->load()) {
     std::printf("INTERRUPTED by signal %d: %llu finished run(s) reported; every connector was killed.\n",
@@ -357,6 +403,14 @@ int Verify(SuiteCommands& s) {
   }
   auto sha = FileSha256(s.connector_binary);
   if (!sha.ok()) return Usage(std::string(sha.status().message()));
+  if (!s.trusted_key.empty()) {
+    auto trusted = ReadTrustedKeyFile(s.trusted_key);
+    if (!trusted.ok()) return Usage(absl::StrCat("--trusted-key ", trusted.status().message()));
+    if (absl::Status st = CheckCertificateSignature(*cert, *trusted); !st.ok()) {
+      std::printf("REJECTED: %s: %s.\n", s.cert_file.c_str(), std::string(st.message()).c_str());
+      return kFailed;
+    }
+  }
   if (CertificateSeal(*cert) != cert->seal()) {
     std::printf("REJECTED: %s has been altered (its seal does not match its contents).\n", s.cert_file.c_str());
     return kFailed;
@@ -385,6 +439,23 @@ int Verify(SuiteCommands& s) {
     std::printf("not exercised (no run gave them a chance to fail; the certificate cannot vouch for them): %s\n",
                 names.c_str());
   }
+  std::printf("weir binary sha256 %s\n",
+              cert->weir_sha256().empty() ? "(not recorded)" : cert->weir_sha256().c_str());
+  if (!cert->recheck().empty()) {
+    std::printf("determinism recheck: %llu rerun, %llu diverged; rule: %s\n",
+                static_cast<unsigned long long>(cert->runs_rechecked()),
+                static_cast<unsigned long long>(cert->runs_diverged()), cert->recheck().c_str());
+  }
+  if (!s.trusted_key.empty()) {
+    std::printf("signed by the trusted key %s\n", cert->key_fingerprint().c_str());
+  } else if (cert->signature().empty()) {
+    std::printf("note: the certificate is only sealed, not signed: anyone can recompute a seal "
+                "(sign with weir certify --signing-key, check with --trusted-key)\n");
+  } else {
+    std::printf("note: the certificate is signed by %s but only its seal was checked: "
+                "pass --trusted-key to check the signature\n",
+                cert->key_fingerprint().c_str());
+  }
   return kPassed;
 }
 
@@ -396,6 +467,9 @@ int Merge(SuiteCommands& s) {
     std::fprintf(stderr, "weir: harness fault: %s\n", std::string(st.message()).c_str());
     return kHarness;
   };
+  auto signing = LoadSigningKey(s);
+  if (std::holds_alternative<int>(signing)) return std::get<int>(signing);
+  const std::optional<Ed25519Key>& signing_key = std::get<0>(signing);
   v1::SuiteReport first;
   std::map<std::uint32_t, bool> seen;
   std::vector<std::unique_ptr<RunLog>> shard_runs;
@@ -474,10 +548,29 @@ int Merge(SuiteCommands& s) {
   *head.mutable_invariants() = merged.tally.invariants();
   head.clear_faults_applied();
   for (const auto& [fault, n] : merged.tally.faults_applied()) AddCount(head.mutable_faults_applied(), fault, n);
-  const v1::Certificate cert = MakeCertificate(head, merged.tally);
+  head.set_runs_rechecked(merged.tally.rechecked());
+  head.set_runs_diverged(merged.tally.diverged());
+  v1::Certificate cert = MakeCertificate(head, merged.tally);
+  if (!MaybeSign(signing_key, &cert)) return kHarness;
   std::printf("%s", SuiteSummaryText(head, merged.tally).c_str());
   if (WriteReports(s, merged, cert, nullptr, /*announce=*/false) > 0) return kHarness;
   return cert.certified() ? kPassed : kFailed;
+}
+
+int Keygen(SuiteCommands& s) {
+  auto key = WriteNewKeyPair(s.key_out, s.key_force);
+  if (!key.ok()) {
+    if (absl::IsInternal(key.status())) {
+      std::fprintf(stderr, "weir: harness fault: %s\n", std::string(key.status().message()).c_str());
+      return kHarness;
+    }
+    return Usage(std::string(key.status().message()));
+  }
+  std::printf("private key  %s (PEM PKCS#8, mode 0600: keep it secret; weir certify --signing-key)\n"
+              "public key   %s.pub (PEM SubjectPublicKeyInfo; weir verify --trusted-key)\n"
+              "fingerprint  %s\n",
+              s.key_out.c_str(), s.key_out.c_str(), key->Fingerprint().c_str());
+  return kPassed;
 }
 
 }  // namespace
@@ -512,10 +605,17 @@ void AddSuiteCommands(CLI::App& app, SuiteCommands& s) {
   s.certify->add_flag("--require-coverage", s.require_coverage,
                       "Refuse the certificate (exit 5) when an invariant the profile claims had no chance to "
                       "fail in any run");
+  s.certify->add_option("--recheck", s.recheck,
+                        "Rerun pairs to check determinism: N pairs, all or none (default: 1 in 10, at least 1, "
+                        "chosen by the suite digest); failing runs are rerun unless none");
+  s.certify->add_option("--signing-key", s.signing_key,
+                        "Sign the certificate with this Ed25519 private key (weir keygen; mode 0600)");
 
   s.verify = app.add_subcommand("verify", "Check that a certificate is intact and belongs to a connector binary");
   s.verify->add_option("certificate", s.cert_file, "Certificate file")->required();
   s.verify->add_option("--connector-binary", s.connector_binary, "The connector binary to check")->required();
+  s.verify->add_option("--trusted-key", s.trusted_key,
+                       "Require a valid signature by this public key (weir keygen's KEY.pub)");
 
   s.merge = app.add_subcommand("merge", "Combine shard reports into one report and one certificate");
   s.merge->add_option("reports", s.reports, "Shard JSON reports")->required();
@@ -523,12 +623,19 @@ void AddSuiteCommands(CLI::App& app, SuiteCommands& s) {
   s.merge->add_option("--junit", s.junit, "Write merged JUnit XML here");
   s.merge->add_option("--certificate", s.certificate, "Write the certificate here");
   s.merge->add_option("--html", s.html, "Write the merged HTML summary here");
+  s.merge->add_option("--signing-key", s.signing_key,
+                      "Sign the certificate with this Ed25519 private key (weir keygen; mode 0600)");
+
+  s.keygen = app.add_subcommand("keygen", "Write an Ed25519 key pair to sign certificates with");
+  s.keygen->add_option("--out", s.key_out, "Private key file; the public key goes to FILE.pub")->required();
+  s.keygen->add_flag("--force", s.key_force, "Replace existing key files");
 }
 
 int RunSuiteCommand(SuiteCommands& s) {
   if (s.certify != nullptr && s.certify->parsed()) return Certify(s);
   if (s.verify != nullptr && s.verify->parsed()) return Verify(s);
   if (s.merge != nullptr && s.merge->parsed()) return Merge(s);
+  if (s.keygen != nullptr && s.keygen->parsed()) return Keygen(s);
   return -1;
 }
 

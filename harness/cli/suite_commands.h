@@ -1,8 +1,9 @@
 // File: suite_commands.h
 //
 // The suite-level subcommands of `weir`: certify (run a suite, write reports
-// and a certificate), verify (check a certificate against a binary) and merge
-// (combine shard reports). Exit codes: 0 passed / intact, 1 an invariant failed
+// and a certificate), verify (check a certificate against a binary), merge
+// (combine shard reports) and keygen (a key pair to sign certificates with;
+// docs/certificates.md). Exit codes: 0 passed / intact, 1 an invariant failed
 // / not certified, 2 usage or input error, 3 harness fault, 4 interrupted.
 #pragma once
 
@@ -17,6 +18,7 @@ struct SuiteCommands {
   CLI::App* certify = nullptr;
   CLI::App* verify = nullptr;
   CLI::App* merge = nullptr;
+  CLI::App* keygen = nullptr;
   // certify
   std::string suite;
   std::string connector;
@@ -30,9 +32,15 @@ struct SuiteCommands {
   std::string progress = "auto";
   std::string profile;            // overrides the suite's and every scenario's profile
   bool require_coverage = false;  // an invariant not exercised fails certify (exit 5)
+  std::string recheck;      // certify: N, all, none; empty: the sample rule
+  std::string signing_key;  // certify, merge: sign the certificate
   // verify
   std::string cert_file;
   std::string connector_binary;
+  std::string trusted_key;
+  // keygen
+  std::string key_out;
+  bool key_force = false;
   // merge
   std::vector<std::string> reports;
 };

@@ -53,6 +53,57 @@ void StartFailureWatch::OnEvent(const v1::TraceEvent& event) {
   }
 }
 
+absl::Status CompareTraceFiles(const std::string& saved_path, const std::string& rerun_path,
+                               ReplayResult* result_out) {
+  auto saved = TraceReader::Open(saved_path);
+  if (!saved.ok()) return saved.status();
+  auto rerun = TraceReader::Open(rerun_path);
+  if (!rerun.ok()) return rerun.status();
+  bool differs = false;
+  while (true) {
+    auto a = (*saved)->Next();
+    if (!a.ok()) return a.status();
+    auto b = (*rerun)->Next();
+    if (!b.ok()) return b.status();
+    if (!*a && !*b) break;
+    if (!differs && (*a != *b || (*saved)->line() != (*rerun)->line())) {
+      differs = true;
+      result_out->diverged_at = *a ? (*saved)->event().seq() : (*rerun)->event().seq();
+      result_out->expected_line = *a ? Chomp((*saved)->line()) : "";
+      result_out->got_line = *b ? Chomp((*rerun)->line()) : "";
+      result_out->expected_what = *a ? DescribeEvent((*saved)->event()) : "the end of the run";
+      result_out->got_what = *b ? DescribeEvent((*rerun)->event()) : "the end of the run";
+      // The saved run's connector came up here and the rerun's did not.
+      if (*b) {
+        if (auto why = StartFailure((*rerun)->event())) result_out->start_failure = *why;
+      }
+    }
+    // Drain whichever side goes on, so both footers are checked and counted.
+    if (!*a) {
+      while (true) {
+        auto more = (*rerun)->Next();
+        if (!more.ok()) return more.status();
+        if (!*more) break;
+      }
+      break;
+    }
+    if (!*b) {
+      while (true) {
+        auto more = (*saved)->Next();
+        if (!more.ok()) return more.status();
+        if (!*more) break;
+      }
+      break;
+    }
+  }
+  result_out->saved_digest = (*saved)->footer().digest();
+  result_out->saved_events = (*saved)->footer().events();
+  result_out->rerun_digest = (*rerun)->footer().digest();
+  result_out->rerun_events = (*rerun)->footer().events();
+  result_out->identical = !differs && result_out->saved_digest == result_out->rerun_digest;
+  return absl::OkStatus();
+}
+
 absl::StatusOr<ReplayResult> ReplayTrace(const std::string& path, const ReplayOptions& options) {
   if (absl::Status st = CheckTraceFile(path); !st.ok()) return st;
   auto saved = TraceReader::Open(path);
@@ -78,50 +129,7 @@ absl::StatusOr<ReplayResult> ReplayTrace(const std::string& path, const ReplayOp
   auto out = RunOverGrpc(spec);
   if (!out.ok()) return out.status();
 
-  auto rerun = TraceReader::Open(spec.trace_path);
-  if (!rerun.ok()) return rerun.status();
-  bool differs = false;
-  while (true) {
-    auto a = (*saved)->Next();
-    if (!a.ok()) return a.status();
-    auto b = (*rerun)->Next();
-    if (!b.ok()) return b.status();
-    if (!*a && !*b) break;
-    if (!differs && (*a != *b || (*saved)->line() != (*rerun)->line())) {
-      differs = true;
-      result.diverged_at = *a ? (*saved)->event().seq() : (*rerun)->event().seq();
-      result.expected_line = *a ? Chomp((*saved)->line()) : "";
-      result.got_line = *b ? Chomp((*rerun)->line()) : "";
-      result.expected_what = *a ? DescribeEvent((*saved)->event()) : "the end of the run";
-      result.got_what = *b ? DescribeEvent((*rerun)->event()) : "the end of the run";
-      // The saved run's connector came up here and the rerun's did not.
-      if (*b) {
-        if (auto why = StartFailure((*rerun)->event())) result.start_failure = *why;
-      }
-    }
-    // Drain whichever side goes on, so both footers are checked and counted.
-    if (!*a) {
-      while (true) {
-        auto more = (*rerun)->Next();
-        if (!more.ok()) return more.status();
-        if (!*more) break;
-      }
-      break;
-    }
-    if (!*b) {
-      while (true) {
-        auto more = (*saved)->Next();
-        if (!more.ok()) return more.status();
-        if (!*more) break;
-      }
-      break;
-    }
-  }
-  result.saved_digest = (*saved)->footer().digest();
-  result.saved_events = (*saved)->footer().events();
-  result.rerun_digest = (*rerun)->footer().digest();
-  result.rerun_events = (*rerun)->footer().events();
-  result.identical = !differs && result.saved_digest == result.rerun_digest;
+  if (absl::Status st = CompareTraceFiles(path, spec.trace_path, &result); !st.ok()) return st;
   return result;
 }
 

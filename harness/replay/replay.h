@@ -69,6 +69,14 @@ struct ReplayResult {
 [[nodiscard]] absl::StatusOr<ReplayResult> ReplayTrace(const std::string& path,
                                                        const ReplayOptions& options);
 
+// The comparison ReplayTrace makes, of any two trace files (certify's
+// determinism recheck uses it): fills `result`'s digests, event counts,
+// `identical` and, at the first difference, diverged_at, both lines and
+// their descriptions and start_failure; leaves the other fields alone.
+// Errors: a file that cannot be read or is not a whole trace.
+[[nodiscard]] absl::Status CompareTraceFiles(const std::string& saved_path, const std::string& rerun_path,
+                                             ReplayResult* result);
+
 // Builds the RunSpec a trace header describes (no trace path set), with the
 // connector command as given.
 RunSpec SpecFromHeader(const v1::TraceHeader& header);

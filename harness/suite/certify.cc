@@ -1,6 +1,7 @@
 #include "harness/suite/certify.h"
 
 #include <chrono>
+#include <cstdio>
 #include <mutex>
 #include <thread>
 
@@ -8,6 +9,7 @@
 #include "absl/strings/str_cat.h"
 #include "harness/cli/command_line.h"
 #include "harness/oracle/verdict.h"
+#include "harness/replay/replay.h"
 #include "harness/suite/reorder_buffer.h"
 
 namespace weir {
@@ -49,6 +51,8 @@ absl::StatusOr<SuiteResult> Certify(const LoadedSuite& suite, const CertifyOptio
   const std::optional<v1::Profile>& profile = options.profile.has_value() ? options.profile : suite.profile;
   const std::string& profile_path = options.profile.has_value() ? options.profile_path : suite.profile_path;
   head.set_profile(profile_path);
+  if (options.recheck.has_value()) head.set_recheck(options.recheck->Describe());
+  head.set_weir_sha256(options.weir_sha256);
 
   std::mutex mu;
   std::uint64_t next = 0;
@@ -89,13 +93,38 @@ absl::StatusOr<SuiteResult> Certify(const LoadedSuite& suite, const CertifyOptio
       spec.seed = seed;
       spec.connector_argv = options.connector_argv;
       spec.transport = options.transport;
-      if (options.first_failures != nullptr) spec.trace_path = options.first_failures->PathFor(index);
+      const bool rechecking = options.recheck.has_value() && options.recheck->RechecksFailures();
+      bool scratch_trace = false;
+      if (options.first_failures != nullptr) {
+        spec.trace_path = options.first_failures->PathFor(index);
+      } else if (rechecking && !options.scratch_dir.empty()) {
+        spec.trace_path = absl::StrCat(options.scratch_dir, "/pair-", index, ".jsonl");
+        scratch_trace = true;
+      }
       spec.stop = options.stop;
+      auto run_once = [&](const RunSpec& s) { return options.runner ? options.runner(s) : RunOverGrpc(s); };
       const auto start = std::chrono::steady_clock::now();
-      auto out = options.runner ? options.runner(spec) : RunOverGrpc(spec);
+      auto out = run_once(spec);
       const double wall =
           std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
-      if (absl::IsCancelled(out.status())) {
+      // The determinism recheck: the same spec once more.
+      const bool recheck =
+          out.ok() && options.recheck.has_value() &&
+          (options.recheck->Contains(index) || (rechecking && !out->verdict.passed()));
+      std::optional<absl::StatusOr<RunOutput>> again;
+      ReplayResult compared;
+      absl::Status compare_status = absl::UnknownError("no trace of the first run to compare");
+      if (recheck) {
+        RunSpec second = spec;
+        if (!spec.trace_path.empty()) second.trace_path = spec.trace_path + ".recheck";
+        again = run_once(second);
+        if (again->ok() && (*again)->digest != out->digest && !spec.trace_path.empty()) {
+          compare_status = CompareTraceFiles(spec.trace_path, second.trace_path, &compared);
+        }
+        if (!second.trace_path.empty()) std::remove(second.trace_path.c_str());
+      }
+      if (scratch_trace) std::remove(spec.trace_path.c_str());
+      if (absl::IsCancelled(out.status()) || (again.has_value() && absl::IsCancelled(again->status()))) {
         // Abandoned half-way by a signal: not a finished run, so not reported.
         std::lock_guard<std::mutex> lock(mu);
         if (stopped.empty()) stopped = "interrupted by a signal";
@@ -131,6 +160,34 @@ absl::StatusOr<SuiteResult> Certify(const LoadedSuite& suite, const CertifyOptio
                                                by_cause.front()->sentence));
         }
       }
+      if (again.has_value()) {
+        rec.set_rechecked(true);
+        if (!again->ok()) {
+          rec.set_passed(false);
+          rec.set_harness_error(absl::StrCat("determinism recheck: ", again->status().message()));
+        } else {
+          rec.set_recheck_digest((*again)->digest);
+          if ((*again)->digest != out->digest) {
+            if (compare_status.ok() && !compared.identical) {
+              rec.set_divergence(absl::StrCat("event #", compared.diverged_at, ": expected ", compared.expected_what,
+                                              ", got ", compared.got_what));
+            }
+            // A run that failed an invariant keeps that as its first
+            // violation (the bug it found); a passing one is failed here.
+            const bool had_violation = !rec.first_violation().empty();
+            rec.set_passed(false);
+            rec.add_failed_invariants(kNondeterministicOutcome);
+            if (!had_violation) {
+              rec.set_first_violation(absl::StrCat(
+                  kNondeterministicOutcome, ": the same scenario, seed and connector gave trace digest ",
+                  out->digest, ", then ", (*again)->digest,
+                  rec.divergence().empty() ? std::string() : absl::StrCat("; first difference at ", rec.divergence()),
+                  " (the connector reads the wall clock, uses unseeded randomness or races threads: its failures "
+                  "cannot be replayed)"));
+            }
+          }
+        }
+      }
       if (options.first_failures != nullptr) options.first_failures->Offer(rec);
       std::lock_guard<std::mutex> lock(mu);
       ++done;
@@ -152,6 +209,8 @@ absl::StatusOr<SuiteResult> Certify(const LoadedSuite& suite, const CertifyOptio
   head.set_stopped_because(stopped);
   *head.mutable_invariants() = result.tally.invariants();
   for (const auto& [fault, n] : result.tally.faults_applied()) AddCount(head.mutable_faults_applied(), fault, n);
+  head.set_runs_rechecked(result.tally.rechecked());
+  head.set_runs_diverged(result.tally.diverged());
   return result;
 }
 

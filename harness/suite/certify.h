@@ -16,6 +16,15 @@
 //
 // Sharding: pair i (scenario-major, then seed) belongs to shard i % count.
 //
+// Determinism recheck (recheck.h): a run in the sample, and with any rule
+// but none every run that failed an invariant, is run a second time right
+// after the first, with the same spec; when the two trace digests differ the
+// run fails as "nondeterministic" (kNondeterministicOutcome, added to its
+// failed_invariants), its record naming both digests and, when both traces
+// were written (first_failures or scratch_dir), the first differing event as
+// `weir replay` finds it. A run that had passed gets that as its first
+// violation; one that failed an invariant keeps its own.
+//
 // Thread safety: Certify() blocks; `progress` is called from worker threads
 // under an internal lock.
 #pragma once
@@ -31,6 +40,7 @@
 #include "absl/status/statusor.h"
 #include "harness/edge/grpc_run.h"
 #include "harness/suite/first_failures.h"
+#include "harness/suite/recheck.h"
 #include "harness/suite/run_log.h"
 #include "harness/suite/suite_file.h"
 #include "harness/suite/suite_tally.h"
@@ -66,7 +76,18 @@ struct CertifyOptions {
     std::uint64_t failed = 0;
   };
   std::function<void(const Progress&, const v1::RunRecord&)> progress;
+  // Unset: no recheck, and the report's `recheck` stays empty.
+  std::optional<RecheckSample> recheck;
+  // A directory (owned by the caller) where runs write their traces for the
+  // recheck to compare when first_failures is not given; empty: the
+  // recheck compares digests only.
+  std::string scratch_dir;
+  // SHA-256 of the weir binary, for the report and the certificate.
+  std::string weir_sha256;
 };
+
+// The name a diverged recheck adds to a run's failed_invariants.
+inline constexpr char kNondeterministicOutcome[] = "nondeterministic";
 
 // A finished suite: the parts of its report (see suite_reports.h).
 struct SuiteResult {

@@ -99,6 +99,7 @@ absl::Status WriteSuiteJUnitXml(const v1::SuiteReport& head, const SuiteTally& t
   property("suite_digest", head.suite_digest());
   property("weir_version", head.weir_version());
   property("connector_sha256", head.connector_sha256());
+  if (!head.weir_sha256().empty()) property("weir_sha256", head.weir_sha256());
   property("shard", absl::StrCat(head.shard_index(), "/", head.shard_count()));
   property("complete", head.complete() ? "true" : "false");
   property("profile", head.profile());
@@ -112,6 +113,11 @@ absl::Status WriteSuiteJUnitXml(const v1::SuiteReport& head, const SuiteTally& t
   std::string not_exercised;
   for (const auto& name : tally.not_exercised()) absl::StrAppend(&not_exercised, not_exercised.empty() ? "" : ", ", name);
   property("not_exercised", not_exercised);
+  if (!head.recheck().empty()) {
+    property("recheck", head.recheck());
+    property("runs_rechecked", absl::StrCat(tally.rechecked()));
+    property("runs_diverged", absl::StrCat(tally.diverged()));
+  }
   out("  </properties>\n");
   v1::RunRecord run;
   for (;;) {
@@ -189,6 +195,16 @@ std::string SuiteSummaryText(const v1::SuiteReport& head, const SuiteTally& tall
   if (const auto& fault = tally.first_harness_fault(); fault.has_value()) {
     absl::StrAppend(&out, "\nharness fault in ", fault->scenario, " seed ", fault->seed, ": ", fault->error, "\n");
   }
+  if (!head.recheck().empty()) {
+    absl::StrAppend(&out, "\ndeterminism recheck: ", tally.rechecked(), " rerun, ", tally.diverged(),
+                    " diverged; rule: ", head.recheck(), "\n");
+    if (const auto& d = tally.first_divergence(); d.has_value()) {
+      absl::StrAppend(&out, "first nondeterministic run: ", d->scenario, " seed ", d->seed, ": trace digest ",
+                      d->digest, ", its rerun ", d->recheck_digest, "\n");
+      if (!d->divergence.empty()) absl::StrAppend(&out, "  first difference: ", d->divergence, "\n");
+      absl::StrAppend(&out, "  replay: ", d->replay, "\n");
+    }
+  }
   absl::StrAppend(&out, "\n", tally.runs(), " runs, ", tally.passed(), " passed, ", tally.failed(), " failed",
                   head.complete() ? "" : " (INCOMPLETE: ", head.complete() ? "" : head.stopped_because(),
                   head.complete() ? "" : ")", "\n");
@@ -211,6 +227,10 @@ std::string SuiteSummaryHtml(const v1::SuiteReport& head, const SuiteTally& tall
   fact("connector", connector);
   fact("connector sha256", head.connector_sha256());
   if (!head.profile().empty()) fact("profile (every scenario)", head.profile());
+  if (!head.recheck().empty()) {
+    fact("determinism recheck",
+         absl::StrCat(tally.rechecked(), " rerun, ", tally.diverged(), " diverged; rule: ", head.recheck()));
+  }
   fact("weir", head.weir_version());
   fact("shard", absl::StrCat(head.shard_index(), "/", head.shard_count()));
   fact("runs", absl::StrCat(tally.runs(), " of ", head.pairs_total(), " pairs: ", tally.passed(), " passed, ",
@@ -244,6 +264,7 @@ std::string SuiteSummaryHtml(const v1::SuiteReport& head, const SuiteTally& tall
 std::string CertificateSeal(const v1::Certificate& certificate) {
   v1::Certificate copy = certificate;
   copy.clear_seal();
+  copy.clear_signature();
   std::string bytes;
   {
     google::protobuf::io::StringOutputStream stream(&bytes);
@@ -267,6 +288,10 @@ v1::Certificate MakeCertificate(const v1::SuiteReport& head, const SuiteTally& t
   c.set_runs_passed(tally.passed());
   c.set_runs_failed(tally.failed());
   c.set_verdicts(tally.verdicts());
+  c.set_weir_sha256(head.weir_sha256());
+  c.set_recheck(head.recheck());
+  c.set_runs_rechecked(tally.rechecked());
+  c.set_runs_diverged(tally.diverged());
   c.set_certified(head.complete() && head.shard_count() <= 1 && c.runs() == head.pairs_total() &&
                   c.runs_failed() == 0);
   for (const auto& s : tally.invariants()) {

@@ -59,7 +59,8 @@ std::string SuiteSummaryHtml(const v1::SuiteReport& head, const SuiteTally& tall
 // complete, covers every pair of the suite and every run passed.
 v1::Certificate MakeCertificate(const v1::SuiteReport& head, const SuiteTally& tally);
 // The seal a certificate should carry (sha256 of its deterministic
-// serialization with `seal` empty).
+// serialization with `seal` and `signature` empty). Signing:
+// certificate_trust.h.
 std::string CertificateSeal(const v1::Certificate& certificate);
 std::string CertificateJson(const v1::Certificate& certificate);
 [[nodiscard]] absl::StatusOr<v1::Certificate> ParseCertificateJson(std::string_view text);

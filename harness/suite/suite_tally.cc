@@ -21,6 +21,16 @@ void SuiteTally::Add(const v1::RunRecord& run) {
   passed_ += run.passed() ? 1 : 0;
   verdicts_.push_back(run.passed() ? 'P' : 'F');
   wall_seconds_ += run.wall_seconds();
+  if (run.rechecked()) {
+    ++rechecked_;
+    if (!run.recheck_digest().empty() && run.recheck_digest() != run.digest()) {
+      ++diverged_;
+      if (!first_divergence_.has_value()) {
+        first_divergence_ =
+            Divergence{run.scenario(), run.seed(), run.digest(), run.recheck_digest(), run.divergence(), run.replay()};
+      }
+    }
+  }
   if (!run.harness_error().empty()) {
     ++harness_faults_;
     if (!first_harness_fault_.has_value()) {

@@ -74,6 +74,17 @@ class SuiteTally {
   };
   const std::optional<HarnessFault>& first_harness_fault() const { return first_harness_fault_; }
 
+  // The determinism recheck (recheck.h): runs rerun, and those whose rerun
+  // gave another trace digest; the first of them in pair order.
+  std::uint64_t rechecked() const { return rechecked_; }
+  std::uint64_t diverged() const { return diverged_; }
+  struct Divergence {
+    std::string scenario;
+    std::uint64_t seed = 0;
+    std::string digest, recheck_digest, divergence, replay;
+  };
+  const std::optional<Divergence>& first_divergence() const { return first_divergence_; }
+
   const google::protobuf::RepeatedPtrField<v1::InvariantSummary>& invariants() const { return invariants_; }
   // Coverage: fault decisions that took effect, summed over the runs.
   const std::map<std::string, std::uint64_t>& faults_applied() const { return faults_applied_; }
@@ -89,6 +100,9 @@ class SuiteTally {
   double wall_seconds_ = 0;
   std::string verdicts_;
   std::optional<HarnessFault> first_harness_fault_;
+  std::uint64_t rechecked_ = 0;
+  std::uint64_t diverged_ = 0;
+  std::optional<Divergence> first_divergence_;
   google::protobuf::RepeatedPtrField<v1::InvariantSummary> invariants_;
   std::map<std::string, std::uint64_t> faults_applied_;
 };
