@@ -294,8 +294,10 @@ int ReplayCommand(const ReplayFlags& flags) {
   options.stop_before = flags.stop_before;
   options.stop = InstallStopSignals();
   const std::atomic<bool>* stop = options.stop;
+  bool held = false;
   if (options.stop_before > 0) {
-    options.on_hold = [stop](const HoldPoint& at, const std::string& what, const std::string& line) {
+    options.on_hold = [stop, &held](const HoldPoint& at, const std::string& what, const std::string& line) {
+      held = true;
       PrintHold(stdout, at, what, line);
       const HoldEnd end = WaitForEnter(STDIN_FILENO, stop);
       if (end == HoldEnd::kStopped) {
@@ -330,6 +332,11 @@ int ReplayCommand(const ReplayFlags& flags) {
       return kExitUsage;
     }
     return StatusExit(r.status());
+  }
+  if (options.stop_before > 0 && !held) {
+    std::printf("weir replay: the rerun ended after %llu events, before event #%llu: it never held\n",
+                static_cast<unsigned long long>(r->rerun_events),
+                static_cast<unsigned long long>(options.stop_before));
   }
   // Before any verdict: a different program answers differently by right.
   for (const std::string& change : r->changes) std::printf("%s\n", change.c_str());
