@@ -18,6 +18,7 @@
 #include "absl/strings/str_cat.h"
 #include "harness/cli/bundled_files.h"
 #include "harness/cli/command_line.h"
+#include "harness/cli/hold_prompt.h"
 #include "harness/cli/search_command.h"
 #include "harness/cli/shrink_command.h"
 #include "harness/cli/stop_signal.h"
@@ -254,19 +255,80 @@ int StatusExit(const absl::Status& st) {
 // 0 identical, 1 diverged (a nondeterministic connector, or a changed one:
 // said first), 2 bad trace or a connector that no longer exists, 3 a
 // connector that did not come up.
-int ReplayCommand(const std::string& trace, const std::string& transport, const std::string& connector) {
+struct ReplayFlags {
+  std::string trace;
+  std::string transport = "tcp";
+  std::string connector;
+  // Debugging the connector (docs/debugging.md).
+  bool no_wall_bounds = false;
+  std::string wrap;                   // 'CMD ARGS', split like --connector
+  std::vector<std::string> wrap_args; // appended to the wrapper's argv
+  std::uint64_t stop_before = 0;
+  bool stop_before_given = false;
+};
+
+int ReplayCommand(const ReplayFlags& flags) {
+  const std::string& trace = flags.trace;
   ReplayOptions options;
-  if (transport == "unix") {
+  if (flags.transport == "unix") {
     options.transport = Transport::kUnix;
-  } else if (transport != "tcp") {
-    return UsageError("--transport is '" + transport + "'; expected tcp or unix");
+  } else if (flags.transport != "tcp") {
+    return UsageError("--transport is '" + flags.transport + "'; expected tcp or unix");
   }
-  if (!connector.empty()) {
-    auto split = SplitCommandLine(connector);
+  if (!flags.connector.empty()) {
+    auto split = SplitCommandLine(flags.connector);
     if (!split.ok()) return UsageError(absl::StrCat("--connector ", split.status().message()));
     options.connector_argv = std::move(*split);
   }
+  if (!flags.wrap.empty()) {
+    auto split = SplitCommandLine(flags.wrap);
+    if (!split.ok()) return UsageError(absl::StrCat("--wrap ", split.status().message()));
+    options.wrapper_argv = std::move(*split);
+  }
+  options.wrapper_argv.insert(options.wrapper_argv.end(), flags.wrap_args.begin(), flags.wrap_args.end());
+  if (!options.wrapper_argv.empty()) {
+    if (!ResolveExecutable(options.wrapper_argv[0]).has_value()) {
+      return UsageError("--wrap: '" + options.wrapper_argv[0] +
+                        "' is not an executable file (nor found on PATH); expected a wrapper command "
+                        "such as 'valgrind -q' or 'gdb -q -batch -ex run -ex bt --args'");
+    }
+    options.echo_output = true;  // what the debugger or checker says belongs on screen
+  }
+  if (flags.stop_before_given && flags.stop_before == 0) {
+    return UsageError(
+        "--stop-before 0: expected an event number of 1 or more (weir holds after event #K-1, "
+        "before event #K)");
+  }
+  options.wall_bounds = !flags.no_wall_bounds;
+  options.stop_before = flags.stop_before;
   options.stop = InstallStopSignals();
+  const std::atomic<bool>* stop = options.stop;
+  bool held = false;
+  if (options.stop_before > 0) {
+    options.on_hold = [stop, &held](const HoldPoint& at, const std::string& what, const std::string& line) {
+      held = true;
+      PrintHold(stdout, at, what, line);
+      const HoldEnd end = WaitForEnter(STDIN_FILENO, stop);
+      if (end == HoldEnd::kStopped) {
+        std::printf("weir replay: interrupted while holding before event #%llu\n",
+                    static_cast<unsigned long long>(at.next_seq));
+      } else {
+        std::printf("weir replay: %s; going on from event #%llu\n",
+                    end == HoldEnd::kLine ? "Enter" : "end of input",
+                    static_cast<unsigned long long>(at.next_seq));
+      }
+      std::fflush(stdout);
+    };
+  }
+  if (!options.wall_bounds || options.stop_before > 0) {
+    std::printf("weir replay: no wall-clock bounds on the connector: weir waits as long as it takes "
+                "(Ctrl-C ends the replay and kills it)\n");
+  }
+  if (!options.wrapper_argv.empty()) {
+    std::printf("weir replay: starting the connector under '%s'; its output follows on stderr\n",
+                ShellJoin(options.wrapper_argv).c_str());
+  }
+  std::fflush(stdout);
   auto r = ReplayTrace(trace, options);
   if (absl::IsCancelled(r.status())) {
     std::fprintf(stderr, "weir: interrupted by signal %d: the connector was killed, nothing compared\n",
@@ -279,6 +341,11 @@ int ReplayCommand(const std::string& trace, const std::string& transport, const 
       return kExitUsage;
     }
     return StatusExit(r.status());
+  }
+  if (options.stop_before > 0 && !held) {
+    std::printf("weir replay: the rerun ended after %llu events, before event #%llu: it never held\n",
+                static_cast<unsigned long long>(r->rerun_events),
+                static_cast<unsigned long long>(options.stop_before));
   }
   // Before any verdict: a different program answers differently by right.
   for (const std::string& change : r->changes) std::printf("%s\n", change.c_str());
@@ -392,12 +459,26 @@ int main(int argc, char** argv) {
   CLI::App* lint = app.add_subcommand("lint", "Validate scenario (.scenario) and plan (.plan) files");
   lint->add_option("files", lint_files, "Files to check")->required();
 
-  std::string replay_trace, replay_transport = "tcp", replay_connector;
+  ReplayFlags replay_flags;
   CLI::App* replay = app.add_subcommand("replay", "Rerun a saved trace's run and compare it event by event");
-  replay->add_option("trace", replay_trace, "Trace file (weir run --trace)")->required();
-  replay->add_option("--transport", replay_transport, "tcp (loopback, default) or unix");
-  replay->add_option("--connector", replay_connector,
+  replay->add_option("trace", replay_flags.trace, "Trace file (weir run --trace)")->required();
+  replay->add_option("--transport", replay_flags.transport, "tcp (loopback, default) or unix");
+  replay->add_option("--connector", replay_flags.connector,
                      "Connector command replacing the trace header's: 'CMD ARGS…'");
+  replay->add_flag("--no-wall-bounds", replay_flags.no_wall_bounds,
+                   "Lift every wall-clock bound on the connector (start-up, per-call, the livelock "
+                   "bound in wall time) so a debugger may hold it: weir then waits as long as the "
+                   "connector takes; Ctrl-C ends the replay and kills it. Events are unchanged");
+  replay->add_option("--wrap", replay_flags.wrap,
+                     "Start the connector under this command, split like --connector "
+                     "('valgrind -q', 'gdb -q -batch -ex run -ex bt --args'); its output goes to stderr");
+  replay->add_option("--wrap-arg", replay_flags.wrap_args,
+                     "One more word of the wrapper command (repeatable; after --wrap's words)");
+  replay->add_option("--stop-before", replay_flags.stop_before,
+                     "Hold before event #K (1 … events-1): print the connector's pid(s) and addresses "
+                     "and the next event, wait for Enter (end of input goes on at once); lifts the "
+                     "wall-clock bounds like --no-wall-bounds")
+      ->check(WholeNumber());
   std::string explain_trace;
   CLI::App* explain = app.add_subcommand("explain", "Text timeline of a saved trace around each violation");
   explain->add_option("trace", explain_trace, "Trace file (weir run --trace)")->required();
@@ -426,7 +507,10 @@ int main(int argc, char** argv) {
     return RunCommand(run_flags);
   }
   if (lint->parsed()) return LintCommand(lint_files);
-  if (replay->parsed()) return ReplayCommand(replay_trace, replay_transport, replay_connector);
+  if (replay->parsed()) {
+    replay_flags.stop_before_given = replay->count("--stop-before") > 0;
+    return ReplayCommand(replay_flags);
+  }
   if (explain->parsed()) return ExplainCommand(explain_trace, explain_html);
   if (int rc = RunSuiteCommand(suite_commands); rc >= 0) return rc;
   if (int rc = RunShrinkCommand(shrink_flags); rc >= 0) return rc;

@@ -8,6 +8,7 @@
 
 #include <google/protobuf/util/message_differencer.h>
 
+#include "absl/strings/match.h"
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_join.h"
 #include "harness/cli/command_line.h"
@@ -21,6 +22,7 @@
 #include "harness/scenario/scenario_file.h"
 #include "harness/scenario/text_file.h"
 #include "harness/shrink/shrink.h"
+#include "harness/shrink/workload_shrink.h"
 #include "harness/suite/certify.h"
 
 namespace weir {
@@ -142,6 +144,11 @@ void AddShrinkCommand(CLI::App& app, ShrinkFlags& f) {
   c->add_option("--invariant", f.invariant,
                 "The invariant that must keep failing (default: the one whose violation started earliest)");
   c->add_option("--out", f.out, "Where to write the minimal plan (default minimal.plan)");
+  c->add_option("--out-scenario", f.out_scenario,
+                "Where to write the shrunk workload's scenario (default: beside --out, "
+                "minimal.plan -> minimal.scenario)");
+  c->add_flag("--keep-workload", f.keep_workload,
+              "Shrink only the fault plan, not the workload (messages, sources, partitions, keys)");
   c->add_option("--trace", f.trace, "Also write the trace of a run under the minimal plan");
   c->add_option("--max-reruns", f.max_reruns, "Stop after this many reruns (default 500; 0: no limit)");
   c->add_option("--max-seconds", f.max_seconds,
@@ -167,6 +174,16 @@ int RunShrinkCommand(ShrinkFlags& f) {
   }
   if (f.max_seconds < 0) return Usage("--max-seconds must be >= 0");
   if (f.out.empty()) return Usage("--out is empty; expected a file name for the minimal plan");
+  if (f.out_scenario.empty()) {
+    f.out_scenario = absl::EndsWith(f.out, ".plan") ? f.out.substr(0, f.out.size() - 5) + ".scenario"
+                                                     : f.out + ".scenario";
+  }
+  if (f.out_scenario == f.out) return Usage("--out-scenario is the same file as --out; expected another file");
+  for (const auto& [flag, path] : {std::pair{"--out", f.out}, std::pair{"--out-scenario", f.out_scenario},
+                                   std::pair{"--trace", f.trace}}) {
+    if (flag == std::string("--out-scenario") && f.keep_workload) continue;
+    if (absl::Status st = CheckOutputPath(flag, path); !st.ok()) return Usage(std::string(st.message()));
+  }
   std::optional<Invariant> wanted;
   if (!f.invariant.empty()) {
     wanted = ParseInvariant(f.invariant);
@@ -417,9 +434,89 @@ int RunShrinkCommand(ShrinkFlags& f) {
   }
   std::printf("plan       %s\n", f.out.c_str());
 
+  // Phase 2: under the minimal plan, the smallest workload that still fails.
+  std::string replay_scenario = spec.scenario_path;
+  std::string replay_profile = from_trace ? "" : f.profile;
+  RunSpec minimal_spec = spec;
+  minimal_spec.plan = r->minimal;
+  std::string final_digest = m.digest;
+  const std::uint64_t reruns_left =
+      f.max_reruns == 0 ? 0 : (f.max_reruns > r->reruns ? f.max_reruns - r->reruns : 0);
+  if (f.keep_workload) {
+    std::printf("workload   kept (--keep-workload)\n");
+  } else if (stop->load()) {
+    std::printf("workload   not shrunk (interrupted)\n");
+  } else if (f.max_reruns > 0 && reruns_left == 0) {
+    std::printf("workload   not shrunk: the rerun budget (--max-reruns %llu) is spent\n",
+                static_cast<unsigned long long>(f.max_reruns));
+  } else {
+    WorkloadShrinkOptions wo;
+    wo.max_reruns = reruns_left;
+    wo.stop = options.stop;
+    wo.progress = [&](std::uint64_t reruns) {
+      if (quiet) return;
+      if (tty) {
+        std::printf("\r\033[Kshrink: %llu reruns, shrinking the workload, %.0f s",
+                    static_cast<unsigned long long>(r->reruns + reruns), elapsed());
+        progress_shown = true;
+      } else if (elapsed() - last_line >= 10) {
+        std::printf("shrink: %llu reruns, shrinking the workload, %.0f s\n",
+                    static_cast<unsigned long long>(r->reruns + reruns), elapsed());
+        last_line = elapsed();
+      }
+      std::fflush(stdout);
+    };
+    progress_shown = false;
+    const WorkloadRerun workload_rerun = [&](const v1::Scenario& candidate) -> absl::StatusOr<WorkloadRun> {
+      RunSpec s = minimal_spec;
+      s.scenario = candidate;
+      s.trace_path.clear();
+      auto out = RunOverGrpc(s);
+      if (!out.ok()) return out.status();
+      const RerunResult rr = ToRerunResult(*out);
+      return WorkloadRun{rr.Fails(target), rr.events, rr.digest};
+    };
+    auto w = ShrinkWorkload(spec.scenario, workload_rerun, wo);
+    if (progress_shown) std::printf("\n");
+    if (!w.ok()) {
+      std::fprintf(stderr, "weir: harness fault while shrinking the workload: %s\n",
+                   std::string(w.status().message()).c_str());
+      return kHarness;
+    }
+    if (!w->changed()) {
+      std::printf("workload   no smaller workload still fails %s (%llu reruns)\n", InvariantName(target),
+                  static_cast<unsigned long long>(w->reruns));
+    } else {
+      std::vector<std::string> changes;
+      for (const KnobChange& c : w->changes) {
+        changes.push_back(absl::StrCat(WorkloadKnobName(c.knob), " ", c.before, " -> ", c.after));
+      }
+      const std::string comment = absl::StrCat(
+          "Shrunk workload (weir shrink) for ", InvariantName(target), " under ", f.out, ": scenario ",
+          spec.scenario_path, ", seed ", spec.seed, ";\n", absl::StrJoin(changes, ", "), ".",
+          w->budget_reached ? " Not proven smallest (budget reached)." : "");
+      if (absl::Status st = WriteFileAtomically(f.out_scenario, FormatScenario(w->scenario, comment)); !st.ok()) {
+        std::fprintf(stderr, "weir: %s\n", std::string(st.message()).c_str());
+        return kHarness;
+      }
+      std::printf("workload   %s (%llu reruns%s)\n", absl::StrJoin(changes, ", ").c_str(),
+                  static_cast<unsigned long long>(w->reruns),
+                  w->budget_reached ? "; budget reached, not proven smallest" : "");
+      std::printf("events     %llu before -> %llu with the minimal plan -> %llu with the shrunk workload\n",
+                  static_cast<unsigned long long>(first.events), static_cast<unsigned long long>(m.events),
+                  static_cast<unsigned long long>(w->events));
+      std::printf("scenario   %s\n", f.out_scenario.c_str());
+      minimal_spec.scenario = w->scenario;
+      minimal_spec.scenario_path = f.out_scenario;
+      replay_scenario = f.out_scenario;
+      replay_profile.clear();  // the written scenario carries the profile the run was judged by
+      profile_note.clear();
+      final_digest = w->digest;
+    }
+  }
+
   if (!f.trace.empty()) {
-    RunSpec s = spec;
-    s.plan = r->minimal;
+    RunSpec s = minimal_spec;
     s.trace_path = f.trace;
     if (auto id = IdentifyConnector(s.connector_argv); id.ok()) s.connector_identity = std::move(*id);
     auto out = stop->load() ? absl::StatusOr<RunOutput>(absl::CancelledError("interrupted"))
@@ -431,12 +528,11 @@ int RunShrinkCommand(ShrinkFlags& f) {
       return kHarness;
     } else {
       std::printf("trace      %s%s\n", f.trace.c_str(),
-                  out->digest == m.digest ? "" : " (its digest differs: the connector is nondeterministic)");
+                  out->digest == final_digest ? "" : " (its digest differs: the connector is nondeterministic)");
     }
   }
   std::printf("%sreplay: %s\n", profile_note.c_str(),
-              ReplayLine(spec.scenario_path, spec.seed, transport, f.out, from_trace ? "" : f.profile,
-                         spec.connector_argv)
+              ReplayLine(replay_scenario, spec.seed, transport, f.out, replay_profile, spec.connector_argv)
                   .c_str());
   return stop->load() ? kExitInterrupted : kShrunk;
 }

@@ -4,8 +4,10 @@
 // failing run — a saved trace, or the flags of `weir run` (scenario, seed,
 // --plan, --profile, connector) — reruns it over gRPC under ever smaller fault
 // plans, and writes the smallest plan that still fails the same invariant as
-// a file for `weir run --plan`. The wall-time bound lives here, not in the
-// search.
+// a file for `weir run --plan`; then, under that plan, the smallest workload
+// (harness/shrink/workload_shrink.h) that still fails it, as a scenario file
+// beside the plan. The wall-time and rerun bounds cover both phases and live
+// here, not in the searches.
 //
 // Exit codes: 0 a plan that still fails was written; 1 the connector is
 // nondeterministic (nothing shrunk, no plan written); 2 usage or input error
@@ -31,6 +33,10 @@ struct ShrinkFlags {
   std::string transport = "tcp";
   std::string invariant;
   std::string out = "minimal.plan";
+  // The shrunk workload's scenario; empty: beside --out (minimal.plan ->
+  // minimal.scenario).
+  std::string out_scenario;
+  bool keep_workload = false;  // skip the workload phase
   std::string trace;  // the minimal run's trace
   std::uint64_t max_reruns = 500;
   double max_seconds = 600;

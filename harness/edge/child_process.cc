@@ -41,6 +41,7 @@ absl::StatusOr<std::unique_ptr<ChildProcess>> ChildProcess::Spawn(const Options&
   }
   std::unique_ptr<ChildProcess> child(new ChildProcess());
   child->tail_bytes_ = options.tail_bytes;
+  child->echo_fd_ = options.echo_fd;
 
   int out_pipe[2] = {-1, -1};
   int ready_pipe[2] = {-1, -1};
@@ -126,6 +127,13 @@ void ChildProcess::ReadOutput() {
     if (r > 0) {
       const ssize_t n = ::read(output_fd_, buf, sizeof buf);
       if (n > 0) {
+        if (echo_fd_ >= 0) {  // best effort: a closed or full echo never stops the reader
+          for (ssize_t done = 0; done < n;) {
+            const ssize_t w = ::write(echo_fd_, buf + done, static_cast<std::size_t>(n - done));
+            if (w <= 0) break;
+            done += w;
+          }
+        }
         std::lock_guard<std::mutex> lock(tail_mu_);
         tail_.append(buf, static_cast<std::size_t>(n));
         if (tail_.size() > 2 * tail_bytes_) tail_.erase(0, tail_.size() - tail_bytes_);

@@ -35,6 +35,10 @@ class ChildProcess {
     bool ready_pipe = true;
     // How many bytes of the end of the output to keep.
     std::size_t tail_bytes = 8192;
+    // When >= 0, everything the process writes is also copied to this file
+    // descriptor as it comes (weir's stderr, for a connector under a
+    // debugger). Not owned; it must stay open while the process runs.
+    int echo_fd = -1;
   };
 
   // Starts the process. Error: exec or pipe setup failed (argv[0] not found…).
@@ -84,6 +88,7 @@ class ChildProcess {
   bool output_eof_ = false;  // guarded by tail_mu_; reader finished
   std::string tail_;
   std::size_t tail_bytes_ = 8192;
+  int echo_fd_ = -1;
 };
 
 // "exit code 3" / "signal 11 (SIGSEGV)" for a waitpid status.

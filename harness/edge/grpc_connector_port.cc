@@ -39,7 +39,15 @@ GrpcConnectorPort::GrpcConnectorPort(Options options, BrokerServer& broker)
 
 GrpcConnectorPort::~GrpcConnectorPort() { Kill(); }
 
+namespace {
+// The wait that stands for "no bound" (--no-wall-bounds): a stop flag ends it.
+constexpr std::chrono::milliseconds kUnbounded = std::chrono::hours(24 * 365 * 10);
+}  // namespace
+
+std::int64_t GrpcConnectorPort::pid() const { return child_ != nullptr ? child_->pid() : 0; }
+
 void GrpcConnectorPort::Kill() {
+  address_.clear();
   stub_.reset();
   channel_.reset();
   if (child_ != nullptr) child_->Kill();
@@ -78,7 +86,9 @@ ConnectorFailure GrpcConnectorPort::Interrupted() {
 ConnectorFailure GrpcConnectorPort::Start(std::uint64_t incarnation) {
   Kill();
   ChildProcess::Options spawn;
-  spawn.argv = options_.argv;
+  spawn.argv = options_.wrapper_argv;
+  spawn.argv.insert(spawn.argv.end(), options_.argv.begin(), options_.argv.end());
+  if (options_.echo_output) spawn.echo_fd = 2;
   spawn.env["WEIR_BROKER_ADDRESS"] = options_.broker_address;
   spawn.env["WEIR_LISTEN_ADDRESS"] = options_.listen_address;
   spawn.env["WEIR_READY_FD"] = "3";
@@ -89,7 +99,8 @@ ConnectorFailure GrpcConnectorPort::Start(std::uint64_t incarnation) {
                             std::string(child.status().message()), "", ""};
   }
   child_ = std::move(*child);
-  auto line = child_->ReadReadyLine(options_.start_timeout, options_.stop);
+  const std::chrono::milliseconds start_timeout = options_.wall_bounds ? options_.start_timeout : kUnbounded;
+  auto line = child_->ReadReadyLine(start_timeout, options_.stop);
   if (absl::IsCancelled(line.status())) return Interrupted();
   if (!line.ok()) {
     // Alive but silent: it hangs in start-up. Gone: it exited.
@@ -109,7 +120,7 @@ ConnectorFailure GrpcConnectorPort::Start(std::uint64_t incarnation) {
   args.SetMaxReceiveMessageSize(static_cast<int>(options_.max_message_bytes));
   args.SetInt(GRPC_ARG_ENABLE_RETRIES, 0);
   channel_ = grpc::CreateCustomChannel(address, grpc::InsecureChannelCredentials(), args);
-  const auto connect_by = std::chrono::steady_clock::now() + options_.start_timeout;
+  const auto connect_by = std::chrono::steady_clock::now() + start_timeout;
   bool connected = false;
   while (!connected && std::chrono::steady_clock::now() < connect_by) {
     if (Stopping()) return Interrupted();
@@ -123,6 +134,7 @@ ConnectorFailure GrpcConnectorPort::Start(std::uint64_t incarnation) {
                                  options_.start_timeout.count(), " ms"));
   }
   stub_ = std::make_unique<grpc::GenericStub>(channel_);
+  address_ = address;
   return {};
 }
 
@@ -141,7 +153,9 @@ ConnectorFailure GrpcConnectorPort::Invoke(const char* name,
   // The call goes out on the broker server's queue; this thread then serves
   // the connector's broker calls from that queue until the answer is there.
   grpc::ClientContext context;
-  context.set_deadline(std::chrono::system_clock::now() + options_.call_timeout);
+  // Without wall bounds the call has no deadline: Serve's `done` below still
+  // ends it when weir is asked to stop.
+  if (options_.wall_bounds) context.set_deadline(std::chrono::system_clock::now() + options_.call_timeout);
   const pid_t group = child_->pid();
   auto kill_and_cancel = [group, &context] {
     ::kill(-group, SIGKILL);

@@ -51,6 +51,14 @@ class GrpcConnectorPort : public ConnectorPort {
     // When it becomes true, every wait ends within ~100 ms, the incarnation is
     // killed and calls return Kind::kInterrupted.
     const std::atomic<bool>* stop = nullptr;
+    // false: call_timeout and start_timeout are not applied (no deadline on
+    // a call, start-up waits as long as the connector takes); only `stop`
+    // ends such a wait. For a connector held at a debugger's breakpoint.
+    bool wall_bounds = true;
+    // Started in front of argv (`valgrind`, `gdb -batch -ex run --args`).
+    std::vector<std::string> wrapper_argv;
+    // Copy the process's output to weir's stderr as it comes.
+    bool echo_output = false;
   };
 
   // REQUIRES: broker outlives the port.
@@ -74,6 +82,12 @@ class GrpcConnectorPort : public ConnectorPort {
                        BrokerEndpoint& broker) override;
   void Kill() override;
 
+  // The live incarnation's process id (the wrapper's, when wrapped), or 0.
+  std::int64_t pid() const;
+  // Where the live incarnation listens (its handshake line); empty when none.
+  const std::string& connector_address() const { return address_; }
+  const std::string& broker_address() const { return options_.broker_address; }
+
  private:
   ConnectorFailure Invoke(const char* name, const google::protobuf::Message& request,
                           google::protobuf::Message* response, BrokerEndpoint& broker);
@@ -85,6 +99,7 @@ class GrpcConnectorPort : public ConnectorPort {
   const Options options_;
   BrokerServer& server_;
   std::unique_ptr<ChildProcess> child_;
+  std::string address_;  // the live incarnation's, from its handshake
   std::shared_ptr<grpc::Channel> channel_;
   // Generic, so that an answer that is no message at all, or bytes that do
   // not parse, can be told apart from an empty answer.

@@ -7,6 +7,35 @@
 #include "harness/edge/private_dir.h"
 
 namespace weir {
+namespace {
+
+// Calls spec.on_hold once, right after event #(hold_before - 1), with the
+// ports' live processes.
+class HoldWatch : public TraceObserver {
+ public:
+  HoldWatch(const RunSpec& spec, const std::vector<std::unique_ptr<GrpcConnectorPort>>& ports)
+      : spec_(spec), ports_(ports) {}
+  void OnEvent(const v1::TraceEvent& event) override {
+    if (done_ || event.seq() + 1 != spec_.hold_before) return;
+    done_ = true;
+    HoldPoint at;
+    at.next_seq = spec_.hold_before;
+    for (std::size_t r = 0; r < ports_.size(); ++r) {
+      const GrpcConnectorPort& port = *ports_[r];
+      if (port.pid() <= 0) continue;
+      at.processes.push_back(HeldProcess{static_cast<std::uint32_t>(r), port.pid(),
+                                         port.connector_address(), port.broker_address()});
+    }
+    spec_.on_hold(at);
+  }
+
+ private:
+  const RunSpec& spec_;
+  const std::vector<std::unique_ptr<GrpcConnectorPort>>& ports_;
+  bool done_ = false;
+};
+
+}  // namespace
 
 absl::StatusOr<RunOutput> RunOverGrpc(const RunSpec& spec) {
   // One broker server (its own socket and completion queue) and one port per
@@ -40,11 +69,22 @@ absl::StatusOr<RunOutput> RunOverGrpc(const RunSpec& spec) {
     port_options.stop = spec.stop;
     port_options.start_timeout =
         std::chrono::milliseconds(spec.scenario.runtime().start_timeout_wall_ms());
+    port_options.wall_bounds = spec.wall_bounds;
+    port_options.wrapper_argv = spec.wrapper_argv;
+    port_options.echo_output = spec.echo_output;
     ports.push_back(std::make_unique<GrpcConnectorPort>(port_options, **server));
     servers.push_back(std::move(*server));
     port_list.push_back(ports.back().get());
   }
-  absl::StatusOr<RunOutput> out = RunWithPorts(spec, port_list);
+  HoldWatch hold(spec, ports);
+  const RunSpec* run_spec = &spec;
+  RunSpec with_hold;
+  if (spec.hold_before > 0 && spec.on_hold) {
+    with_hold = spec;
+    with_hold.observers.push_back(&hold);
+    run_spec = &with_hold;
+  }
+  absl::StatusOr<RunOutput> out = RunWithPorts(*run_spec, port_list);
   ports.clear();  // every reader killed and reaped before its server goes
   return out;
 }

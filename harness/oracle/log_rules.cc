@@ -236,7 +236,7 @@ void LogRules::OnEmitted(const TraceEvent& e) {
   } else {
     live.open_epoch = v_.epoch;
     live.open_run = open.runs.size();
-    open.runs.push_back(Run{x.partition(), o, o + 1});
+    open.runs.push_back(Run{x.partition(), o, o + 1, ref});
   }
 }
 
@@ -290,6 +290,10 @@ void LogRules::OnCommitted(const TraceEvent& e) {
   const EventRef committed = MakeRef(e);
   std::uint64_t duplicates = 0;
   std::optional<std::pair<std::uint32_t, std::uint64_t>> example;
+  // Evidence for the example: the run that holds its first record (and that
+  // run's commit), and the run that holds the second.
+  std::optional<CommittedRun> example_first;
+  const Run* example_second = nullptr;
   for (const Run& run : epoch.runs) {
     Partition& part = At(run.partition);
     if (!example.has_value() && run.from < part.committed.end()) {
@@ -297,11 +301,22 @@ void LogRules::OnCommitted(const TraceEvent& e) {
       const auto fresh = part.committed.Missing(run.from, run.to);
       const std::uint64_t first_held =
           fresh.empty() || fresh.front().first > run.from ? run.from : fresh.front().second;
-      if (first_held < run.to) example = std::make_pair(run.partition, first_held);
+      if (first_held < run.to) {
+        example = std::make_pair(run.partition, first_held);
+        example_second = &run;
+        for (auto it = part.recent_committed.rbegin(); it != part.recent_committed.rend(); ++it) {
+          if (it->from <= first_held && first_held < it->to) {
+            example_first = *it;
+            break;
+          }
+        }
+      }
     }
     const std::uint64_t already = part.committed.Insert(run.from, run.to);
     duplicates += already;
     if (!part.first_commit.valid()) part.first_commit = committed;
+    part.recent_committed.push_back(CommittedRun{run.from, run.to, run.first, committed});
+    if (part.recent_committed.size() > kRecentCommittedRuns) part.recent_committed.pop_front();
   }
   for (const ResumeAt& r : epoch.resume_points) {
     View& v = ViewOf(r.reader < views_.size() ? r.reader : 0);
@@ -312,12 +327,29 @@ void LogRules::OnCommitted(const TraceEvent& e) {
   }
   verdict_.duplicate_records += duplicates;
   if (duplicates > 0 && exactly_once_) {
-    std::vector<EventRef> cited = {epoch.checkpoint, At(example->first).first_commit};
+    // First record and its commit (when still among the partition's recent
+    // committed runs; else the partition's first commit), then the second
+    // record and its checkpoint. A cited record is the first of its run:
+    // the sentence says so when that is not the offset itself.
+    std::vector<EventRef> cited;
+    if (example_first.has_value()) {
+      cited.push_back(example_first->first);
+      cited.push_back(example_first->commit);
+    } else {
+      cited.push_back(At(example->first).first_commit);
+    }
+    cited.push_back(example_second->first);
+    cited.push_back(epoch.checkpoint);
+    const bool exact = example_second->from == example->second &&
+                       (!example_first.has_value() || example_first->from == example->second);
     report_(Invariant::kDuplicateOutput,
             absl::StrCat("Partition ", example->first, " offset ", example->second,
                          " has a second record in the committed output (checkpoint ",
                          e.committed().checkpoint_id(), ": ", duplicates,
-                         duplicates == 1 ? " duplicate record)." : " duplicate records)."),
+                         duplicates == 1 ? " duplicate record)." : " duplicate records).",
+                         exact ? ""
+                               : " The records cited begin the runs of offsets that hold its first and "
+                                 "second record."),
             std::move(cited), &e);
   }
 }

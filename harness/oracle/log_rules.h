@@ -67,6 +67,7 @@
 #pragma once
 
 #include <cstdint>
+#include <deque>
 #include <functional>
 #include <map>
 #include <optional>
@@ -121,6 +122,15 @@ class LogRules {
 
  private:
   // A partition as the broker and the committed output know it (shared).
+  // A committed run, kept as evidence for a later duplicate of its offsets.
+  struct CommittedRun {
+    std::uint64_t from;
+    std::uint64_t to;
+    EventRef first;   // the emitted event of offset `from`
+    EventRef commit;  // the commit that made it durable
+  };
+  // Committed runs kept per partition (the latest), so memory stays bounded.
+  static constexpr std::size_t kRecentCommittedRuns = 8;
   struct Partition {
     std::uint64_t appended = 0;        // next offset to be appended
     std::uint64_t first_retained = 0;
@@ -128,6 +138,7 @@ class LogRules {
     EventRef last_retention;
     OffsetRanges committed;
     EventRef first_commit;             // the commit that first put a record of it in the output
+    std::deque<CommittedRun> recent_committed;  // at most kRecentCommittedRuns, oldest first
     std::uint64_t committed_resume = 0;  // the highest committed resume point of any reader
     OffsetRanges deleted_unread;       // excused losses
     OffsetRanges gaps;                 // reported by the connector
@@ -160,6 +171,7 @@ class LogRules {
     std::uint32_t partition;
     std::uint64_t from;
     std::uint64_t to;  // exclusive
+    EventRef first;    // the emitted event of offset `from`
   };
   struct ResumeAt {
     std::uint32_t reader;

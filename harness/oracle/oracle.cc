@@ -124,6 +124,15 @@ bool Oracle::IsCommitted(std::uint64_t id) const {
 }
 
 void Oracle::Retire(std::uint64_t id) {
+  if (auto it = messages_.find(id); it != messages_.end() && it->second.committed.valid()) {
+    if (retired_evidence_.emplace(id, FirstRecord{it->second.committed_record, it->second.committed}).second) {
+      retired_evidence_order_.push_back(id);
+      if (retired_evidence_order_.size() > kRetiredEvidence) {
+        retired_evidence_.erase(retired_evidence_order_.front());
+        retired_evidence_order_.pop_front();
+      }
+    }
+  }
   if (id == 0) {
     retired_zero_ = true;
   } else if (id - 1 >= retired_base_) {
@@ -678,9 +687,18 @@ void Oracle::OnCommitted(const TraceEvent& e) {
     if (already) {
       ++verdict_.duplicate_records;
       if (exactly_once_) {
-        std::vector<EventRef> cited = {r.emitted};
-        auto it = messages_.find(r.message_id);
-        if (it != messages_.end()) cited.push_back(it->second.committed);
+        // The first record and its commit, then the second record (this
+        // commit is the current event).
+        std::vector<EventRef> cited;
+        FirstRecord first;
+        if (auto it = messages_.find(r.message_id); it != messages_.end()) {
+          first = FirstRecord{it->second.committed_record, it->second.committed};
+        } else if (auto old = retired_evidence_.find(r.message_id); old != retired_evidence_.end()) {
+          first = old->second;
+        }
+        if (first.record.valid()) cited.push_back(first.record);
+        if (first.commit.valid()) cited.push_back(first.commit);
+        cited.push_back(r.emitted);
         Report(Invariant::kDuplicateOutput,
                absl::StrCat("Message ", r.message_id,
                             " has a second record in the committed output (checkpoint ",
@@ -693,6 +711,7 @@ void Oracle::OnCommitted(const TraceEvent& e) {
     if (it == messages_.end()) continue;
     if (Awaiting(it->second, e.incarnation())) --awaiting_;  // committed: needs no record
     it->second.committed = committed;
+    it->second.committed_record = r.emitted;
     it->second.committed_records = 1;
     if (it->second.acked) Retire(r.message_id);
   }

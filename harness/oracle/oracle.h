@@ -114,6 +114,7 @@ class Oracle : public TraceObserver {
     EventRef last_delivered;
     EventRef last_emitted;
     EventRef committed;  // the commit that first put a record of it in the output
+    EventRef committed_record;  // the record (emitted event) that commit made durable
     std::uint32_t committed_records = 0;
     bool acked = false;
     // Incarnations that last had it delivered / emitted a record of it (0: none).
@@ -198,6 +199,16 @@ class Oracle : public TraceObserver {
     return w < retired_.size() && ((retired_[w] >> ((i - retired_base_) % 64)) & 1) != 0;
   }
   std::deque<std::uint64_t> retired_;
+  // The first committed record and its commit of the most recently retired
+  // ids, so a duplicate of a retired message still cites them; at most
+  // kRetiredEvidence entries (memory stays bounded), oldest dropped first.
+  static constexpr std::size_t kRetiredEvidence = 4096;
+  struct FirstRecord {
+    EventRef record;
+    EventRef commit;
+  };
+  absl::flat_hash_map<std::uint64_t, FirstRecord> retired_evidence_;
+  std::deque<std::uint64_t> retired_evidence_order_;
   std::uint64_t retired_base_ = 0;  // multiple of 64 (for id - 1)
   bool retired_zero_ = false;
   std::vector<PendingRecord> open_epoch_;

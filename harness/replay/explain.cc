@@ -124,6 +124,25 @@ struct Section {
   }
   bool InWindow(std::uint64_t seq) const { return In(windows, seq); }
   bool InDrawWindow(std::uint64_t seq) const { return In(draw_windows, seq); }
+  // Whether a context event (not a proving one) still fits the drawing: the
+  // bound is shared out between the proving events' windows, so an early
+  // window cannot use it all up and push a later proving event off the
+  // timeline. Proving events are always drawn.
+  std::vector<std::size_t> drawn_in_window;
+  std::size_t proving_drawn = 0;
+  bool ContextFits(std::uint64_t seq) {
+    // Room is kept for the proving events still to come.
+    const std::size_t proving_left = proving.size() > proving_drawn ? proving.size() - proving_drawn : 0;
+    if (timeline.events.size() + proving_left >= kMaxDrawnEvents) return false;
+    if (drawn_in_window.size() != draw_windows.size()) drawn_in_window.assign(draw_windows.size(), 0);
+    for (std::size_t w = 0; w < draw_windows.size(); ++w) {
+      if (seq < draw_windows[w].first || seq > draw_windows[w].second) continue;
+      if (drawn_in_window[w] >= std::max<std::size_t>(16, kMaxDrawnEvents / draw_windows.size())) return false;
+      ++drawn_in_window[w];
+      return true;
+    }
+    return true;
+  }
 };
 
 template <typename F>
@@ -281,11 +300,12 @@ absl::StatusOr<ExplainOutput> ExplainTrace(const std::string& path, const Explai
     bool drawn = false;
     if (may_draw && s.drawn &&
         (show || (s.InDrawWindow(ev.seq()) && (!ev.has_broker_call() || s.broker_calls)))) {
-      if (s.timeline.events.size() < kMaxDrawnEvents) {
+      if (proving || s.ContextFits(ev.seq())) {
         if (ev.has_emitted()) {
           open_epoch.emplace_back(static_cast<std::size_t>(&s - sections.data()), s.timeline.events.size());
         }
         s.timeline.events.push_back(TimelineEvent{ev, proving, 0});
+        if (proving) ++s.proving_drawn;
         drawn = true;
       } else {
         ++s.timeline.elided;

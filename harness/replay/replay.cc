@@ -122,6 +122,35 @@ absl::StatusOr<ReplayResult> ReplayTrace(const std::string& path, const ReplayOp
   result.connector_argv = spec.connector_argv;
   spec.transport = options.transport;
   spec.stop = options.stop;
+  spec.wall_bounds = options.wall_bounds && options.stop_before == 0;
+  spec.wrapper_argv = options.wrapper_argv;
+  spec.echo_output = options.echo_output;
+  std::string next_what, next_line;
+  if (options.stop_before > 0) {
+    // The saved event the hold comes before, found by streaming the file once.
+    auto scan = TraceReader::Open(path);
+    if (!scan.ok()) return scan.status();
+    while (true) {
+      auto more = (*scan)->Next();
+      if (!more.ok()) return more.status();
+      if (!*more) break;
+      if (next_line.empty() && (*scan)->event().seq() == options.stop_before) {
+        next_what = DescribeEvent((*scan)->event());
+        next_line = Chomp((*scan)->line());
+      }
+    }
+    const std::uint64_t events = (*scan)->footer().events();
+    if (next_line.empty()) {
+      return absl::InvalidArgumentError(absl::StrCat(
+          "--stop-before ", options.stop_before, ": ", path, " has no event #", options.stop_before,
+          "; expected an event number from 1 to ", events > 0 ? events - 1 : 0, " (its events are #0 to #",
+          events > 0 ? events - 1 : 0, ")"));
+    }
+    spec.hold_before = options.stop_before;
+    if (options.on_hold) {
+      spec.on_hold = [&](const HoldPoint& at) { options.on_hold(at, next_what, next_line); };
+    }
+  }
 
   auto dir = PrivateDir::Create();
   if (!dir.ok()) return dir.status();

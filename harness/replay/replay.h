@@ -20,6 +20,7 @@
 #include <atomic>
 
 #include <cstdint>
+#include <functional>
 #include <optional>
 #include <string>
 #include <vector>
@@ -38,6 +39,19 @@ struct ReplayOptions {
   // When it becomes true the rerun is abandoned (connector killed and
   // reaped) and ReplayTrace returns CANCELLED. Not owned.
   const std::atomic<bool>* stop = nullptr;
+
+  // Debugging the connector (RunSpec has the details). None of these changes
+  // the rerun's events: the comparison is the same.
+  bool wall_bounds = true;                // false: --no-wall-bounds
+  std::vector<std::string> wrapper_argv;  // --wrap: started in front of the connector
+  bool echo_output = false;               // the connector's output to weir's stderr
+  // > 0: hold the rerun before event #stop_before (1 .. saved events - 1)
+  // and call on_hold with where it holds and the saved trace's event
+  // #stop_before (described, then its line). Lifts the wall bounds too, so a
+  // long hold inside a connector call does not time the call out.
+  std::uint64_t stop_before = 0;
+  std::function<void(const HoldPoint& at, const std::string& next_what, const std::string& next_line)>
+      on_hold;
 };
 
 struct ReplayResult {
@@ -64,7 +78,7 @@ struct ReplayResult {
 };
 
 // Checks the saved trace first (InvalidArgument/NotFound "file:line: …" for a
-// bad file), then that the connector can be started (FailedPrecondition "the
+// bad file, or a stop_before outside the trace), then that the connector can be started (FailedPrecondition "the
 // connector cannot start: …"); other errors are harness faults.
 [[nodiscard]] absl::StatusOr<ReplayResult> ReplayTrace(const std::string& path,
                                                        const ReplayOptions& options);

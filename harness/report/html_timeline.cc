@@ -20,6 +20,8 @@ using v1::TraceEvent;
 constexpr int kLeft = 96;   // lane labels
 constexpr int kCol = 16;    // one column per event
 constexpr int kRight = 24;
+// More than this many events left out between two drawn ones is a fold.
+constexpr std::uint64_t kFoldAt = 20;
 constexpr int kLaneGap = 44;  // between lanes: broker, connector (one per reader), runtime
 constexpr int kBrokerY = 62;
 // Overview geometry.
@@ -182,6 +184,17 @@ std::string TimelineSvg(const ViolationTimeline& v) {
     absl::StrAppend(&out, absl::StrFormat("<line class=\"lane\" x1=\"%d\" y1=\"%d\" x2=\"%d\" y2=\"%d\"/>"
                                           "<text class=\"lane-name\" x=\"4\" y=\"%d\">%s</text>\n",
                                           kLeft, y, width - kRight, y, y + 4, name));
+  }
+  // Folds: where the timeline jumps over a long stretch of the run (between
+  // the windows around proving events far apart), a dashed rule says how
+  // many events it folded away, so every proving event stays in view.
+  for (std::size_t i = 1; i < n; ++i) {
+    const std::uint64_t prev = v.events[i - 1].event.seq(), seq = v.events[i].event.seq();
+    if (seq - prev - 1 <= kFoldAt) continue;
+    const int x = kLeft + static_cast<int>(i) * kCol;
+    absl::StrAppend(&out, absl::StrFormat("<line class=\"fold\" x1=\"%d\" y1=\"20\" x2=\"%d\" y2=\"%d\"/>"
+                                          "<text class=\"fold-label\" x=\"%d\" y=\"%d\">%d events folded</text>\n",
+                                          x, x, wm_bottom, x + 2, wm_bottom + 12, static_cast<int>(seq - prev - 1)));
   }
   // Time labels along the top of the lanes, every ten columns.
   for (std::size_t i = 0; i < n; i += 10) {
@@ -483,6 +496,7 @@ svg .tick { font-size: 9px; fill: #666; }
 .ev.protocol-error circle, .ev.timeout circle { fill: #c00; }
 .ev .ring { fill: none; stroke: #ff8c00; stroke-width: 2.5; }
 .crash-rule { stroke: #c00; stroke-width: 1.5; stroke-dasharray: 4 3; }
+.fold { stroke: #888; stroke-width: 2; stroke-dasharray: 2 2; } .fold-label { font-size: 10px; fill: #555; }
 .join { stroke-width: 1; opacity: .55; }
 .commit-join { stroke: #1a7f37; } .receipt-join { fill: none; stroke: #2b5fd9; } .ack-join { stroke: #2b5fd9; } .ack-join.bad { stroke: #c00; stroke-width: 2; opacity: .9; }
 .watermark { fill: none; stroke: #6a5acd; stroke-width: 2; }

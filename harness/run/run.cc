@@ -118,10 +118,13 @@ absl::StatusOr<RunOutput> RunWithPorts(const RunSpec& spec, const std::vector<Co
     broker = queue.get();
   }
   RuntimeModel runtime(spec.scenario, *broker, *session, ports, trace, faults);
-  runtime.set_wall_clock([] {  // the livelock bound in wall time
-    return std::chrono::duration_cast<std::chrono::milliseconds>(std::chrono::steady_clock::now().time_since_epoch())
-        .count();
-  });
+  if (spec.wall_bounds) {
+    runtime.set_wall_clock([] {  // the livelock bound in wall time
+      return std::chrono::duration_cast<std::chrono::milliseconds>(
+                 std::chrono::steady_clock::now().time_since_epoch())
+          .count();
+    });
+  }  // else only the step count bounds a livelock (runtime_model.h)
 
   RunOutput out;
   out.summary = runtime.Run();

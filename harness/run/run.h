@@ -11,6 +11,7 @@
 
 #include <atomic>
 #include <cstdint>
+#include <functional>
 #include <optional>
 #include <string>
 #include <vector>
@@ -27,6 +28,22 @@
 namespace weir {
 
 enum class Transport { kTcp, kUnix };
+
+// A connector process as the edge sees it at a hold (RunSpec::on_hold).
+struct HeldProcess {
+  std::uint32_t reader = 0;
+  std::int64_t pid = 0;            // the process started (the wrapper's, when wrapped)
+  std::string connector_address;   // where it listens (its handshake line)
+  std::string broker_address;      // where its broker calls go
+};
+
+// Where a run holds: after event #(next_seq - 1) was recorded, before event
+// #next_seq. `processes` lists the live connector processes (none between a
+// crash and the next start).
+struct HoldPoint {
+  std::uint64_t next_seq = 0;
+  std::vector<HeldProcess> processes;
+};
 
 struct RunSpec {
   v1::Scenario scenario;  // validated, defaults filled
@@ -47,6 +64,26 @@ struct RunSpec {
   // connector is killed and reaped, no trace file is left, and the run
   // returns CANCELLED.
   const std::atomic<bool>* stop = nullptr;
+
+  // Debugging a connector (weir replay --no-wall-bounds, --wrap, --stop-before).
+  // None of these changes virtual time or the trace.
+  //
+  // false: no wall-clock bound on the connector (start-up, per-call deadline,
+  // the same-time livelock bound in wall time), so a debugger may hold it at a
+  // breakpoint. Only `stop` then ends a wait on a connector that never answers.
+  bool wall_bounds = true;
+  // Started in front of connector_argv (a debugger or checker: `gdb -batch
+  // -ex run --args`, `valgrind`); the trace header still names the connector.
+  std::vector<std::string> wrapper_argv;
+  // Copy everything the connector (and its wrapper) writes to weir's stderr
+  // as it comes, besides keeping its tail.
+  bool echo_output = false;
+  // When hold_before > 0 and on_hold is set: called once, on the simulation
+  // thread, right after event #(hold_before - 1) was recorded (the edge fills
+  // in its processes). The run waits while it runs; it may do I/O (the core
+  // does none). REQUIRES: outlives the run.
+  std::uint64_t hold_before = 0;
+  std::function<void(const HoldPoint&)> on_hold;
 };
 
 struct RunOutput {

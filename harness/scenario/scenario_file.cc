@@ -1,6 +1,9 @@
 #include "harness/scenario/scenario_file.h"
 
+#include <google/protobuf/text_format.h>
+
 #include "absl/strings/str_cat.h"
+#include "absl/strings/str_split.h"
 #include "harness/runtime/runtime_model.h"
 #include "harness/scenario/fault_validation.h"
 #include "harness/scenario/profile_file.h"
@@ -167,6 +170,14 @@ absl::StatusOr<v1::Scenario> ParseScenario(const std::string& path, std::string_
   v1::Scenario s;
   if (absl::Status st = f.ParseText(text, &s); !st.ok()) return st;
   return Finish(f, std::move(s));
+}
+
+std::string FormatScenario(const v1::Scenario& scenario, const std::string& comment) {
+  std::string out;
+  for (absl::string_view line : absl::StrSplit(comment, '\n')) absl::StrAppend(&out, "# ", line, "\n");
+  std::string body;
+  google::protobuf::TextFormat::PrintToString(scenario, &body);
+  return out + body;
 }
 
 }  // namespace weir

@@ -21,4 +21,8 @@ namespace weir {
 [[nodiscard]] absl::StatusOr<v1::Scenario> ParseScenario(const std::string& path,
                                                          std::string_view text);
 
+// `scenario` as a scenario file that LoadScenario reads back as the same
+// scenario: `comment` (each line after "# "), then the Protobuf text format.
+std::string FormatScenario(const v1::Scenario& scenario, const std::string& comment);
+
 }  // namespace weir

@@ -99,5 +99,59 @@ TEST(Explain, AFaultAppliedAtTheTimeOfAShownEventIsInTheTimeline) {
   EXPECT_TRUE(drawn);
 }
 
+// A duplicate whose four proving events lie far apart (the first record,
+// its commit, the second record, its commit: four windows of context that
+// together exceed the drawing bound): every proving event is still drawn,
+// each window keeps some context, and the drawing stays within the bound.
+TEST(Explain, EveryProvingEventOfALongDuplicateIsDrawn) {
+  TraceFileWriter w;
+  w.Add(Millis(1)).mutable_published()->set_message_id(1);
+  auto* d = w.Add(Millis(2)).mutable_delivered();
+  d->set_message_id(1);
+  d->set_receipt(7);
+  d->set_attempt(1);
+  d->set_lease_deadline_ns(Seconds(30));
+  w.Filler(100, Millis(3));
+  auto* e1 = w.Add(Millis(4)).mutable_emitted();  // seq 102
+  e1->set_message_id(1);
+  e1->set_step(1);
+  w.Filler(200, Millis(5));
+  w.Add(Millis(6)).mutable_checkpoint()->set_checkpoint_id(1);
+  w.Add(Millis(6)).mutable_committed()->set_checkpoint_id(1);  // seq 304
+  w.Filler(300, Millis(7));
+  auto* d2 = w.Add(Millis(8)).mutable_delivered();
+  d2->set_message_id(1);
+  d2->set_receipt(8);
+  d2->set_attempt(2);
+  d2->set_lease_deadline_ns(Seconds(30));
+  auto* e2 = w.Add(Millis(8)).mutable_emitted();  // seq 606
+  e2->set_message_id(1);
+  e2->set_step(2);
+  w.Filler(300, Millis(9));
+  w.Add(Millis(10)).mutable_checkpoint()->set_checkpoint_id(2);
+  w.Add(Millis(10)).mutable_committed()->set_checkpoint_id(2);  // seq 908
+  w.Filler(10, Millis(11));
+  w.Add(Millis(12)).mutable_run_ended()->set_reason("all messages committed");
+  const std::string path = w.Write(::testing::TempDir() + "/explain_dup_" + std::to_string(::getpid()) + ".jsonl");
+
+  auto out = ExplainTrace(path);
+  ASSERT_TRUE(out.ok()) << out.status();
+  std::filesystem::remove(path);
+  const ViolationTimeline* dup = nullptr;
+  for (const ViolationTimeline& v : out->timelines.violations) {
+    if (v.invariant == "duplicate-output") dup = &v;
+  }
+  ASSERT_NE(dup, nullptr) << out->text;
+  std::vector<std::uint64_t> proving;
+  std::size_t before_last = 0;  // context drawn in the last window, before its proving event
+  for (const TimelineEvent& te : dup->events) {
+    if (te.proving) proving.push_back(te.event.seq());
+    if (!te.proving && te.event.seq() > 850 && te.event.seq() < 908) ++before_last;
+  }
+  EXPECT_EQ(proving, (std::vector<std::uint64_t>{102, 304, 606, 908}));
+  EXPECT_GT(before_last, 0u);
+  EXPECT_LE(dup->events.size(), kMaxDrawnEvents);
+}
+
 }  // namespace
 }  // namespace weir

@@ -142,6 +142,24 @@ TEST(HtmlTimeline, JoinsCommitsToTheirEpochAndAcksToTheirRecord) {
   EXPECT_EQ(Count(html, "<circle class=\"et\""), 1u);  // the record at its event time
 }
 
+// Proving events far apart: the stretch between their windows is folded,
+// with a rule that says how many events it stands for; short skips are not.
+TEST(HtmlTimeline, FoldsTheLongStretchBetweenTwoWindows) {
+  RunTimelines run = HostileRun();
+  ViolationTimeline& v = run.violations[0];
+  EXPECT_EQ(Count(RunTimelinesHtml(run), "class=\"fold\""), 0u);  // 1 … 8, no jump
+  for (TimelineEvent& te : v.events) {
+    if (te.event.seq() >= 6) te.event.set_seq(te.event.seq() + 994);  // 6, 7, 8 -> 1000, 1001, 1002
+  }
+  const std::string html = RunTimelinesHtml(run);
+  EXPECT_EQ(Count(html, "class=\"fold\""), 1u);
+  EXPECT_NE(html.find(">994 events folded<"), std::string::npos);  // #6 … #999
+  v.events[5].event.set_seq(26);  // a jump of 20 events (#6 … #25) is no fold
+  v.events[6].event.set_seq(27);
+  v.events[7].event.set_seq(28);
+  EXPECT_EQ(Count(RunTimelinesHtml(run), "class=\"fold\""), 0u);
+}
+
 TEST(HtmlTimeline, SaysWhatWasLeftOut) {
   RunTimelines run = HostileRun();
   run.violations[0].elided = 17;

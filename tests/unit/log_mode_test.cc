@@ -7,6 +7,9 @@
 
 #include <gtest/gtest.h>
 
+#include <cstdio>
+#include <string>
+
 #include "harness/broker/broker_session.h"
 #include "harness/core/offset_ranges.h"
 #include "harness/oracle/oracle.h"
@@ -228,6 +231,40 @@ TEST(LogMode, ResumeAtCheckpointPlusOneIsASkip) {
             std::string::npos)
       << v.at(Invariant::kResumeExact).first[0].sentence;
   EXPECT_GT(run.Violations(v, Invariant::kOffsetGap), 0u);
+}
+
+// A duplicate's evidence: a record of the run that held its first record,
+// the commit that made that run durable, then the second record, all of the
+// duplicate's partition and in that order.
+TEST(LogMode, ADuplicateCitesTheFirstRecordItsCommitAndTheSecond) {
+  v1::Scenario s = LogScenario(600, 3);
+  s.mutable_faults()->set_crash_rate(0.02);
+  LogRun run(s, LogBugs{.resume_minus_one = true});
+  const Verdict v = run.Run();
+  ASSERT_FALSE(v.at(Invariant::kDuplicateOutput).first.empty()) << Failed(v);
+  const Violation& dup = v.at(Invariant::kDuplicateOutput).first[0];
+  unsigned partition = 0;
+  unsigned long long offset = 0;
+  ASSERT_EQ(std::sscanf(dup.sentence.c_str(), "Partition %u offset %llu", &partition, &offset), 2) << dup.sentence;
+  const std::string of_partition = "partition " + std::to_string(partition) + " offset ";
+  std::vector<const Evidence*> emitted;
+  std::uint64_t commit_between = 0;
+  for (const Evidence& e : dup.evidence) {
+    if (e.what.find("emitted a record of") != std::string::npos) {
+      EXPECT_NE(e.what.find(of_partition), std::string::npos) << e.what;
+      emitted.push_back(&e);
+    } else if (emitted.size() == 1 && e.what.find("committed checkpoint") != std::string::npos) {
+      commit_between = e.seq;
+    }
+  }
+  ASSERT_EQ(emitted.size(), 2u) << dup.sentence;
+  EXPECT_GT(commit_between, emitted[0]->seq);
+  EXPECT_LT(commit_between, emitted[1]->seq);
+  // Each cited record begins the run that holds the offset: at or before it.
+  for (const Evidence* e : emitted) {
+    const auto at = e->what.find(of_partition) + of_partition.size();
+    EXPECT_LE(std::stoull(e->what.substr(at)), offset) << e->what;
+  }
 }
 
 TEST(LogMode, ResumeAtCheckpointMinusOneIsARewindAndADuplicate) {

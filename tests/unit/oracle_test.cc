@@ -285,6 +285,71 @@ TEST(Oracle, SecondCommittedRecordIsADuplicateUnderExactlyOnce) {
   EXPECT_EQ(v.duplicate_records, 1u);
 }
 
+std::vector<std::uint64_t> EvidenceSeqs(const Verdict& v, Invariant inv) {
+  std::vector<std::uint64_t> seqs;
+  if (v.at(inv).first.empty()) return seqs;
+  for (const Evidence& e : v.at(inv).first[0].evidence) seqs.push_back(e.seq);
+  return seqs;
+}
+
+// The evidence of a duplicate: the first record and the commit that made it
+// durable, then the second record and its commit (the event that saw it).
+TEST(Oracle, ADuplicateCitesTheFirstRecordAndItsCommit) {
+  TraceBuilder t;
+  t.Published(1);
+  t.Delivered(1, 10);
+  const std::uint64_t first = t.Emitted(1);
+  t.Checkpoint(1);
+  const std::uint64_t first_commit = t.Committed(1);
+  t.Delivered(1, 11);  // redelivered: its ack never came
+  const std::uint64_t second = t.Emitted(1);
+  t.Checkpoint(2);
+  const std::uint64_t second_commit = t.Committed(2);
+  const Verdict v = t.End();
+  EXPECT_EQ(EvidenceSeqs(v, Invariant::kDuplicateOutput),
+            (std::vector<std::uint64_t>{first, first_commit, second, second_commit}));
+}
+
+TEST(Oracle, ADuplicateOfAnAckedMessageStillCitesItsFirstRecord) {
+  TraceBuilder t;
+  t.Published(1);
+  t.Delivered(1, 10);
+  const std::uint64_t first = t.Emitted(1);
+  t.Checkpoint(1);
+  const std::uint64_t first_commit = t.Committed(1);
+  t.Acked(1, 10);      // committed and acked: retired from the in-flight table
+  t.Delivered(1, 11);  // a duplicate delivery after the ack
+  const std::uint64_t second = t.Emitted(1);
+  t.Checkpoint(2);
+  const std::uint64_t second_commit = t.Committed(2);
+  const Verdict v = t.End();
+  EXPECT_EQ(EvidenceSeqs(v, Invariant::kDuplicateOutput),
+            (std::vector<std::uint64_t>{first, first_commit, second, second_commit}));
+}
+
+// Memory stays bounded: only the last 4,096 retired messages keep their
+// first record (Oracle::kRetiredEvidence); an older one's duplicate is still
+// a violation, cited by its second record alone.
+TEST(Oracle, RetiredEvidenceIsBounded) {
+  TraceBuilder t;
+  constexpr std::uint64_t kMessages = 4096 + 10;
+  for (std::uint64_t id = 1; id <= kMessages; ++id) {
+    t.Published(id);
+    t.Delivered(id, 100 + id);
+    t.Emitted(id);
+  }
+  t.Checkpoint(1);
+  t.Committed(1);
+  for (std::uint64_t id = 1; id <= kMessages; ++id) t.Acked(id, 100 + id);
+  t.Delivered(1, 99999);
+  const std::uint64_t second = t.Emitted(1);
+  t.Checkpoint(2);
+  const std::uint64_t second_commit = t.Committed(2);
+  const Verdict v = t.End();
+  EXPECT_EQ(v.at(Invariant::kDuplicateOutput).violations, 1u);
+  EXPECT_EQ(EvidenceSeqs(v, Invariant::kDuplicateOutput), (std::vector<std::uint64_t>{second, second_commit}));
+}
+
 TEST(Oracle, DuplicatesAreOnlyCountedUnderAtLeastOnce) {
   TraceBuilder t(v1::Profile::AT_LEAST_ONCE);
   t.Published(1);
