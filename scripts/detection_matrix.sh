@@ -5,7 +5,11 @@
 # shape: per mutant the invariant expected to catch it, whether it was caught
 # with it, the runs up to the first such detection (scenario, seed) and every
 # invariant seen failing.
-#   queue  reference_connector, mutant_*.cc but mutant_log_*, scenarios but log_*
+#   queue  reference_connector, mutant_*.cc but mutant_log_*, mutant_readers_*
+#          and mutant_deep_*, scenarios but log_*
+#   deep   mutant_deep_*: bugs that need two faults in one run; each must be
+#          found by weir search on rare_mixes_relay_huts within --deep-budget
+#          runs (blind seeds shown beside it for comparison)
 #   log    log_reference_connector, mutant_log_*.cc, scenarios log_*
 #   readers  log_reference_connector, mutant_readers_*.cc, scenarios readers_* with a
 #          log { } block (a readers_* queue scenario runs in the queue matrix)
@@ -17,6 +21,7 @@
 #   --shape S     which matrices                                (default all)
 #   --scenarios   scenario files, each run in its shape's matrix (default fixtures/scenarios/*.scenario)
 #   --keep DIR    keep every run's output in DIR
+#   --deep-budget N  runs for each deep mutant's search              (default 220)
 # Exit code: 0 when each reference passed every run and every mutant failed at
 # least one run with its expected invariant among the reasons; 1 otherwise; 2 on
 # bad usage. A mutant whose expected invariant the oracle does not check yet
@@ -30,6 +35,7 @@ jobs=2
 scenario_glob="$root/fixtures/scenarios/*.scenario"
 shape=all
 keep=""
+deep_budget=220
 while [[ $# -gt 0 ]]; do
   case "$1" in
     --build) build="$2"; shift 2 ;;
@@ -38,11 +44,13 @@ while [[ $# -gt 0 ]]; do
     --scenarios) scenario_glob="$2"; shift 2 ;;
     --shape) shape="$2"; shift 2 ;;
     --keep) keep="$2"; shift 2 ;;
+    --deep-budget) deep_budget="$2"; shift 2 ;;
     *) echo "detection_matrix.sh: unknown argument '$1'" >&2; exit 2 ;;
   esac
 done
 [[ "$seeds" =~ ^[1-9][0-9]*$ ]] || { echo "detection_matrix.sh: --seeds needs a positive count" >&2; exit 2; }
 [[ "$shape" =~ ^(queue|log|readers|all)$ ]] || { echo "detection_matrix.sh: --shape is queue, log, readers or all" >&2; exit 2; }
+[[ "$deep_budget" =~ ^[1-9][0-9]*$ ]] || { echo "detection_matrix.sh: --deep-budget needs a positive count" >&2; exit 2; }
 
 weir="$build/harness/weir"
 bin="$build/fixtures/connectors"
@@ -56,12 +64,14 @@ expected_of() {
 
 # The connectors and scenarios of each shape.
 queue_mutants=()
+deep_mutants=()
 log_mutants=()
 readers_mutants=()
 for f in "$root"/fixtures/connectors/mutant_*.cc; do
   m="$(basename "$f" .cc)"
   [[ -x "$bin/$m" ]] || { echo "detection_matrix.sh: $bin/$m not built" >&2; exit 2; }
-  if [[ "$m" == mutant_log_* ]]; then log_mutants+=("$m");
+  if [[ "$m" == mutant_deep_* ]]; then deep_mutants+=("$m");
+  elif [[ "$m" == mutant_log_* ]]; then log_mutants+=("$m");
   elif [[ "$m" == mutant_readers_* ]]; then readers_mutants+=("$m");
   else queue_mutants+=("$m"); fi
 done
@@ -199,6 +209,38 @@ matrix() {
   echo
 }
 for sh in "${shapes[@]}"; do matrix "$sh"; done
+
+# Deep mutants: their bug needs two faults to meet in one run, which blind
+# seeds rarely draw. Each must be found by weir search (guided by coverage)
+# on the rare-mixes scenario within the budget; blind seeds with the same
+# budget are shown beside it, for comparison only.
+if [[ ${#deep_mutants[@]} -gt 0 && "$shape" =~ ^(queue|all)$ ]]; then
+  rare="$root/fixtures/scenarios/rare_mixes_relay_huts.scenario"
+  echo "deep mutants (weir search on $(basename "$rare" .scenario), budget $deep_budget runs, search seed 1):"
+  echo
+  printf '| %-42s | %-18s | %-22s | %s |\n' mutant expected "guided: found at run" "blind seeds: found at run"
+  printf '|%s|%s|%s|%s|\n' "$(printf -- '-%.0s' {1..44})" "$(printf -- '-%.0s' {1..20})" \
+    "$(printf -- '-%.0s' {1..24})" "$(printf -- '-%.0s' {1..27})"
+  for m in "${deep_mutants[@]}"; do
+    exp="$(expected_of "$m")"
+    at=()
+    for mode in guided blind; do
+      flag=(); [[ $mode == blind ]] && flag=(--blind)
+      "$weir" search --scenario "$rare" "${flag[@]}" --budget "$deep_budget" --search-seed 1 --out "$out/deep-$m-$mode" \
+        --progress none --max-seconds 0 -- "$bin/$m" >"$out/deep-$m-$mode.out" 2>&1 || true
+      found="$(sed -n "s/^FOUND \([a-z, -]*\) at run \([0-9]*\) .*/\1|\2/p" "$out/deep-$m-$mode.out" | head -n 1)"
+      if [[ -n $found && ", ${found%%|*}," == *", $exp,"* ]]; then
+        at+=("${found##*|}")
+      else
+        at+=("not found")
+      fi
+    done
+    printf '| %-42s | %-18s | %-22s | %s |\n' "$m" "$exp" "${at[0]}" "${at[1]}"
+    [[ ${at[0]} == "not found" ]] && status=1
+  done
+  echo
+fi
+
 if [[ $status -eq 0 ]]; then
   echo "PASSED: every reference passed every run; every mutant was caught by its expected invariant (or is pending)."
 else

@@ -28,6 +28,8 @@ runs=(
   "mutant_no_dedup_in_checkpoint crash_storm_weather_buoys 1 duplicate-output"
   "mutant_no_idle_watermark idle_watermark_beehive_scales 1 watermark-stall"
   "mutant_idle_watermark_to_now idle_delayed_pings_avalanche_beacons 1 late-record"
+  "mutant_deep_forget_on_failed_ack rare_mixes_relay_huts 9 duplicate-output"
+  "mutant_deep_retry_at_once_after_throttle rare_mixes_relay_huts 15 retry-storm"
   "mutant_no_redelivery_dedup heavy_redelivery_bike_docks 1 duplicate-output"
   "mutant_no_watermark_restore commit_failures_cold_chain 1 watermark-regression"
   "mutant_receipt_as_message_id broker_restart_greenhouse 1 protocol-error"
