@@ -3,6 +3,7 @@
 #include <unistd.h>
 
 #include <chrono>
+#include <cmath>
 #include <cstdio>
 #include <filesystem>
 
@@ -128,7 +129,9 @@ int RunSearchCommand(SearchFlags& f) {
     return Usage("--progress is '" + f.progress + "'; expected auto, lines or none");
   }
   if (f.budget == 0) return Usage("--budget is 0; expected at least one run");
-  if (f.max_seconds < 0) return Usage("--max-seconds must be >= 0");
+  if (!std::isfinite(f.max_seconds) || f.max_seconds < 0) {
+    return Usage(absl::StrCat("--max-seconds is ", f.max_seconds, "; expected a number of seconds >= 0 (0: no limit)"));
+  }
   if (f.out.empty()) return Usage("--out is empty; expected a directory for the findings");
   for (const auto& [flag, path] : {std::pair{"--coverage", f.coverage}, std::pair{"--html", f.html}}) {
     if (absl::Status st = CheckOutputPath(flag, path); !st.ok()) return Usage(std::string(st.message()));
@@ -183,15 +186,22 @@ int RunSearchCommand(SearchFlags& f) {
   options.first_seed = f.first_seed;
   options.blind = f.blind;
   options.collect = f.collect;
-  options.stop = [&] { return stop->load() || (f.max_seconds > 0 && elapsed() >= f.max_seconds); };
+  bool out_of_time = false;  // --max-seconds ended the search before its budget
+  options.stop = [&] {
+    if (stop->load()) return true;
+    if (f.max_seconds > 0 && elapsed() >= f.max_seconds) out_of_time = true;
+    return out_of_time;
+  };
   const bool tty = f.progress == "auto" && ::isatty(STDOUT_FILENO);
+  std::size_t findings_shown = 0;  // lines mode: a line for each new finding, not every run after one
   options.progress = [&](const SearchProgress& p) {
     if (f.progress == "none") return;
     if (tty) {
       std::printf("\rsearch: %llu/%llu runs, %zu features, corpus %zu, %zu failure(s) ",
                   static_cast<unsigned long long>(p.runs), static_cast<unsigned long long>(f.budget), p.features,
                   p.corpus, p.findings);
-    } else if (p.runs % 10 == 0 || p.findings > 0) {
+    } else if (p.runs % 10 == 0 || p.findings > findings_shown) {
+      findings_shown = p.findings;
       std::printf("search: %llu/%llu runs, %zu features, corpus %zu, %zu failure(s)\n",
                   static_cast<unsigned long long>(p.runs), static_cast<unsigned long long>(f.budget), p.features,
                   p.corpus, p.findings);
@@ -245,7 +255,17 @@ int RunSearchCommand(SearchFlags& f) {
     return true;
   };
   if (result->findings.empty()) {
-    std::printf("no failure found within the budget.\n");
+    if (result->runs >= f.budget) {
+      std::printf("no failure found within the budget.\n");
+    } else if (out_of_time) {
+      std::printf("no failure found: --max-seconds (%g s) ran out after %llu of the budget's %llu runs.\n",
+                  f.max_seconds, static_cast<unsigned long long>(result->runs),
+                  static_cast<unsigned long long>(f.budget));
+    } else {
+      std::printf("no failure found: the search ran out of untried candidates after %llu of the budget's %llu "
+                  "runs.\n",
+                  static_cast<unsigned long long>(result->runs), static_cast<unsigned long long>(f.budget));
+    }
     return write_html() ? kNothingFound : kHarness;
   }
   int k = 0;
