@@ -55,8 +55,18 @@ v1::Scenario AsRun(const v1::Scenario& scenario, const SearchCandidate& c) {
 v1::Scenario Replayable(const v1::Scenario& as_run, const v1::FaultPlan& plan) {
   v1::Scenario s = as_run;
   // Every fault the run applied is a decision of its plan — throttles drawn
-  // from a token bucket or window too — so nothing else may be drawn.
+  // from a token bucket or window too, and the many-reader cuts, moves and
+  // membership changes — so nothing else may be drawn: a mutated plan may
+  // lack a decision the rates would draw again at its place.
   s.mutable_faults()->Clear();
+  if (s.has_readers()) {
+    v1::Readers* r = s.mutable_readers();
+    r->clear_cut_rate();
+    r->clear_move_rate();
+    r->clear_membership_rate();
+    r->clear_cut_crash_rate();
+    r->clear_move_crash_rate();
+  }
   for (const auto& d : plan.decisions()) *s.mutable_faults()->add_scripted() = d;
   return s;
 }
