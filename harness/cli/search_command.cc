@@ -104,6 +104,12 @@ std::string SearchHtml(const SearchResult& r, const std::vector<std::string>& fi
 }  // namespace
 
 void AddSearchCommand(CLI::App& app, SearchFlags& f) {
+  // An unsigned option would take "-1" as 2^64 - 1 (a budget without end).
+  const CLI::Validator kNotNegative(
+      [](std::string& text) {
+        return text.find('-') != std::string::npos ? "is " + text + "; expected a whole number >= 0" : std::string();
+      },
+      "N>=0");
   CLI::App* c = app.add_subcommand(
       "search", "Spend a budget of runs looking for a failure, guided by coverage (or --blind seeds)");
   f.command = c;
@@ -113,9 +119,12 @@ void AddSearchCommand(CLI::App& app, SearchFlags& f) {
   c->add_option("--connector", f.connector, "Connector command 'CMD ARGS…' (no shell)");
   c->add_option("--profile", f.profile, "Profile file overriding every scenario's (the connector's claim)");
   c->add_option("--transport", f.transport, "tcp (loopback, default) or unix");
-  c->add_option("--budget", f.budget, "Runs to spend at most (default 200)");
-  c->add_option("--search-seed", f.search_seed, "Seed of the search's own choices (default 1)");
-  c->add_option("--first-seed", f.first_seed, "First run seed drawn (default 1)");
+  c->add_option("--budget", f.budget, "Runs to spend at most (default 200)")
+      ->check(kNotNegative);
+  c->add_option("--search-seed", f.search_seed, "Seed of the search's own choices (default 1)")
+      ->check(kNotNegative);
+  c->add_option("--first-seed", f.first_seed, "First run seed drawn (default 1)")
+      ->check(kNotNegative);
   c->add_flag("--blind", f.blind, "Blind seeds with every fault kind on (the baseline), no feedback");
   c->add_flag("--collect", f.collect, "Go on after the first failure: one finding per distinct set of failures");
   c->add_option("--out", f.out, "Directory for the findings (default weir-search)");
