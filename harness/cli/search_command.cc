@@ -3,6 +3,7 @@
 #include <unistd.h>
 
 #include <chrono>
+#include <cmath>
 #include <cstdio>
 #include <filesystem>
 
@@ -54,8 +55,18 @@ v1::Scenario AsRun(const v1::Scenario& scenario, const SearchCandidate& c) {
 v1::Scenario Replayable(const v1::Scenario& as_run, const v1::FaultPlan& plan) {
   v1::Scenario s = as_run;
   // Every fault the run applied is a decision of its plan — throttles drawn
-  // from a token bucket or window too — so nothing else may be drawn.
+  // from a token bucket or window too, and the many-reader cuts, moves and
+  // membership changes — so nothing else may be drawn: a mutated plan may
+  // lack a decision the rates would draw again at its place.
   s.mutable_faults()->Clear();
+  if (s.has_readers()) {
+    v1::Readers* r = s.mutable_readers();
+    r->clear_cut_rate();
+    r->clear_move_rate();
+    r->clear_membership_rate();
+    r->clear_cut_crash_rate();
+    r->clear_move_crash_rate();
+  }
   for (const auto& d : plan.decisions()) *s.mutable_faults()->add_scripted() = d;
   return s;
 }
@@ -93,6 +104,12 @@ std::string SearchHtml(const SearchResult& r, const std::vector<std::string>& fi
 }  // namespace
 
 void AddSearchCommand(CLI::App& app, SearchFlags& f) {
+  // An unsigned option would take "-1" as 2^64 - 1 (a budget without end).
+  const CLI::Validator kNotNegative(
+      [](std::string& text) {
+        return text.find('-') != std::string::npos ? "is " + text + "; expected a whole number >= 0" : std::string();
+      },
+      "N>=0");
   CLI::App* c = app.add_subcommand(
       "search", "Spend a budget of runs looking for a failure, guided by coverage (or --blind seeds)");
   f.command = c;
@@ -102,9 +119,12 @@ void AddSearchCommand(CLI::App& app, SearchFlags& f) {
   c->add_option("--connector", f.connector, "Connector command 'CMD ARGS…' (no shell)");
   c->add_option("--profile", f.profile, "Profile file overriding every scenario's (the connector's claim)");
   c->add_option("--transport", f.transport, "tcp (loopback, default) or unix");
-  c->add_option("--budget", f.budget, "Runs to spend at most (default 200)");
-  c->add_option("--search-seed", f.search_seed, "Seed of the search's own choices (default 1)");
-  c->add_option("--first-seed", f.first_seed, "First run seed drawn (default 1)");
+  c->add_option("--budget", f.budget, "Runs to spend at most (default 200)")
+      ->check(kNotNegative);
+  c->add_option("--search-seed", f.search_seed, "Seed of the search's own choices (default 1)")
+      ->check(kNotNegative);
+  c->add_option("--first-seed", f.first_seed, "First run seed drawn (default 1)")
+      ->check(kNotNegative);
   c->add_flag("--blind", f.blind, "Blind seeds with every fault kind on (the baseline), no feedback");
   c->add_flag("--collect", f.collect, "Go on after the first failure: one finding per distinct set of failures");
   c->add_option("--out", f.out, "Directory for the findings (default weir-search)");
@@ -128,7 +148,9 @@ int RunSearchCommand(SearchFlags& f) {
     return Usage("--progress is '" + f.progress + "'; expected auto, lines or none");
   }
   if (f.budget == 0) return Usage("--budget is 0; expected at least one run");
-  if (f.max_seconds < 0) return Usage("--max-seconds must be >= 0");
+  if (!std::isfinite(f.max_seconds) || f.max_seconds < 0) {
+    return Usage(absl::StrCat("--max-seconds is ", f.max_seconds, "; expected a number of seconds >= 0 (0: no limit)"));
+  }
   if (f.out.empty()) return Usage("--out is empty; expected a directory for the findings");
   for (const auto& [flag, path] : {std::pair{"--coverage", f.coverage}, std::pair{"--html", f.html}}) {
     if (absl::Status st = CheckOutputPath(flag, path); !st.ok()) return Usage(std::string(st.message()));
@@ -183,15 +205,22 @@ int RunSearchCommand(SearchFlags& f) {
   options.first_seed = f.first_seed;
   options.blind = f.blind;
   options.collect = f.collect;
-  options.stop = [&] { return stop->load() || (f.max_seconds > 0 && elapsed() >= f.max_seconds); };
+  bool out_of_time = false;  // --max-seconds ended the search before its budget
+  options.stop = [&] {
+    if (stop->load()) return true;
+    if (f.max_seconds > 0 && elapsed() >= f.max_seconds) out_of_time = true;
+    return out_of_time;
+  };
   const bool tty = f.progress == "auto" && ::isatty(STDOUT_FILENO);
+  std::size_t findings_shown = 0;  // lines mode: a line for each new finding, not every run after one
   options.progress = [&](const SearchProgress& p) {
     if (f.progress == "none") return;
     if (tty) {
       std::printf("\rsearch: %llu/%llu runs, %zu features, corpus %zu, %zu failure(s) ",
                   static_cast<unsigned long long>(p.runs), static_cast<unsigned long long>(f.budget), p.features,
                   p.corpus, p.findings);
-    } else if (p.runs % 10 == 0 || p.findings > 0) {
+    } else if (p.runs % 10 == 0 || p.findings > findings_shown) {
+      findings_shown = p.findings;
       std::printf("search: %llu/%llu runs, %zu features, corpus %zu, %zu failure(s)\n",
                   static_cast<unsigned long long>(p.runs), static_cast<unsigned long long>(f.budget), p.features,
                   p.corpus, p.findings);
@@ -245,7 +274,17 @@ int RunSearchCommand(SearchFlags& f) {
     return true;
   };
   if (result->findings.empty()) {
-    std::printf("no failure found within the budget.\n");
+    if (result->runs >= f.budget) {
+      std::printf("no failure found within the budget.\n");
+    } else if (out_of_time) {
+      std::printf("no failure found: --max-seconds (%g s) ran out after %llu of the budget's %llu runs.\n",
+                  f.max_seconds, static_cast<unsigned long long>(result->runs),
+                  static_cast<unsigned long long>(f.budget));
+    } else {
+      std::printf("no failure found: the search ran out of untried candidates after %llu of the budget's %llu "
+                  "runs.\n",
+                  static_cast<unsigned long long>(result->runs), static_cast<unsigned long long>(f.budget));
+    }
     return write_html() ? kNothingFound : kHarness;
   }
   int k = 0;

@@ -355,8 +355,9 @@ void Oracle::CountChances(const TraceEvent& e) {
       out_of_order(e.published().event_time_ns());
       break;
     case TraceEvent::kAppended:
+      // A record held back by a visibility delay is counted at its
+      // fault_applied event (below), once.
       out_of_order(e.appended().event_time_ns());
-      if (e.appended().visible_at_ns() > 0) Chance(Invariant::kLateRecord);  // held back
       break;
     case TraceEvent::kDelivered:
       if (e.delivered().attempt() > 1) {
@@ -437,8 +438,11 @@ void Oracle::CountChances(const TraceEvent& e) {
     case TraceEvent::kFaultApplied: {
       const v1::FaultDecision& d = e.fault_applied().decision();
       ++verdict_.faults_applied[FaultKey(d)];
-      // A message held back or handed out of order arrives behind later ones.
-      if (d.has_visibility_delay_ms() || d.has_reorder()) Chance(Invariant::kLateRecord);
+      // A message held back or handed out of order arrives behind later ones
+      // (a delay of 0 holds nothing back; a plan may carry one).
+      if ((d.has_visibility_delay_ms() && d.visibility_delay_ms() > 0) || (d.has_reorder() && d.reorder())) {
+        Chance(Invariant::kLateRecord);
+      }
       break;
     }
     default:

@@ -1,7 +1,6 @@
 #include "harness/search/guided_search.h"
 
 #include <algorithm>
-#include <cmath>
 
 #include "absl/container/flat_hash_map.h"
 #include "absl/container/flat_hash_set.h"
@@ -52,10 +51,13 @@ class Search {
 
   absl::StatusOr<SearchResult> Go() {
     std::uint64_t attempts = 0;
+    // Candidates already tried are not run again; give up after a while
+    // (saturating: a huge --budget must not wrap the bound to a small one).
+    constexpr std::uint64_t kMax = ~std::uint64_t{0};
+    const std::uint64_t max_attempts = options_.budget > (kMax - 100) / 20 ? kMax : options_.budget * 20 + 100;
     while (result_.runs < options_.budget) {
       if (options_.stop && options_.stop()) break;
-      // Candidates already tried are not run again; give up after a while.
-      if (++attempts > options_.budget * 20 + 100) break;
+      if (++attempts > max_attempts) break;
       SearchCandidate c = Next();
       if (!tried_.insert(CandidateKey(c)).second) continue;
       auto fb = run_(c);
@@ -243,7 +245,9 @@ std::vector<std::string> FeaturesOf(const Verdict& verdict) {
     const char* name = InvariantName(static_cast<Invariant>(i));
     if (r.judged() && r.chances > 0) {
       // By order of magnitude: ten times as many chances is news, one more is not.
-      const int magnitude = static_cast<int>(std::log10(static_cast<double>(r.chances)));
+      // Integer arithmetic: the same digits on every platform.
+      int magnitude = 0;
+      for (std::uint64_t c = r.chances; c >= 10; c /= 10) ++magnitude;
       out.push_back(absl::StrCat("chance ", name, " >=1e", magnitude));
     }
     if (r.checked && r.violations > 0) out.push_back(absl::StrCat("failed ", name));

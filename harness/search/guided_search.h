@@ -113,8 +113,10 @@ struct SearchResult {
 // two of them, "failed <rule>" for each failure.
 std::vector<std::string> FeaturesOf(const Verdict& verdict);
 
-// The rate fields (double fields named *_rate) of a fault configuration that
-// are not zero, in field order; and the configuration with some switched off.
+// The fields of a fault configuration a swarm may switch off (double fields
+// named *_rate, and the latency, token-bucket and throttle-window blocks)
+// that are on (not zero, set, not empty), in field order; and the
+// configuration with some switched off.
 std::vector<std::string> RatesOn(const v1::FaultConfig& config);
 void SwitchOff(const std::vector<std::string>& fields, v1::FaultConfig* config);
 

@@ -58,6 +58,10 @@ check "…after exactly the budget" grep -q '^4 runs' "$WORK/r.out"
 
 "$WEIR" search --scenario "$CRASHES" --budget 0 -- "$REF" >/dev/null 2>&1
 check "--budget 0: exit 2" test $? -eq 2
+"$WEIR" search --scenario "$CRASHES" --budget -1 -- "$REF" >/dev/null 2>&1
+check "--budget -1 (no wrap to 2^64 - 1): exit 2" test $? -eq 2
+"$WEIR" search --scenario "$CRASHES" --max-seconds nan -- "$REF" >/dev/null 2>&1
+check "--max-seconds nan: exit 2" test $? -eq 2
 "$WEIR" search --scenario "$WORK/missing.scenario" -- "$REF" >"$WORK/bad.out" 2>&1
 check "a missing scenario: exit 2" test $? -eq 2
 "$WEIR" search --scenario "$CRASHES" -- "$WORK/no-such-connector" >/dev/null 2>&1

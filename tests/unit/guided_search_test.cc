@@ -157,5 +157,23 @@ TEST(GuidedSearch, FeaturesNameChancesByMagnitudeFaultsAndPairs) {
   EXPECT_NE(std::find(f.begin(), f.end(), "pair crash at BEFORE_STEP + latency_ms at PULL"), f.end());
 }
 
+TEST(GuidedSearch, ChanceMagnitudesChangeExactlyAtPowersOfTen) {
+  const auto feature = [](std::uint64_t chances) {
+    Verdict v;
+    v.at(Invariant::kStepTimeout).chances = chances;
+    for (const std::string& f : FeaturesOf(v)) {
+      if (f.rfind("chance step-timeout ", 0) == 0) return f;
+    }
+    return std::string("none");
+  };
+  EXPECT_EQ(feature(0), "none");
+  EXPECT_EQ(feature(1), "chance step-timeout >=1e0");
+  EXPECT_EQ(feature(9), "chance step-timeout >=1e0");
+  EXPECT_EQ(feature(10), "chance step-timeout >=1e1");
+  EXPECT_EQ(feature(999), "chance step-timeout >=1e2");
+  EXPECT_EQ(feature(1000), "chance step-timeout >=1e3");
+  EXPECT_EQ(feature(~std::uint64_t{0}), "chance step-timeout >=1e19");  // 18446744073709551615
+}
+
 }  // namespace
 }  // namespace weir

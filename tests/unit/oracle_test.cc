@@ -1134,5 +1134,39 @@ TEST(OracleCoverage, FaultsAppliedAreCountedByKindAndPlace) {
   EXPECT_EQ(v.faults_applied.at("crash at AFTER_CHECKPOINT_BEFORE_COMMIT"), 1u);
 }
 
+TEST(OracleCoverage, ADelayedAppendIsOneLateRecordChanceAndAZeroDelayNone) {
+  // A log record held back by a visibility delay shows as a fault_applied
+  // event and an appended event with visible_at_ns: one situation, one chance.
+  // A plan's delay of 0 (a weakened decision) holds nothing back: no chance.
+  Oracle oracle(v1::Profile{}, v1::LOG);
+  std::uint64_t seq = 0;
+  const auto delay = [&](std::int64_t ms) {
+    v1::TraceEvent e;
+    e.set_seq(++seq);
+    auto* d = e.mutable_fault_applied()->mutable_decision();
+    d->set_site(v1::APPEND);
+    d->set_position(seq);
+    d->set_visibility_delay_ms(ms);
+    oracle.OnEvent(e);
+  };
+  const auto append = [&](std::uint64_t offset, std::int64_t visible_at_ns) {
+    v1::TraceEvent e;
+    e.set_seq(++seq);
+    e.set_t_ns(Millis(10));
+    auto* x = e.mutable_appended();
+    x->set_offset(offset);
+    x->set_event_time_ns(Millis(10) + static_cast<std::int64_t>(offset));  // in order
+    if (visible_at_ns > 0) x->set_visible_at_ns(visible_at_ns);
+    oracle.OnEvent(e);
+  };
+  delay(50);
+  append(0, Millis(60));
+  delay(0);
+  append(1, 0);
+  const Verdict v = oracle.Finish();
+  EXPECT_EQ(v.at(Invariant::kLateRecord).chances, 1u);
+  EXPECT_EQ(v.faults_applied.at("visibility_delay_ms at APPEND"), 2u);
+}
+
 }  // namespace
 }  // namespace weir
