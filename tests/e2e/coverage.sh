@@ -57,10 +57,16 @@ json.dump(c, open(sys.argv[2], "w"), indent=1)' "$WORK/q.cert" "$WORK/edited.cer
 check "verify rejects a certificate whose not-exercised list was emptied" test $? -ne 0
 
 # 2. --require-coverage turns the gap into a refusal.
-certify --suite "$QUIET" --connector "$REF" --require-coverage >"$WORK/rq.out" 2>&1
+certify --suite "$QUIET" --connector "$REF" --require-coverage --certificate "$WORK/rq.cert" >"$WORK/rq.out" 2>&1
 rc=$?
 check "--require-coverage: exit 5 (got $rc)" test $rc -eq 5
 check "--require-coverage: NOT CERTIFIED" grep -q '^NOT CERTIFIED (--require-coverage)' "$WORK/rq.out"
+check "--require-coverage: the certificate says not certified, and why" /usr/bin/python3 -c '
+import json, sys
+c = json.load(open(sys.argv[1]))
+sys.exit(0 if not c["certified"] and c["coverage_required"] and "throttle-violation" in c["not_exercised"] else 1)' "$WORK/rq.cert"
+"$WEIR" verify "$WORK/rq.cert" --connector-binary "$REF" >"$WORK/rqv.out" 2>&1
+check "--require-coverage: verify refuses that certificate (exit 1)" test $? -eq 1
 
 # 3. Why it matters: a connector that ignores retry-after passes the quiet
 #    suite — with the gap named — and fails the suite that throttles.
