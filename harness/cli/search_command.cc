@@ -34,12 +34,6 @@ int Usage(const std::string& message) {
   return kUsage;
 }
 
-std::string Names(const std::vector<Invariant>& invariants) {
-  std::vector<std::string> names;
-  for (Invariant i : invariants) names.push_back(InvariantName(i));
-  return absl::StrJoin(names, ", ");
-}
-
 // The scenario a candidate runs: the loaded one, with its swarm's fault kinds
 // switched off.
 v1::Scenario AsRun(const v1::Scenario& scenario, const SearchCandidate& c) {
@@ -296,27 +290,27 @@ int RunSearchCommand(SearchFlags& f) {
     std::string scenario_text;
     google::protobuf::TextFormat::PrintToString(replayable, &scenario_text);
     scenario_text = absl::StrCat("# Found by weir search (run ", found.run, ") from ", f.scenarios[found.candidate.scenario],
-                                 ", seed ", found.candidate.seed, ": fails ", Names(found.failed),
+                                 ", seed ", found.candidate.seed, ": fails ", InvariantNames(found.failed),
                                  ".\n# Drawn faults are off; the failing run's fault plan is scripted below.\n",
                                  scenario_text);
     const std::string suite_text =
-        absl::StrCat("# Regression suite for find-", k, " (weir search): fails ", Names(found.failed), ".\nname: \"find-", k,
+        absl::StrCat("# Regression suite for find-", k, " (weir search): fails ", InvariantNames(found.failed), ".\nname: \"find-", k,
                      "\"\nscenarios: [\"find-", k, ".scenario\"]\nseeds: 1\nfirst_seed: ", found.candidate.seed, "\n");
     for (const auto& [path, text] :
          {std::pair{base + ".scenario", scenario_text}, std::pair{base + ".suite", suite_text},
           std::pair{base + ".plan",
-                    FormatFaultPlan(*found.candidate.plan, absl::StrCat("found by weir search: fails ", Names(found.failed)))}}) {
+                    FormatFaultPlan(*found.candidate.plan, absl::StrCat("found by weir search: fails ", InvariantNames(found.failed)))}}) {
       if (absl::Status st = WriteFileAtomically(path, text); !st.ok()) {
         std::fprintf(stderr, "weir: %s\n", std::string(st.message()).c_str());
         return kHarness;
       }
     }
     std::printf("\nFOUND %s at run %llu (%s, seed %llu, %d fault decisions)\n  files:   %s.{scenario,plan,suite}\n",
-                Names(found.failed).c_str(), static_cast<unsigned long long>(found.run),
+                InvariantNames(found.failed).c_str(), static_cast<unsigned long long>(found.run),
                 f.scenarios[found.candidate.scenario].c_str(), static_cast<unsigned long long>(found.candidate.seed),
                 found.candidate.plan->decisions_size(), base.c_str());
     const std::string replay = ReplayLine(base + ".scenario", found.candidate.seed, transport, "", "", argv);
-    finding_lines.push_back(absl::StrCat(Names(found.failed), " at run ", found.run, ": ", replay));
+    finding_lines.push_back(absl::StrCat(InvariantNames(found.failed), " at run ", found.run, ": ", replay));
     std::printf("  replay:  %s\n", replay.c_str());
     std::printf("  certify: %s certify --suite %s --connector %s\n", WeirProgram().c_str(),
                 ShellQuote(base + ".suite").c_str(), ShellQuote(ShellJoin(argv)).c_str());

@@ -50,12 +50,6 @@ RerunResult ToRerunResult(const RunOutput& out) {
   return r;
 }
 
-std::string Names(const std::vector<Invariant>& invariants) {
-  std::vector<std::string> names;
-  for (Invariant i : invariants) names.push_back(InvariantName(i));
-  return names.empty() ? "none" : absl::StrJoin(names, ", ");
-}
-
 std::string DescribeDecision(const v1::FaultDecision& d) {
   std::string at = absl::StrCat(v1::Site_Name(d.site()), " ", d.position(), ": ");
   switch (d.fault_case()) {
@@ -333,13 +327,13 @@ int RunShrinkCommand(ShrinkFlags& f) {
   }
   if (wanted && !first.Fails(*wanted)) {
     std::fprintf(stderr, "weir: the run did not fail %s; it failed %s (choose with --invariant)\n",
-                 InvariantName(*wanted), Names(first.failed).c_str());
+                 InvariantName(*wanted), InvariantNames(first.failed).c_str());
     return kUsage;
   }
   const Invariant target = wanted ? *wanted : first.failed.front();
   const v1::FaultPlan start = original->plan;
   std::printf("target     %s%s\n", InvariantName(target),
-              first.failed.size() > 1 ? absl::StrCat(" (the run failed ", Names(first.failed),
+              first.failed.size() > 1 ? absl::StrCat(" (the run failed ", InvariantNames(first.failed),
                                                      "; choose with --invariant)")
                                             .c_str()
                                       : "");

@@ -3,6 +3,8 @@
 #include <algorithm>
 #include <tuple>
 
+#include "absl/strings/str_cat.h"
+
 namespace weir {
 
 namespace {
@@ -68,6 +70,12 @@ const char* InvariantName(Invariant invariant) {
     case Invariant::kCount: break;
   }
   return "unknown";
+}
+
+std::string InvariantNames(const std::vector<Invariant>& invariants) {
+  std::string out;
+  for (Invariant i : invariants) absl::StrAppend(&out, out.empty() ? "" : ", ", InvariantName(i));
+  return out.empty() ? "none" : out;
 }
 
 const char* InvariantRule(Invariant invariant) {

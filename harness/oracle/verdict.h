@@ -49,6 +49,9 @@ inline constexpr int kInvariantCount = static_cast<int>(Invariant::kCount);
 
 // "ack-before-commit", …: the name used in reports, flags and files.
 const char* InvariantName(Invariant invariant);
+// "lost-message, duplicate-output": names joined in the order given; "none"
+// for no invariant.
+std::string InvariantNames(const std::vector<Invariant>& invariants);
 // The rule in one sentence, as the docs state it.
 const char* InvariantRule(Invariant invariant);
 
