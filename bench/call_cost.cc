@@ -71,8 +71,7 @@ double Percentile(std::vector<double> v, double p) {
 // --- the child: a sync echo server, started with weir's handshake ---------
 
 class EchoService final : public bench::Echo::Service {
-  grpc::Status Echo(grpc::ServerContext*, const bench::EchoMessage* request,
-                    bench::EchoMessage* response) override {
+  grpc::Status Echo(grpc::ServerContext*, const bench::EchoMessage* request, bench::EchoMessage* response) override {
     if (request->answer_bytes() == 0) {
       response->set_payload(request->payload());
     } else {
@@ -128,8 +127,8 @@ const char* Name(Transport t) { return t == Transport::kTcp ? "tcp" : "unix"; }
 
 // Mean microseconds per round trip. request_bytes / answer_bytes: the payload
 // sent and the payload answered (answer_bytes 0: the request's, echoed).
-double MeasureEcho(const std::string& self, Transport transport, int calls,
-                   std::size_t request_bytes = 100, std::size_t answer_bytes = 0) {
+double MeasureEcho(const std::string& self, Transport transport, int calls, std::size_t request_bytes = 100,
+                   std::size_t answer_bytes = 0) {
   Listen listen = ListenAddress(transport, "echo");
   ChildProcess::Options spawn;
   spawn.argv = {self, "--echo-server"};
@@ -166,10 +165,10 @@ double MeasureEcho(const std::string& self, Transport transport, int calls,
   }
   const double wall = Seconds(Clock::now() - measured_from);
   const double mean = wall * 1e6 / calls;
-  std::printf("echo %-4s  %d calls, one outstanding, %zu B sent, %zu B answered: mean %.1f us, p50 %.1f us, "
-              "p99 %.1f us = %.0f round trips/s\n",
-              Name(transport), calls, request_bytes, expect, mean, Median(us), Percentile(us, 0.99),
-              calls / wall);
+  std::printf(
+      "echo %-4s  %d calls, one outstanding, %zu B sent, %zu B answered: mean %.1f us, p50 %.1f us, "
+      "p99 %.1f us = %.0f round trips/s\n",
+      Name(transport), calls, request_bytes, expect, mean, Median(us), Percentile(us, 0.99), calls / wall);
   (*child)->Kill();
   return mean;
 }
@@ -190,25 +189,26 @@ class CountingBroker : public BrokerEndpoint {
  public:
   CountingBroker(BrokerEndpoint& inner, std::uint64_t& calls, CallBytes& bytes)
       : inner_(inner), calls_(calls), bytes_(bytes) {}
-  CallStatus Pull(const v1::PullRequest& rq, v1::PullResponse* rs) override { return Count(rq, rs, &BrokerEndpoint::Pull); }
+  CallStatus Pull(const v1::PullRequest& rq, v1::PullResponse* rs) override {
+    return Count(rq, rs, &BrokerEndpoint::Pull);
+  }
   CallStatus Ack(const v1::AckRequest& rq, v1::AckResponse* rs) override { return Count(rq, rs, &BrokerEndpoint::Ack); }
-  CallStatus Nack(const v1::NackRequest& rq, v1::NackResponse* rs) override { return Count(rq, rs, &BrokerEndpoint::Nack); }
+  CallStatus Nack(const v1::NackRequest& rq, v1::NackResponse* rs) override {
+    return Count(rq, rs, &BrokerEndpoint::Nack);
+  }
   CallStatus ExtendLease(const v1::ExtendLeaseRequest& rq, v1::ExtendLeaseResponse* rs) override {
     return Count(rq, rs, &BrokerEndpoint::ExtendLease);
   }
-  CallStatus ListPartitions(const v1::ListPartitionsRequest& rq,
-                            v1::ListPartitionsResponse* rs) override {
+  CallStatus ListPartitions(const v1::ListPartitionsRequest& rq, v1::ListPartitionsResponse* rs) override {
     return Count(rq, rs, &BrokerEndpoint::ListPartitions);
   }
   CallStatus Read(const v1::ReadRequest& rq, v1::ReadResponse* rs) override {
     return Count(rq, rs, &BrokerEndpoint::Read);
   }
-  CallStatus SaveBookmarks(const v1::SaveBookmarksRequest& rq,
-                           v1::SaveBookmarksResponse* rs) override {
+  CallStatus SaveBookmarks(const v1::SaveBookmarksRequest& rq, v1::SaveBookmarksResponse* rs) override {
     return Count(rq, rs, &BrokerEndpoint::SaveBookmarks);
   }
-  CallStatus LoadBookmarks(const v1::LoadBookmarksRequest& rq,
-                           v1::LoadBookmarksResponse* rs) override {
+  CallStatus LoadBookmarks(const v1::LoadBookmarksRequest& rq, v1::LoadBookmarksResponse* rs) override {
     return Count(rq, rs, &BrokerEndpoint::LoadBookmarks);
   }
   void OnStrayCall(const std::string& method) override { inner_.OnStrayCall(method); }
@@ -246,24 +246,21 @@ class CountingPort : public ConnectorPort {
     bytes.Add(rq, *rs);
     return f;
   }
-  ConnectorFailure Advance(const v1::AdvanceRequest& rq, v1::AdvanceResponse* rs,
-                           BrokerEndpoint& b) override {
+  ConnectorFailure Advance(const v1::AdvanceRequest& rq, v1::AdvanceResponse* rs, BrokerEndpoint& b) override {
     ++connector_calls;
     CountingBroker counting(b, broker_calls, bytes);
     ConnectorFailure f = inner_.Advance(rq, rs, counting);
     bytes.Add(rq, *rs);
     return f;
   }
-  ConnectorFailure Checkpoint(const v1::CheckpointRequest& rq, v1::CheckpointResponse* rs,
-                              BrokerEndpoint& b) override {
+  ConnectorFailure Checkpoint(const v1::CheckpointRequest& rq, v1::CheckpointResponse* rs, BrokerEndpoint& b) override {
     ++connector_calls;
     CountingBroker counting(b, broker_calls, bytes);
     ConnectorFailure f = inner_.Checkpoint(rq, rs, counting);
     bytes.Add(rq, *rs);
     return f;
   }
-  ConnectorFailure Committed(const v1::CommittedRequest& rq, v1::CommittedResponse* rs,
-                             BrokerEndpoint& b) override {
+  ConnectorFailure Committed(const v1::CommittedRequest& rq, v1::CommittedResponse* rs, BrokerEndpoint& b) override {
     ++connector_calls;
     CountingBroker counting(b, broker_calls, bytes);
     ConnectorFailure f = inner_.Committed(rq, rs, counting);
@@ -289,12 +286,12 @@ class CountingPort : public ConnectorPort {
 struct WeirFigures {
   double per_call_us = 0;
   double steps_per_s = 0;
-  std::size_t mean_sent_bytes = 0;      // Protobuf bytes per call, rounded
+  std::size_t mean_sent_bytes = 0;  // Protobuf bytes per call, rounded
   std::size_t mean_answered_bytes = 0;
 };
 
-WeirFigures Report(const char* name, const RunOutput& out, const CountingPort& counted,
-                   double wall, double baseline_us) {
+WeirFigures Report(const char* name, const RunOutput& out, const CountingPort& counted, double wall,
+                   double baseline_us) {
   if (!out.verdict.passed()) Fail(std::string(name) + ": the reference connector did not pass");
   const double calls = static_cast<double>(counted.connector_calls + counted.broker_calls);
   const double busy = wall - counted.lifecycle_seconds();
@@ -303,13 +300,12 @@ WeirFigures Report(const char* name, const RunOutput& out, const CountingPort& c
   f.steps_per_s = static_cast<double>(out.summary.steps) / busy;
   f.mean_sent_bytes = static_cast<std::size_t>(static_cast<double>(counted.bytes.sent) / calls + 0.5);
   f.mean_answered_bytes = static_cast<std::size_t>(static_cast<double>(counted.bytes.answered) / calls + 0.5);
-  std::printf("weir %-8s %llu steps, %llu connector + %llu broker calls (mean %zu B sent, %zu B answered) in "
-              "%.3f s (%.3f s starting/killing): %.0f steps/s, %.1f us per call",
-              name, static_cast<unsigned long long>(out.summary.steps),
-              static_cast<unsigned long long>(counted.connector_calls),
-              static_cast<unsigned long long>(counted.broker_calls), f.mean_sent_bytes,
-              f.mean_answered_bytes, wall,
-              counted.lifecycle_seconds(), f.steps_per_s, f.per_call_us);
+  std::printf(
+      "weir %-8s %llu steps, %llu connector + %llu broker calls (mean %zu B sent, %zu B answered) in "
+      "%.3f s (%.3f s starting/killing): %.0f steps/s, %.1f us per call",
+      name, static_cast<unsigned long long>(out.summary.steps),
+      static_cast<unsigned long long>(counted.connector_calls), static_cast<unsigned long long>(counted.broker_calls),
+      f.mean_sent_bytes, f.mean_answered_bytes, wall, counted.lifecycle_seconds(), f.steps_per_s, f.per_call_us);
   if (baseline_us > 0) std::printf(" = %.2fx the echo round trip", f.per_call_us / baseline_us);
   std::printf("\n");
   return f;
@@ -388,10 +384,10 @@ double MeasureRestart(const std::string& connector, int restarts) {
   }
   port.Kill();
   const double median = Median(ms);
-  std::printf("restart   median %.1f ms to kill an incarnation, start the next and answer Open "
-              "(%d restarts, min %.1f ms, max %.1f ms)\n",
-              median, restarts, *std::min_element(ms.begin(), ms.end()),
-              *std::max_element(ms.begin(), ms.end()));
+  std::printf(
+      "restart   median %.1f ms to kill an incarnation, start the next and answer Open "
+      "(%d restarts, min %.1f ms, max %.1f ms)\n",
+      median, restarts, *std::min_element(ms.begin(), ms.end()), *std::max_element(ms.begin(), ms.end()));
   return median;
 }
 
@@ -433,8 +429,8 @@ int main(int argc, char** argv) {
   // A second baseline per transport: the echo carrying, each way, the mean
   // Protobuf size of weir's own calls in that round (the physical floor for
   // those calls; the 100-byte echo is the floor for calls that small).
-  std::vector<double> echo_tcp, echo_unix, weir_tcp, weir_unix, ratio_tcp, ratio_unix, steps_tcp,
-      steps_unix, sized_tcp, sized_unix, sized_ratio_tcp, sized_ratio_unix;
+  std::vector<double> echo_tcp, echo_unix, weir_tcp, weir_unix, ratio_tcp, ratio_unix, steps_tcp, steps_unix, sized_tcp,
+      sized_unix, sized_ratio_tcp, sized_ratio_unix;
   for (int round = 1; round <= rounds; ++round) {
     std::printf("-- round %d of %d\n", round, rounds);
     echo_tcp.push_back(MeasureEcho(self, Transport::kTcp, echo_calls));
@@ -447,22 +443,21 @@ int main(int argc, char** argv) {
     ratio_unix.push_back(wu.per_call_us / echo_unix.back());
     steps_tcp.push_back(wt.steps_per_s);
     steps_unix.push_back(wu.steps_per_s);
-    sized_tcp.push_back(
-        MeasureEcho(self, Transport::kTcp, echo_calls, wt.mean_sent_bytes, wt.mean_answered_bytes));
-    sized_unix.push_back(
-        MeasureEcho(self, Transport::kUnix, echo_calls, wu.mean_sent_bytes, wu.mean_answered_bytes));
+    sized_tcp.push_back(MeasureEcho(self, Transport::kTcp, echo_calls, wt.mean_sent_bytes, wt.mean_answered_bytes));
+    sized_unix.push_back(MeasureEcho(self, Transport::kUnix, echo_calls, wu.mean_sent_bytes, wu.mean_answered_bytes));
     sized_ratio_tcp.push_back(wt.per_call_us / sized_tcp.back());
     sized_ratio_unix.push_back(wu.per_call_us / sized_unix.back());
-    std::printf("weir against the echo of its own message sizes: %.2fx TCP, %.2fx Unix\n",
-                sized_ratio_tcp.back(), sized_ratio_unix.back());
+    std::printf("weir against the echo of its own message sizes: %.2fx TCP, %.2fx Unix\n", sized_ratio_tcp.back(),
+                sized_ratio_unix.back());
   }
   // The in-process figure runs the queue reference source: queue scenarios only.
   const WeirFigures in_process = spec.scenario.has_log() ? WeirFigures{} : MeasureInProcess(spec);
   const double restart_ms = MeasureRestart(connector, restarts);
-  std::printf("median of %d rounds: echo %.1f us TCP, %.1f us Unix; weir %.1f us per call TCP (%.2fx), "
-              "%.1f us Unix (%.2fx)\n",
-              rounds, Median(echo_tcp), Median(echo_unix), Median(weir_tcp), Median(ratio_tcp),
-              Median(weir_unix), Median(ratio_unix));
+  std::printf(
+      "median of %d rounds: echo %.1f us TCP, %.1f us Unix; weir %.1f us per call TCP (%.2fx), "
+      "%.1f us Unix (%.2fx)\n",
+      rounds, Median(echo_tcp), Median(echo_unix), Median(weir_tcp), Median(ratio_tcp), Median(weir_unix),
+      Median(ratio_unix));
 
   std::printf("result echo_tcp_us %.2f\n", Median(echo_tcp));
   std::printf("result echo_unix_us %.2f\n", Median(echo_unix));

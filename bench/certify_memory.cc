@@ -51,7 +51,6 @@ faults { crash_rate: 0.02 }
 profile { guarantee: EXACTLY_ONCE }
 )";
 
-
 }  // namespace
 
 int main(int argc, char** argv) {
@@ -116,8 +115,8 @@ int main(int argc, char** argv) {
     }
   };
   std::printf("certify in-process, %llu runs of %s, --jobs %u, first-failure traces kept; start: peak RSS %ld KiB\n",
-              static_cast<unsigned long long>(runs), failing ? "the ack-on-pull mutant" : "the reference source",
-              jobs, bench::StatusKb("VmHWM"));
+              static_cast<unsigned long long>(runs), failing ? "the ack-on-pull mutant" : "the reference source", jobs,
+              bench::StatusKb("VmHWM"));
   auto result = Certify(*suite, options);
   if (!result.ok()) {
     std::fprintf(stderr, "%s\n", std::string(result.status().message()).c_str());
@@ -178,11 +177,12 @@ int main(int argc, char** argv) {
   if (seen.size() >= 2 && seen.back().first > seen.front().first) {
     const double per_run = static_cast<double>(seen.back().second - seen.front().second) * 1024.0 /
                            static_cast<double>(seen.back().first - seen.front().first);
-    std::printf("growth from %llu to %llu runs: %ld KiB (%.0f bytes per run); peak at the end / at the first mark "
-                "= %.2f\n",
-                static_cast<unsigned long long>(seen.front().first), static_cast<unsigned long long>(seen.back().first),
-                seen.back().second - seen.front().second, per_run,
-                static_cast<double>(seen.back().second) / static_cast<double>(seen.front().second));
+    std::printf(
+        "growth from %llu to %llu runs: %ld KiB (%.0f bytes per run); peak at the end / at the first mark "
+        "= %.2f\n",
+        static_cast<unsigned long long>(seen.front().first), static_cast<unsigned long long>(seen.back().first),
+        seen.back().second - seen.front().second, per_run,
+        static_cast<double>(seen.back().second) / static_cast<double>(seen.front().second));
     std::printf("with every report written: %ld KiB above the first mark\n", end - seen.front().second);
   }
   return 0;

@@ -32,17 +32,15 @@ namespace {
 
 using v1::TraceEvent;
 
-constexpr std::uint64_t kBatch = 16;          // records per read
+constexpr std::uint64_t kBatch = 16;  // records per read
 constexpr std::uint64_t kStepsPerEpoch = 64;
 constexpr std::uint64_t kRetainEpochs = 16;  // retention trails the committed resume point
 
 // Generates `offsets` appended-and-emitted records over `partitions`
 // partitions into `sink`; calls mark(k) with the offsets emitted so far.
 template <typename Mark>
-std::uint64_t Generate(std::uint64_t offsets, std::uint32_t partitions, TraceObserver* sink,
-                       Mark mark) {
-  TraceEvent opened, appended, read, emitted, stepped, checkpoint, committed, notice, bookmark,
-      retention, ended;
+std::uint64_t Generate(std::uint64_t offsets, std::uint32_t partitions, TraceObserver* sink, Mark mark) {
+  TraceEvent opened, appended, read, emitted, stepped, checkpoint, committed, notice, bookmark, retention, ended;
   auto* o = opened.mutable_opened();
   o->set_new_partitions_held(true);
   for (std::uint32_t p = 0; p < partitions; ++p) {
@@ -71,9 +69,9 @@ std::uint64_t Generate(std::uint64_t offsets, std::uint32_t partitions, TraceObs
     sink->OnEvent(e);
     t += 1000;
   };
-  std::vector<std::uint64_t> next(partitions, 0);        // next offset per partition
-  std::vector<std::uint64_t> retained(partitions, 0);    // first retained
-  std::vector<std::vector<std::uint64_t>> history;       // resume points per committed epoch
+  std::vector<std::uint64_t> next(partitions, 0);      // next offset per partition
+  std::vector<std::uint64_t> retained(partitions, 0);  // first retained
+  std::vector<std::vector<std::uint64_t>> history;     // resume points per committed epoch
   std::vector<std::uint32_t> touched;
 
   send(opened);
@@ -118,7 +116,8 @@ std::uint64_t Generate(std::uint64_t offsets, std::uint32_t partitions, TraceObs
 
     auto* ck = checkpoint.mutable_checkpoint();
     ck->set_checkpoint_id(++cp);
-    for (std::uint32_t p = 0; p < partitions; ++p) ck->mutable_resume_points(static_cast<int>(p))->set_next_offset(next[p]);
+    for (std::uint32_t p = 0; p < partitions; ++p)
+      ck->mutable_resume_points(static_cast<int>(p))->set_next_offset(next[p]);
     send(checkpoint);
     committed.mutable_committed()->set_checkpoint_id(cp);
     send(committed);
@@ -154,8 +153,7 @@ std::uint64_t Generate(std::uint64_t offsets, std::uint32_t partitions, TraceObs
 
 int Main(int argc, char** argv) {
   const std::uint64_t offsets = argc > 1 ? std::strtoull(argv[1], nullptr, 10) : 10'000'000;
-  const std::uint32_t partitions =
-      argc > 2 ? static_cast<std::uint32_t>(std::strtoul(argv[2], nullptr, 10)) : 1000;
+  const std::uint32_t partitions = argc > 2 ? static_cast<std::uint32_t>(std::strtoul(argv[2], nullptr, 10)) : 1000;
   if (offsets == 0 || partitions == 0) {
     std::fprintf(stderr, "usage: log_oracle_bench [offsets >= 1] [partitions >= 1]\n");
     return 2;
@@ -183,22 +181,19 @@ int Main(int argc, char** argv) {
   const double total_s = std::chrono::duration<double>(Clock::now() - t0).count();
   const double oracle_s = total_s - gen_s;
 
-  std::printf("offsets: %llu over %u partitions (%llu events)\n",
-              static_cast<unsigned long long>(offsets), partitions,
+  std::printf("offsets: %llu over %u partitions (%llu events)\n", static_cast<unsigned long long>(offsets), partitions,
               static_cast<unsigned long long>(events));
   std::printf("generation only:   %.3f s\n", gen_s);
   std::printf("generation+oracle: %.3f s  (raw %.2f M offsets/s)\n", total_s,
               static_cast<double>(offsets) / total_s / 1e6);
   std::printf("oracle only:       %.3f s  (%.2f M offsets/s, %.2f M events/s)\n", oracle_s,
-              static_cast<double>(offsets) / oracle_s / 1e6,
-              static_cast<double>(events) / oracle_s / 1e6);
+              static_cast<double>(offsets) / oracle_s / 1e6, static_cast<double>(events) / oracle_s / 1e6);
   for (const auto& [n, kb] : marks) {
     std::printf("VmHWM after %5.1fM offsets: %ld kB\n", static_cast<double>(n) / 1e6, kb);
   }
   std::printf("VmHWM at end:               %ld kB\n", bench::StatusKb("VmHWM"));
   std::printf("verdict: passed=%d duplicate_records=%llu deleted_unread=%llu\n", v.passed(),
-              static_cast<unsigned long long>(v.duplicate_records),
-              static_cast<unsigned long long>(v.deleted_unread));
+              static_cast<unsigned long long>(v.duplicate_records), static_cast<unsigned long long>(v.deleted_unread));
   if (!v.passed() || v.duplicate_records != 0) {
     for (int i = 0; i < kInvariantCount; ++i) {
       const auto& r = v.results[i];

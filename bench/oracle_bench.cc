@@ -34,16 +34,15 @@ namespace {
 
 using v1::TraceEvent;
 
-constexpr std::uint64_t kPerStep = 4;         // messages published and pulled per step
-constexpr std::uint64_t kStepsPerEpoch = 16;  // steps between checkpoints
-constexpr std::uint64_t kRedeliverEvery = 64; // steps between lease expiries
+constexpr std::uint64_t kPerStep = 4;          // messages published and pulled per step
+constexpr std::uint64_t kStepsPerEpoch = 16;   // steps between checkpoints
+constexpr std::uint64_t kRedeliverEvery = 64;  // steps between lease expiries
 
 // Generates about `target` events into `sink`; calls `mark(n)` whenever the
 // count crosses one of the marks. Ends at an epoch boundary with run_ended.
 template <typename Mark>
 std::uint64_t Generate(std::uint64_t target, TraceObserver* sink, Mark mark) {
-  TraceEvent published, call, delivered, emitted, stepped, checkpoint, committed, notice, acked,
-      expired, ended;
+  TraceEvent published, call, delivered, emitted, stepped, checkpoint, committed, notice, acked, expired, ended;
   published.mutable_published()->set_payload_crc32c(0x1234);
   call.mutable_broker_call()->set_method("Pull");
   delivered.mutable_delivered();
@@ -169,8 +168,7 @@ int Main(int argc, char** argv) {
   profile.set_watermark_policy(v1::Profile::MONOTONIC);
   profile.set_idle_timeout_ms(10'000);
   Oracle oracle(profile);
-  const std::uint64_t marks[] = {1'000'000, 2'000'000, 5'000'000, 10'000'000, 20'000'000,
-                                 50'000'000, 100'000'000};
+  const std::uint64_t marks[] = {1'000'000, 2'000'000, 5'000'000, 10'000'000, 20'000'000, 50'000'000, 100'000'000};
   std::vector<std::pair<std::uint64_t, long>> hwm;
   std::size_t next_mark = 0;
   auto t2 = std::chrono::steady_clock::now();
@@ -185,20 +183,17 @@ int Main(int argc, char** argv) {
   const double total_s = Seconds(t2, t3);
   const double oracle_s = total_s - gen_s;
 
-  std::printf("events: %llu (generation pass %llu, checksum %llu)\n",
-              static_cast<unsigned long long>(n), static_cast<unsigned long long>(n_gen),
-              static_cast<unsigned long long>(noop.sum % 1000));
+  std::printf("events: %llu (generation pass %llu, checksum %llu)\n", static_cast<unsigned long long>(n),
+              static_cast<unsigned long long>(n_gen), static_cast<unsigned long long>(noop.sum % 1000));
   std::printf("generation only:   %.3f s  (%.2f M events/s)\n", gen_s, n / gen_s / 1e6);
   std::printf("generation+oracle: %.3f s  (raw %.2f M events/s)\n", total_s, n / total_s / 1e6);
-  std::printf("oracle only:       %.3f s  (%.2f M events/s)\n", oracle_s,
-              oracle_s > 0 ? n / oracle_s / 1e6 : 0.0);
+  std::printf("oracle only:       %.3f s  (%.2f M events/s)\n", oracle_s, oracle_s > 0 ? n / oracle_s / 1e6 : 0.0);
   for (const auto& [at, kb] : hwm) {
     std::printf("VmHWM after %5.1fM events: %ld kB\n", at / 1e6, kb);
   }
   std::printf("VmHWM at end:               %ld kB\n", bench::StatusKb("VmHWM"));
   std::printf("verdict: passed=%d duplicate_records=%llu late_records=%llu\n", v.passed(),
-              static_cast<unsigned long long>(v.duplicate_records),
-              static_cast<unsigned long long>(v.late_records));
+              static_cast<unsigned long long>(v.duplicate_records), static_cast<unsigned long long>(v.late_records));
   for (int i = 0; i < kInvariantCount; ++i) {
     if (v.results[i].violations > 0) {
       std::printf("  %s: %llu\n", InvariantName(static_cast<Invariant>(i)),

@@ -76,15 +76,15 @@ class CallClock : public TraceObserver {
     }
     if (!started_) return;
     switch (e.kind_case()) {
-      case K::kStepped: case K::kCheckpoint: case K::kCommitNotice: case K::kAssigned:
-      case K::kRevoked: case K::kCut: case K::kBrokerCall:
-        ++calls;
-        break;
-      case K::kRunEnded:
-        t1 = Clock::now();
-        break;
-      default:
-        break;
+      case K::kStepped:
+      case K::kCheckpoint:
+      case K::kCommitNotice:
+      case K::kAssigned:
+      case K::kRevoked:
+      case K::kCut:
+      case K::kBrokerCall: ++calls; break;
+      case K::kRunEnded: t1 = Clock::now(); break;
+      default: break;
     }
   }
   Clock::time_point t0, t1;
@@ -108,9 +108,8 @@ bool Run(const v1::Scenario& s, const std::string& connector, Figure* out) {
   if (!connector.empty()) spec.connector_argv = {connector};
   CallClock clock;
   spec.observers = {&clock};
-  auto result = connector.empty()
-                    ? RunInProcess(spec, [] { return std::make_unique<fixtures::LogReferenceSource>(); })
-                    : RunOverGrpc(spec);
+  auto result = connector.empty() ? RunInProcess(spec, [] { return std::make_unique<fixtures::LogReferenceSource>(); })
+                                  : RunOverGrpc(spec);
   if (!result.ok()) {
     std::fprintf(stderr, "readers_cost: %s\n", std::string(result.status().message()).c_str());
     return false;
@@ -121,8 +120,9 @@ bool Run(const v1::Scenario& s, const std::string& connector, Figure* out) {
     return false;
   }
   out->calls = clock.calls;
-  out->ns_per_call = static_cast<double>(std::chrono::duration_cast<std::chrono::nanoseconds>(clock.t1 - clock.t0).count()) /
-                     static_cast<double>(std::max<std::uint64_t>(1, clock.calls));
+  out->ns_per_call =
+      static_cast<double>(std::chrono::duration_cast<std::chrono::nanoseconds>(clock.t1 - clock.t0).count()) /
+      static_cast<double>(std::max<std::uint64_t>(1, clock.calls));
   return true;
 }
 

@@ -47,10 +47,8 @@ class Milestones : public TraceObserver {
   }
   void Print(const char* what, std::uint64_t count, std::uint64_t events) const {
     std::printf("%10llu %-9s %10llu events  max unacked %7llu  VmHWM %7ld kB  VmRSS %7ld kB\n",
-                static_cast<unsigned long long>(count), what,
-                static_cast<unsigned long long>(events),
-                static_cast<unsigned long long>(max_backlog_), bench::StatusKb("VmHWM"),
-                bench::StatusKb("VmRSS"));
+                static_cast<unsigned long long>(count), what, static_cast<unsigned long long>(events),
+                static_cast<unsigned long long>(max_backlog_), bench::StatusKb("VmHWM"), bench::StatusKb("VmRSS"));
     std::fflush(stdout);
   }
   bool all_reached() const { return next_ == at_.size(); }
@@ -94,8 +92,7 @@ int Main(int argc, char** argv) {
   spec.transport = Transport::kUnix;
   spec.observers = {&milestones};
 
-  std::printf("soak: %s, %llu messages, seed 1\n", scenario_path.c_str(),
-              static_cast<unsigned long long>(n));
+  std::printf("soak: %s, %llu messages, seed 1\n", scenario_path.c_str(), static_cast<unsigned long long>(n));
   const auto start = std::chrono::steady_clock::now();
   auto out = RunOverGrpc(spec);
   const double wall = std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
@@ -104,20 +101,18 @@ int Main(int argc, char** argv) {
     return 3;
   }
   const InvariantResult& lost = out->verdict.at(Invariant::kLostMessage);
-  std::printf("wall %.1f s, %llu events (%.0f events/s), %llu steps, %llu incarnations, "
-              "%llu crashes, %llu committed messages\n",
-              wall, static_cast<unsigned long long>(out->events), out->events / wall,
-              static_cast<unsigned long long>(out->summary.steps),
-              static_cast<unsigned long long>(out->summary.incarnations),
-              static_cast<unsigned long long>(out->summary.crashes),
-              static_cast<unsigned long long>(out->summary.committed_messages));
-  std::printf("lost messages: %llu; verdict: %s\n",
-              static_cast<unsigned long long>(lost.violations),
+  std::printf(
+      "wall %.1f s, %llu events (%.0f events/s), %llu steps, %llu incarnations, "
+      "%llu crashes, %llu committed messages\n",
+      wall, static_cast<unsigned long long>(out->events), out->events / wall,
+      static_cast<unsigned long long>(out->summary.steps), static_cast<unsigned long long>(out->summary.incarnations),
+      static_cast<unsigned long long>(out->summary.crashes),
+      static_cast<unsigned long long>(out->summary.committed_messages));
+  std::printf("lost messages: %llu; verdict: %s\n", static_cast<unsigned long long>(lost.violations),
               out->verdict.passed() ? "passed" : "FAILED");
   milestones.Print("committed", out->summary.committed_messages, out->events);
   if (!milestones.all_reached()) {
-    std::printf("soak: fewer messages published than asked for (run ended: %s)\n",
-                out->summary.end_reason.c_str());
+    std::printf("soak: fewer messages published than asked for (run ended: %s)\n", out->summary.end_reason.c_str());
     return 1;
   }
   return out->verdict.passed() ? 0 : 1;

@@ -39,8 +39,7 @@ int main(int argc, char** argv) {
                 static_cast<unsigned long long>(result->tally.passed()), wall, rate, rate * 60);
     return rate;
   };
-  std::printf("suite %s, %llu pairs, --jobs %u\n", argv[1],
-              static_cast<unsigned long long>(suite->pairs()), jobs);
+  std::printf("suite %s, %llu pairs, --jobs %u\n", argv[1], static_cast<unsigned long long>(suite->pairs()), jobs);
   CertifyOptions grpc;
   grpc.connector_argv = {argv[2]};
   const double over_grpc = measure("over gRPC", grpc);

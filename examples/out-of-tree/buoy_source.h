@@ -59,10 +59,10 @@ class BuoySource : public weir::adapter::Source {
   std::int64_t last_input_ns_ = 0;
   std::optional<weir::adapter::RetryGate> pull_gate_;
   std::optional<weir::adapter::RetryGate> ack_gate_;
-  std::set<std::uint64_t> emitted_;                          // message ids with a record
-  std::vector<std::uint64_t> epoch_;                         // receipts of the open epoch
+  std::set<std::uint64_t> emitted_;                              // message ids with a record
+  std::vector<std::uint64_t> epoch_;                             // receipts of the open epoch
   std::map<std::uint64_t, std::vector<std::uint64_t>> pending_;  // checkpoint -> receipts
-  std::vector<std::uint64_t> to_ack_;                        // receipts whose records are committed
+  std::vector<std::uint64_t> to_ack_;                            // receipts whose records are committed
 };
 
 }  // namespace buoys

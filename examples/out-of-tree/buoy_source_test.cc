@@ -26,14 +26,14 @@ TEST(BuoySource, PassesWeirsQuickSuite) {
   EXPECT_EQ(static_cast<std::uint64_t>(report->runs_size()), report->pairs_total());
   EXPECT_EQ(report->weir_version(), weir::WeirVersion());
   for (const auto& run : report->runs()) {
-    EXPECT_TRUE(run.passed()) << run.scenario() << " seed " << run.seed() << ": "
-                              << run.first_violation() << "\n  " << run.replay();
+    EXPECT_TRUE(run.passed()) << run.scenario() << " seed " << run.seed() << ": " << run.first_violation() << "\n  "
+                              << run.replay();
   }
 }
 
 TEST(BuoySource, AckOnPullIsCaughtAsAckBeforeCommit) {
-  auto report = weir::CertifyInProcess(
-      kQuickSuite, [] { return std::make_unique<BuoySource>(BuoyBugs{.ack_on_pull = true}); });
+  auto report =
+      weir::CertifyInProcess(kQuickSuite, [] { return std::make_unique<BuoySource>(BuoyBugs{.ack_on_pull = true}); });
   ASSERT_TRUE(report.ok()) << report.status();
   const bool caught = std::any_of(report->runs().begin(), report->runs().end(), [](const auto& run) {
     const auto& failed = run.failed_invariants();

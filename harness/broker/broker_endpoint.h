@@ -47,8 +47,7 @@ class BrokerEndpoint {
   virtual CallStatus Pull(const v1::PullRequest& request, v1::PullResponse* response) = 0;
   virtual CallStatus Ack(const v1::AckRequest& request, v1::AckResponse* response) = 0;
   virtual CallStatus Nack(const v1::NackRequest& request, v1::NackResponse* response) = 0;
-  virtual CallStatus ExtendLease(const v1::ExtendLeaseRequest& request,
-                                 v1::ExtendLeaseResponse* response) = 0;
+  virtual CallStatus ExtendLease(const v1::ExtendLeaseRequest& request, v1::ExtendLeaseResponse* response) = 0;
   // Log shape (the broker session refuses a call of the other shape with
   // kFailedPrecondition). An endpoint that serves only the queue shape
   // answers kUnimplemented.

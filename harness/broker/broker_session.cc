@@ -16,8 +16,7 @@ std::int64_t CeilMillis(VirtualDuration d) { return std::max<std::int64_t>(1, (d
 // RFC 2697 §3 refills the bucket by one token "CIR times per second"; the
 // number of refills in [0, t] is floor(t * rate / 1 s).
 std::int64_t Ticks(VirtualTime t, double rate_per_s) {
-  return static_cast<std::int64_t>(
-      std::floor(static_cast<long double>(t) * rate_per_s / 1e9L));
+  return static_cast<std::int64_t>(std::floor(static_cast<long double>(t) * rate_per_s / 1e9L));
 }
 
 std::int64_t LatencyMs(const FaultSource& f, const std::string& stream, std::uint64_t k,
@@ -29,12 +28,10 @@ std::int64_t LatencyMs(const FaultSource& f, const std::string& stream, std::uin
   switch (c.distribution()) {
     case v1::FaultConfig::UNIFORM:
       return c.min_ms() <= c.max_ms() ? f.Int(stream, k, c.min_ms(), c.max_ms()) : c.min_ms();
-    case v1::FaultConfig::EXPONENTIAL:
-      return exponential(c.mean_ms());
+    case v1::FaultConfig::EXPONENTIAL: return exponential(c.mean_ms());
     case v1::FaultConfig::LONG_TAIL:
       return f.Unit(stream, k, 3) < c.tail_probability() ? c.tail_ms() : exponential(c.mean_ms());
-    default:
-      return c.fixed_ms();
+    default: return c.fixed_ms();
   }
 }
 
@@ -67,38 +64,33 @@ bool BrokerSession::TakeToken(VirtualDuration* wait) {
   }
   // The next refill: the first time t with Ticks(t) > ticks_.
   const std::int64_t n = ticks_ + 1;
-  VirtualTime t = static_cast<VirtualTime>(
-      std::ceil(static_cast<long double>(n) * 1e9L / b.rate_per_s()));
+  VirtualTime t = static_cast<VirtualTime>(std::ceil(static_cast<long double>(n) * 1e9L / b.rate_per_s()));
   while (Ticks(t, b.rate_per_s()) < n) ++t;  // guard against rounding
   *wait = std::max<VirtualDuration>(1, t - now_);
   return false;
 }
 
-bool BrokerSession::Throttled(v1::Site site, std::uint64_t position,
-                              VirtualDuration* retry_after) {
+bool BrokerSession::Throttled(v1::Site site, std::uint64_t position, VirtualDuration* retry_after) {
   const auto& cfg = faults_.config();
-  auto d = faults_.Decide(
-      site, position, v1::FaultDecision::kThrottleRetryAfterMs, now_,
-      [&](v1::FaultDecision* out) {
-        for (const auto& w : cfg.throttle_windows()) {
-          if (Millis(w.start_ms()) <= now_ && now_ < Millis(w.end_ms())) {
-            out->set_throttle_retry_after_ms(CeilMillis(Millis(w.end_ms()) - now_));
-            return true;
-          }
-        }
-        if (!cfg.has_token_bucket() || cfg.token_bucket().rate_per_s() <= 0) return false;
-        VirtualDuration wait = 0;
-        if (TakeToken(&wait)) return false;
-        out->set_throttle_retry_after_ms(CeilMillis(wait));
+  auto d = faults_.Decide(site, position, v1::FaultDecision::kThrottleRetryAfterMs, now_, [&](v1::FaultDecision* out) {
+    for (const auto& w : cfg.throttle_windows()) {
+      if (Millis(w.start_ms()) <= now_ && now_ < Millis(w.end_ms())) {
+        out->set_throttle_retry_after_ms(CeilMillis(Millis(w.end_ms()) - now_));
         return true;
-      });
+      }
+    }
+    if (!cfg.has_token_bucket() || cfg.token_bucket().rate_per_s() <= 0) return false;
+    VirtualDuration wait = 0;
+    if (TakeToken(&wait)) return false;
+    out->set_throttle_retry_after_ms(CeilMillis(wait));
+    return true;
+  });
   if (!d.has_value()) return false;
   *retry_after = Millis(std::max<std::int64_t>(0, d->throttle_retry_after_ms()));
   return true;
 }
 
-void BrokerSession::TraceFailure(const char* method, const CallStatus& status,
-                                 std::optional<std::uint32_t> partition) {
+void BrokerSession::TraceFailure(const char* method, const CallStatus& status, std::optional<std::uint32_t> partition) {
   auto& e = trace_.Append(now_);
   auto* x = e.mutable_broker_call_failed();
   x->set_method(method);
@@ -120,8 +112,7 @@ bool BrokerSession::ShapeMatches(const char* method, bool log_call, CallStatus* 
   if (log_call == (log_ != nullptr)) return true;
   status->now = now_;
   status->code = CallCode::kFailedPrecondition;
-  status->message = absl::StrCat(method, " is a ", log_call ? "log" : "queue",
-                                 " call, but this run's broker is a ",
+  status->message = absl::StrCat(method, " is a ", log_call ? "log" : "queue", " call, but this run's broker is a ",
                                  log_call ? "queue" : "log");
   auto& e = trace_.Append(now_);
   auto* x = e.mutable_protocol_error();
@@ -131,8 +122,8 @@ bool BrokerSession::ShapeMatches(const char* method, bool log_call, CallStatus* 
   return false;
 }
 
-bool BrokerSession::Enter(const char* method, v1::Site site, CallStatus* status,
-                          std::uint64_t* position, std::optional<std::uint32_t> partition) {
+bool BrokerSession::Enter(const char* method, v1::Site site, CallStatus* status, std::uint64_t* position,
+                          std::optional<std::uint32_t> partition) {
   status->now = now_;
   if (!in_call_) {
     status->code = CallCode::kFailedPrecondition;
@@ -164,16 +155,13 @@ bool BrokerSession::Enter(const char* method, v1::Site site, CallStatus* status,
   // and ack #3 are independent and no kind moves another's draws.
   const auto& cfg = faults_.config();
   const std::string latency_stream = absl::StrCat("latency.", method);
-  auto latency = faults_.Decide(site, k, v1::FaultDecision::kLatencyMs, now_,
-                                [&](v1::FaultDecision* out) {
-                                  if (!faults_.Chance(latency_stream, k, cfg.latency().rate()))
-                                    return false;
-                                  const std::int64_t ms =
-                                      LatencyMs(faults_, latency_stream, k, cfg.latency());
-                                  if (ms <= 0) return false;
-                                  out->set_latency_ms(ms);
-                                  return true;
-                                });
+  auto latency = faults_.Decide(site, k, v1::FaultDecision::kLatencyMs, now_, [&](v1::FaultDecision* out) {
+    if (!faults_.Chance(latency_stream, k, cfg.latency().rate())) return false;
+    const std::int64_t ms = LatencyMs(faults_, latency_stream, k, cfg.latency());
+    if (ms <= 0) return false;
+    out->set_latency_ms(ms);
+    return true;
+  });
   if (latency.has_value() && latency->latency_ms() > 0) {
     now_ = SaturatingAdd(now_, Millis(latency->latency_ms()));
     AdvanceModel();  // before a throttle or transient failure is traced at the new now
@@ -191,18 +179,17 @@ bool BrokerSession::Enter(const char* method, v1::Site site, CallStatus* status,
 
   const std::string unavailable_stream = absl::StrCat("unavailable.", method);
   const std::string deadline_stream = absl::StrCat("deadline_exceeded.", method);
-  auto transient = faults_.Decide(
-      site, k, v1::FaultDecision::kTransient, now_, [&](v1::FaultDecision* out) {
-        if (faults_.Chance(unavailable_stream, k, cfg.unavailable_rate())) {
-          out->mutable_transient()->set_code(v1::UNAVAILABLE);
-          return true;
-        }
-        if (faults_.Chance(deadline_stream, k, cfg.deadline_exceeded_rate())) {
-          out->mutable_transient()->set_code(v1::DEADLINE_EXCEEDED);
-          return true;
-        }
-        return false;
-      });
+  auto transient = faults_.Decide(site, k, v1::FaultDecision::kTransient, now_, [&](v1::FaultDecision* out) {
+    if (faults_.Chance(unavailable_stream, k, cfg.unavailable_rate())) {
+      out->mutable_transient()->set_code(v1::UNAVAILABLE);
+      return true;
+    }
+    if (faults_.Chance(deadline_stream, k, cfg.deadline_exceeded_rate())) {
+      out->mutable_transient()->set_code(v1::DEADLINE_EXCEEDED);
+      return true;
+    }
+    return false;
+  });
   if (transient.has_value()) {
     const bool deadline = transient->transient().code() == v1::DEADLINE_EXCEEDED;
     status->code = deadline ? CallCode::kDeadlineExceeded : CallCode::kUnavailable;
@@ -252,12 +239,10 @@ CallStatus BrokerSession::Nack(const v1::NackRequest& request, v1::NackResponse*
   return status;
 }
 
-CallStatus BrokerSession::ExtendLease(const v1::ExtendLeaseRequest& request,
-                                      v1::ExtendLeaseResponse* response) {
+CallStatus BrokerSession::ExtendLease(const v1::ExtendLeaseRequest& request, v1::ExtendLeaseResponse* response) {
   CallStatus status;
   std::uint64_t k = 0;
-  if (!ShapeMatches("ExtendLease", false, &status) ||
-      !Enter("ExtendLease", v1::EXTEND_LEASE, &status, &k)) {
+  if (!ShapeMatches("ExtendLease", false, &status) || !Enter("ExtendLease", v1::EXTEND_LEASE, &status, &k)) {
     response->set_now_ns(status.now);
     return status;
   }
@@ -269,8 +254,7 @@ CallStatus BrokerSession::ListPartitions(const v1::ListPartitionsRequest& /*requ
                                          v1::ListPartitionsResponse* response) {
   CallStatus status;
   std::uint64_t k = 0;
-  if (!ShapeMatches("ListPartitions", true, &status) ||
-      !Enter("ListPartitions", v1::LIST_PARTITIONS, &status, &k)) {
+  if (!ShapeMatches("ListPartitions", true, &status) || !Enter("ListPartitions", v1::LIST_PARTITIONS, &status, &k)) {
     response->set_now_ns(status.now);
     return status;
   }
@@ -281,8 +265,7 @@ CallStatus BrokerSession::ListPartitions(const v1::ListPartitionsRequest& /*requ
 CallStatus BrokerSession::Read(const v1::ReadRequest& request, v1::ReadResponse* response) {
   CallStatus status;
   std::uint64_t k = 0;
-  if (!ShapeMatches("Read", true, &status) ||
-      !Enter("Read", v1::READ, &status, &k, request.partition())) {
+  if (!ShapeMatches("Read", true, &status) || !Enter("Read", v1::READ, &status, &k, request.partition())) {
     response->set_now_ns(status.now);
     return status;
   }
@@ -293,12 +276,10 @@ CallStatus BrokerSession::Read(const v1::ReadRequest& request, v1::ReadResponse*
   return status;
 }
 
-CallStatus BrokerSession::SaveBookmarks(const v1::SaveBookmarksRequest& request,
-                                        v1::SaveBookmarksResponse* response) {
+CallStatus BrokerSession::SaveBookmarks(const v1::SaveBookmarksRequest& request, v1::SaveBookmarksResponse* response) {
   CallStatus status;
   std::uint64_t k = 0;
-  if (ShapeMatches("SaveBookmarks", true, &status) &&
-      Enter("SaveBookmarks", v1::SAVE_BOOKMARKS, &status, &k)) {
+  if (ShapeMatches("SaveBookmarks", true, &status) && Enter("SaveBookmarks", v1::SAVE_BOOKMARKS, &status, &k)) {
     status = log_->SaveBookmarks(request, now_, k);
     status.now = now_;
     if (!status.ok()) TraceFailure("SaveBookmarks", status);
@@ -311,8 +292,7 @@ CallStatus BrokerSession::LoadBookmarks(const v1::LoadBookmarksRequest& /*reques
                                         v1::LoadBookmarksResponse* response) {
   CallStatus status;
   std::uint64_t k = 0;
-  if (!ShapeMatches("LoadBookmarks", true, &status) ||
-      !Enter("LoadBookmarks", v1::LOAD_BOOKMARKS, &status, &k)) {
+  if (!ShapeMatches("LoadBookmarks", true, &status) || !Enter("LoadBookmarks", v1::LOAD_BOOKMARKS, &status, &k)) {
     response->set_now_ns(status.now);
     return status;
   }

@@ -24,8 +24,8 @@
 //   3. transient UNAVAILABLE / DEADLINE_EXCEEDED.
 // A call failed by 2 or 3 does not reach the model and is traced as
 // broker_call_failed; so is a call the model itself answers with an error
-// (a log Read out of range, of an unavailable or unknown partition). Draws are keyed by (method, k), so turning one kind off
-// never moves another kind's draws.
+// (a log Read out of range, of an unavailable or unknown partition). Draws are keyed by (method, k), so turning one
+// kind off never moves another kind's draws.
 //
 // Thread safety: none; every method runs on the simulation thread.
 #pragma once
@@ -46,8 +46,7 @@ class BrokerSession : public BrokerEndpoint {
   // REQUIRES: model and trace outlive the session.
   BrokerSession(QueueModel& model, TraceLog& trace, FaultSource& faults)
       : queue_(&model), trace_(trace), faults_(faults) {}
-  BrokerSession(LogModel& model, TraceLog& trace, FaultSource& faults)
-      : log_(&model), trace_(trace), faults_(faults) {}
+  BrokerSession(LogModel& model, TraceLog& trace, FaultSource& faults) : log_(&model), trace_(trace), faults_(faults) {}
 
   // Opens the window of one connector call starting at virtual time now.
   void BeginCall(VirtualTime now);
@@ -64,15 +63,11 @@ class BrokerSession : public BrokerEndpoint {
   CallStatus Pull(const v1::PullRequest& request, v1::PullResponse* response) override;
   CallStatus Ack(const v1::AckRequest& request, v1::AckResponse* response) override;
   CallStatus Nack(const v1::NackRequest& request, v1::NackResponse* response) override;
-  CallStatus ExtendLease(const v1::ExtendLeaseRequest& request,
-                         v1::ExtendLeaseResponse* response) override;
-  CallStatus ListPartitions(const v1::ListPartitionsRequest& request,
-                            v1::ListPartitionsResponse* response) override;
+  CallStatus ExtendLease(const v1::ExtendLeaseRequest& request, v1::ExtendLeaseResponse* response) override;
+  CallStatus ListPartitions(const v1::ListPartitionsRequest& request, v1::ListPartitionsResponse* response) override;
   CallStatus Read(const v1::ReadRequest& request, v1::ReadResponse* response) override;
-  CallStatus SaveBookmarks(const v1::SaveBookmarksRequest& request,
-                           v1::SaveBookmarksResponse* response) override;
-  CallStatus LoadBookmarks(const v1::LoadBookmarksRequest& request,
-                           v1::LoadBookmarksResponse* response) override;
+  CallStatus SaveBookmarks(const v1::SaveBookmarksRequest& request, v1::SaveBookmarksResponse* response) override;
+  CallStatus LoadBookmarks(const v1::LoadBookmarksRequest& request, v1::LoadBookmarksResponse* response) override;
   void OnStrayCall(const std::string& method) override;
 
  private:

@@ -28,9 +28,7 @@ void Workload::Generate() {
   }
   const VirtualDuration mean = Millis(config_.publish_interval_ms());
   if (generated_ > 0) {
-    clock_ += config_.arrival() == v1::Workload::POISSON
-                  ? arrivals_.Exponential(static_cast<double>(mean))
-                  : mean;
+    clock_ += config_.arrival() == v1::Workload::POISSON ? arrivals_.Exponential(static_cast<double>(mean)) : mean;
     if (config_.idle_gap_every() > 0 && generated_ % config_.idle_gap_every() == 0) {
       clock_ += Millis(config_.idle_gap_ms());
     }
@@ -41,8 +39,8 @@ void Workload::Generate() {
   const VirtualDuration max_skew = Millis(config_.max_event_time_skew_ms());
   next_.event_time = clock_ - (max_skew > 0 ? skew_.UniformInt(0, max_skew) : 0);
   if (config_.sources_size() > 0) {
-    next_.source = config_.sources(static_cast<int>((generated_ - 1) %
-                                                    static_cast<std::uint64_t>(config_.sources_size())));
+    next_.source =
+        config_.sources(static_cast<int>((generated_ - 1) % static_cast<std::uint64_t>(config_.sources_size())));
   }
   has_next_ = true;
 }

@@ -45,14 +45,12 @@ std::optional<std::string> BundledDir() {
   return BundledDirFor(exe.string());
 }
 
-std::string ResolveBundled(const std::string& arg, BundledKind kind,
-                           const std::string& bundled_dir) {
+std::string ResolveBundled(const std::string& arg, BundledKind kind, const std::string& bundled_dir) {
   std::error_code ec;
   if (arg.empty() || bundled_dir.empty() || absl::StrContains(arg, '/') || fs::exists(arg, ec)) {
     return arg;
   }
-  const std::string file =
-      absl::EndsWith(arg, ExtensionOf(kind)) ? arg : absl::StrCat(arg, ExtensionOf(kind));
+  const std::string file = absl::EndsWith(arg, ExtensionOf(kind)) ? arg : absl::StrCat(arg, ExtensionOf(kind));
   const fs::path bundled = fs::path(bundled_dir) / SubdirOf(kind) / file;
   return fs::is_regular_file(bundled, ec) ? bundled.string() : arg;
 }

@@ -34,8 +34,7 @@ enum class BundledKind { kScenario, kProfile, kSuite };
 [[nodiscard]] std::optional<std::string> BundledDirFor(const std::string& exe);
 
 // `arg` resolved as above against `bundled_dir` (no lookup when it is empty).
-[[nodiscard]] std::string ResolveBundled(const std::string& arg, BundledKind kind,
-                                         const std::string& bundled_dir);
+[[nodiscard]] std::string ResolveBundled(const std::string& arg, BundledKind kind, const std::string& bundled_dir);
 
 // ResolveBundled against this weir's BundledDir().
 [[nodiscard]] std::string ResolveBundled(const std::string& arg, BundledKind kind);

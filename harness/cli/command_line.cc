@@ -37,8 +37,7 @@ absl::StatusOr<std::vector<std::string>> SplitCommandLine(std::string_view text)
     } else if (c == '\'' || c == '"') {
       const std::size_t start = i;
       for (++i; i < text.size() && text[i] != c; ++i) {
-        if (c == '"' && text[i] == '\\' && i + 1 < text.size() &&
-            (text[i + 1] == '"' || text[i + 1] == '\\')) {
+        if (c == '"' && text[i] == '\\' && i + 1 < text.size() && (text[i + 1] == '"' || text[i + 1] == '\\')) {
           ++i;
         }
         word.push_back(text[i]);
@@ -111,8 +110,8 @@ std::string ShellQuote(std::string_view word) {
   if (word.empty()) return "''";
   bool plain = true;
   for (char c : word) {
-    if (!(std::isalnum(static_cast<unsigned char>(c)) || c == '/' || c == '.' || c == '_' ||
-          c == '-' || c == '=' || c == ':' || c == ',' || c == '+' || c == '@')) {
+    if (!(std::isalnum(static_cast<unsigned char>(c)) || c == '/' || c == '.' || c == '_' || c == '-' || c == '=' ||
+          c == ':' || c == ',' || c == '+' || c == '@')) {
       plain = false;
       break;
     }
@@ -150,8 +149,8 @@ absl::Status CheckOutputPath(std::string_view flag_name, const std::string& path
         absl::StrCat(flag, " ", path, ": directory '", dir, "' does not exist; expected an existing directory"));
   }
   if (::access(dir.c_str(), W_OK) != 0) {
-    return absl::InvalidArgumentError(absl::StrCat(flag, " ", path, ": directory '", dir,
-                                                   "' is not writable (", std::strerror(errno), ")"));
+    return absl::InvalidArgumentError(
+        absl::StrCat(flag, " ", path, ": directory '", dir, "' is not writable (", std::strerror(errno), ")"));
   }
   if (::stat(path.c_str(), &st) == 0 && S_ISDIR(st.st_mode)) {
     return absl::InvalidArgumentError(absl::StrCat(flag, " ", path, ": is a directory; expected a file name"));

@@ -8,11 +8,9 @@
 
 namespace weir {
 
-void PrintHold(std::FILE* out, const HoldPoint& at, const std::string& next_what,
-               const std::string& next_line) {
+void PrintHold(std::FILE* out, const HoldPoint& at, const std::string& next_what, const std::string& next_line) {
   std::fprintf(out, "weir replay: holding before event #%llu (events #0 to #%llu happened)\n",
-               static_cast<unsigned long long>(at.next_seq),
-               static_cast<unsigned long long>(at.next_seq - 1));
+               static_cast<unsigned long long>(at.next_seq), static_cast<unsigned long long>(at.next_seq - 1));
   if (at.processes.empty()) {
     std::fprintf(out, "  no connector process is alive here (between a crash and the next start)\n");
   }
@@ -23,8 +21,8 @@ void PrintHold(std::FILE* out, const HoldPoint& at, const std::string& next_what
                  p.connector_address.empty() ? "(not yet known)" : p.connector_address.c_str(),
                  p.broker_address.c_str());
   }
-  std::fprintf(out, "  next: #%llu %s\n        %s\n", static_cast<unsigned long long>(at.next_seq),
-               next_what.c_str(), next_line.c_str());
+  std::fprintf(out, "  next: #%llu %s\n        %s\n", static_cast<unsigned long long>(at.next_seq), next_what.c_str(),
+               next_line.c_str());
   std::fprintf(out,
                "  attach a debugger now (gdb -p PID); weir waits for Enter (end of input or "
                "Ctrl-C also end the wait)\n");

@@ -26,8 +26,7 @@
 namespace weir {
 
 // Writes the hold's description and the prompt to `out`, and flushes it.
-void PrintHold(std::FILE* out, const HoldPoint& at, const std::string& next_what,
-               const std::string& next_line);
+void PrintHold(std::FILE* out, const HoldPoint& at, const std::string& next_what, const std::string& next_line);
 
 enum class HoldEnd { kLine, kEndOfInput, kStopped };
 

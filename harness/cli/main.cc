@@ -61,18 +61,18 @@ int UsageError(const std::string& message) {
   return kExitUsage;
 }
 
-
 // What to do with a failing run, before its replay line (which stays last).
 std::string NextStepsHint(const std::string& trace, const std::string& replay) {
   if (!trace.empty()) {
     const std::string t = ShellQuote(trace);
     const std::string& weir = WeirProgram();
-    return absl::StrCat("next: ", weir, " replay ", t, "    (rerun, compare event by event)\n",
-                        "      ", weir, " explain ", t, "   (timeline around each violation)\n",
-                        "      ", weir, " shrink ", t, " --out minimal.plan   (smallest fault plan that still fails)\n");
+    return absl::StrCat("next: ", weir, " replay ", t, "    (rerun, compare event by event)\n", "      ", weir,
+                        " explain ", t, "   (timeline around each violation)\n", "      ", weir, " shrink ", t,
+                        " --out minimal.plan   (smallest fault plan that still fails)\n");
   }
   // "weir run …" → "weir shrink …": shrink takes the same flags.
-  return absl::StrCat("next: ", WeirProgram(), " shrink", replay.substr(WeirProgram().size() + std::string(" run").size()),
+  return absl::StrCat("next: ", WeirProgram(), " shrink",
+                      replay.substr(WeirProgram().size() + std::string(" run").size()),
                       " --out minimal.plan\n      (smallest fault plan that still fails; add --trace FILE "
                       "to weir run for replay and explain)\n");
 }
@@ -155,8 +155,7 @@ int RunCommand(RunFlags& flags) {
   spec.trace_path = flags.trace;
   spec.stop = InstallStopSignals();
   auto out = RunOverGrpc(spec);
-  const std::string replay = ReplayLine(flags.scenario, flags.seed, transport, flags.plan,
-                                        flags.profile, argv);
+  const std::string replay = ReplayLine(flags.scenario, flags.seed, transport, flags.plan, flags.profile, argv);
   if (absl::IsCancelled(out.status())) {
     std::fprintf(stderr,
                  "weir: interrupted by signal %d: the connector was killed, no trace or plan "
@@ -165,13 +164,13 @@ int RunCommand(RunFlags& flags) {
     return kExitInterrupted;
   }
   if (!out.ok()) {
-    std::fprintf(stderr, "weir: harness fault: %s\nreplay: %s\n",
-                 std::string(out.status().message()).c_str(), replay.c_str());
+    std::fprintf(stderr, "weir: harness fault: %s\nreplay: %s\n", std::string(out.status().message()).c_str(),
+                 replay.c_str());
     return kExitHarness;
   }
   if (!flags.save_plan.empty()) {
-    const std::string text = FormatFaultPlan(
-        out->plan, absl::StrCat("Fault plan of scenario ", flags.scenario, ", seed ", flags.seed, "."));
+    const std::string text =
+        FormatFaultPlan(out->plan, absl::StrCat("Fault plan of scenario ", flags.scenario, ", seed ", flags.seed, "."));
     if (absl::Status st = WriteFileAtomically(flags.save_plan, text); !st.ok()) {
       std::fprintf(stderr, "weir: %s\n", std::string(st.message()).c_str());
       return kExitHarness;
@@ -183,11 +182,9 @@ int RunCommand(RunFlags& flags) {
   std::printf(
       "run        %s at %s virtual; %llu published, %llu committed, %llu incarnation(s), %llu "
       "crash(es), %llu steps, %llu checkpoints, %llu events\n",
-      s.end_reason.c_str(), FormatTime(s.end_time).c_str(),
-      static_cast<unsigned long long>(s.published),
-      static_cast<unsigned long long>(s.committed_messages),
-      static_cast<unsigned long long>(s.incarnations), static_cast<unsigned long long>(s.crashes),
-      static_cast<unsigned long long>(s.steps),
+      s.end_reason.c_str(), FormatTime(s.end_time).c_str(), static_cast<unsigned long long>(s.published),
+      static_cast<unsigned long long>(s.committed_messages), static_cast<unsigned long long>(s.incarnations),
+      static_cast<unsigned long long>(s.crashes), static_cast<unsigned long long>(s.steps),
       static_cast<unsigned long long>(s.checkpoints), static_cast<unsigned long long>(out->events));
   std::printf("broker     %llu calls (at most %llu in one connector call), %llu receipts ignored\n",
               static_cast<unsigned long long>(s.broker_calls),
@@ -200,7 +197,8 @@ int RunCommand(RunFlags& flags) {
   }
   std::printf("digest     %s\n", out->digest.c_str());
   std::string kinds;
-  for (const auto& [fault, n] : out->verdict.faults_applied) absl::StrAppend(&kinds, kinds.empty() ? ": " : "; ", fault, " ×", n);
+  for (const auto& [fault, n] : out->verdict.faults_applied)
+    absl::StrAppend(&kinds, kinds.empty() ? ": " : "; ", fault, " ×", n);
   std::printf("faults     %d applied%s%s\n", out->plan.decisions_size(),
               flags.plan.empty() ? " (drawn from the scenario's rates)" : " (from the given plan)", kinds.c_str());
   if (!flags.trace.empty()) std::printf("trace      %s\n", flags.trace.c_str());
@@ -261,8 +259,8 @@ struct ReplayFlags {
   std::string connector;
   // Debugging the connector (docs/debugging.md).
   bool no_wall_bounds = false;
-  std::string wrap;                   // 'CMD ARGS', split like --connector
-  std::vector<std::string> wrap_args; // appended to the wrapper's argv
+  std::string wrap;                    // 'CMD ARGS', split like --connector
+  std::vector<std::string> wrap_args;  // appended to the wrapper's argv
   std::uint64_t stop_before = 0;
   bool stop_before_given = false;
 };
@@ -313,16 +311,16 @@ int ReplayCommand(const ReplayFlags& flags) {
         std::printf("weir replay: interrupted while holding before event #%llu\n",
                     static_cast<unsigned long long>(at.next_seq));
       } else {
-        std::printf("weir replay: %s; going on from event #%llu\n",
-                    end == HoldEnd::kLine ? "Enter" : "end of input",
+        std::printf("weir replay: %s; going on from event #%llu\n", end == HoldEnd::kLine ? "Enter" : "end of input",
                     static_cast<unsigned long long>(at.next_seq));
       }
       std::fflush(stdout);
     };
   }
   if (!options.wall_bounds || options.stop_before > 0) {
-    std::printf("weir replay: no wall-clock bounds on the connector: weir waits as long as it takes "
-                "(Ctrl-C ends the replay and kills it)\n");
+    std::printf(
+        "weir replay: no wall-clock bounds on the connector: weir waits as long as it takes "
+        "(Ctrl-C ends the replay and kills it)\n");
   }
   if (!options.wrapper_argv.empty()) {
     std::printf("weir replay: starting the connector under '%s'; its output follows on stderr\n",
@@ -331,8 +329,7 @@ int ReplayCommand(const ReplayFlags& flags) {
   std::fflush(stdout);
   auto r = ReplayTrace(trace, options);
   if (absl::IsCancelled(r.status())) {
-    std::fprintf(stderr, "weir: interrupted by signal %d: the connector was killed, nothing compared\n",
-                 StopSignal());
+    std::fprintf(stderr, "weir: interrupted by signal %d: the connector was killed, nothing compared\n", StopSignal());
     return kExitInterrupted;
   }
   if (!r.ok()) {
@@ -344,18 +341,16 @@ int ReplayCommand(const ReplayFlags& flags) {
   }
   if (options.stop_before > 0 && !held) {
     std::printf("weir replay: the rerun ended after %llu events, before event #%llu: it never held\n",
-                static_cast<unsigned long long>(r->rerun_events),
-                static_cast<unsigned long long>(options.stop_before));
+                static_cast<unsigned long long>(r->rerun_events), static_cast<unsigned long long>(options.stop_before));
   }
   // Before any verdict: a different program answers differently by right.
   for (const std::string& change : r->changes) std::printf("%s\n", change.c_str());
   if (r->weir_version != WeirVersion()) {
-    std::printf("note: the trace was written by weir %s; this is weir %s\n", r->weir_version.c_str(),
-                WeirVersion());
+    std::printf("note: the trace was written by weir %s; this is weir %s\n", r->weir_version.c_str(), WeirVersion());
   }
   if (r->identical) {
-    std::printf("weir replay: reproduced identically (digest %s, %llu events)\n",
-                r->rerun_digest.c_str(), static_cast<unsigned long long>(r->rerun_events));
+    std::printf("weir replay: reproduced identically (digest %s, %llu events)\n", r->rerun_digest.c_str(),
+                static_cast<unsigned long long>(r->rerun_events));
     return kExitPassed;
   }
   if (!r->start_failure.empty()) {
@@ -397,9 +392,8 @@ int ExplainCommand(const std::string& trace, const std::string& html) {
   if (!r.ok()) return StatusExit(r.status());
   std::printf("%s", r->text.c_str());
   if (!html.empty()) {
-    const std::string page =
-        HtmlPage(absl::StrCat("weir explain: ", r->timelines.title),
-                 absl::StrCat("<h1>weir explain</h1>\n", RunTimelinesHtml(r->timelines)));
+    const std::string page = HtmlPage(absl::StrCat("weir explain: ", r->timelines.title),
+                                      absl::StrCat("<h1>weir explain</h1>\n", RunTimelinesHtml(r->timelines)));
     if (absl::Status st = WriteFileAtomically(html, page); !st.ok()) {
       std::fprintf(stderr, "weir: %s\n", std::string(st.message()).c_str());
       return kExitHarness;
@@ -417,24 +411,21 @@ int main(int argc, char** argv) {
   SetWeirProgram(DetectWeirProgram());  // printed command lines work as printed
   CLI::App app{"weir: a deterministic test harness for stream source connectors"};
   app.require_subcommand(1);
-  app.set_version_flag("--version", absl::StrCat("weir ", WeirVersion()),
-                       "Print weir's version and exit");
+  app.set_version_flag("--version", absl::StrCat("weir ", WeirVersion()), "Print weir's version and exit");
   const std::optional<std::string> bundled = BundledDir();
-  app.footer(absl::StrCat(
-      "Bundled scenarios, profiles and suites: ",
-      bundled.value_or("none found (expected in ../share/weir beside the weir binary)"),
-      "\nA bare name picks one: --suite quick, --scenario crash_storm_weather_buoys, "
-      "--profile exactly_once.\n"
-      "Exit codes: 0 every invariant held, 1 an invariant failed, 2 usage or input error, "
-      "3 harness fault, 4 interrupted."));
+  app.footer(absl::StrCat("Bundled scenarios, profiles and suites: ",
+                          bundled.value_or("none found (expected in ../share/weir beside the weir binary)"),
+                          "\nA bare name picks one: --suite quick, --scenario crash_storm_weather_buoys, "
+                          "--profile exactly_once.\n"
+                          "Exit codes: 0 every invariant held, 1 an invariant failed, 2 usage or input error, "
+                          "3 harness fault, 4 interrupted."));
 
   RunFlags run_flags;
   CLI::App* run = app.add_subcommand("run", "One seeded run of a connector against a scenario");
   run->add_option("--scenario", run_flags.scenario,
                   "Scenario file (Protobuf text format), or a bundled scenario's name")
       ->required();
-  run->add_option("--seed", run_flags.seed, "Seed (default: a random one, printed first)")
-      ->check(WholeNumber());
+  run->add_option("--seed", run_flags.seed, "Seed (default: a random one, printed first)")->check(WholeNumber());
   run->add_option("--connector", run_flags.connector,
                   "Connector command, split into argv without a shell: 'CMD ARGS…'");
   run->add_option("--trace", run_flags.trace, "Write the trace (JSON lines) to this file");
@@ -445,8 +436,7 @@ int main(int argc, char** argv) {
   run->add_option("--profile", run_flags.profile,
                   "Profile file (Protobuf text format), or a bundled profile's name (exactly_once, "
                   "at_least_once, …); overrides the scenario's profile");
-  run->add_option("--save-plan", run_flags.save_plan,
-                  "Write the faults this run applied as a plan file (for --plan)");
+  run->add_option("--save-plan", run_flags.save_plan, "Write the faults this run applied as a plan file (for --plan)");
 
   SuiteCommands suite_commands;
   AddSuiteCommands(app, suite_commands);
@@ -474,17 +464,17 @@ int main(int argc, char** argv) {
                      "('valgrind -q', 'gdb -q -batch -ex run -ex bt --args'); its output goes to stderr");
   replay->add_option("--wrap-arg", replay_flags.wrap_args,
                      "One more word of the wrapper command (repeatable; after --wrap's words)");
-  replay->add_option("--stop-before", replay_flags.stop_before,
-                     "Hold before event #K (1 … events-1): print the connector's pid(s) and addresses "
-                     "and the next event, wait for Enter (end of input goes on at once); lifts the "
-                     "wall-clock bounds like --no-wall-bounds")
+  replay
+      ->add_option("--stop-before", replay_flags.stop_before,
+                   "Hold before event #K (1 … events-1): print the connector's pid(s) and addresses "
+                   "and the next event, wait for Enter (end of input goes on at once); lifts the "
+                   "wall-clock bounds like --no-wall-bounds")
       ->check(WholeNumber());
   std::string explain_trace;
   CLI::App* explain = app.add_subcommand("explain", "Text timeline of a saved trace around each violation");
   explain->add_option("trace", explain_trace, "Trace file (weir run --trace)")->required();
   std::string explain_html;
-  explain->add_option("--html", explain_html,
-                      "Also write a self-contained HTML page with SVG timelines to this file");
+  explain->add_option("--html", explain_html, "Also write a self-contained HTML page with SVG timelines to this file");
 
   try {
     app.parse(argc, argv);

@@ -74,22 +74,24 @@ std::string SearchHtml(const SearchResult& r, const std::vector<std::string>& fi
   std::string points;
   for (std::size_t i = 0; i < n; ++i) {
     const double x = kPad + (kW - 2 * kPad) * (n == 1 ? 0.0 : static_cast<double>(i) / static_cast<double>(n - 1));
-    const double y = kH - kPad - (kH - 2 * kPad) * static_cast<double>(r.features_after_run[i]) / static_cast<double>(top);
+    const double y =
+        kH - kPad - (kH - 2 * kPad) * static_cast<double>(r.features_after_run[i]) / static_cast<double>(top);
     absl::StrAppend(&points, i == 0 ? "" : " ", absl::StrFormat("%.1f,%.1f", x, y));
   }
   std::string body = absl::StrCat(
       "<h1>weir search</h1>\n<p>", r.runs, " runs (", blind ? "blind seeds" : "guided by coverage", "), ", r.features,
       " features seen, corpus of ", r.corpus, " plans, ", r.findings.size(), " finding(s).</p>\n",
       "<svg class=\"coverage\" width=\"", kW, "\" height=\"", kH, "\" viewBox=\"0 0 ", kW, " ", kH,
-      "\" xmlns=\"http://www.w3.org/2000/svg\" role=\"img\"><title>features seen against runs</title>",
-      "<line x1=\"", kPad, "\" y1=\"", kH - kPad, "\" x2=\"", kW - kPad, "\" y2=\"", kH - kPad,
-      "\" stroke=\"#888\"/><line x1=\"", kPad, "\" y1=\"", kPad, "\" x2=\"", kPad, "\" y2=\"", kH - kPad,
-      "\" stroke=\"#888\"/><text x=\"", kW / 2, "\" y=\"", kH - 8, "\" text-anchor=\"middle\">runs (", n,
-      ")</text><text x=\"8\" y=\"", kPad - 10, "\">features (", top, ")</text>",
-      "<polyline fill=\"none\" stroke=\"#07a\" stroke-width=\"2\" points=\"", points, "\"/></svg>\n");
+      "\" xmlns=\"http://www.w3.org/2000/svg\" role=\"img\"><title>features seen against runs</title>", "<line x1=\"",
+      kPad, "\" y1=\"", kH - kPad, "\" x2=\"", kW - kPad, "\" y2=\"", kH - kPad, "\" stroke=\"#888\"/><line x1=\"",
+      kPad, "\" y1=\"", kPad, "\" x2=\"", kPad, "\" y2=\"", kH - kPad, "\" stroke=\"#888\"/><text x=\"", kW / 2,
+      "\" y=\"", kH - 8, "\" text-anchor=\"middle\">runs (", n, ")</text><text x=\"8\" y=\"", kPad - 10,
+      "\">features (", top, ")</text>", "<polyline fill=\"none\" stroke=\"#07a\" stroke-width=\"2\" points=\"", points,
+      "\"/></svg>\n");
   if (!finding_lines.empty()) {
     body += "<h2>Findings</h2>\n<ul>\n";
-    for (const std::string& line : finding_lines) absl::StrAppend(&body, "<li><code>", EscapeMarkup(line), "</code></li>\n");
+    for (const std::string& line : finding_lines)
+      absl::StrAppend(&body, "<li><code>", EscapeMarkup(line), "</code></li>\n");
     body += "</ul>\n";
   }
   return HtmlPage("weir search", body);
@@ -113,12 +115,9 @@ void AddSearchCommand(CLI::App& app, SearchFlags& f) {
   c->add_option("--connector", f.connector, "Connector command 'CMD ARGS…' (no shell)");
   c->add_option("--profile", f.profile, "Profile file overriding every scenario's (the connector's claim)");
   c->add_option("--transport", f.transport, "tcp (loopback, default) or unix");
-  c->add_option("--budget", f.budget, "Runs to spend at most (default 200)")
-      ->check(kNotNegative);
-  c->add_option("--search-seed", f.search_seed, "Seed of the search's own choices (default 1)")
-      ->check(kNotNegative);
-  c->add_option("--first-seed", f.first_seed, "First run seed drawn (default 1)")
-      ->check(kNotNegative);
+  c->add_option("--budget", f.budget, "Runs to spend at most (default 200)")->check(kNotNegative);
+  c->add_option("--search-seed", f.search_seed, "Seed of the search's own choices (default 1)")->check(kNotNegative);
+  c->add_option("--first-seed", f.first_seed, "First run seed drawn (default 1)")->check(kNotNegative);
   c->add_flag("--blind", f.blind, "Blind seeds with every fault kind on (the baseline), no feedback");
   c->add_flag("--collect", f.collect, "Go on after the first failure: one finding per distinct set of failures");
   c->add_option("--out", f.out, "Directory for the findings (default weir-search)");
@@ -275,9 +274,10 @@ int RunSearchCommand(SearchFlags& f) {
                   f.max_seconds, static_cast<unsigned long long>(result->runs),
                   static_cast<unsigned long long>(f.budget));
     } else {
-      std::printf("no failure found: the search ran out of untried candidates after %llu of the budget's %llu "
-                  "runs.\n",
-                  static_cast<unsigned long long>(result->runs), static_cast<unsigned long long>(f.budget));
+      std::printf(
+          "no failure found: the search ran out of untried candidates after %llu of the budget's %llu "
+          "runs.\n",
+          static_cast<unsigned long long>(result->runs), static_cast<unsigned long long>(f.budget));
     }
     return write_html() ? kNothingFound : kHarness;
   }
@@ -289,17 +289,18 @@ int RunSearchCommand(SearchFlags& f) {
     const std::string base = absl::StrCat(f.out, "/find-", k);
     std::string scenario_text;
     google::protobuf::TextFormat::PrintToString(replayable, &scenario_text);
-    scenario_text = absl::StrCat("# Found by weir search (run ", found.run, ") from ", f.scenarios[found.candidate.scenario],
-                                 ", seed ", found.candidate.seed, ": fails ", InvariantNames(found.failed),
-                                 ".\n# Drawn faults are off; the failing run's fault plan is scripted below.\n",
-                                 scenario_text);
-    const std::string suite_text =
-        absl::StrCat("# Regression suite for find-", k, " (weir search): fails ", InvariantNames(found.failed), ".\nname: \"find-", k,
-                     "\"\nscenarios: [\"find-", k, ".scenario\"]\nseeds: 1\nfirst_seed: ", found.candidate.seed, "\n");
+    scenario_text =
+        absl::StrCat("# Found by weir search (run ", found.run, ") from ", f.scenarios[found.candidate.scenario],
+                     ", seed ", found.candidate.seed, ": fails ", InvariantNames(found.failed),
+                     ".\n# Drawn faults are off; the failing run's fault plan is scripted below.\n", scenario_text);
+    const std::string suite_text = absl::StrCat(
+        "# Regression suite for find-", k, " (weir search): fails ", InvariantNames(found.failed), ".\nname: \"find-",
+        k, "\"\nscenarios: [\"find-", k, ".scenario\"]\nseeds: 1\nfirst_seed: ", found.candidate.seed, "\n");
     for (const auto& [path, text] :
          {std::pair{base + ".scenario", scenario_text}, std::pair{base + ".suite", suite_text},
           std::pair{base + ".plan",
-                    FormatFaultPlan(*found.candidate.plan, absl::StrCat("found by weir search: fails ", InvariantNames(found.failed)))}}) {
+                    FormatFaultPlan(*found.candidate.plan,
+                                    absl::StrCat("found by weir search: fails ", InvariantNames(found.failed)))}}) {
       if (absl::Status st = WriteFileAtomically(path, text); !st.ok()) {
         std::fprintf(stderr, "weir: %s\n", std::string(st.message()).c_str());
         return kHarness;

@@ -56,8 +56,7 @@ std::string DescribeDecision(const v1::FaultDecision& d) {
     case v1::FaultDecision::kLatencyMs: return absl::StrCat(at, "latency ", d.latency_ms(), " ms");
     case v1::FaultDecision::kThrottleRetryAfterMs:
       return absl::StrCat(at, "throttled, retry after ", d.throttle_retry_after_ms(), " ms");
-    case v1::FaultDecision::kTransient:
-      return absl::StrCat(at, v1::TransientCode_Name(d.transient().code()));
+    case v1::FaultDecision::kTransient: return absl::StrCat(at, v1::TransientCode_Name(d.transient().code()));
     case v1::FaultDecision::kDuplicate: return at + "duplicate delivery";
     case v1::FaultDecision::kLostAck: return at + "lost ack";
     case v1::FaultDecision::kVisibilityDelayMs:
@@ -123,8 +122,8 @@ const char* PhaseName(ShrinkProgress::Phase p) {
 }  // namespace
 
 void AddShrinkCommand(CLI::App& app, ShrinkFlags& f) {
-  CLI::App* c = app.add_subcommand(
-      "shrink", "Minimize a failing run's fault plan while the same invariant still fails");
+  CLI::App* c =
+      app.add_subcommand("shrink", "Minimize a failing run's fault plan while the same invariant still fails");
   f.command = c;
   c->add_option("inputs", f.inputs,
                 "TRACE (a failing run's trace), or with --scenario: the connector command after --");
@@ -132,8 +131,7 @@ void AddShrinkCommand(CLI::App& app, ShrinkFlags& f) {
   c->add_option("--seed", f.seed, "Seed of the failing run (with --scenario)");
   c->add_option("--plan", f.plan, "Fault plan of the failing run (with --scenario), as for weir run");
   c->add_option("--profile", f.profile, "Profile file overriding the scenario's (with --scenario)");
-  c->add_option("--connector", f.connector,
-                "Connector command 'CMD ARGS…' (with a trace: replaces the header's)");
+  c->add_option("--connector", f.connector, "Connector command 'CMD ARGS…' (with a trace: replaces the header's)");
   c->add_option("--transport", f.transport, "tcp (loopback, default) or unix");
   c->add_option("--invariant", f.invariant,
                 "The invariant that must keep failing (default: the one whose violation started earliest)");
@@ -169,12 +167,12 @@ int RunShrinkCommand(ShrinkFlags& f) {
   if (f.max_seconds < 0) return Usage("--max-seconds must be >= 0");
   if (f.out.empty()) return Usage("--out is empty; expected a file name for the minimal plan");
   if (f.out_scenario.empty()) {
-    f.out_scenario = absl::EndsWith(f.out, ".plan") ? f.out.substr(0, f.out.size() - 5) + ".scenario"
-                                                     : f.out + ".scenario";
+    f.out_scenario =
+        absl::EndsWith(f.out, ".plan") ? f.out.substr(0, f.out.size() - 5) + ".scenario" : f.out + ".scenario";
   }
   if (f.out_scenario == f.out) return Usage("--out-scenario is the same file as --out; expected another file");
-  for (const auto& [flag, path] : {std::pair{"--out", f.out}, std::pair{"--out-scenario", f.out_scenario},
-                                   std::pair{"--trace", f.trace}}) {
+  for (const auto& [flag, path] :
+       {std::pair{"--out", f.out}, std::pair{"--out-scenario", f.out_scenario}, std::pair{"--trace", f.trace}}) {
     if (flag == std::string("--out-scenario") && f.keep_workload) continue;
     if (absl::Status st = CheckOutputPath(flag, path); !st.ok()) return Usage(std::string(st.message()));
   }
@@ -216,8 +214,7 @@ int RunShrinkCommand(ShrinkFlags& f) {
     // The replay line names the scenario file; say so when the run judged by
     // the trace used another profile or an edited scenario.
     auto on_disk = LoadScenario(spec.scenario_path);
-    if (!on_disk.ok() ||
-        !google::protobuf::util::MessageDifferencer::Equals(*on_disk, spec.scenario)) {
+    if (!on_disk.ok() || !google::protobuf::util::MessageDifferencer::Equals(*on_disk, spec.scenario)) {
       profile_note = absl::StrCat("note: ", spec.scenario_path,
                                   " differs from the scenario embedded in the trace (edited, or run "
                                   "with --profile); give the same --profile to weir run\n");
@@ -254,8 +251,8 @@ int RunShrinkCommand(ShrinkFlags& f) {
   std::vector<std::string> changes;  // the connector's files that differ from the trace's
   if (from_trace) {
     // As resolved when the trace was recorded, from whatever directory we are in.
-    auto connector = ResolveRecordedConnector(
-        header, f.connector.empty() ? std::vector<std::string>{} : spec.connector_argv);
+    auto connector =
+        ResolveRecordedConnector(header, f.connector.empty() ? std::vector<std::string>{} : spec.connector_argv);
     if (!connector.ok()) {
       std::fprintf(stderr, "weir shrink: %s; nothing shrunk\n", std::string(connector.status().message()).c_str());
       return kUsage;
@@ -277,8 +274,7 @@ int RunShrinkCommand(ShrinkFlags& f) {
   const std::atomic<bool>* stop = InstallStopSignals();
   spec.stop = stop;
   auto interrupted = [] {
-    std::fprintf(stderr, "weir: interrupted by signal %d: the connector was killed, nothing written\n",
-                 StopSignal());
+    std::fprintf(stderr, "weir: interrupted by signal %d: the connector was killed, nothing written\n", StopSignal());
     return kExitInterrupted;
   };
 
@@ -296,8 +292,7 @@ int RunShrinkCommand(ShrinkFlags& f) {
   const RerunResult first = ToRerunResult(*original);
   // A connector that never came up: not a failure worth shrinking, and (from a
   // trace whose run did come up) not nondeterminism either.
-  if (!start_watch.reason().empty() &&
-      (from_trace ? first.digest != saved_digest : start_watch.incarnation() == 1)) {
+  if (!start_watch.reason().empty() && (from_trace ? first.digest != saved_digest : start_watch.incarnation() == 1)) {
     std::printf("weir shrink: the connector could not start: %s\n  connector: %s\nnothing shrunk\n",
                 start_watch.reason().c_str(), ShellJoin(spec.connector_argv).c_str());
     return kHarness;
@@ -321,8 +316,7 @@ int RunShrinkCommand(ShrinkFlags& f) {
     return kNondeterministic;
   }
   if (first.failed.empty()) {
-    std::fprintf(stderr, "weir: the run passed every invariant (digest %s); nothing to shrink\n",
-                 first.digest.c_str());
+    std::fprintf(stderr, "weir: the run passed every invariant (digest %s); nothing to shrink\n", first.digest.c_str());
     return kUsage;
   }
   if (wanted && !first.Fails(*wanted)) {
@@ -332,11 +326,11 @@ int RunShrinkCommand(ShrinkFlags& f) {
   }
   const Invariant target = wanted ? *wanted : first.failed.front();
   const v1::FaultPlan start = original->plan;
-  std::printf("target     %s%s\n", InvariantName(target),
-              first.failed.size() > 1 ? absl::StrCat(" (the run failed ", InvariantNames(first.failed),
-                                                     "; choose with --invariant)")
-                                            .c_str()
-                                      : "");
+  std::printf(
+      "target     %s%s\n", InvariantName(target),
+      first.failed.size() > 1
+          ? absl::StrCat(" (the run failed ", InvariantNames(first.failed), "; choose with --invariant)").c_str()
+          : "");
   std::printf("before     %s, %llu events, %llu steps (digest %s)\n", Decisions(start.decisions_size()).c_str(),
               static_cast<unsigned long long>(first.events), static_cast<unsigned long long>(first.steps),
               first.digest.c_str());
@@ -345,9 +339,7 @@ int RunShrinkCommand(ShrinkFlags& f) {
   const bool tty = f.progress == "bar" || (f.progress == "auto" && ::isatty(STDOUT_FILENO));
   const bool quiet = f.progress == "none";
   const auto t0 = std::chrono::steady_clock::now();
-  const auto elapsed = [&] {
-    return std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count();
-  };
+  const auto elapsed = [&] { return std::chrono::duration<double>(std::chrono::steady_clock::now() - t0).count(); };
   double last_line = 0;
   std::size_t last_size = static_cast<std::size_t>(start.decisions_size());
   bool progress_shown = false;
@@ -398,33 +390,33 @@ int RunShrinkCommand(ShrinkFlags& f) {
     return kNondeterministic;
   }
 
-  const std::string comment = absl::StrCat(
-      "Minimal fault plan (weir shrink) for ", InvariantName(target), ": scenario ", spec.scenario_path,
-      ", seed ", spec.seed, "; ", r->minimal.decisions_size(), " of ", start.decisions_size(),
-      " decisions", r->one_minimal ? ", 1-minimal." : ", not proven 1-minimal (budget reached).");
+  const std::string comment =
+      absl::StrCat("Minimal fault plan (weir shrink) for ", InvariantName(target), ": scenario ", spec.scenario_path,
+                   ", seed ", spec.seed, "; ", r->minimal.decisions_size(), " of ", start.decisions_size(),
+                   " decisions", r->one_minimal ? ", 1-minimal." : ", not proven 1-minimal (budget reached).");
   if (absl::Status st = WriteFileAtomically(f.out, FormatFaultPlan(r->minimal, comment)); !st.ok()) {
     std::fprintf(stderr, "weir: %s\n", std::string(st.message()).c_str());
     return kHarness;
   }
   const RerunResult& m = r->minimal_run;
   std::printf("after      %s, %llu events, %llu steps (digest %s)\n", Decisions(r->minimal.decisions_size()).c_str(),
-              static_cast<unsigned long long>(m.events), static_cast<unsigned long long>(m.steps),
-              m.digest.c_str());
+              static_cast<unsigned long long>(m.events), static_cast<unsigned long long>(m.steps), m.digest.c_str());
   std::printf("reruns     %llu (%llu removals and %llu weakenings accepted, %.1f s)\n",
               static_cast<unsigned long long>(r->reruns), static_cast<unsigned long long>(r->removal_steps),
               static_cast<unsigned long long>(r->weakening_steps), elapsed());
   for (const auto& d : r->minimal.decisions()) std::printf("  %s\n", DescribeDecision(d).c_str());
   if (stop->load()) {
-    std::printf("interrupted by signal %d: the plan still fails %s but is not proven 1-minimal; run "
-                "weir shrink on it again to go on.\n",
-                StopSignal(), InvariantName(target));
+    std::printf(
+        "interrupted by signal %d: the plan still fails %s but is not proven 1-minimal; run "
+        "weir shrink on it again to go on.\n",
+        StopSignal(), InvariantName(target));
   } else if (r->one_minimal) {
-    std::printf("1-minimal: %s still fails; without any one of these decisions it holds.\n",
-                InvariantName(target));
+    std::printf("1-minimal: %s still fails; without any one of these decisions it holds.\n", InvariantName(target));
   } else {
-    std::printf("budget reached (--max-reruns %llu, --max-seconds %g): the plan still fails %s but is "
-                "not proven 1-minimal; run weir shrink on it again to go on.\n",
-                static_cast<unsigned long long>(f.max_reruns), f.max_seconds, InvariantName(target));
+    std::printf(
+        "budget reached (--max-reruns %llu, --max-seconds %g): the plan still fails %s but is "
+        "not proven 1-minimal; run weir shrink on it again to go on.\n",
+        static_cast<unsigned long long>(f.max_reruns), f.max_seconds, InvariantName(target));
   }
   std::printf("plan       %s\n", f.out.c_str());
 
@@ -434,8 +426,7 @@ int RunShrinkCommand(ShrinkFlags& f) {
   RunSpec minimal_spec = spec;
   minimal_spec.plan = r->minimal;
   std::string final_digest = m.digest;
-  const std::uint64_t reruns_left =
-      f.max_reruns == 0 ? 0 : (f.max_reruns > r->reruns ? f.max_reruns - r->reruns : 0);
+  const std::uint64_t reruns_left = f.max_reruns == 0 ? 0 : (f.max_reruns > r->reruns ? f.max_reruns - r->reruns : 0);
   if (f.keep_workload) {
     std::printf("workload   kept (--keep-workload)\n");
   } else if (stop->load()) {
@@ -485,10 +476,10 @@ int RunShrinkCommand(ShrinkFlags& f) {
       for (const KnobChange& c : w->changes) {
         changes.push_back(absl::StrCat(WorkloadKnobName(c.knob), " ", c.before, " -> ", c.after));
       }
-      const std::string comment = absl::StrCat(
-          "Shrunk workload (weir shrink) for ", InvariantName(target), " under ", f.out, ": scenario ",
-          spec.scenario_path, ", seed ", spec.seed, ";\n", absl::StrJoin(changes, ", "), ".",
-          w->budget_reached ? " Not proven smallest (budget reached)." : "");
+      const std::string comment =
+          absl::StrCat("Shrunk workload (weir shrink) for ", InvariantName(target), " under ", f.out, ": scenario ",
+                       spec.scenario_path, ", seed ", spec.seed, ";\n", absl::StrJoin(changes, ", "), ".",
+                       w->budget_reached ? " Not proven smallest (budget reached)." : "");
       if (absl::Status st = WriteFileAtomically(f.out_scenario, FormatScenario(w->scenario, comment)); !st.ok()) {
         std::fprintf(stderr, "weir: %s\n", std::string(st.message()).c_str());
         return kHarness;
@@ -513,8 +504,7 @@ int RunShrinkCommand(ShrinkFlags& f) {
     RunSpec s = minimal_spec;
     s.trace_path = f.trace;
     if (auto id = IdentifyConnector(s.connector_argv); id.ok()) s.connector_identity = std::move(*id);
-    auto out = stop->load() ? absl::StatusOr<RunOutput>(absl::CancelledError("interrupted"))
-                            : RunOverGrpc(s);
+    auto out = stop->load() ? absl::StatusOr<RunOutput>(absl::CancelledError("interrupted")) : RunOverGrpc(s);
     if (absl::IsCancelled(out.status())) {
       std::printf("trace      not written (interrupted)\n");
     } else if (!out.ok()) {
@@ -526,8 +516,7 @@ int RunShrinkCommand(ShrinkFlags& f) {
     }
   }
   std::printf("%sreplay: %s\n", profile_note.c_str(),
-              ReplayLine(replay_scenario, spec.seed, transport, f.out, replay_profile, spec.connector_argv)
-                  .c_str());
+              ReplayLine(replay_scenario, spec.seed, transport, f.out, replay_profile, spec.connector_argv).c_str());
   return stop->load() ? kExitInterrupted : kShrunk;
 }
 

@@ -37,7 +37,7 @@ struct ShrinkFlags {
   // minimal.scenario).
   std::string out_scenario;
   bool keep_workload = false;  // skip the workload phase
-  std::string trace;  // the minimal run's trace
+  std::string trace;           // the minimal run's trace
   std::uint64_t max_reruns = 500;
   double max_seconds = 600;
   std::string progress = "auto";

@@ -87,16 +87,13 @@ void Touch(const char* env) {
 
 // --shard I/N, else the sharding variables CI systems and job runners set.
 absl::StatusOr<ShardSpec> ResolveShard(const SuiteCommands& s) {
-  auto parse = [](const std::string& text, std::uint32_t* out) {
-    return absl::SimpleAtoi(text, out);
-  };
+  auto parse = [](const std::string& text, std::uint32_t* out) { return absl::SimpleAtoi(text, out); };
   ShardSpec spec;
   if (!s.shard.empty()) {
     std::vector<std::string> parts = absl::StrSplit(s.shard, '/');
-    if (parts.size() != 2 || !parse(parts[0], &spec.index) || !parse(parts[1], &spec.count) ||
-        spec.count == 0 || spec.index >= spec.count) {
-      return absl::InvalidArgumentError(
-          absl::StrCat("--shard is '", s.shard, "'; expected I/N with 0 <= I < N"));
+    if (parts.size() != 2 || !parse(parts[0], &spec.index) || !parse(parts[1], &spec.count) || spec.count == 0 ||
+        spec.index >= spec.count) {
+      return absl::InvalidArgumentError(absl::StrCat("--shard is '", s.shard, "'; expected I/N with 0 <= I < N"));
     }
     return spec;
   }
@@ -112,8 +109,8 @@ absl::StatusOr<ShardSpec> ResolveShard(const SuiteCommands& s) {
     if (total == nullptr && index == nullptr) continue;
     if (total == nullptr || index == nullptr || !parse(total, &spec.count) || !parse(index, &spec.index) ||
         spec.count == 0 || spec.index >= spec.count) {
-      return absl::InvalidArgumentError(absl::StrCat(c.total, "/", c.index, " are '",
-                                                     total ? total : "", "'/'", index ? index : "",
+      return absl::InvalidArgumentError(absl::StrCat(c.total, "/", c.index, " are '", total ? total : "", "'/'",
+                                                     index ? index : "",
                                                      "'; expected a total >= 1 and 0 <= index < total"));
     }
     Touch(c.status_file);
@@ -122,8 +119,8 @@ absl::StatusOr<ShardSpec> ResolveShard(const SuiteCommands& s) {
   if (const char* job = std::getenv("JOB_COMPLETION_INDEX"); job != nullptr && s.shard_count_for_index > 0) {
     spec.count = s.shard_count_for_index;
     if (!parse(job, &spec.index) || spec.index >= spec.count) {
-      return absl::InvalidArgumentError(absl::StrCat("JOB_COMPLETION_INDEX is '", job,
-                                                     "'; expected 0 <= index < ", spec.count));
+      return absl::InvalidArgumentError(
+          absl::StrCat("JOB_COMPLETION_INDEX is '", job, "'; expected 0 <= index < ", spec.count));
     }
     return spec;
   }
@@ -154,8 +151,8 @@ std::string SuiteHtml(const v1::SuiteReport& head, const SuiteTally& tally, cons
                       EscapeMarkup(std::string(explained.status().message())), "</p>\n");
       continue;
     }
-    explained->timelines.title = absl::StrCat("first ", inv.invariant(), " failure: ", it->second.scenario,
-                                              " seed ", it->second.seed);
+    explained->timelines.title =
+        absl::StrCat("first ", inv.invariant(), " failure: ", it->second.scenario, " seed ", it->second.seed);
     explained->timelines.source.clear();  // a temporary file, gone after certify
     absl::StrAppend(&body, RunTimelinesHtml(explained->timelines));
   }
@@ -242,8 +239,8 @@ int Certify(SuiteCommands& s) {
   if (s.certify->count("--jobs") > 0 && (s.jobs < 1 || s.jobs > 1024)) {
     return Usage(absl::StrCat("--jobs is ", s.jobs, "; expected 1 ..1024 runs at a time"));
   }
-  for (const auto& [flag, path] : {std::pair{"--json", s.json}, std::pair{"--junit", s.junit},
-                                   std::pair{"--certificate", s.certificate}}) {
+  for (const auto& [flag, path] :
+       {std::pair{"--json", s.json}, std::pair{"--junit", s.junit}, std::pair{"--certificate", s.certificate}}) {
     if (absl::Status st = CheckOutputPath(flag, path); !st.ok()) return Usage(std::string(st.message()));
   }
   auto shard = ResolveShard(s);
@@ -327,19 +324,18 @@ int Certify(SuiteCommands& s) {
       std::printf("certify: %llu/%llu runs, %llu failed, %.1f runs/s, ~%.0f s left%s\n",
                   static_cast<unsigned long long>(p.done), static_cast<unsigned long long>(p.total),
                   static_cast<unsigned long long>(p.failed), rate, left,
-                  rec.passed() ? ""
-                               : absl::StrCat(" — FAILED ", rec.scenario(), " seed ", rec.seed(), ": ",
-                                              rec.first_violation().empty() ? rec.harness_error()
-                                                                            : rec.first_violation())
-                                     .c_str());
+                  rec.passed()
+                      ? ""
+                      : absl::StrCat(" — FAILED ", rec.scenario(), " seed ", rec.seed(), ": ",
+                                     rec.first_violation().empty() ? rec.harness_error() : rec.first_violation())
+                            .c_str());
     }
     std::fflush(stdout);
   };
 
-  std::printf("weir certify: suite %s (%s), %llu pairs, shard %u/%u, %u jobs\nconnector %s (%s)\n",
-              s.suite.c_str(), suite->digest.c_str(), static_cast<unsigned long long>(suite->pairs()),
-              options.shard.index, options.shard.count, options.jobs, ShellJoin(argv).c_str(),
-              sha->c_str());
+  std::printf("weir certify: suite %s (%s), %llu pairs, shard %u/%u, %u jobs\nconnector %s (%s)\n", s.suite.c_str(),
+              suite->digest.c_str(), static_cast<unsigned long long>(suite->pairs()), options.shard.index,
+              options.shard.count, options.jobs, ShellJoin(argv).c_str(), sha->c_str());
   if (options.profile.has_value()) {
     std::printf("profile %s (--profile, applied to every scenario)\n", options.profile_path.c_str());
   } else if (suite->profile.has_value()) {
@@ -373,17 +369,18 @@ int Certify(SuiteCommands& s) {
   }
 
   if (stop->load()) {
-    std::printf("INTERRUPTED by signal %d: %llu finished run(s) reported; every connector was killed.\n",
-                StopSignal(), static_cast<unsigned long long>(tally.runs()));
+    std::printf("INTERRUPTED by signal %d: %llu finished run(s) reported; every connector was killed.\n", StopSignal(),
+                static_cast<unsigned long long>(tally.runs()));
     return kInterrupted;
   }
   if (write_errors > 0 || tally.harness_faults() > 0) return kHarness;
   if (tally.invariant_failures() > 0) return kFailed;
   if (options.shard.count <= 1) {
     if (s.require_coverage && cert.not_exercised_size() > 0 && tally.failed() == 0 && result->head.complete()) {
-      std::printf("NOT CERTIFIED (--require-coverage): every run passed, but %d claimed invariant(s) had no "
-                  "chance to fail (see \"not exercised\" above).\n",
-                  cert.not_exercised_size());
+      std::printf(
+          "NOT CERTIFIED (--require-coverage): every run passed, but %d claimed invariant(s) had no "
+          "chance to fail (see \"not exercised\" above).\n",
+          cert.not_exercised_size());
       return kNotExercised;
     }
     std::printf("%s%s\n",
@@ -396,8 +393,8 @@ int Certify(SuiteCommands& s) {
                     : "");
     return cert.certified() ? kPassed : kFailed;
   }
-  std::printf("shard %u/%u: every run passed; merge the shard reports with weir merge.\n",
-              options.shard.index, options.shard.count);
+  std::printf("shard %u/%u: every run passed; merge the shard reports with weir merge.\n", options.shard.index,
+              options.shard.count);
   return kPassed;
 }
 
@@ -428,9 +425,10 @@ int Verify(SuiteCommands& s) {
     return kFailed;
   }
   if (!cert->certified()) {
-    std::printf("REJECTED: the certificate is intact and names this binary, but the suite did not pass "
-                "(%llu of %llu runs failed).\n",
-                static_cast<unsigned long long>(cert->runs_failed()), static_cast<unsigned long long>(cert->runs()));
+    std::printf(
+        "REJECTED: the certificate is intact and names this binary, but the suite did not pass "
+        "(%llu of %llu runs failed).\n",
+        static_cast<unsigned long long>(cert->runs_failed()), static_cast<unsigned long long>(cert->runs()));
     return kFailed;
   }
   std::printf("VERIFIED: %s certifies %s: suite %s (%s), %llu runs passed, weir %s.\n", s.cert_file.c_str(),
@@ -446,8 +444,7 @@ int Verify(SuiteCommands& s) {
     std::printf("not exercised (no run gave them a chance to fail; the certificate cannot vouch for them): %s\n",
                 names.c_str());
   }
-  std::printf("weir binary sha256 %s\n",
-              cert->weir_sha256().empty() ? "(not recorded)" : cert->weir_sha256().c_str());
+  std::printf("weir binary sha256 %s\n", cert->weir_sha256().empty() ? "(not recorded)" : cert->weir_sha256().c_str());
   if (!cert->recheck().empty()) {
     std::printf("determinism recheck: %llu rerun, %llu diverged; rule: %s\n",
                 static_cast<unsigned long long>(cert->runs_rechecked()),
@@ -456,12 +453,14 @@ int Verify(SuiteCommands& s) {
   if (!s.trusted_key.empty()) {
     std::printf("signed by the trusted key %s\n", cert->key_fingerprint().c_str());
   } else if (cert->signature().empty()) {
-    std::printf("note: the certificate is only sealed, not signed: anyone can recompute a seal "
-                "(sign with weir certify --signing-key, check with --trusted-key)\n");
+    std::printf(
+        "note: the certificate is only sealed, not signed: anyone can recompute a seal "
+        "(sign with weir certify --signing-key, check with --trusted-key)\n");
   } else {
-    std::printf("note: the certificate is signed by %s but only its seal was checked: "
-                "pass --trusted-key to check the signature\n",
-                cert->key_fingerprint().c_str());
+    std::printf(
+        "note: the certificate is signed by %s but only its seal was checked: "
+        "pass --trusted-key to check the signature\n",
+        cert->key_fingerprint().c_str());
   }
   return kPassed;
 }
@@ -573,10 +572,11 @@ int Keygen(SuiteCommands& s) {
     }
     return Usage(std::string(key.status().message()));
   }
-  std::printf("private key  %s (PEM PKCS#8, mode 0600: keep it secret; weir certify --signing-key)\n"
-              "public key   %s.pub (PEM SubjectPublicKeyInfo; weir verify --trusted-key)\n"
-              "fingerprint  %s\n",
-              s.key_out.c_str(), s.key_out.c_str(), key->Fingerprint().c_str());
+  std::printf(
+      "private key  %s (PEM PKCS#8, mode 0600: keep it secret; weir certify --signing-key)\n"
+      "public key   %s.pub (PEM SubjectPublicKeyInfo; weir verify --trusted-key)\n"
+      "fingerprint  %s\n",
+      s.key_out.c_str(), s.key_out.c_str(), key->Fingerprint().c_str());
   return kPassed;
 }
 
@@ -596,8 +596,9 @@ void AddSuiteCommands(CLI::App& app, SuiteCommands& s) {
   s.certify->add_option("--max-failures", s.max_failures, "Stop launching runs after N failed runs")
       ->check(WholeNumber());
   s.certify->add_option("--shard", s.shard, "Run shard I of N (I/N); default from GTEST_*/TEST_* sharding variables");
-  s.certify->add_option("--shard-count", s.shard_count_for_index,
-                        "Total shards when the index comes from JOB_COMPLETION_INDEX")
+  s.certify
+      ->add_option("--shard-count", s.shard_count_for_index,
+                   "Total shards when the index comes from JOB_COMPLETION_INDEX")
       ->check(WholeNumber());
   s.certify->add_option("--json", s.json, "Write the JSON report here");
   s.certify->add_option("--junit", s.junit, "Write JUnit XML here");

@@ -32,8 +32,8 @@ struct SuiteCommands {
   std::string progress = "auto";
   std::string profile;            // overrides the suite's and every scenario's profile
   bool require_coverage = false;  // an invariant not exercised fails certify (exit 5)
-  std::string recheck;      // certify: N, all, none; empty: the sample rule
-  std::string signing_key;  // certify, merge: sign the certificate
+  std::string recheck;            // certify: N, all, none; empty: the sample rule
+  std::string signing_key;        // certify, merge: sign the certificate
   // verify
   std::string cert_file;
   std::string connector_binary;

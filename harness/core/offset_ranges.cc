@@ -69,8 +69,7 @@ std::uint64_t OffsetRanges::FirstMissing(std::uint64_t from) const {
   return from < it->second ? it->second : from;
 }
 
-std::vector<std::pair<std::uint64_t, std::uint64_t>> OffsetRanges::Missing(
-    std::uint64_t from, std::uint64_t to) const {
+std::vector<std::pair<std::uint64_t, std::uint64_t>> OffsetRanges::Missing(std::uint64_t from, std::uint64_t to) const {
   std::vector<std::pair<std::uint64_t, std::uint64_t>> out;
   std::uint64_t at = from;
   while (at < to) {

@@ -39,8 +39,7 @@ class OffsetRanges {
   // The least offset >= from that is not held.
   std::uint64_t FirstMissing(std::uint64_t from) const;
   // The ranges of [from, to) that are not held, in order.
-  std::vector<std::pair<std::uint64_t, std::uint64_t>> Missing(std::uint64_t from,
-                                                                std::uint64_t to) const;
+  std::vector<std::pair<std::uint64_t, std::uint64_t>> Missing(std::uint64_t from, std::uint64_t to) const;
   // Offsets held in [from, to).
   std::uint64_t CountIn(std::uint64_t from, std::uint64_t to) const;
 

@@ -41,9 +41,7 @@ std::int64_t PrngStream::UniformInt(std::int64_t lo, std::int64_t hi) {
   return static_cast<std::int64_t>(static_cast<std::uint64_t>(lo) + x % n);
 }
 
-double PrngStream::UniformUnit() {
-  return static_cast<double>(NextU64() >> 11) * (1.0 / 9007199254740992.0);
-}
+double PrngStream::UniformUnit() { return static_cast<double>(NextU64() >> 11) * (1.0 / 9007199254740992.0); }
 
 bool PrngStream::Bernoulli(double p) {
   if (p <= 0) return false;

@@ -11,8 +11,7 @@ std::string FormatTime(VirtualTime t) {
   const unsigned long long abs =
       negative ? 0ULL - static_cast<unsigned long long>(t) : static_cast<unsigned long long>(t);
   char buf[48];
-  std::snprintf(buf, sizeof buf, "%s%llu.%09llus", negative ? "-" : "", abs / 1000000000ULL,
-                abs % 1000000000ULL);
+  std::snprintf(buf, sizeof buf, "%s%llu.%09llus", negative ? "-" : "", abs / 1000000000ULL, abs % 1000000000ULL);
   return buf;
 }
 

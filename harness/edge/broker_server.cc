@@ -18,12 +18,10 @@ grpc::Status ToGrpc(const CallStatus& status, grpc::ServerContext& context) {
     context.AddTrailingMetadata("retry-after-ms", std::to_string(ms));
     v1::RetryAfter detail;
     detail.set_retry_after_ns(status.retry_after);
-    return grpc::Status(grpc::StatusCode::RESOURCE_EXHAUSTED, status.message,
-                        detail.SerializeAsString());
+    return grpc::Status(grpc::StatusCode::RESOURCE_EXHAUSTED, status.message, detail.SerializeAsString());
   }
   if (status.code == CallCode::kOutOfRange) {
-    context.AddTrailingMetadata("weir-first-retained-offset",
-                                std::to_string(status.first_retained_offset));
+    context.AddTrailingMetadata("weir-first-retained-offset", std::to_string(status.first_retained_offset));
     v1::OffsetOutOfRange detail;
     detail.set_first_retained_offset(status.first_retained_offset);
     return grpc::Status(grpc::StatusCode::OUT_OF_RANGE, status.message, detail.SerializeAsString());
@@ -78,8 +76,7 @@ namespace {
 
 template <typename Request, typename Response>
 using RequestFn = void (v1::Broker::AsyncService::*)(grpc::ServerContext*, Request*,
-                                                     grpc::ServerAsyncResponseWriter<Response>*,
-                                                     grpc::CompletionQueue*,
+                                                     grpc::ServerAsyncResponseWriter<Response>*, grpc::CompletionQueue*,
                                                      grpc::ServerCompletionQueue*, void*);
 template <typename Request, typename Response>
 using BrokerFn = CallStatus (BrokerEndpoint::*)(const Request&, Response*);
@@ -95,8 +92,8 @@ class MethodCall final : public BrokerServer::Call {
     BrokerFn<Request, Response> run;
   };
 
-  MethodCall(BrokerServer& server, v1::Broker::AsyncService& service,
-             grpc::ServerCompletionQueue* queue, const Method& method)
+  MethodCall(BrokerServer& server, v1::Broker::AsyncService& service, grpc::ServerCompletionQueue* queue,
+             const Method& method)
       : Call(server), service_(service), queue_(queue), method_(method), responder_(&context_) {
     (service_.*method_.request)(&context_, &request_, &responder_, queue_, queue_, this);
   }
@@ -156,22 +153,19 @@ absl::StatusOr<std::unique_ptr<BrokerServer>> BrokerServer::Start(const std::str
     server->address_ = absl::StrCat(listen.substr(0, listen.rfind(':')), ":", port);
   }
   using Svc = v1::Broker::AsyncService;
-  new MethodCall<v1::PullRequest, v1::PullResponse>(
-      *server, impl.service, impl.queue.get(),
-      {"Pull", &Svc::RequestPull, &BrokerEndpoint::Pull});
+  new MethodCall<v1::PullRequest, v1::PullResponse>(*server, impl.service, impl.queue.get(),
+                                                    {"Pull", &Svc::RequestPull, &BrokerEndpoint::Pull});
   new MethodCall<v1::AckRequest, v1::AckResponse>(*server, impl.service, impl.queue.get(),
                                                   {"Ack", &Svc::RequestAck, &BrokerEndpoint::Ack});
-  new MethodCall<v1::NackRequest, v1::NackResponse>(
-      *server, impl.service, impl.queue.get(),
-      {"Nack", &Svc::RequestNack, &BrokerEndpoint::Nack});
+  new MethodCall<v1::NackRequest, v1::NackResponse>(*server, impl.service, impl.queue.get(),
+                                                    {"Nack", &Svc::RequestNack, &BrokerEndpoint::Nack});
   new MethodCall<v1::ExtendLeaseRequest, v1::ExtendLeaseResponse>(
-      *server, impl.service, impl.queue.get(),
-      {"ExtendLease", &Svc::RequestExtendLease, &BrokerEndpoint::ExtendLease});
+      *server, impl.service, impl.queue.get(), {"ExtendLease", &Svc::RequestExtendLease, &BrokerEndpoint::ExtendLease});
   new MethodCall<v1::ListPartitionsRequest, v1::ListPartitionsResponse>(
       *server, impl.service, impl.queue.get(),
       {"ListPartitions", &Svc::RequestListPartitions, &BrokerEndpoint::ListPartitions});
-  new MethodCall<v1::ReadRequest, v1::ReadResponse>(
-      *server, impl.service, impl.queue.get(), {"Read", &Svc::RequestRead, &BrokerEndpoint::Read});
+  new MethodCall<v1::ReadRequest, v1::ReadResponse>(*server, impl.service, impl.queue.get(),
+                                                    {"Read", &Svc::RequestRead, &BrokerEndpoint::Read});
   new MethodCall<v1::SaveBookmarksRequest, v1::SaveBookmarksResponse>(
       *server, impl.service, impl.queue.get(),
       {"SaveBookmarks", &Svc::RequestSaveBookmarks, &BrokerEndpoint::SaveBookmarks});
@@ -203,11 +197,8 @@ bool BrokerServer::PollOnce(std::chrono::system_clock::time_point deadline, bool
       *timed_out = false;
       static_cast<QueueTag*>(tag)->Proceed(ok);
       return true;
-    case grpc::CompletionQueue::TIMEOUT:
-      *timed_out = true;
-      return true;
-    case grpc::CompletionQueue::SHUTDOWN:
-      break;
+    case grpc::CompletionQueue::TIMEOUT: *timed_out = true; return true;
+    case grpc::CompletionQueue::SHUTDOWN: break;
   }
   *timed_out = true;
   return false;
@@ -221,8 +212,8 @@ void BrokerServer::Handle(Call& call) {
     return;
   }
   if (window_->crashed) {
-    call.Refuse(grpc::Status(grpc::StatusCode::UNAVAILABLE,
-                             absl::StrCat(call.method(), " called after a crash point")));
+    call.Refuse(
+        grpc::Status(grpc::StatusCode::UNAVAILABLE, absl::StrCat(call.method(), " called after a crash point")));
     return;
   }
   const CallStatus status = call.Run(window_->broker);
@@ -241,8 +232,7 @@ void BrokerServer::RefuseQueued() {
   }
 }
 
-void BrokerServer::Serve(Window& window, absl::FunctionRef<bool()> done,
-                         std::chrono::milliseconds tick) {
+void BrokerServer::Serve(Window& window, absl::FunctionRef<bool()> done, std::chrono::milliseconds tick) {
   window_ = &window;
   bool timed_out = false;
   while (!done()) {

@@ -86,8 +86,7 @@ absl::StatusOr<std::unique_ptr<ChildProcess>> ChildProcess::Spawn(const Options&
   posix_spawnattr_setsigmask(&attr, &empty);
   posix_spawnattr_setsigdefault(&attr, &defaults);
   posix_spawnattr_setpgroup(&attr, 0);
-  posix_spawnattr_setflags(&attr, POSIX_SPAWN_SETPGROUP | POSIX_SPAWN_SETSIGMASK |
-                                      POSIX_SPAWN_SETSIGDEF);
+  posix_spawnattr_setflags(&attr, POSIX_SPAWN_SETPGROUP | POSIX_SPAWN_SETSIGMASK | POSIX_SPAWN_SETSIGDEF);
 
   pid_t pid = -1;
   const int rc = ::posix_spawnp(&pid, argv[0], &actions, &attr, argv.data(), envp.data());
@@ -98,8 +97,7 @@ absl::StatusOr<std::unique_ptr<ChildProcess>> ChildProcess::Spawn(const Options&
   if (rc != 0) {
     ::close(out_pipe[0]);
     if (options.ready_pipe) ::close(ready_pipe[0]);
-    return absl::NotFoundError(
-        absl::StrCat("cannot start '", options.argv[0], "': ", ::strerror(rc)));
+    return absl::NotFoundError(absl::StrCat("cannot start '", options.argv[0], "': ", ::strerror(rc)));
   }
   child->pid_ = pid;
   child->output_fd_ = out_pipe[0];
@@ -177,11 +175,10 @@ absl::StatusOr<std::string> ChildProcess::ReadReadyLine(std::chrono::millisecond
       return absl::InvalidArgumentError("handshake line longer than 4096 bytes");
     }
     if (stop != nullptr && stop->load()) return absl::CancelledError("interrupted");
-    const auto left = std::chrono::duration_cast<std::chrono::milliseconds>(
-        deadline - std::chrono::steady_clock::now());
+    const auto left =
+        std::chrono::duration_cast<std::chrono::milliseconds>(deadline - std::chrono::steady_clock::now());
     if (left.count() <= 0) {
-      return absl::DeadlineExceededError(
-          absl::StrCat("no address on WEIR_READY_FD within ", timeout.count(), " ms"));
+      return absl::DeadlineExceededError(absl::StrCat("no address on WEIR_READY_FD within ", timeout.count(), " ms"));
     }
     pollfd p{ready_fd_, POLLIN, 0};
     const int r = ::poll(&p, 1, static_cast<int>(std::min<long long>(left.count(), 100)));

@@ -35,9 +35,7 @@ bool IsRegularFile(const std::string& path) {
 }
 
 // "sha256:abc…" → "abc…", for "sha256 … then, … now".
-std::string Hex(const std::string& digest) {
-  return absl::StartsWith(digest, "sha256:") ? digest.substr(7) : digest;
-}
+std::string Hex(const std::string& digest) { return absl::StartsWith(digest, "sha256:") ? digest.substr(7) : digest; }
 
 // Why `path` cannot be started, for a FailedPrecondition message.
 std::string Missing(const std::string& path) {
@@ -105,8 +103,7 @@ absl::StatusOr<v1::ConnectorIdentity> IdentifyConnector(const std::vector<std::s
   id.set_working_directory(cwd.string());
   const auto exe = FindExecutableAbsolute(argv[0]);
   if (!exe.has_value()) {
-    return absl::NotFoundError(
-        absl::StrCat("'", argv[0], "' is not an executable file (nor found on PATH)"));
+    return absl::NotFoundError(absl::StrCat("'", argv[0], "' is not an executable file (nor found on PATH)"));
   }
   id.set_executable(*exe);
   auto sha = FileSha256(*exe);
@@ -124,16 +121,16 @@ absl::StatusOr<v1::ConnectorIdentity> IdentifyConnector(const std::vector<std::s
   return id;
 }
 
-absl::StatusOr<ResolvedConnector> ResolveRecordedConnector(
-    const v1::TraceHeader& header, const std::vector<std::string>& override_argv) {
+absl::StatusOr<ResolvedConnector> ResolveRecordedConnector(const v1::TraceHeader& header,
+                                                           const std::vector<std::string>& override_argv) {
   ResolvedConnector out;
   const v1::ConnectorIdentity& recorded = header.connector();
   if (!override_argv.empty()) {
     out.argv = override_argv;
     const auto exe = FindExecutableAbsolute(out.argv[0]);
     if (!exe.has_value()) {
-      return absl::FailedPreconditionError(absl::StrCat(
-          "the connector cannot start: '", out.argv[0], "' is not an executable file (nor found on PATH)"));
+      return absl::FailedPreconditionError(absl::StrCat("the connector cannot start: '", out.argv[0],
+                                                        "' is not an executable file (nor found on PATH)"));
     }
     // The same rule as at record time picks the file argument to compare.
     auto now = IdentifyConnector(out.argv);
@@ -154,19 +151,19 @@ absl::StatusOr<ResolvedConnector> ResolveRecordedConnector(
   if (recorded.executable().empty()) {
     // Written before traces recorded where the connector was: as given.
     if (!FindExecutableAbsolute(out.argv[0]).has_value()) {
-      return absl::FailedPreconditionError(absl::StrCat(
-          "the connector cannot start: '", out.argv[0],
-          "' is not an executable file here (nor found on PATH), and the trace does not say which "
-          "directory it was recorded in; give --connector 'CMD ARGS…'"));
+      return absl::FailedPreconditionError(
+          absl::StrCat("the connector cannot start: '", out.argv[0],
+                       "' is not an executable file here (nor found on PATH), and the trace does not say which "
+                       "directory it was recorded in; give --connector 'CMD ARGS…'"));
     }
     return out;
   }
   const std::string as_given = out.argv[0];
   out.argv[0] = recorded.executable();
   if (!IsExecutableFile(out.argv[0])) {
-    return absl::FailedPreconditionError(
-        absl::StrCat("the connector cannot start: '", out.argv[0], "' (", Recorded(as_given, recorded),
-                     ") ", Missing(out.argv[0]), "; give --connector 'CMD ARGS…' to name it"));
+    return absl::FailedPreconditionError(absl::StrCat("the connector cannot start: '", out.argv[0], "' (",
+                                                      Recorded(as_given, recorded), ") ", Missing(out.argv[0]),
+                                                      "; give --connector 'CMD ARGS…' to name it"));
   }
   CompareHash("binary", out.argv[0], recorded.executable_sha256(), &out.changes);
   const std::size_t i = recorded.file_argument_index();
@@ -174,9 +171,9 @@ absl::StatusOr<ResolvedConnector> ResolveRecordedConnector(
     const std::string file_as_given = out.argv[i];
     out.argv[i] = recorded.file_argument();
     if (!IsRegularFile(out.argv[i])) {
-      return absl::FailedPreconditionError(absl::StrCat(
-          "the connector cannot start: its file argument '", out.argv[i], "' (",
-          Recorded(file_as_given, recorded), ") no longer exists; give --connector 'CMD ARGS…'"));
+      return absl::FailedPreconditionError(absl::StrCat("the connector cannot start: its file argument '", out.argv[i],
+                                                        "' (", Recorded(file_as_given, recorded),
+                                                        ") no longer exists; give --connector 'CMD ARGS…'"));
     }
     CompareHash("file argument", out.argv[i], recorded.file_argument_sha256(), &out.changes);
   }

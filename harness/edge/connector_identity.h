@@ -49,8 +49,7 @@ std::optional<std::string> FindExecutableAbsolute(const std::string& program);
 // REQUIRES: argv is not empty.
 // Error: NotFound when argv[0] is not an executable file (nor on PATH);
 // NotFound/Unavailable when a file cannot be read for its hash.
-[[nodiscard]] absl::StatusOr<v1::ConnectorIdentity> IdentifyConnector(
-    const std::vector<std::string>& argv);
+[[nodiscard]] absl::StatusOr<v1::ConnectorIdentity> IdentifyConnector(const std::vector<std::string>& argv);
 
 struct ResolvedConnector {
   // What to start now.
@@ -69,7 +68,7 @@ struct ResolvedConnector {
 // Either way the hashes are compared with the recorded ones when both exist.
 // Error: FailedPrecondition "the connector cannot start: …" naming what is
 // missing (the executable, or the file argument) and what was recorded.
-[[nodiscard]] absl::StatusOr<ResolvedConnector> ResolveRecordedConnector(
-    const v1::TraceHeader& header, const std::vector<std::string>& override_argv);
+[[nodiscard]] absl::StatusOr<ResolvedConnector> ResolveRecordedConnector(const v1::TraceHeader& header,
+                                                                         const std::vector<std::string>& override_argv);
 
 }  // namespace weir

@@ -13,11 +13,10 @@ namespace {
 // The canonical name of a gRPC status code (grpc/status.h).
 std::string CodeName(grpc::StatusCode code) {
   static constexpr const char* kNames[] = {
-      "OK",        "CANCELLED",           "UNKNOWN",           "INVALID_ARGUMENT",
-      "DEADLINE_EXCEEDED", "NOT_FOUND",   "ALREADY_EXISTS",    "PERMISSION_DENIED",
-      "RESOURCE_EXHAUSTED", "FAILED_PRECONDITION", "ABORTED", "OUT_OF_RANGE",
-      "UNIMPLEMENTED", "INTERNAL",        "UNAVAILABLE",       "DATA_LOSS",
-      "UNAUTHENTICATED"};
+      "OK",        "CANCELLED",      "UNKNOWN",           "INVALID_ARGUMENT",   "DEADLINE_EXCEEDED",
+      "NOT_FOUND", "ALREADY_EXISTS", "PERMISSION_DENIED", "RESOURCE_EXHAUSTED", "FAILED_PRECONDITION",
+      "ABORTED",   "OUT_OF_RANGE",   "UNIMPLEMENTED",     "INTERNAL",           "UNAVAILABLE",
+      "DATA_LOSS", "UNAUTHENTICATED"};
   const int i = static_cast<int>(code);
   return i >= 0 && i < 17 ? kNames[i] : absl::StrCat("code ", i);
 }
@@ -74,9 +73,7 @@ ConnectorFailure GrpcConnectorPort::ExitedOr(ConnectorFailure::Kind kind, std::s
   return f;
 }
 
-bool GrpcConnectorPort::Stopping() const {
-  return options_.stop != nullptr && options_.stop->load();
-}
+bool GrpcConnectorPort::Stopping() const { return options_.stop != nullptr && options_.stop->load(); }
 
 ConnectorFailure GrpcConnectorPort::Interrupted() {
   Kill();
@@ -95,8 +92,7 @@ ConnectorFailure GrpcConnectorPort::Start(std::uint64_t incarnation) {
   spawn.env["WEIR_INCARNATION"] = std::to_string(incarnation);
   auto child = ChildProcess::Spawn(spawn);
   if (!child.ok()) {
-    return ConnectorFailure{ConnectorFailure::Kind::kStartFailed,
-                            std::string(child.status().message()), "", ""};
+    return ConnectorFailure{ConnectorFailure::Kind::kStartFailed, std::string(child.status().message()), "", ""};
   }
   child_ = std::move(*child);
   const std::chrono::milliseconds start_timeout = options_.wall_bounds ? options_.start_timeout : kUnbounded;
@@ -106,8 +102,7 @@ ConnectorFailure GrpcConnectorPort::Start(std::uint64_t incarnation) {
     // Alive but silent: it hangs in start-up. Gone: it exited.
     const bool silent = absl::IsDeadlineExceeded(line.status());
     return ExitedOr(silent ? ConnectorFailure::Kind::kTimeout : ConnectorFailure::Kind::kCallFailed,
-                    absl::StrCat("the connector never reported its address: ",
-                                 line.status().message()));
+                    absl::StrCat("the connector never reported its address: ", line.status().message()));
   }
   std::string address = *line;
   while (!address.empty() && (address.back() == '\r' || address.back() == ' ')) address.pop_back();
@@ -124,24 +119,21 @@ ConnectorFailure GrpcConnectorPort::Start(std::uint64_t incarnation) {
   bool connected = false;
   while (!connected && std::chrono::steady_clock::now() < connect_by) {
     if (Stopping()) return Interrupted();
-    connected = channel_->WaitForConnected(std::chrono::system_clock::now() +
-                                           std::chrono::milliseconds(100));
+    connected = channel_->WaitForConnected(std::chrono::system_clock::now() + std::chrono::milliseconds(100));
   }
   if (!connected) {
-    return ExitedOr(ConnectorFailure::Kind::kCallFailed,
-                    absl::StrCat("the connector reported address ", address,
-                                 ", but nothing accepted a connection there within ",
-                                 options_.start_timeout.count(), " ms"));
+    return ExitedOr(
+        ConnectorFailure::Kind::kCallFailed,
+        absl::StrCat("the connector reported address ", address, ", but nothing accepted a connection there within ",
+                     options_.start_timeout.count(), " ms"));
   }
   stub_ = std::make_unique<grpc::GenericStub>(channel_);
   address_ = address;
   return {};
 }
 
-ConnectorFailure GrpcConnectorPort::Invoke(const char* name,
-                                           const google::protobuf::Message& request,
-                                           google::protobuf::Message* response,
-                                           BrokerEndpoint& broker) {
+ConnectorFailure GrpcConnectorPort::Invoke(const char* name, const google::protobuf::Message& request,
+                                           google::protobuf::Message* response, BrokerEndpoint& broker) {
   if (stub_ == nullptr) {
     return ConnectorFailure{ConnectorFailure::Kind::kExited, "no live incarnation", "", ""};
   }
@@ -168,15 +160,14 @@ ConnectorFailure GrpcConnectorPort::Invoke(const char* name,
         request, &request_bytes, &own_buffer);
     if (!st.ok()) {
       return ConnectorFailure{ConnectorFailure::Kind::kCallFailed,
-                              absl::StrCat("cannot encode the ", name, " request: ", st.error_message()),
-                              "", ""};
+                              absl::StrCat("cannot encode the ", name, " request: ", st.error_message()), "", ""};
     }
   }
   grpc::Status status;
   grpc::ByteBuffer answer;
   DoneTag answered;
-  auto rpc = stub_->PrepareUnaryCall(&context, absl::StrCat("/weir.v1.Connector/", name),
-                                     request_bytes, server_.queue());
+  auto rpc =
+      stub_->PrepareUnaryCall(&context, absl::StrCat("/weir.v1.Connector/", name), request_bytes, server_.queue());
   rpc->StartCall();
   rpc->Finish(&answer, &status, &answered);
   // A crash point kills the process group while that broker call's answer is
@@ -192,8 +183,8 @@ ConnectorFailure GrpcConnectorPort::Invoke(const char* name,
   });
   if (window.crashed) {
     Kill();  // reap the killed group and drop the channel: no incarnation is alive
-    return ConnectorFailure{ConnectorFailure::Kind::kCrashed,
-                            absl::StrCat("killed during ", name, " at a crash point"), "", ""};
+    return ConnectorFailure{ConnectorFailure::Kind::kCrashed, absl::StrCat("killed during ", name, " at a crash point"),
+                            "", ""};
   }
   if (Stopping()) return Interrupted();
   if (status.error_code() == grpc::StatusCode::DEADLINE_EXCEEDED) {
@@ -201,16 +192,14 @@ ConnectorFailure GrpcConnectorPort::Invoke(const char* name,
       return ExitedOr(ConnectorFailure::Kind::kExited, absl::StrCat("died during ", name));
     }
     ConnectorFailure f{ConnectorFailure::Kind::kTimeout,
-                       absl::StrCat(name, " did not answer within ", options_.call_timeout.count(),
-                                    " ms"),
-                       "", child_->OutputTail()};
+                       absl::StrCat(name, " did not answer within ", options_.call_timeout.count(), " ms"), "",
+                       child_->OutputTail()};
     return f;
   }
   if (!status.ok()) {
-    if (status.error_code() == grpc::StatusCode::UNAVAILABLE ||
-        status.error_code() == grpc::StatusCode::CANCELLED) {
-      ConnectorFailure f = ExitedOr(ConnectorFailure::Kind::kCallFailed,
-                                    absl::StrCat(name, " failed: ", status.error_message()));
+    if (status.error_code() == grpc::StatusCode::UNAVAILABLE || status.error_code() == grpc::StatusCode::CANCELLED) {
+      ConnectorFailure f =
+          ExitedOr(ConnectorFailure::Kind::kCallFailed, absl::StrCat(name, " failed: ", status.error_message()));
       if (f.kind == ConnectorFailure::Kind::kExited) f.detail = absl::StrCat("died during ", name);
       return f;
     }
@@ -218,23 +207,21 @@ ConnectorFailure GrpcConnectorPort::Invoke(const char* name,
     // a method the connector does not serve breaks the wire contract.
     if (status.error_code() == grpc::StatusCode::RESOURCE_EXHAUSTED ||
         status.error_code() == grpc::StatusCode::UNIMPLEMENTED) {
-      return ConnectorFailure{ConnectorFailure::Kind::kCallFailed,
-                              absl::StrCat(name, " answered ", CodeName(status.error_code()), ": ",
-                                           status.error_message()),
-                              "", ""};
+      return ConnectorFailure{
+          ConnectorFailure::Kind::kCallFailed,
+          absl::StrCat(name, " answered ", CodeName(status.error_code()), ": ", status.error_message()), "", ""};
     }
     // Any other status is the connector's own word that the call failed (an
     // exception in the source, a checkpoint it cannot read): connector-error.
-    return ConnectorFailure{ConnectorFailure::Kind::kConnectorError,
-                            absl::StrCat(name, " answered ", CodeName(status.error_code()), ": ",
-                                         status.error_message()),
-                            "", "", static_cast<int>(status.error_code())};
+    return ConnectorFailure{
+        ConnectorFailure::Kind::kConnectorError,
+        absl::StrCat(name, " answered ", CodeName(status.error_code()), ": ", status.error_message()), "", "",
+        static_cast<int>(status.error_code())};
   }
   // The answer must be exactly one message of the response type (an empty
   // message is one); a missing answer or bytes that do not parse are not.
   if (!answer.Valid() ||
-      !grpc::GenericDeserialize<grpc::ProtoBufferReader, google::protobuf::Message>(&answer, response)
-           .ok()) {
+      !grpc::GenericDeserialize<grpc::ProtoBufferReader, google::protobuf::Message>(&answer, response).ok()) {
     return ConnectorFailure{ConnectorFailure::Kind::kCallFailed,
                             absl::StrCat(name, " answered no message, or bytes that are not a ",
                                          response->GetDescriptor()->full_name(), " message"),
@@ -243,35 +230,33 @@ ConnectorFailure GrpcConnectorPort::Invoke(const char* name,
   return {};
 }
 
-ConnectorFailure GrpcConnectorPort::Open(const v1::OpenRequest& request,
-                                         v1::OpenResponse* response, BrokerEndpoint& broker) {
+ConnectorFailure GrpcConnectorPort::Open(const v1::OpenRequest& request, v1::OpenResponse* response,
+                                         BrokerEndpoint& broker) {
   return Invoke("Open", request, response, broker);
 }
 
-ConnectorFailure GrpcConnectorPort::Advance(const v1::AdvanceRequest& request,
-                                            v1::AdvanceResponse* response, BrokerEndpoint& broker) {
+ConnectorFailure GrpcConnectorPort::Advance(const v1::AdvanceRequest& request, v1::AdvanceResponse* response,
+                                            BrokerEndpoint& broker) {
   return Invoke("Advance", request, response, broker);
 }
 
-ConnectorFailure GrpcConnectorPort::Checkpoint(const v1::CheckpointRequest& request,
-                                               v1::CheckpointResponse* response,
+ConnectorFailure GrpcConnectorPort::Checkpoint(const v1::CheckpointRequest& request, v1::CheckpointResponse* response,
                                                BrokerEndpoint& broker) {
   return Invoke("Checkpoint", request, response, broker);
 }
 
-ConnectorFailure GrpcConnectorPort::Committed(const v1::CommittedRequest& request,
-                                              v1::CommittedResponse* response,
+ConnectorFailure GrpcConnectorPort::Committed(const v1::CommittedRequest& request, v1::CommittedResponse* response,
                                               BrokerEndpoint& broker) {
   return Invoke("Committed", request, response, broker);
 }
 
-ConnectorFailure GrpcConnectorPort::Assign(const v1::AssignRequest& request,
-                                           v1::AssignResponse* response, BrokerEndpoint& broker) {
+ConnectorFailure GrpcConnectorPort::Assign(const v1::AssignRequest& request, v1::AssignResponse* response,
+                                           BrokerEndpoint& broker) {
   return Invoke("Assign", request, response, broker);
 }
 
-ConnectorFailure GrpcConnectorPort::Revoke(const v1::RevokeRequest& request,
-                                           v1::RevokeResponse* response, BrokerEndpoint& broker) {
+ConnectorFailure GrpcConnectorPort::Revoke(const v1::RevokeRequest& request, v1::RevokeResponse* response,
+                                           BrokerEndpoint& broker) {
   return Invoke("Revoke", request, response, broker);
 }
 

@@ -66,20 +66,18 @@ class GrpcConnectorPort : public ConnectorPort {
   ~GrpcConnectorPort() override;
 
   ConnectorFailure Start(std::uint64_t incarnation) override;
-  ConnectorFailure Open(const v1::OpenRequest& request, v1::OpenResponse* response,
-                        BrokerEndpoint& broker) override;
+  ConnectorFailure Open(const v1::OpenRequest& request, v1::OpenResponse* response, BrokerEndpoint& broker) override;
   ConnectorFailure Advance(const v1::AdvanceRequest& request, v1::AdvanceResponse* response,
                            BrokerEndpoint& broker) override;
-  ConnectorFailure Checkpoint(const v1::CheckpointRequest& request,
-                              v1::CheckpointResponse* response, BrokerEndpoint& broker) override;
+  ConnectorFailure Checkpoint(const v1::CheckpointRequest& request, v1::CheckpointResponse* response,
+                              BrokerEndpoint& broker) override;
   ConnectorFailure Committed(const v1::CommittedRequest& request, v1::CommittedResponse* response,
                              BrokerEndpoint& broker) override;
   ConnectorFailure Assign(const v1::AssignRequest& request, v1::AssignResponse* response,
                           BrokerEndpoint& broker) override;
   ConnectorFailure Revoke(const v1::RevokeRequest& request, v1::RevokeResponse* response,
                           BrokerEndpoint& broker) override;
-  ConnectorFailure Cut(const v1::CutRequest& request, v1::CutResponse* response,
-                       BrokerEndpoint& broker) override;
+  ConnectorFailure Cut(const v1::CutRequest& request, v1::CutResponse* response, BrokerEndpoint& broker) override;
   void Kill() override;
 
   // The live incarnation's process id (the wrapper's, when wrapped), or 0.

@@ -23,8 +23,8 @@ class HoldWatch : public TraceObserver {
     for (std::size_t r = 0; r < ports_.size(); ++r) {
       const GrpcConnectorPort& port = *ports_[r];
       if (port.pid() <= 0) continue;
-      at.processes.push_back(HeldProcess{static_cast<std::uint32_t>(r), port.pid(),
-                                         port.connector_address(), port.broker_address()});
+      at.processes.push_back(
+          HeldProcess{static_cast<std::uint32_t>(r), port.pid(), port.connector_address(), port.broker_address()});
     }
     spec_.on_hold(at);
   }
@@ -67,8 +67,7 @@ absl::StatusOr<RunOutput> RunOverGrpc(const RunSpec& spec) {
     port_options.listen_address = connector_listen;
     port_options.call_timeout = std::chrono::milliseconds(spec.scenario.runtime().call_timeout_wall_ms());
     port_options.stop = spec.stop;
-    port_options.start_timeout =
-        std::chrono::milliseconds(spec.scenario.runtime().start_timeout_wall_ms());
+    port_options.start_timeout = std::chrono::milliseconds(spec.scenario.runtime().start_timeout_wall_ms());
     port_options.wall_bounds = spec.wall_bounds;
     port_options.wrapper_argv = spec.wrapper_argv;
     port_options.echo_output = spec.echo_output;

@@ -17,8 +17,7 @@ absl::StatusOr<std::unique_ptr<PrivateDir>> PrivateDir::Create() {
   std::vector<char> buf(pattern.begin(), pattern.end());
   buf.push_back('\0');
   if (::mkdtemp(buf.data()) == nullptr) {
-    return absl::InternalError(std::string("cannot create a private directory: ") +
-                               std::strerror(errno));
+    return absl::InternalError(std::string("cannot create a private directory: ") + std::strerror(errno));
   }
   ::chmod(buf.data(), 0700);
   return std::unique_ptr<PrivateDir>(new PrivateDir(buf.data()));

@@ -29,8 +29,8 @@ void FaultSource::Trace(const v1::FaultDecision& d, VirtualTime now) {
 }
 
 std::optional<v1::FaultDecision> FaultSource::Decide(v1::Site site, std::uint64_t position,
-                                                     v1::FaultDecision::FaultCase kind,
-                                                     VirtualTime now, const Draw& draw) {
+                                                     v1::FaultDecision::FaultCase kind, VirtualTime now,
+                                                     const Draw& draw) {
   std::optional<v1::FaultDecision> out;
   if (auto it = index_.find(Key{site, position, kind}); it != index_.end()) {
     out = given_.decisions(it->second);
@@ -60,8 +60,8 @@ bool FaultSource::Chance(std::string_view stream, std::uint64_t position, double
   return Unit(stream, position) < rate;
 }
 
-std::int64_t FaultSource::Int(std::string_view stream, std::uint64_t position, std::int64_t lo,
-                              std::int64_t hi, std::uint64_t salt) const {
+std::int64_t FaultSource::Int(std::string_view stream, std::uint64_t position, std::int64_t lo, std::int64_t hi,
+                              std::uint64_t salt) const {
   const double u = Unit(stream, position, salt + 1);
   const double span = static_cast<double>(hi) - static_cast<double>(lo) + 1.0;
   std::int64_t v = lo + static_cast<std::int64_t>(u * span);

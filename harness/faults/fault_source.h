@@ -55,17 +55,16 @@ class FaultSource {
   // mode the plan's; in draw mode a scripted one, else whatever `draw` fills
   // in (return false: no fault). An applied decision is traced at time `now`
   // and, in draw mode, recorded into the plan.
-  std::optional<v1::FaultDecision> Decide(v1::Site site, std::uint64_t position,
-                                          v1::FaultDecision::FaultCase kind, VirtualTime now,
-                                          const Draw& draw);
+  std::optional<v1::FaultDecision> Decide(v1::Site site, std::uint64_t position, v1::FaultDecision::FaultCase kind,
+                                          VirtualTime now, const Draw& draw);
 
   // Uniform in [0, 1), a pure function of (seed, stream, position, salt).
   double Unit(std::string_view stream, std::uint64_t position, std::uint64_t salt = 0) const;
   // True with probability `rate` (never draws when rate <= 0 or >= 1).
   bool Chance(std::string_view stream, std::uint64_t position, double rate) const;
   // Uniform integer in [lo, hi]. REQUIRES: lo <= hi.
-  std::int64_t Int(std::string_view stream, std::uint64_t position, std::int64_t lo,
-                   std::int64_t hi, std::uint64_t salt = 0) const;
+  std::int64_t Int(std::string_view stream, std::uint64_t position, std::int64_t lo, std::int64_t hi,
+                   std::uint64_t salt = 0) const;
 
  private:
   using Key = std::tuple<int, std::uint64_t, int>;  // site, position, fault case
@@ -76,8 +75,8 @@ class FaultSource {
   const std::uint64_t seed_;
   TraceLog& trace_;
   const bool plan_given_;
-  v1::FaultPlan given_;     // plan mode: the plan; draw mode: the scripted decisions
-  v1::FaultPlan applied_;   // draw mode: what applied
+  v1::FaultPlan given_;                  // plan mode: the plan; draw mode: the scripted decisions
+  v1::FaultPlan applied_;                // draw mode: what applied
   absl::flat_hash_map<Key, int> index_;  // into given_
 };
 

@@ -33,8 +33,7 @@ class EndpointClient : public adapter::BrokerClient {
     v1::NackResponse rs;
     return Convert(broker_.Nack(rq, &rs));
   }
-  adapter::BrokerStatus ExtendLease(const std::vector<std::uint64_t>& receipts,
-                                    std::int64_t extension_ns,
+  adapter::BrokerStatus ExtendLease(const std::vector<std::uint64_t>& receipts, std::int64_t extension_ns,
                                     std::vector<std::uint64_t>* rejected) override {
     v1::ExtendLeaseRequest rq;
     for (auto r : receipts) rq.add_receipts(r);
@@ -53,8 +52,8 @@ class EndpointClient : public adapter::BrokerClient {
     }
     return st;
   }
-  adapter::BrokerStatus Read(std::uint32_t partition, std::uint64_t offset,
-                             const adapter::ReadOptions& options, adapter::ReadResult* out) override {
+  adapter::BrokerStatus Read(std::uint32_t partition, std::uint64_t offset, const adapter::ReadOptions& options,
+                             adapter::ReadResult* out) override {
     out->records.clear();
     out->next_offset = offset;
     v1::ReadRequest rq;
@@ -114,9 +113,7 @@ ConnectorFailure Misuse(const char* call, const std::string& what,
                           static_cast<int>(code)};
 }
 
-ConnectorFailure NotAlive() {
-  return ConnectorFailure{ConnectorFailure::Kind::kExited, "no live incarnation", "", ""};
-}
+ConnectorFailure NotAlive() { return ConnectorFailure{ConnectorFailure::Kind::kExited, "no live incarnation", "", ""}; }
 
 }  // namespace
 
@@ -142,8 +139,8 @@ ConnectorFailure InProcessPort::Open(const v1::OpenRequest& request, v1::OpenRes
   return {};
 }
 
-ConnectorFailure InProcessPort::Advance(const v1::AdvanceRequest& request,
-                                        v1::AdvanceResponse* response, BrokerEndpoint& broker) {
+ConnectorFailure InProcessPort::Advance(const v1::AdvanceRequest& request, v1::AdvanceResponse* response,
+                                        BrokerEndpoint& broker) {
   if (source_ == nullptr) return NotAlive();
   EndpointClient client(broker);
   adapter::Context ctx(adapter::CallKind::kAdvance, request.now_ns(), client);
@@ -153,8 +150,8 @@ ConnectorFailure InProcessPort::Advance(const v1::AdvanceRequest& request,
   return {};
 }
 
-ConnectorFailure InProcessPort::Checkpoint(const v1::CheckpointRequest& request,
-                                           v1::CheckpointResponse* response, BrokerEndpoint& broker) {
+ConnectorFailure InProcessPort::Checkpoint(const v1::CheckpointRequest& request, v1::CheckpointResponse* response,
+                                           BrokerEndpoint& broker) {
   if (source_ == nullptr) return NotAlive();
   EndpointClient client(broker);
   adapter::Context ctx(adapter::CallKind::kCheckpoint, request.now_ns(), client);
@@ -163,8 +160,8 @@ ConnectorFailure InProcessPort::Checkpoint(const v1::CheckpointRequest& request,
   return {};
 }
 
-ConnectorFailure InProcessPort::Committed(const v1::CommittedRequest& request,
-                                          v1::CommittedResponse*, BrokerEndpoint& broker) {
+ConnectorFailure InProcessPort::Committed(const v1::CommittedRequest& request, v1::CommittedResponse*,
+                                          BrokerEndpoint& broker) {
   if (source_ == nullptr) return NotAlive();
   EndpointClient client(broker);
   adapter::Context ctx(adapter::CallKind::kCommitted, request.now_ns(), client);
@@ -173,36 +170,31 @@ ConnectorFailure InProcessPort::Committed(const v1::CommittedRequest& request,
   return {};
 }
 
-ConnectorFailure InProcessPort::Assign(const v1::AssignRequest& request, v1::AssignResponse*,
-                                       BrokerEndpoint& broker) {
+ConnectorFailure InProcessPort::Assign(const v1::AssignRequest& request, v1::AssignResponse*, BrokerEndpoint& broker) {
   if (source_ == nullptr) return NotAlive();
   EndpointClient client(broker);
   adapter::Context ctx(adapter::CallKind::kAssign, request.now_ns(), client);
   grpc::Status st = adapter::RunAssign(*source_, request, ctx, &told_);
   if (!st.ok()) {
-    return Misuse("Assign", absl::StrCat("answered ", st.error_code(), " ", st.error_message()),
-                  st.error_code());
+    return Misuse("Assign", absl::StrCat("answered ", st.error_code(), " ", st.error_message()), st.error_code());
   }
   if (!ctx.misuse().empty()) return Misuse("Assign", ctx.misuse());
   return {};
 }
 
-ConnectorFailure InProcessPort::Revoke(const v1::RevokeRequest& request, v1::RevokeResponse*,
-                                       BrokerEndpoint& broker) {
+ConnectorFailure InProcessPort::Revoke(const v1::RevokeRequest& request, v1::RevokeResponse*, BrokerEndpoint& broker) {
   if (source_ == nullptr) return NotAlive();
   EndpointClient client(broker);
   adapter::Context ctx(adapter::CallKind::kRevoke, request.now_ns(), client);
   grpc::Status st = adapter::RunRevoke(*source_, request, ctx, &told_);
   if (!st.ok()) {
-    return Misuse("Revoke", absl::StrCat("answered ", st.error_code(), " ", st.error_message()),
-                  st.error_code());
+    return Misuse("Revoke", absl::StrCat("answered ", st.error_code(), " ", st.error_message()), st.error_code());
   }
   if (!ctx.misuse().empty()) return Misuse("Revoke", ctx.misuse());
   return {};
 }
 
-ConnectorFailure InProcessPort::Cut(const v1::CutRequest& request, v1::CutResponse* response,
-                                    BrokerEndpoint& broker) {
+ConnectorFailure InProcessPort::Cut(const v1::CutRequest& request, v1::CutResponse* response, BrokerEndpoint& broker) {
   if (source_ == nullptr) return NotAlive();
   EndpointClient client(broker);
   adapter::Context ctx(adapter::CallKind::kCut, request.now_ns(), client);
@@ -220,16 +212,15 @@ std::vector<std::unique_ptr<InProcessPort>> MakeInProcessPorts(const InProcessPo
 }
 
 absl::StatusOr<RunOutput> RunInProcess(const RunSpec& spec, const InProcessPort::Factory& factory) {
-  std::vector<std::unique_ptr<InProcessPort>> ports =
-      MakeInProcessPorts(factory, ReaderCount(spec.scenario));
+  std::vector<std::unique_ptr<InProcessPort>> ports = MakeInProcessPorts(factory, ReaderCount(spec.scenario));
   std::vector<ConnectorPort*> each;
   each.reserve(ports.size());
   for (const auto& port : ports) each.push_back(port.get());
   return RunWithPorts(spec, each);
 }
 
-absl::StatusOr<v1::SuiteReport> CertifyInProcess(const std::string& suite_path,
-                                                 const InProcessPort::Factory& factory, unsigned jobs) {
+absl::StatusOr<v1::SuiteReport> CertifyInProcess(const std::string& suite_path, const InProcessPort::Factory& factory,
+                                                 unsigned jobs) {
   auto suite = LoadSuite(suite_path);
   if (!suite.ok()) return suite.status();
   CertifyOptions options;

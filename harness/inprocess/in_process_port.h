@@ -42,20 +42,18 @@ class InProcessPort : public ConnectorPort {
   explicit InProcessPort(Factory factory) : factory_(std::move(factory)) {}
 
   ConnectorFailure Start(std::uint64_t incarnation) override;
-  ConnectorFailure Open(const v1::OpenRequest& request, v1::OpenResponse* response,
-                        BrokerEndpoint& broker) override;
+  ConnectorFailure Open(const v1::OpenRequest& request, v1::OpenResponse* response, BrokerEndpoint& broker) override;
   ConnectorFailure Advance(const v1::AdvanceRequest& request, v1::AdvanceResponse* response,
                            BrokerEndpoint& broker) override;
-  ConnectorFailure Checkpoint(const v1::CheckpointRequest& request,
-                              v1::CheckpointResponse* response, BrokerEndpoint& broker) override;
+  ConnectorFailure Checkpoint(const v1::CheckpointRequest& request, v1::CheckpointResponse* response,
+                              BrokerEndpoint& broker) override;
   ConnectorFailure Committed(const v1::CommittedRequest& request, v1::CommittedResponse* response,
                              BrokerEndpoint& broker) override;
   ConnectorFailure Assign(const v1::AssignRequest& request, v1::AssignResponse* response,
                           BrokerEndpoint& broker) override;
   ConnectorFailure Revoke(const v1::RevokeRequest& request, v1::RevokeResponse* response,
                           BrokerEndpoint& broker) override;
-  ConnectorFailure Cut(const v1::CutRequest& request, v1::CutResponse* response,
-                       BrokerEndpoint& broker) override;
+  ConnectorFailure Cut(const v1::CutRequest& request, v1::CutResponse* response, BrokerEndpoint& broker) override;
   void Kill() override { source_.reset(); }
 
  private:
@@ -66,13 +64,12 @@ class InProcessPort : public ConnectorPort {
 
 // One port per reader slot (ReaderCount in harness/run/run.h), each making
 // its sources from `factory`.
-[[nodiscard]] std::vector<std::unique_ptr<InProcessPort>> MakeInProcessPorts(
-    const InProcessPort::Factory& factory, std::uint32_t readers);
+[[nodiscard]] std::vector<std::unique_ptr<InProcessPort>> MakeInProcessPorts(const InProcessPort::Factory& factory,
+                                                                             std::uint32_t readers);
 
 // One run of (scenario, seed) against a fresh Source per incarnation of each
 // reader.
-[[nodiscard]] absl::StatusOr<RunOutput> RunInProcess(const RunSpec& spec,
-                                                     const InProcessPort::Factory& factory);
+[[nodiscard]] absl::StatusOr<RunOutput> RunInProcess(const RunSpec& spec, const InProcessPort::Factory& factory);
 
 // A whole suite in-process, `jobs` runs at a time (each with its own sources),
 // as one report in memory. For a suite of many thousand runs, call Certify()

@@ -12,18 +12,16 @@ using v1::TraceEvent;
 namespace {
 
 bool ClaimsWatermark(const v1::Profile& p) {
-  return p.watermark_policy() == v1::Profile::MONOTONIC ||
-         p.watermark_policy() == v1::Profile::BOUNDED_LATENESS;
+  return p.watermark_policy() == v1::Profile::MONOTONIC || p.watermark_policy() == v1::Profile::BOUNDED_LATENESS;
 }
 
 std::string Range(std::uint64_t from, std::uint64_t to) {
-  return to == from + 1 ? absl::StrCat("offset ", from)
-                        : absl::StrCat("offsets [", from, ", ", to, ")");
+  return to == from + 1 ? absl::StrCat("offset ", from) : absl::StrCat("offsets [", from, ", ", to, ")");
 }
 
 std::string SpanText(std::uint32_t p, std::uint64_t start, std::optional<std::uint64_t> end) {
-  return absl::StrCat("partition ", p, " [", start, ", ",
-                      end.has_value() ? absl::StrCat(*end) : std::string("open"), ")");
+  return absl::StrCat("partition ", p, " [", start, ", ", end.has_value() ? absl::StrCat(*end) : std::string("open"),
+                      ")");
 }
 
 std::optional<std::uint64_t> EndOf(const v1::SpanHeld& s) {
@@ -36,8 +34,7 @@ LogRules::LogRules(const v1::Profile& profile, Verdict& verdict, ReportFn report
     : exactly_once_(profile.guarantee() == v1::Profile::EXACTLY_ONCE),
       gaps_allowed_(profile.gaps_allowed()),
       idle_timeout_(ClaimsWatermark(profile) ? Millis(profile.idle_timeout_ms()) : 0),
-      idle_max_lag_(Millis(profile.has_idle_max_lag_ms() ? profile.idle_max_lag_ms()
-                                                         : profile.idle_timeout_ms())),
+      idle_max_lag_(Millis(profile.has_idle_max_lag_ms() ? profile.idle_max_lag_ms() : profile.idle_timeout_ms())),
       many_(readers > 1),
       verdict_(verdict),
       report_(std::move(report)),
@@ -124,10 +121,9 @@ void LogRules::OnLogRead(const TraceEvent& e) {
         const EventRef& opened = v_.opened;
         report_(Invariant::kResumeExact,
                 absl::StrCat("After ", opened.f[0] != 0 ? "restoring checkpoint " : "opening",
-                             opened.f[0] != 0 ? std::to_string(opened.f[1]) : std::string(),
-                             ", incarnation ", e.incarnation(), " first read partition ",
-                             x.partition(), " at offset ", x.offset(), " but its resume point is ",
-                             live.resume, ": a ", skip ? "skip" : "rewind", " of ", by,
+                             opened.f[0] != 0 ? std::to_string(opened.f[1]) : std::string(), ", incarnation ",
+                             e.incarnation(), " first read partition ", x.partition(), " at offset ", x.offset(),
+                             " but its resume point is ", live.resume, ": a ", skip ? "skip" : "rewind", " of ", by,
                              by == 1 ? " offset." : " offsets."),
                 {live.held_since.valid() ? live.held_since : opened}, &e);
       } else {
@@ -145,15 +141,12 @@ void LogRules::OnBookmarkSaved(const TraceEvent& e) {
   active_ = true;
   const auto& x = e.bookmark_saved();
   Partition& part = At(x.partition());
-  const std::uint64_t committed =
-      x.partition() < v_.committed_resume.size() ? v_.committed_resume[x.partition()] : 0;
+  const std::uint64_t committed = x.partition() < v_.committed_resume.size() ? v_.committed_resume[x.partition()] : 0;
   if (x.next_offset() > committed) {
     report_(Invariant::kPositionBeforeCommit,
-            absl::StrCat("The broker received a bookmark for partition ", x.partition(),
-                         " at offset ", x.next_offset(),
-                         ", beyond its resume point in the last committed checkpoint (", committed,
-                         "): offsets [", committed, ", ", x.next_offset(),
-                         ") were not durably committed."),
+            absl::StrCat("The broker received a bookmark for partition ", x.partition(), " at offset ", x.next_offset(),
+                         ", beyond its resume point in the last committed checkpoint (", committed, "): offsets [",
+                         committed, ", ", x.next_offset(), ") were not durably committed."),
             {part.first_commit, L(x.partition()).last_emitted}, &e);
   }
 }
@@ -162,8 +155,7 @@ void LogRules::OnGapReported(const TraceEvent& e) {
   active_ = true;
   const auto& x = e.gap_reported();
   Partition& part = At(x.partition());
-  verdict_.gap_offsets +=
-      x.to_offset() - x.from_offset() - part.gaps.CountIn(x.from_offset(), x.to_offset());
+  verdict_.gap_offsets += x.to_offset() - x.from_offset() - part.gaps.CountIn(x.from_offset(), x.to_offset());
   part.gaps.Insert(x.from_offset(), x.to_offset());
   Live& live = L(x.partition());
   if (live.held && x.from_offset() <= live.expected_next) {
@@ -180,15 +172,15 @@ void LogRules::OnEmitted(const TraceEvent& e) {
   Live& live = L(x.partition());
   if (o >= live.read_next) {
     report_(Invariant::kProtocolError,
-            absl::StrCat("Step ", x.step(), " emitted a record of partition ", x.partition(),
-                         " offset ", o, ", which incarnation ", e.incarnation(),
-                         " never read (it read up to offset ", live.read_next, ")."),
+            absl::StrCat("Step ", x.step(), " emitted a record of partition ", x.partition(), " offset ", o,
+                         ", which incarnation ", e.incarnation(), " never read (it read up to offset ", live.read_next,
+                         ")."),
             {live.last_read}, &e);
   }
   if (many_ && (!live.held || o < live.start || (live.end.has_value() && o >= *live.end))) {
     report_(Invariant::kRecordOutsideSpan,
-            absl::StrCat("Step ", x.step(), " of reader ", e.reader(), " emitted partition ",
-                         x.partition(), " offset ", o, ", outside what the reader holds (",
+            absl::StrCat("Step ", x.step(), " of reader ", e.reader(), " emitted partition ", x.partition(), " offset ",
+                         o, ", outside what the reader holds (",
                          live.held ? SpanText(x.partition(), live.start, live.end)
                                    : absl::StrCat("no span of partition ", x.partition()),
                          ")."),
@@ -201,15 +193,11 @@ void LogRules::OnEmitted(const TraceEvent& e) {
     const std::uint64_t deleted_to = std::min(o, part.first_retained);
     const auto unreported = part.gaps.Missing(live.expected_next, deleted_to);
     if (!unreported.empty()) {
-      const std::uint64_t n = deleted_to - live.expected_next -
-                              part.gaps.CountIn(live.expected_next, deleted_to);
+      const std::uint64_t n = deleted_to - live.expected_next - part.gaps.CountIn(live.expected_next, deleted_to);
       report_(Invariant::kSilentSkip,
-              absl::StrCat("Step ", x.step(), " emitted partition ", x.partition(), " offset ", o,
-                           " after offset ", live.expected_next,
-                           " without reporting a gap: ", n,
-                           " deleted records (", Range(unreported.front().first,
-                                                       unreported.back().second),
-                           ") were skipped silently."),
+              absl::StrCat("Step ", x.step(), " emitted partition ", x.partition(), " offset ", o, " after offset ",
+                           live.expected_next, " without reporting a gap: ", n, " deleted records (",
+                           Range(unreported.front().first, unreported.back().second), ") were skipped silently."),
               {part.last_retention, live.last_emitted}, &e);
     }
   }
@@ -254,16 +242,13 @@ void LogRules::OnCheckpoint(const TraceEvent& e) {
     if (live == nullptr || !live->held) {
       report_(Invariant::kCheckpointCoverage,
               absl::StrCat("Checkpoint ", e.checkpoint().checkpoint_id(), " of reader ", e.reader(),
-                           " names a resume point for partition ", r.partition(),
-                           ", which the reader does not hold."),
+                           " names a resume point for partition ", r.partition(), ", which the reader does not hold."),
               {live != nullptr ? live->held_since : EventRef{}}, &e);
-    } else if (r.next_offset() < live->start ||
-               (live->end.has_value() && r.next_offset() > *live->end)) {
+    } else if (r.next_offset() < live->start || (live->end.has_value() && r.next_offset() > *live->end)) {
       report_(Invariant::kCheckpointCoverage,
               absl::StrCat("Checkpoint ", e.checkpoint().checkpoint_id(), " of reader ", e.reader(),
-                           " puts the resume point of partition ", r.partition(), " at offset ",
-                           r.next_offset(), ", outside the span it holds (",
-                           SpanText(r.partition(), live->start, live->end), ")."),
+                           " puts the resume point of partition ", r.partition(), " at offset ", r.next_offset(),
+                           ", outside the span it holds (", SpanText(r.partition(), live->start, live->end), ")."),
               {live->held_since}, &e);
     }
   }
@@ -344,9 +329,8 @@ void LogRules::OnCommitted(const TraceEvent& e) {
                        (!example_first.has_value() || example_first->from == example->second);
     report_(Invariant::kDuplicateOutput,
             absl::StrCat("Partition ", example->first, " offset ", example->second,
-                         " has a second record in the committed output (checkpoint ",
-                         e.committed().checkpoint_id(), ": ", duplicates,
-                         duplicates == 1 ? " duplicate record)." : " duplicate records).",
+                         " has a second record in the committed output (checkpoint ", e.committed().checkpoint_id(),
+                         ": ", duplicates, duplicates == 1 ? " duplicate record)." : " duplicate records).",
                          exact ? ""
                                : " The records cited begin the runs of offsets that hold its first and "
                                  "second record."),
@@ -354,9 +338,7 @@ void LogRules::OnCommitted(const TraceEvent& e) {
   }
 }
 
-void LogRules::OnCommitFailed(const TraceEvent& e) {
-  pending_.erase(e.commit_failed().checkpoint_id());
-}
+void LogRules::OnCommitFailed(const TraceEvent& e) { pending_.erase(e.commit_failed().checkpoint_id()); }
 
 void LogRules::DiscardUncommitted() {
   v_.open.runs.clear();
@@ -395,9 +377,8 @@ void LogRules::CheckDoubleHolding(std::uint32_t p, const Live& live, const Trace
     const std::uint64_t b = std::min(live.end.value_or(UINT64_MAX), o.end.value_or(UINT64_MAX));
     if (a >= b) continue;
     report_(Invariant::kDoubleHolding,
-            absl::StrCat("Reader ", e.reader(), " was given ", SpanText(p, live.start, live.end),
-                         " while reader ", r, " holds ", SpanText(p, o.start, o.end),
-                         ": offsets from ", a, " on are held twice."),
+            absl::StrCat("Reader ", e.reader(), " was given ", SpanText(p, live.start, live.end), " while reader ", r,
+                         " holds ", SpanText(p, o.start, o.end), ": offsets from ", a, " on are held twice."),
             {o.held_since}, &e);
     return;
   }
@@ -466,8 +447,7 @@ void LogRules::OnCut(const TraceEvent& e) {
   } else if (x.has_tail() && (!head_end.has_value() || x.tail().start_offset() != *head_end)) {
     wrong = !head_end.has_value()
                 ? std::string("the head has no end")
-                : absl::StrCat("the tail starts at ", x.tail().start_offset(), " but the head ends at ",
-                               *head_end,
+                : absl::StrCat("the tail starts at ", x.tail().start_offset(), " but the head ends at ", *head_end,
                                x.tail().start_offset() < *head_end
                                    ? ": the two overlap"
                                    : absl::StrCat(": offsets [", *head_end, ", ", x.tail().start_offset(),
@@ -480,11 +460,10 @@ void LogRules::OnCut(const TraceEvent& e) {
   }
   if (!wrong.empty()) {
     report_(Invariant::kCutConservation,
-            absl::StrCat("Reader ", e.reader(), " answered a cut of ",
-                         SpanText(p, x.held().start_offset(), held_end), " with head ",
-                         SpanText(p, x.head().start_offset(), head_end), x.has_tail() ? " and tail " : "",
-                         x.has_tail() ? SpanText(p, x.tail().start_offset(), EndOf(x.tail())) : std::string(),
-                         ": ", wrong, "."),
+            absl::StrCat(
+                "Reader ", e.reader(), " answered a cut of ", SpanText(p, x.held().start_offset(), held_end),
+                " with head ", SpanText(p, x.head().start_offset(), head_end), x.has_tail() ? " and tail " : "",
+                x.has_tail() ? SpanText(p, x.tail().start_offset(), EndOf(x.tail())) : std::string(), ": ", wrong, "."),
             {live.held_since}, &e);
   }
   if (x.has_tail() && live.held) {
@@ -493,8 +472,7 @@ void LogRules::OnCut(const TraceEvent& e) {
   }
 }
 
-void LogRules::OnStepped(const TraceEvent& e, std::optional<std::int64_t> watermark,
-                         const EventRef& watermark_ref) {
+void LogRules::OnStepped(const TraceEvent& e, std::optional<std::int64_t> watermark, const EventRef& watermark_ref) {
   if (!active_ || idle_timeout_ == 0 || v_.stall_reported) return;
   CheckPartitionStall(e, watermark, watermark_ref);
 }
@@ -530,13 +508,11 @@ void LogRules::CheckPartitionStall(const TraceEvent& e, std::optional<std::int64
   const Live& idle = v_.live[*idle_partition];
   report_(Invariant::kWatermarkStall,
           absl::StrCat("Partition ", *idle_partition, " has had nothing to read for ",
-                       FormatTime(t - idle.caught_up_since), " (longer than the profile's ",
-                       FormatTime(idle_timeout_), " plus ", FormatTime(idle_max_lag_),
-                       ") and holds the watermark back: it is ",
-                       watermark.has_value() ? FormatTime(*watermark) : std::string("not set"),
-                       " while partition ", lowest_partition,
-                       ", the slowest still active, has reached event time ",
-                       FormatTime(*lowest), " (allowed lag: ", FormatTime(idle_max_lag_), ")."),
+                       FormatTime(t - idle.caught_up_since), " (longer than the profile's ", FormatTime(idle_timeout_),
+                       " plus ", FormatTime(idle_max_lag_), ") and holds the watermark back: it is ",
+                       watermark.has_value() ? FormatTime(*watermark) : std::string("not set"), " while partition ",
+                       lowest_partition, ", the slowest still active, has reached event time ", FormatTime(*lowest),
+                       " (allowed lag: ", FormatTime(idle_max_lag_), ")."),
           {idle.last_emitted, watermark_ref}, &e);
 }
 
@@ -546,11 +522,11 @@ void LogRules::OnRunEnded(const TraceEvent& e) {
     const Partition& part = partitions_[p];
     if (part.appended == 0) continue;
     if (!part.ever_read && part.added.valid()) {
-      report_(Invariant::kNewPartition,
-              absl::StrCat("Partition ", p, " was added at ", FormatTime(part.added.t),
-                           " and was never read: none of its ", part.appended,
-                           " records reached the committed output."),
-              {part.added}, &e);
+      report_(
+          Invariant::kNewPartition,
+          absl::StrCat("Partition ", p, " was added at ", FormatTime(part.added.t), " and was never read: none of its ",
+                       part.appended, " records reached the committed output."),
+          {part.added}, &e);
       continue;
     }
     std::uint64_t lost = 0;
@@ -577,14 +553,11 @@ void LogRules::OnRunEnded(const TraceEvent& e) {
       }
     }
     report_(Invariant::kOffsetGap,
-            absl::StrCat(part.ever_read ? "Partition " : "Partition (never read) ", p, ": ", lost,
-                         lost == 1 ? " offset has" : " offsets have",
-                         " no record in the committed output when the run ended (",
-                         e.run_ended().reason(), "); the first missing: ",
-                         Range(holes.front().first, holes.front().second),
-                         holes.size() > 1 ? absl::StrCat(", and ", holes.size() - 1, " more ranges")
-                                          : std::string(),
-                         "."),
+            absl::StrCat(
+                part.ever_read ? "Partition " : "Partition (never read) ", p, ": ", lost,
+                lost == 1 ? " offset has" : " offsets have", " no record in the committed output when the run ended (",
+                e.run_ended().reason(), "); the first missing: ", Range(holes.front().first, holes.front().second),
+                holes.size() > 1 ? absl::StrCat(", and ", holes.size() - 1, " more ranges") : std::string(), "."),
             {last_read, last_emitted, part.last_retention}, &e);
   }
 }

@@ -86,8 +86,7 @@ namespace weir {
 class LogRules {
  public:
   // Reports one violation: (invariant, sentence, cited events, the event at hand).
-  using ReportFn = std::function<void(Invariant, const std::string&, std::vector<EventRef>,
-                                      const v1::TraceEvent*)>;
+  using ReportFn = std::function<void(Invariant, const std::string&, std::vector<EventRef>, const v1::TraceEvent*)>;
 
   // readers: the run's reader slots (1: one reader; the many-reader rules off).
   LogRules(const v1::Profile& profile, Verdict& verdict, ReportFn report, std::uint32_t readers = 1);
@@ -109,8 +108,7 @@ class LogRules {
   void OnOpened(const v1::TraceEvent& e);
   void OnCrashed(const v1::TraceEvent& e);
   // The end of a step, with the watermark the Oracle holds after it.
-  void OnStepped(const v1::TraceEvent& e, std::optional<std::int64_t> watermark,
-                 const EventRef& watermark_ref);
+  void OnStepped(const v1::TraceEvent& e, std::optional<std::int64_t> watermark, const EventRef& watermark_ref);
   void OnRunEnded(const v1::TraceEvent& e);
   // Many readers.
   void OnAssigned(const v1::TraceEvent& e);
@@ -132,19 +130,19 @@ class LogRules {
   // Committed runs kept per partition (the latest), so memory stays bounded.
   static constexpr std::size_t kRecentCommittedRuns = 8;
   struct Partition {
-    std::uint64_t appended = 0;        // next offset to be appended
+    std::uint64_t appended = 0;  // next offset to be appended
     std::uint64_t first_retained = 0;
-    EventRef added;                    // partition_added (invalid for the initial ones)
+    EventRef added;  // partition_added (invalid for the initial ones)
     EventRef last_retention;
     OffsetRanges committed;
-    EventRef first_commit;             // the commit that first put a record of it in the output
+    EventRef first_commit;                      // the commit that first put a record of it in the output
     std::deque<CommittedRun> recent_committed;  // at most kRecentCommittedRuns, oldest first
-    std::uint64_t committed_resume = 0;  // the highest committed resume point of any reader
-    OffsetRanges deleted_unread;       // excused losses
-    OffsetRanges gaps;                 // reported by the connector
-    std::uint64_t read_high = 0;       // the furthest any read got
+    std::uint64_t committed_resume = 0;         // the highest committed resume point of any reader
+    OffsetRanges deleted_unread;                // excused losses
+    OffsetRanges gaps;                          // reported by the connector
+    std::uint64_t read_high = 0;                // the furthest any read got
     bool ever_read = false;
-    EventRef last_emitted;             // by any reader (kept at commit time)
+    EventRef last_emitted;  // by any reader (kept at commit time)
   };
   // One reader's view of one partition, for its live incarnation.
   struct Live {
@@ -154,11 +152,11 @@ class LogRules {
     EventRef held_since;               // the opened, assigned or cut event
     std::uint64_t resume = 0;          // what Open (or the partition's start) gave it
     bool first_read_pending = false;
-    std::uint64_t expected_next = 0;   // next offset to emit, in order
-    std::uint64_t emitted_high = 0;    // one past the highest offset emitted from the span
-    std::uint64_t read_next = 0;       // the furthest this incarnation read
+    std::uint64_t expected_next = 0;       // next offset to emit, in order
+    std::uint64_t emitted_high = 0;        // one past the highest offset emitted from the span
+    std::uint64_t read_next = 0;           // the furthest this incarnation read
     std::optional<std::int64_t> frontier;  // largest event time emitted
-    VirtualTime caught_up_since = -1;  // -1: has records left to emit
+    VirtualTime caught_up_since = -1;      // -1: has records left to emit
     EventRef last_read;
     EventRef last_emitted;
     // The run of the open epoch this partition extends: open.runs[open_run]
@@ -197,7 +195,7 @@ class LogRules {
     EventRef opened;
     bool stall_reported = false;  // one violation per incarnation
     bool new_partitions_held = false;
-    bool live_reader = false;     // opened and not left
+    bool live_reader = false;  // opened and not left
   };
 
   Partition& At(std::uint32_t p) {
@@ -227,8 +225,8 @@ class LogRules {
   bool active_ = false;
   std::vector<Partition> partitions_;
   std::map<std::uint64_t, Epoch> pending_;  // by checkpoint id
-  View v_;                    // the current reader's view
-  std::vector<View> views_;   // every reader's; views_[cur_] is stale while current
+  View v_;                                  // the current reader's view
+  std::vector<View> views_;                 // every reader's; views_[cur_] is stale while current
   std::uint32_t cur_ = 0;
 };
 

@@ -19,8 +19,7 @@ namespace {
 constexpr VirtualDuration kTimeRange = 100LL * 365 * 24 * 3600 * 1'000'000'000LL;
 
 bool ClaimsWatermark(const v1::Profile& p) {
-  return p.watermark_policy() == v1::Profile::MONOTONIC ||
-         p.watermark_policy() == v1::Profile::BOUNDED_LATENESS;
+  return p.watermark_policy() == v1::Profile::MONOTONIC || p.watermark_policy() == v1::Profile::BOUNDED_LATENESS;
 }
 
 }  // namespace
@@ -30,25 +29,23 @@ Oracle::Oracle(const v1::Profile& profile, v1::SourceShape shape, std::uint32_t 
       lateness_bounded_(profile.watermark_policy() == v1::Profile::BOUNDED_LATENESS),
       allowed_lateness_(Millis(profile.allowed_lateness_ms())),
       idle_timeout_(ClaimsWatermark(profile) ? Millis(profile.idle_timeout_ms()) : 0),
-      idle_max_lag_(Millis(profile.has_idle_max_lag_ms() ? profile.idle_max_lag_ms()
-                                                         : profile.idle_timeout_ms())),
+      idle_max_lag_(Millis(profile.has_idle_max_lag_ms() ? profile.idle_max_lag_ms() : profile.idle_timeout_ms())),
       min_backoff_(Millis(profile.min_backoff_ms())),
       max_lead_(Millis(profile.max_watermark_lead_ms())),
       many_(readers > 1),
       saved_(readers > 1 ? readers : 0),
-      log_(profile, verdict_,
-           [this](Invariant invariant, const std::string& sentence, std::vector<EventRef> cited,
-                  const TraceEvent* current) {
-             Report(invariant, sentence, std::move(cited), current);
-           },
-           readers) {
-  for (Invariant i : {Invariant::kRecordOutsideSpan, Invariant::kDoubleHolding,
-                      Invariant::kCutConservation, Invariant::kCheckpointCoverage}) {
+      log_(
+          profile, verdict_,
+          [this](Invariant invariant, const std::string& sentence, std::vector<EventRef> cited,
+                 const TraceEvent* current) { Report(invariant, sentence, std::move(cited), current); },
+          readers) {
+  for (Invariant i : {Invariant::kRecordOutsideSpan, Invariant::kDoubleHolding, Invariant::kCutConservation,
+                      Invariant::kCheckpointCoverage}) {
     verdict_.at(i).applies = many_ && shape == v1::LOG;
   }
   const bool log = shape == v1::LOG;
-  for (Invariant i : {Invariant::kOffsetGap, Invariant::kPositionBeforeCommit,
-                      Invariant::kResumeExact, Invariant::kSilentSkip, Invariant::kNewPartition}) {
+  for (Invariant i : {Invariant::kOffsetGap, Invariant::kPositionBeforeCommit, Invariant::kResumeExact,
+                      Invariant::kSilentSkip, Invariant::kNewPartition}) {
     verdict_.at(i).applies = log;
   }
   verdict_.at(Invariant::kAckBeforeCommit).applies = !log;
@@ -82,8 +79,8 @@ void Oracle::SwitchTo(std::uint32_t r) {
   current_ = r;
 }
 
-void Oracle::Report(Invariant invariant, const std::string& sentence,
-                    std::vector<EventRef> cited, const TraceEvent* current, const EventRef& cause) {
+void Oracle::Report(Invariant invariant, const std::string& sentence, std::vector<EventRef> cited,
+                    const TraceEvent* current, const EventRef& cause) {
   InvariantResult& result = verdict_.at(invariant);
   ++result.violations;
   if (result.first.size() >= kKeptViolations) return;
@@ -95,8 +92,7 @@ void Oracle::Report(Invariant invariant, const std::string& sentence,
   }
   if (current != nullptr) v.detected_seq = current->seq();
   v.cause_seq = cause.valid() ? cause.seq : v.detected_seq;
-  std::sort(cited.begin(), cited.end(),
-            [](const EventRef& a, const EventRef& b) { return a.seq < b.seq; });
+  std::sort(cited.begin(), cited.end(), [](const EventRef& a, const EventRef& b) { return a.seq < b.seq; });
   std::uint64_t last_seq = ~std::uint64_t{0};
   for (const EventRef& ref : cited) {
     if (!ref.valid() || ref.seq == last_seq) continue;  // one event may prove two things
@@ -104,15 +100,14 @@ void Oracle::Report(Invariant invariant, const std::string& sentence,
     if (current != nullptr && ref.seq == current->seq()) continue;
     // A connector's failure keeps text a reference cannot rebuild.
     const std::string prefix = many_ ? absl::StrCat("reader ", ref.reader, ": ") : std::string();
-    v.evidence.push_back(Evidence{ref.seq, ref.t, ref.incarnation,
-                                  prefix + (failure_ref_.valid() && ref.seq == failure_ref_.seq
-                                                ? failure_what_
-                                                : DescribeEvent(Rebuild(ref)))});
+    v.evidence.push_back(Evidence{
+        ref.seq, ref.t, ref.incarnation,
+        prefix + (failure_ref_.valid() && ref.seq == failure_ref_.seq ? failure_what_ : DescribeEvent(Rebuild(ref)))});
   }
   if (current != nullptr) {
     const std::string prefix = many_ ? absl::StrCat("reader ", current->reader(), ": ") : std::string();
-    v.evidence.push_back(Evidence{current->seq(), current->t_ns(), current->incarnation(),
-                                  prefix + DescribeEvent(*current)});
+    v.evidence.push_back(
+        Evidence{current->seq(), current->t_ns(), current->incarnation(), prefix + DescribeEvent(*current)});
   }
   result.first.push_back(std::move(v));
 }
@@ -167,22 +162,14 @@ void Oracle::OnEvent(const TraceEvent& e) {
       EndIdle();
       break;
     }
-    case TraceEvent::kDelivered:
-      OnDelivered(e);
-      break;
-    case TraceEvent::kEmitted:
-      OnEmitted(e);
-      break;
-    case TraceEvent::kStepped:
-      OnStepped(e);
-      break;
+    case TraceEvent::kDelivered: OnDelivered(e); break;
+    case TraceEvent::kEmitted: OnEmitted(e); break;
+    case TraceEvent::kStepped: OnStepped(e); break;
     case TraceEvent::kNacked:
     case TraceEvent::kLeaseExpired:
       EndIdle();  // the message is deliverable again
       break;
-    case TraceEvent::kAckIgnored:
-      OnAckIgnored(e);
-      break;
+    case TraceEvent::kAckIgnored: OnAckIgnored(e); break;
     case TraceEvent::kAppended:
       log_.OnAppended(e);
       EndIdle();
@@ -191,19 +178,13 @@ void Oracle::OnEvent(const TraceEvent& e) {
       log_.OnLogRead(e);
       if (e.log_read().records() > 0) EndIdle();
       break;
-    case TraceEvent::kRetentionDeleted:
-      log_.OnRetention(e);
-      break;
+    case TraceEvent::kRetentionDeleted: log_.OnRetention(e); break;
     case TraceEvent::kPartitionAdded:
       log_.OnPartitionAdded(e);
       EndIdle();
       break;
-    case TraceEvent::kBookmarkSaved:
-      log_.OnBookmarkSaved(e);
-      break;
-    case TraceEvent::kGapReported:
-      log_.OnGapReported(e);
-      break;
+    case TraceEvent::kBookmarkSaved: log_.OnBookmarkSaved(e); break;
+    case TraceEvent::kGapReported: log_.OnGapReported(e); break;
     case TraceEvent::kCheckpoint: {
       log_.OnCheckpoint(e);
       auto& epoch = pending_[e.checkpoint().checkpoint_id()];
@@ -219,9 +200,7 @@ void Oracle::OnEvent(const TraceEvent& e) {
       pending_.erase(e.commit_failed().checkpoint_id());
       log_.OnCommitFailed(e);
       break;
-    case TraceEvent::kAcked:
-      OnAcked(e);
-      break;
+    case TraceEvent::kAcked: OnAcked(e); break;
     case TraceEvent::kOpened:
       log_.OnOpened(e);
       DiscardUncommitted();
@@ -252,30 +231,27 @@ void Oracle::OnEvent(const TraceEvent& e) {
       EndIdle();
       break;
     case TraceEvent::kExited:
-      OnConnectorFailure(e, e.exited().call(), Invariant::kUnexpectedExit,
-                         absl::StrCat("The connector process ended without a crash point: ",
-                                      e.exited().status(),
-                                      e.exited().stderr_tail().empty()
-                                          ? std::string()
-                                          : absl::StrCat("; stderr ends with: ",
-                                                         ReportTail(e.exited().stderr_tail()))));
+      OnConnectorFailure(
+          e, e.exited().call(), Invariant::kUnexpectedExit,
+          absl::StrCat("The connector process ended without a crash point: ", e.exited().status(),
+                       e.exited().stderr_tail().empty()
+                           ? std::string()
+                           : absl::StrCat("; stderr ends with: ", ReportTail(e.exited().stderr_tail()))));
       break;
     case TraceEvent::kCallTimedOut:
-      OnConnectorFailure(e, e.call_timed_out().call(), Invariant::kStepTimeout,
-                         e.call_timed_out().call() == "Start"
-                             ? absl::StrCat("The connector did not report its address on "
-                                            "WEIR_READY_FD within ",
-                                            e.call_timed_out().bound_wall_ms(),
-                                            " ms of wall time after it was started.")
-                             : absl::StrCat("The connector did not answer ",
-                                            e.call_timed_out().call(), " within ",
-                                            e.call_timed_out().bound_wall_ms(),
-                                            " ms of wall time."));
+      OnConnectorFailure(
+          e, e.call_timed_out().call(), Invariant::kStepTimeout,
+          e.call_timed_out().call() == "Start"
+              ? absl::StrCat("The connector did not report its address on "
+                             "WEIR_READY_FD within ",
+                             e.call_timed_out().bound_wall_ms(), " ms of wall time after it was started.")
+              : absl::StrCat("The connector did not answer ", e.call_timed_out().call(), " within ",
+                             e.call_timed_out().bound_wall_ms(), " ms of wall time."));
       break;
     case TraceEvent::kProtocolError:
-      OnConnectorFailure(e, e.protocol_error().call(), Invariant::kProtocolError,
-                         absl::StrCat("Malformed exchange in ", e.protocol_error().call(), ": ",
-                                      e.protocol_error().detail(), "."));
+      OnConnectorFailure(
+          e, e.protocol_error().call(), Invariant::kProtocolError,
+          absl::StrCat("Malformed exchange in ", e.protocol_error().call(), ": ", e.protocol_error().detail(), "."));
       break;
     case TraceEvent::kLivelock: {
       if (!failure_ref_.valid()) {
@@ -290,48 +266,36 @@ void Oracle::OnEvent(const TraceEvent& e) {
                                 " steps in a row asked to be called again at once; "
                                 "runtime.max_same_time_wall_ms is ",
                                 x.max_wall_ms(), "): livelock, stopped.")
-                 : absl::StrCat("The connector asked to be called again at virtual time ", FormatTime(e.t_ns()),
-                                " ", x.steps(), " steps in a row (runtime.max_same_time_steps is ", x.max_steps(),
+                 : absl::StrCat("The connector asked to be called again at virtual time ", FormatTime(e.t_ns()), " ",
+                                x.steps(), " steps in a row (runtime.max_same_time_steps is ", x.max_steps(),
                                 "): livelock, stopped."),
              {opened_ref_}, &e);
       break;
     }
     case TraceEvent::kConnectorError:
       OnConnectorFailure(e, e.connector_error().call(), Invariant::kConnectorError,
-                         absl::StrCat("The connector reported its own failure in ",
-                                      e.connector_error().call(), ": ", e.connector_error().detail(),
-                                      "."));
+                         absl::StrCat("The connector reported its own failure in ", e.connector_error().call(), ": ",
+                                      e.connector_error().detail(), "."));
       break;
     case TraceEvent::kRunEnded:
       OnRunEnded(e);
       log_.OnRunEnded(e);
       break;
-    case TraceEvent::kBrokerCall:
-      OnBrokerCall(e);
-      break;
-    case TraceEvent::kBrokerCallFailed:
-      OnBrokerCallFailed(e);
-      break;
+    case TraceEvent::kBrokerCall: OnBrokerCall(e); break;
+    case TraceEvent::kBrokerCallFailed: OnBrokerCallFailed(e); break;
     case TraceEvent::kAssigned:
       log_.OnAssigned(e);
       EndIdle();
       break;
-    case TraceEvent::kRevoked:
-      log_.OnRevoked(e);
-      break;
-    case TraceEvent::kCut:
-      log_.OnCut(e);
-      break;
+    case TraceEvent::kRevoked: log_.OnRevoked(e); break;
+    case TraceEvent::kCut: log_.OnCut(e); break;
     case TraceEvent::kReaderLeft:
       log_.OnReaderLeft(e);
       open_epoch_.clear();
       combined_.reset();
       break;
-    case TraceEvent::kReaderJoined:
-      combined_.reset();
-      break;
-    default:
-      break;
+    case TraceEvent::kReaderJoined: combined_.reset(); break;
+    default: break;
   }
 }
 
@@ -351,9 +315,7 @@ void Oracle::CountChances(const TraceEvent& e) {
     if (!max_event_time_.has_value() || event_time > *max_event_time_) max_event_time_ = event_time;
   };
   switch (e.kind_case()) {
-    case TraceEvent::kPublished:
-      out_of_order(e.published().event_time_ns());
-      break;
+    case TraceEvent::kPublished: out_of_order(e.published().event_time_ns()); break;
     case TraceEvent::kAppended:
       // A record held back by a visibility delay is counted at its
       // fault_applied event (below), once.
@@ -373,9 +335,7 @@ void Oracle::CountChances(const TraceEvent& e) {
       if (e.stepped().has_watermark_ns()) Chance(Invariant::kWatermarkAhead);
       break;
     case TraceEvent::kNacked:
-    case TraceEvent::kLeaseExpired:
-      Chance(Invariant::kLostMessage);
-      break;
+    case TraceEvent::kLeaseExpired: Chance(Invariant::kLostMessage); break;
     case TraceEvent::kCommitFailed:
     case TraceEvent::kCrashed:
       if (in_flight) {
@@ -383,9 +343,7 @@ void Oracle::CountChances(const TraceEvent& e) {
         Chance(Invariant::kLostMessage);
       }
       break;
-    case TraceEvent::kCommitted:
-      committed_any_ = true;
-      break;
+    case TraceEvent::kCommitted: committed_any_ = true; break;
     case TraceEvent::kOpened:
       if (e.opened().restored()) {
         for (Invariant i : {Invariant::kBadCheckpoint, Invariant::kWatermarkRegression, Invariant::kResumeExact,
@@ -401,12 +359,8 @@ void Oracle::CountChances(const TraceEvent& e) {
         Chance(Invariant::kOffsetGap);
       }
       break;
-    case TraceEvent::kBookmarkSaved:
-      Chance(Invariant::kPositionBeforeCommit);
-      break;
-    case TraceEvent::kPartitionAdded:
-      Chance(Invariant::kNewPartition);
-      break;
+    case TraceEvent::kBookmarkSaved: Chance(Invariant::kPositionBeforeCommit); break;
+    case TraceEvent::kPartitionAdded: Chance(Invariant::kNewPartition); break;
     case TraceEvent::kAssigned:
       for (Invariant i : {Invariant::kDoubleHolding, Invariant::kResumeExact, Invariant::kOffsetGap}) Chance(i);
       if (committed_any_) Chance(Invariant::kDuplicateOutput);
@@ -445,8 +399,7 @@ void Oracle::CountChances(const TraceEvent& e) {
       }
       break;
     }
-    default:
-      break;
+    default: break;
   }
 }
 
@@ -467,11 +420,10 @@ void Oracle::OnConnectorFailure(const TraceEvent& e, const std::string& call, In
     failure_ref_ = MakeRef(e);
     failure_what_ = DescribeEvent(e);
   }
-  if (call == "Open" && opened_ref_.valid() && opened_ref_.f[0] != 0 &&
-      opened_ref_.incarnation == e.incarnation()) {
+  if (call == "Open" && opened_ref_.valid() && opened_ref_.f[0] != 0 && opened_ref_.incarnation == e.incarnation()) {
     Report(Invariant::kBadCheckpoint,
-           absl::StrCat("Opening incarnation ", e.incarnation(), " from committed checkpoint ",
-                        opened_ref_.f[1], " failed: ", sentence),
+           absl::StrCat("Opening incarnation ", e.incarnation(), " from committed checkpoint ", opened_ref_.f[1],
+                        " failed: ", sentence),
            {opened_ref_}, &e);
     return;
   }
@@ -489,12 +441,10 @@ void Oracle::OnWatermark(const TraceEvent& e, std::int64_t watermark) {
     regressed_ = true;
     const bool from_checkpoint = watermark_ref_.kind == TraceEvent::kOpened;
     Report(Invariant::kWatermarkRegression,
-           absl::StrCat("The watermark went back from ", FormatTime(*watermark_), " to ",
-                        FormatTime(watermark), from_checkpoint
-                                                   ? " below the watermark committed with the "
-                                                     "restored checkpoint."
-                                                   : " within incarnation " +
-                                                         std::to_string(e.incarnation()) + "."),
+           absl::StrCat("The watermark went back from ", FormatTime(*watermark_), " to ", FormatTime(watermark),
+                        from_checkpoint ? " below the watermark committed with the "
+                                          "restored checkpoint."
+                                        : " within incarnation " + std::to_string(e.incarnation()) + "."),
            {watermark_ref_}, &e);
     return;
   }
@@ -553,18 +503,15 @@ void Oracle::OnEmitted(const TraceEvent& e) {
       Report(Invariant::kLateRecord,
              absl::StrCat("Step ", e.emitted().step(), " emitted a record of ",
                           e.emitted().has_offset()
-                              ? absl::StrCat("partition ", e.emitted().partition(), " offset ",
-                                             e.emitted().offset())
+                              ? absl::StrCat("partition ", e.emitted().partition(), " offset ", e.emitted().offset())
                               : absl::StrCat("message ", id),
-                          " with event time ", FormatTime(e.emitted().event_time_ns()), ", ",
-                          FormatTime(late), " below the watermark ",
-                          FormatTime(*reported_watermark_), " reported before it (allowed: ",
-                          FormatTime(allowed_lateness_), ")",
-                          avoidable < late
-                              ? absl::StrCat("; the message came back from a dead incarnation, and ",
-                                             FormatTime(avoidable),
-                                             " of that lateness the connector added after it came back")
-                              : std::string(),
+                          " with event time ", FormatTime(e.emitted().event_time_ns()), ", ", FormatTime(late),
+                          " below the watermark ", FormatTime(*reported_watermark_),
+                          " reported before it (allowed: ", FormatTime(allowed_lateness_), ")",
+                          avoidable < late ? absl::StrCat("; the message came back from a dead incarnation, and ",
+                                                          FormatTime(avoidable),
+                                                          " of that lateness the connector added after it came back")
+                                           : std::string(),
                           "."),
              {reported_ref_}, &e);
     }
@@ -582,8 +529,7 @@ void Oracle::OnEmitted(const TraceEvent& e) {
            absl::StrCat("Step ", e.emitted().step(), " emitted a record of message ", id,
                         it == messages_.end() ? ", which the broker has not published"
                                               : ", which was never delivered to incarnation ",
-                        it == messages_.end() ? std::string() : std::to_string(e.incarnation()),
-                        "."),
+                        it == messages_.end() ? std::string() : std::to_string(e.incarnation()), "."),
            std::move(cited), &e);
     if (it == messages_.end()) return;
   }
@@ -597,9 +543,8 @@ bool Oracle::TimeInRange(const TraceEvent& e, const char* what, std::int64_t val
   const VirtualTime now = e.t_ns();
   if (value <= SaturatingAdd(now, kTimeRange) && value >= now - kTimeRange) return true;
   Report(Invariant::kProtocolError,
-         absl::StrCat("Step ", e.stepped().step(), " reported a ", what, " of ", value, " ns (",
-                      FormatTime(value), "), more than 100 years away from virtual now ",
-                      FormatTime(now), "."),
+         absl::StrCat("Step ", e.stepped().step(), " reported a ", what, " of ", value, " ns (", FormatTime(value),
+                      "), more than 100 years away from virtual now ", FormatTime(now), "."),
          {}, &e);
   return false;
 }
@@ -618,8 +563,7 @@ void Oracle::OnStepped(const TraceEvent& e) {
       Report(Invariant::kWatermarkAhead,
              absl::StrCat("Step ", x.step(), " reported the watermark ", FormatTime(x.watermark_ns()), ", ",
                           FormatTime(x.watermark_ns() - e.t_ns()), " past virtual now ", FormatTime(e.t_ns()),
-                          " (allowed: ", FormatTime(max_lead_),
-                          "): every record published from now on could be late."),
+                          " (allowed: ", FormatTime(max_lead_), "): every record published from now on could be late."),
              {}, &e);
     }
     ahead_ = ahead;
@@ -633,8 +577,8 @@ void Oracle::OnStepped(const TraceEvent& e) {
     // except across a reader's (re)open, join or leave.
     if (combined_.has_value() && x.combined_watermark_ns() < *combined_) {
       Report(Invariant::kWatermarkRegression,
-             absl::StrCat("The combined watermark of the live readers went back from ", FormatTime(*combined_),
-                          " to ", FormatTime(x.combined_watermark_ns()), " after step ", x.step(), "."),
+             absl::StrCat("The combined watermark of the live readers went back from ", FormatTime(*combined_), " to ",
+                          FormatTime(x.combined_watermark_ns()), " after step ", x.step(), "."),
              {combined_ref_}, &e);
     }
     if (!combined_.has_value() || x.combined_watermark_ns() > *combined_) {
@@ -660,13 +604,11 @@ void Oracle::OnStepped(const TraceEvent& e) {
   if (reported_watermark_.has_value() && *reported_watermark_ >= floor) return;
   idle_reported_ = true;
   Report(Invariant::kWatermarkStall,
-         absl::StrCat("The source has been idle for ", FormatTime(idle_for),
-                      " (longer than the profile's ", FormatTime(idle_timeout_),
-                      ") and the watermark is ",
+         absl::StrCat("The source has been idle for ", FormatTime(idle_for), " (longer than the profile's ",
+                      FormatTime(idle_timeout_), ") and the watermark is ",
                       reported_watermark_.has_value()
                           ? absl::StrCat(FormatTime(*reported_watermark_), ", ",
-                                         FormatTime(e.t_ns() - *reported_watermark_),
-                                         " behind virtual now")
+                                         FormatTime(e.t_ns() - *reported_watermark_), " behind virtual now")
                           : std::string("not set"),
                       " (allowed: ", FormatTime(idle_max_lag_), ")."),
          {idle_since_, reported_ref_}, &e);
@@ -704,8 +646,7 @@ void Oracle::OnCommitted(const TraceEvent& e) {
         if (first.commit.valid()) cited.push_back(first.commit);
         cited.push_back(r.emitted);
         Report(Invariant::kDuplicateOutput,
-               absl::StrCat("Message ", r.message_id,
-                            " has a second record in the committed output (checkpoint ",
+               absl::StrCat("Message ", r.message_id, " has a second record in the committed output (checkpoint ",
                             e.committed().checkpoint_id(), ")."),
                std::move(cited), &e);
       }
@@ -751,11 +692,11 @@ void Oracle::OnRunEnded(const TraceEvent& e) {
     // A connector that said it was finished ended the work: cite that step.
     Report(Invariant::kLostMessage,
            absl::StrCat("Message ", id, " was published but has no record in the committed output",
-                        m.acked ? " although the broker received its ack" : "",
-                        " when the run ended (", e.run_ended().reason(), ")",
-                        finished_ref_.valid()
-                            ? absl::StrCat("; step ", finished_ref_.f[0], " had answered that the connector was finished")
-                            : std::string(),
+                        m.acked ? " although the broker received its ack" : "", " when the run ended (",
+                        e.run_ended().reason(), ")",
+                        finished_ref_.valid() ? absl::StrCat("; step ", finished_ref_.f[0],
+                                                             " had answered that the connector was finished")
+                                              : std::string(),
                         "."),
            {m.published, m.last_delivered, m.last_emitted, finished_ref_, failure_ref_}, &e,
            failure_ref_.valid() ? failure_ref_ : finished_ref_);
@@ -781,8 +722,7 @@ void Oracle::OnBrokerCallFailed(const TraceEvent& e) {
 
 void Oracle::OnBrokerCall(const TraceEvent& e) {
   if (e.broker_call().has_partition()) {  // the partition's own transient failures
-    auto own = methods_.find(
-        RetryKey(e.broker_call().method(), true, e.broker_call().partition()));
+    auto own = methods_.find(RetryKey(e.broker_call().method(), true, e.broker_call().partition()));
     if (own != methods_.end()) CheckCall(e, own->first, own->second);
   }
   auto it = methods_.find(e.broker_call().method());
@@ -800,9 +740,8 @@ void Oracle::CheckCall(const TraceEvent& e, const std::string& method, MethodSta
       m.throttle_reported = true;
       Report(Invariant::kThrottleViolation,
              absl::StrCat("The connector called ", method, " again at ", FormatTime(t), ", ",
-                          FormatTime(m.throttled_until - t),
-                          " before the retry-after of its throttled ", method, " call (until ",
-                          FormatTime(m.throttled_until), ") had passed."),
+                          FormatTime(m.throttled_until - t), " before the retry-after of its throttled ", method,
+                          " call (until ", FormatTime(m.throttled_until), ") had passed."),
              {m.throttled}, &e);
     } else {
       m.throttled = EventRef{};  // served its time

@@ -98,8 +98,7 @@ class Oracle : public TraceObserver {
   // `readers`: the run's reader slots; with more than one, every rule about
   // "the incarnation" is judged per reader (the events' reader field) and the
   // many-reader rules apply (log_rules.h).
-  explicit Oracle(const v1::Profile& profile, v1::SourceShape shape = v1::QUEUE,
-                  std::uint32_t readers = 1);
+  explicit Oracle(const v1::Profile& profile, v1::SourceShape shape = v1::QUEUE, std::uint32_t readers = 1);
 
   void OnEvent(const v1::TraceEvent& event) override;
   // The verdict over every event seen. Call once, after the last event.
@@ -113,7 +112,7 @@ class Oracle : public TraceObserver {
     EventRef published;
     EventRef last_delivered;
     EventRef last_emitted;
-    EventRef committed;  // the commit that first put a record of it in the output
+    EventRef committed;         // the commit that first put a record of it in the output
     EventRef committed_record;  // the record (emitted event) that commit made durable
     std::uint32_t committed_records = 0;
     bool acked = false;
@@ -125,7 +124,7 @@ class Oracle : public TraceObserver {
     std::int64_t delivered_watermark = kNoWatermark;  // reported before its last delivery's step
     std::uint64_t excused_in = 0;                     // the incarnation it came back to
     std::int64_t excuse_floor = kNoWatermark;         // reported before the step it came back in
-    bool tainted = false;  // an incarnation moved its watermark past it while holding it
+    bool tainted = false;                             // an incarnation moved its watermark past it while holding it
   };
   static constexpr std::int64_t kNoWatermark = INT64_MIN;
   void OnCrashed(const v1::TraceEvent& e);
@@ -158,8 +157,7 @@ class Oracle : public TraceObserver {
   bool TimeInRange(const v1::TraceEvent& e, const char* what, std::int64_t value);
   // Delivered to the live incarnation and without a record yet (blocks idleness).
   bool Awaiting(const MessageState& m, std::uint64_t incarnation) const {
-    return m.delivered_in == incarnation && m.emitted_in != incarnation &&
-           m.committed_records == 0;
+    return m.delivered_in == incarnation && m.emitted_in != incarnation && m.committed_records == 0;
   }
   void EndIdle() {
     idle_ = false;
@@ -217,10 +215,10 @@ class Oracle : public TraceObserver {
   std::optional<std::int64_t> watermark_;
   EventRef watermark_ref_;
   EventRef opened_ref_;
-  EventRef finished_ref_;  // the live incarnation's step that answered "finished"
-  EventRef failure_ref_;   // the connector's first failure (exit, timeout, error…)
+  EventRef finished_ref_;     // the live incarnation's step that answered "finished"
+  EventRef failure_ref_;      // the connector's first failure (exit, timeout, error…)
   std::string failure_what_;  // its description (a reference keeps no text)
-  bool regressed_ = false;  // the last watermark was below the high mark (reported)
+  bool regressed_ = false;    // the last watermark was below the high mark (reported)
   // The last watermark reported (literally, even one that regressed): late-record.
   std::optional<std::int64_t> reported_watermark_;
   EventRef reported_ref_;

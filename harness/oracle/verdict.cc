@@ -105,12 +105,9 @@ const char* InvariantRule(Invariant invariant) {
              "came back from an incarnation that died, only the lateness added after it came back "
              "counts (forced late records are counted, not failed), unless the dead incarnation "
              "itself moved its watermark past the message while holding it.";
-    case Invariant::kBadCheckpoint:
-      return "Opening the connector from a committed checkpoint must succeed.";
-    case Invariant::kStepTimeout:
-      return "Every connector call must answer within the wall-clock bound.";
-    case Invariant::kUnexpectedExit:
-      return "The connector process must not end unless weir kills it at a crash point.";
+    case Invariant::kBadCheckpoint: return "Opening the connector from a committed checkpoint must succeed.";
+    case Invariant::kStepTimeout: return "Every connector call must answer within the wall-clock bound.";
+    case Invariant::kUnexpectedExit: return "The connector process must not end unless weir kills it at a crash point.";
     case Invariant::kProtocolError:
       return "Every connector answer and broker call must be well-formed and refer only to "
              "messages delivered to the same incarnation, receipts the broker issued, and times "
@@ -136,8 +133,7 @@ const char* InvariantRule(Invariant invariant) {
     case Invariant::kSilentSkip:
       return "Log: a reader that moves past offsets retention deleted must report them as a gap "
              "before it emits the records after them.";
-    case Invariant::kNewPartition:
-      return "Log: a partition added during the run must be read.";
+    case Invariant::kNewPartition: return "Log: a partition added during the run must be read.";
     case Invariant::kConnectorError:
       return "The connector must not answer a call with an error status of its own (an exception "
              "in its code, a request it refuses); a failed Open from a committed checkpoint is "
@@ -155,8 +151,7 @@ const char* InvariantRule(Invariant invariant) {
     case Invariant::kRecordOutsideSpan:
       return "Many readers: every record a reader emits lies in a span it holds at that moment "
              "(assigned to it, not revoked, not cut away).";
-    case Invariant::kDoubleHolding:
-      return "Many readers: no offset is held by two live readers at the same moment.";
+    case Invariant::kDoubleHolding: return "Many readers: no offset is held by two live readers at the same moment.";
     case Invariant::kCutConservation:
       return "Many readers: a cut's head and tail are disjoint, together are exactly the span that "
              "was cut, and the head holds every offset the reader had already emitted from it.";
@@ -164,8 +159,7 @@ const char* InvariantRule(Invariant invariant) {
       return "Many readers: a reader's checkpoint names a resume point for every span it holds, "
              "including spans received since its last checkpoint, and for no other partition; "
              "each resume point lies within its span.";
-    case Invariant::kCount:
-      break;
+    case Invariant::kCount: break;
   }
   return "";
 }
@@ -177,49 +171,33 @@ const char* InvariantChance(Invariant invariant) {
              "yet committed";
     case Invariant::kLostMessage:
       return "a crash, a failed commit, a nack or an expired lease while messages were in flight";
-    case Invariant::kDuplicateOutput:
-      return "a redelivery, or a restore or span move after some output was committed";
-    case Invariant::kWatermarkRegression:
-      return "a restore from a checkpoint, or a reader joining or leaving";
+    case Invariant::kDuplicateOutput: return "a redelivery, or a restore or span move after some output was committed";
+    case Invariant::kWatermarkRegression: return "a restore from a checkpoint, or a reader joining or leaving";
     case Invariant::kWatermarkStall:
       return "a step after the source (or a partition) had been idle longer than the idle timeout";
     case Invariant::kLateRecord:
       return "a message published (or a record appended) with an event time below one published "
              "before it, held back by a visibility delay, handed out out of order, or redelivered";
-    case Invariant::kBadCheckpoint:
-      return "an Open from a committed checkpoint";
+    case Invariant::kBadCheckpoint: return "an Open from a committed checkpoint";
     case Invariant::kStepTimeout:
     case Invariant::kUnexpectedExit:
     case Invariant::kProtocolError:
     case Invariant::kConnectorError:
-    case Invariant::kLivelock:
-      return "a step";
-    case Invariant::kThrottleViolation:
-      return "a throttled call followed by another call of the same method";
-    case Invariant::kRetryStorm:
-      return "a transient broker failure followed by another call of the same method";
-    case Invariant::kOffsetGap:
-      return "a restore, a span moved or cut, or a read below the first retained offset";
-    case Invariant::kPositionBeforeCommit:
-      return "a bookmark saved at the broker";
-    case Invariant::kResumeExact:
-      return "a restore or a span assigned with a resume point";
+    case Invariant::kLivelock: return "a step";
+    case Invariant::kThrottleViolation: return "a throttled call followed by another call of the same method";
+    case Invariant::kRetryStorm: return "a transient broker failure followed by another call of the same method";
+    case Invariant::kOffsetGap: return "a restore, a span moved or cut, or a read below the first retained offset";
+    case Invariant::kPositionBeforeCommit: return "a bookmark saved at the broker";
+    case Invariant::kResumeExact: return "a restore or a span assigned with a resume point";
     case Invariant::kSilentSkip:
       return "a read below the first retained offset (retention deleted what the reader wanted)";
-    case Invariant::kNewPartition:
-      return "a partition added during the run";
-    case Invariant::kWatermarkAhead:
-      return "a step that reported a watermark";
-    case Invariant::kRecordOutsideSpan:
-      return "a span revoked or cut";
-    case Invariant::kDoubleHolding:
-      return "a span assigned, cut, or a reader joining or leaving";
-    case Invariant::kCutConservation:
-      return "a cut";
-    case Invariant::kCheckpointCoverage:
-      return "a checkpoint after the readers' spans changed";
-    case Invariant::kCount:
-      break;
+    case Invariant::kNewPartition: return "a partition added during the run";
+    case Invariant::kWatermarkAhead: return "a step that reported a watermark";
+    case Invariant::kRecordOutsideSpan: return "a span revoked or cut";
+    case Invariant::kDoubleHolding: return "a span assigned, cut, or a reader joining or leaving";
+    case Invariant::kCutConservation: return "a cut";
+    case Invariant::kCheckpointCoverage: return "a checkpoint after the readers' spans changed";
+    case Invariant::kCount: break;
   }
   return "";
 }
@@ -248,28 +226,22 @@ const char* InvariantExercisedBy(Invariant invariant) {
     case Invariant::kLivelock:
     case Invariant::kWatermarkAhead:
       return "any scenario whose connector steps and reports a watermark (steady_parcel_scanners)";
-    case Invariant::kThrottleViolation:
-      return "scenarios with broker throttling (throttle_storm_toll_gantries)";
+    case Invariant::kThrottleViolation: return "scenarios with broker throttling (throttle_storm_toll_gantries)";
     case Invariant::kRetryStorm:
       return "scenarios with transient broker failures under a profile with min_backoff_ms "
              "(flaky_network_vineyard_probes, log_partition_outage_lighthouse_beacons)";
     case Invariant::kOffsetGap:
-    case Invariant::kResumeExact:
-      return "log scenarios with crashes (log_bookmark_crash_storm_seismographs)";
+    case Invariant::kResumeExact: return "log scenarios with crashes (log_bookmark_crash_storm_seismographs)";
     case Invariant::kPositionBeforeCommit:
       return "log scenarios whose connector saves bookmarks (log_steady_river_gauges)";
     case Invariant::kSilentSkip:
       return "log scenarios where retention outruns the reader (log_retention_race_pollen_traps)";
-    case Invariant::kNewPartition:
-      return "log scenarios with partition growth (log_partition_growth_wind_turbines)";
+    case Invariant::kNewPartition: return "log scenarios with partition growth (log_partition_growth_wind_turbines)";
     case Invariant::kRecordOutsideSpan:
-    case Invariant::kCutConservation:
-      return "many-reader scenarios with cuts (readers_frequent_cuts_seismographs)";
+    case Invariant::kCutConservation: return "many-reader scenarios with cuts (readers_frequent_cuts_seismographs)";
     case Invariant::kDoubleHolding:
-    case Invariant::kCheckpointCoverage:
-      return "many-reader scenarios with moves (readers_hot_rebalance_wind_farms)";
-    case Invariant::kCount:
-      break;
+    case Invariant::kCheckpointCoverage: return "many-reader scenarios with moves (readers_hot_rebalance_wind_farms)";
+    case Invariant::kCount: break;
   }
   return "";
 }

@@ -75,14 +75,14 @@ struct Violation {
 };
 
 struct InvariantResult {
-  bool checked = true;            // false when the profile does not claim it
-  bool applies = true;            // false when the run's broker shape has no such thing
+  bool checked = true;  // false when the profile does not claim it
+  bool applies = true;  // false when the run's broker shape has no such thing
   // How many distinct causes failed it: a repeat of a cause already counted
   // (a regressed watermark still below its high mark at the next step, the
   // next call during the same throttle misuse) is an echo, not a violation.
   std::uint64_t violations = 0;
   std::uint64_t echoes = 0;
-  std::vector<Violation> first;   // the first few, in trace order
+  std::vector<Violation> first;  // the first few, in trace order
   // Coverage: how many situations arose in which this rule could have failed
   // (its "chances", docs/coverage.md), e.g. a throttled call followed by
   // another call of the same method. A judged rule with no chance and no

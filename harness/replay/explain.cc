@@ -40,8 +40,7 @@ std::uint64_t MessageOf(const TraceEvent& e) {
     case TraceEvent::kPublished: return e.published().message_id();
     case TraceEvent::kDelivered: return e.delivered().message_id();
     case TraceEvent::kEmitted:
-      return e.emitted().has_offset() ? PartitionTag(e.emitted().partition())
-                                      : e.emitted().message_id();
+      return e.emitted().has_offset() ? PartitionTag(e.emitted().partition()) : e.emitted().message_id();
     case TraceEvent::kAppended: return PartitionTag(e.appended().partition());
     case TraceEvent::kLogRead: return PartitionTag(e.log_read().partition());
     case TraceEvent::kRetentionDeleted: return PartitionTag(e.retention_deleted().partition());
@@ -54,8 +53,7 @@ std::uint64_t MessageOf(const TraceEvent& e) {
     case TraceEvent::kRevoked:
       return e.revoked().spans_size() == 1 ? PartitionTag(e.revoked().spans(0).partition()) : 0;
     case TraceEvent::kBrokerCallFailed:
-      return e.broker_call_failed().has_partition() ? PartitionTag(e.broker_call_failed().partition())
-                                                    : 0;
+      return e.broker_call_failed().has_partition() ? PartitionTag(e.broker_call_failed().partition()) : 0;
     case TraceEvent::kAcked: return e.acked().message_id();
     case TraceEvent::kNacked: return e.nacked().message_id();
     case TraceEvent::kLeaseExtended: return e.lease_extended().message_id();
@@ -86,17 +84,15 @@ bool IsStructural(const TraceEvent& e) {
     case TraceEvent::kRevoked:
     case TraceEvent::kCut:
     case TraceEvent::kReaderLeft:
-    case TraceEvent::kReaderJoined:
-      return true;
-    default:
-      return false;
+    case TraceEvent::kReaderJoined: return true;
+    default: return false;
   }
 }
 
 struct Section {
   const Violation* violation = nullptr;
-  std::set<std::uint64_t> proving;   // seqs
-  std::set<std::uint64_t> messages;  // ids named by proving events
+  std::set<std::uint64_t> proving;                               // seqs
+  std::set<std::uint64_t> messages;                              // ids named by proving events
   std::vector<std::pair<std::uint64_t, std::uint64_t>> windows;  // [lo, hi]
   std::vector<std::pair<std::uint64_t, std::uint64_t>> draw_windows;
   bool broker_calls = false;  // show broker calls in the window (throttle, retry)
@@ -170,24 +166,25 @@ absl::StatusOr<ExplainOutput> ExplainTrace(const std::string& path, const Explai
   RunTimelines& tl = out.timelines;
   Oracle oracle(header.scenario().profile(), header.scenario().has_log() ? v1::LOG : v1::QUEUE,
                 std::max<std::uint32_t>(1, header.scenario().readers().count()));
-  if (absl::Status st = ForEachEvent(path, [&](const TraceEvent& e) {
-        oracle.OnEvent(e);
-        tl.overview.end_ns = e.t_ns();
-        if (e.has_committed()) {
-          if (tl.overview.commits.size() < kMaxOverviewMarks) {
-            tl.overview.commits.push_back({e.seq(), e.t_ns()});
-          } else {
-            ++tl.overview.commits_elided;
-          }
-        }
-        if (e.has_crashed()) {
-          if (tl.overview.crashes.size() < kMaxOverviewMarks) {
-            tl.overview.crashes.push_back({e.seq(), e.t_ns()});
-          } else {
-            ++tl.overview.crashes_elided;
-          }
-        }
-      });
+  if (absl::Status st = ForEachEvent(path,
+                                     [&](const TraceEvent& e) {
+                                       oracle.OnEvent(e);
+                                       tl.overview.end_ns = e.t_ns();
+                                       if (e.has_committed()) {
+                                         if (tl.overview.commits.size() < kMaxOverviewMarks) {
+                                           tl.overview.commits.push_back({e.seq(), e.t_ns()});
+                                         } else {
+                                           ++tl.overview.commits_elided;
+                                         }
+                                       }
+                                       if (e.has_crashed()) {
+                                         if (tl.overview.crashes.size() < kMaxOverviewMarks) {
+                                           tl.overview.crashes.push_back({e.seq(), e.t_ns()});
+                                         } else {
+                                           ++tl.overview.crashes_elided;
+                                         }
+                                       }
+                                     });
       !st.ok()) {
     return st;
   }
@@ -196,8 +193,7 @@ absl::StatusOr<ExplainOutput> ExplainTrace(const std::string& path, const Explai
   out.passed = verdict.passed();
   std::vector<std::string> argv(header.connector_argv().begin(), header.connector_argv().end());
   absl::StrAppend(&out.text, "trace      ", path, "\n", "scenario   ", header.scenario_path(), " (",
-                  header.scenario().name(), "), seed ", header.seed(), "\n", "connector  ",
-                  ShellJoin(argv), "\n");
+                  header.scenario().name(), "), seed ", header.seed(), "\n", "connector  ", ShellJoin(argv), "\n");
   tl.title = absl::StrCat(header.scenario().name(), ", seed ", header.seed());
   tl.source = path;
   tl.scenario = absl::StrCat(header.scenario_path(), " (", header.scenario().name(), ")");
@@ -231,13 +227,13 @@ absl::StatusOr<ExplainOutput> ExplainTrace(const std::string& path, const Explai
   }
   // Causes before consequences: by the event that started each violation.
   std::stable_sort(sections.begin(), sections.end(), [](const Section& a, const Section& b) {
-    return std::make_tuple(a.violation->cause_seq, a.violation->detected_seq, static_cast<int>(a.violation->invariant)) <
+    return std::make_tuple(a.violation->cause_seq, a.violation->detected_seq,
+                           static_cast<int>(a.violation->invariant)) <
            std::make_tuple(b.violation->cause_seq, b.violation->detected_seq, static_cast<int>(b.violation->invariant));
   });
   if (sections.empty()) {
     if (verdict.passed() || options.only_invariant.empty()) {
-      absl::StrAppend(&out.text, "\nno violations: every checked invariant held over ", verdict.events,
-                      " events\n");
+      absl::StrAppend(&out.text, "\nno violations: every checked invariant held over ", verdict.events, " events\n");
     } else {
       absl::StrAppend(&out.text, "\nno violations of ", options.only_invariant, "\n");
     }
@@ -245,13 +241,14 @@ absl::StatusOr<ExplainOutput> ExplainTrace(const std::string& path, const Explai
   }
 
   // Pass 2: the messages the proving events name.
-  if (absl::Status st = ForEachEvent(path, [&](const TraceEvent& e) {
-        for (Section& s : sections) {
-          if (s.proving.contains(e.seq())) {
-            if (std::uint64_t m = MessageOf(e); m != 0) s.messages.insert(m);
-          }
-        }
-      });
+  if (absl::Status st = ForEachEvent(path,
+                                     [&](const TraceEvent& e) {
+                                       for (Section& s : sections) {
+                                         if (s.proving.contains(e.seq())) {
+                                           if (std::uint64_t m = MessageOf(e); m != 0) s.messages.insert(m);
+                                         }
+                                       }
+                                     });
       !st.ok()) {
     return st;
   }
@@ -298,8 +295,7 @@ absl::StatusOr<ExplainOutput> ExplainTrace(const std::string& path, const Explai
   // writes its text line when shown. Returns whether it was drawn.
   auto emit = [&](Section& s, const TraceEvent& ev, bool proving, bool show, bool may_draw) {
     bool drawn = false;
-    if (may_draw && s.drawn &&
-        (show || (s.InDrawWindow(ev.seq()) && (!ev.has_broker_call() || s.broker_calls)))) {
+    if (may_draw && s.drawn && (show || (s.InDrawWindow(ev.seq()) && (!ev.has_broker_call() || s.broker_calls)))) {
       if (proving || s.ContextFits(ev.seq())) {
         if (ev.has_emitted()) {
           open_epoch.emplace_back(static_cast<std::size_t>(&s - sections.data()), s.timeline.events.size());
@@ -322,55 +318,58 @@ absl::StatusOr<ExplainOutput> ExplainTrace(const std::string& path, const Explai
       s.last_incarnation = ev.incarnation();
     }
     absl::StrAppend(&s.text, absl::StrFormat("    %s #%-7d %12s  %s\n", proving ? "=>" : "  ", ev.seq(),
-                                            FormatTime(ev.t_ns()), DescribeEvent(ev)));
+                                             FormatTime(ev.t_ns()), DescribeEvent(ev)));
     ++s.lines;
     return drawn;
   };
-  if (absl::Status st = ForEachEvent(path, [&](const TraceEvent& e) {
-        if (many) track_spans(e);
-        if (e.has_checkpoint()) {
-          // The checkpoint closes the epoch of its incarnation; a record of
-          // an earlier incarnation was discarded with its epoch at the crash.
-          for (const auto& [si, ei] : open_epoch) {
-            TimelineEvent& te = sections[si].timeline.events[ei];
-            if (te.event.incarnation() == e.incarnation()) te.epoch_checkpoint = e.checkpoint().checkpoint_id();
-          }
-          open_epoch.clear();
-        }
-        bool moved = false;
-        if (e.has_stepped() && e.stepped().has_watermark_ns()) {
-          auto& w = watermark[e.incarnation()];
-          moved = !w.has_value() || *w != e.stepped().watermark_ns();
-          w = e.stepped().watermark_ns();
-        }
-        for (Section& s : sections) {
-          const bool proving = s.proving.contains(e.seq());
-          const std::uint64_t m = MessageOf(e);
-          // A message's few events are all worth showing; a partition's many
-          // only near the proving events.
-          const bool about = proving || (m != 0 && s.messages.contains(m) &&
-                                         (!IsLogKey(m) || s.InWindow(e.seq())));
-          bool show = about;
-          if (!show && s.InWindow(e.seq())) {
-            show = IsStructural(e) || moved || (s.broker_calls && e.has_broker_call());
-          }
-          if (s.pending_fault.has_value() && s.pending_fault->event.t_ns() != e.t_ns()) s.pending_fault.reset();
-          if (!show && e.has_fault_applied()) {
-            // Not near a proving event, but maybe the cause of one at its time.
-            s.pending_fault = Section::PendingFault{e, emit(s, e, false, false, true)};
-            continue;
-          }
-          if (show && s.pending_fault.has_value()) {
-            emit(s, s.pending_fault->event, false, true, !s.pending_fault->drawn);
-            s.pending_fault.reset();
-          }
-          emit(s, e, proving, show, true);
-          if (many && e.seq() == s.violation->detected_seq && s.lines < kMaxLines) {
-            absl::StrAppend(&s.text, held_text());
-            ++s.lines;
-          }
-        }
-      });
+  if (absl::Status st = ForEachEvent(path,
+                                     [&](const TraceEvent& e) {
+                                       if (many) track_spans(e);
+                                       if (e.has_checkpoint()) {
+                                         // The checkpoint closes the epoch of its incarnation; a record of
+                                         // an earlier incarnation was discarded with its epoch at the crash.
+                                         for (const auto& [si, ei] : open_epoch) {
+                                           TimelineEvent& te = sections[si].timeline.events[ei];
+                                           if (te.event.incarnation() == e.incarnation())
+                                             te.epoch_checkpoint = e.checkpoint().checkpoint_id();
+                                         }
+                                         open_epoch.clear();
+                                       }
+                                       bool moved = false;
+                                       if (e.has_stepped() && e.stepped().has_watermark_ns()) {
+                                         auto& w = watermark[e.incarnation()];
+                                         moved = !w.has_value() || *w != e.stepped().watermark_ns();
+                                         w = e.stepped().watermark_ns();
+                                       }
+                                       for (Section& s : sections) {
+                                         const bool proving = s.proving.contains(e.seq());
+                                         const std::uint64_t m = MessageOf(e);
+                                         // A message's few events are all worth showing; a partition's many
+                                         // only near the proving events.
+                                         const bool about = proving || (m != 0 && s.messages.contains(m) &&
+                                                                        (!IsLogKey(m) || s.InWindow(e.seq())));
+                                         bool show = about;
+                                         if (!show && s.InWindow(e.seq())) {
+                                           show = IsStructural(e) || moved || (s.broker_calls && e.has_broker_call());
+                                         }
+                                         if (s.pending_fault.has_value() && s.pending_fault->event.t_ns() != e.t_ns())
+                                           s.pending_fault.reset();
+                                         if (!show && e.has_fault_applied()) {
+                                           // Not near a proving event, but maybe the cause of one at its time.
+                                           s.pending_fault = Section::PendingFault{e, emit(s, e, false, false, true)};
+                                           continue;
+                                         }
+                                         if (show && s.pending_fault.has_value()) {
+                                           emit(s, s.pending_fault->event, false, true, !s.pending_fault->drawn);
+                                           s.pending_fault.reset();
+                                         }
+                                         emit(s, e, proving, show, true);
+                                         if (many && e.seq() == s.violation->detected_seq && s.lines < kMaxLines) {
+                                           absl::StrAppend(&s.text, held_text());
+                                           ++s.lines;
+                                         }
+                                       }
+                                     });
       !st.ok()) {
     return st;
   }
@@ -386,8 +385,8 @@ absl::StatusOr<ExplainOutput> ExplainTrace(const std::string& path, const Explai
   std::size_t n = 0;
   for (const Section& s : sections) {
     ++n;
-    absl::StrAppend(&out.text, "\nviolation ", n, " of ", sections.size(), ": ",
-                    InvariantName(s.violation->invariant), ": ", s.violation->sentence, "\n");
+    absl::StrAppend(&out.text, "\nviolation ", n, " of ", sections.size(), ": ", InvariantName(s.violation->invariant),
+                    ": ", s.violation->sentence, "\n");
     absl::StrAppend(&out.text, s.text);
     if (s.dropped > 0) absl::StrAppend(&out.text, "    … ", s.dropped, " more events not shown\n");
   }

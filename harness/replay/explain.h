@@ -40,15 +40,14 @@ struct ExplainOptions {
 
 struct ExplainOutput {
   std::string text;
-  bool passed = true;  // no checked invariant failed
+  bool passed = true;      // no checked invariant failed
   RunTimelines timelines;  // for RunTimelinesHtml
 };
 
-inline constexpr std::size_t kMaxDrawnEvents = 240;      // per violation timeline
-inline constexpr std::size_t kMaxOverviewMarks = 2000;   // commits, and crashes, per run
+inline constexpr std::size_t kMaxDrawnEvents = 240;     // per violation timeline
+inline constexpr std::size_t kMaxOverviewMarks = 2000;  // commits, and crashes, per run
 
 // Errors: a bad trace file (InvalidArgument/NotFound "file:line: …").
-[[nodiscard]] absl::StatusOr<ExplainOutput> ExplainTrace(const std::string& path,
-                                                         const ExplainOptions& options = {});
+[[nodiscard]] absl::StatusOr<ExplainOutput> ExplainTrace(const std::string& path, const ExplainOptions& options = {});
 
 }  // namespace weir

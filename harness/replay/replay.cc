@@ -53,8 +53,7 @@ void StartFailureWatch::OnEvent(const v1::TraceEvent& event) {
   }
 }
 
-absl::Status CompareTraceFiles(const std::string& saved_path, const std::string& rerun_path,
-                               ReplayResult* result_out) {
+absl::Status CompareTraceFiles(const std::string& saved_path, const std::string& rerun_path, ReplayResult* result_out) {
   auto saved = TraceReader::Open(saved_path);
   if (!saved.ok()) return saved.status();
   auto rerun = TraceReader::Open(rerun_path);
@@ -141,10 +140,10 @@ absl::StatusOr<ReplayResult> ReplayTrace(const std::string& path, const ReplayOp
     }
     const std::uint64_t events = (*scan)->footer().events();
     if (next_line.empty()) {
-      return absl::InvalidArgumentError(absl::StrCat(
-          "--stop-before ", options.stop_before, ": ", path, " has no event #", options.stop_before,
-          "; expected an event number from 1 to ", events > 0 ? events - 1 : 0, " (its events are #0 to #",
-          events > 0 ? events - 1 : 0, ")"));
+      return absl::InvalidArgumentError(
+          absl::StrCat("--stop-before ", options.stop_before, ": ", path, " has no event #", options.stop_before,
+                       "; expected an event number from 1 to ", events > 0 ? events - 1 : 0, " (its events are #0 to #",
+                       events > 0 ? events - 1 : 0, ")"));
     }
     spec.hold_before = options.stop_before;
     if (options.on_hold) {

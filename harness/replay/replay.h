@@ -50,8 +50,7 @@ struct ReplayOptions {
   // #stop_before (described, then its line). Lifts the wall bounds too, so a
   // long hold inside a connector call does not time the call out.
   std::uint64_t stop_before = 0;
-  std::function<void(const HoldPoint& at, const std::string& next_what, const std::string& next_line)>
-      on_hold;
+  std::function<void(const HoldPoint& at, const std::string& next_what, const std::string& next_line)> on_hold;
 };
 
 struct ReplayResult {
@@ -67,7 +66,7 @@ struct ReplayResult {
   std::string got_line;
   std::string expected_what;  // DescribeEvent, or "the end of the run"
   std::string got_what;
-  std::string weir_version;   // of the saved trace
+  std::string weir_version;                 // of the saved trace
   std::vector<std::string> connector_argv;  // what was rerun
   // The connector's files that differ from the recorded ones, one line each
   // ("the connector binary changed since this trace was recorded: …").
@@ -80,8 +79,7 @@ struct ReplayResult {
 // Checks the saved trace first (InvalidArgument/NotFound "file:line: …" for a
 // bad file, or a stop_before outside the trace), then that the connector can be started (FailedPrecondition "the
 // connector cannot start: …"); other errors are harness faults.
-[[nodiscard]] absl::StatusOr<ReplayResult> ReplayTrace(const std::string& path,
-                                                       const ReplayOptions& options);
+[[nodiscard]] absl::StatusOr<ReplayResult> ReplayTrace(const std::string& path, const ReplayOptions& options);
 
 // The comparison ReplayTrace makes, of any two trace files (certify's
 // determinism recheck uses it): fills `result`'s digests, event counts,

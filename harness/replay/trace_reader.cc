@@ -12,9 +12,7 @@ namespace weir {
 namespace {
 
 // The parser's message up to its first line break (it quotes the input after).
-std::string FirstLine(const std::string& message) {
-  return message.substr(0, message.find('\n'));
-}
+std::string FirstLine(const std::string& message) { return message.substr(0, message.find('\n')); }
 
 // The 1-based column a JSON decoding error of `line` points at, or 0. Protobuf's
 // JSON parser quotes up to 20 bytes around the error with a caret line below
@@ -110,9 +108,8 @@ std::string TraceReader::OverlongMessage() const {
 }
 
 absl::Status TraceReader::Error(const std::string& what, std::size_t column) const {
-  return absl::InvalidArgumentError(absl::StrCat(path_, ":", line_no_ == 0 ? 1 : line_no_,
-                                                 column > 0 ? absl::StrCat(":", column) : "", ": ",
-                                                 what));
+  return absl::InvalidArgumentError(
+      absl::StrCat(path_, ":", line_no_ == 0 ? 1 : line_no_, column > 0 ? absl::StrCat(":", column) : "", ": ", what));
 }
 
 absl::Status TraceReader::DecodeError(const absl::Status& status, const char* expected) const {
@@ -124,8 +121,7 @@ absl::StatusOr<bool> TraceReader::Next() {
   if (done_) return false;
   if (!ReadLine()) {
     ++line_no_;  // the footer was expected on the line after the last one
-    return Error(absl::StrCat("truncated: expected more events or the trace footer after ", events_,
-                              " event(s)"));
+    return Error(absl::StrCat("truncated: expected more events or the trace footer after ", events_, " event(s)"));
   }
   if (overlong_) return Error(OverlongMessage());
   if (text_.back() != '\n') return Error("truncated line (no newline); expected a complete JSON line");
@@ -139,8 +135,8 @@ absl::StatusOr<bool> TraceReader::Next() {
     }
     const std::string digest = digest_.HexDigest();
     if (footer_.digest() != digest) {
-      return Error(absl::StrCat("footer digest ", footer_.digest(), " does not match the event lines (",
-                                digest, "); the trace was altered"));
+      return Error(absl::StrCat("footer digest ", footer_.digest(), " does not match the event lines (", digest,
+                                "); the trace was altered"));
     }
     const std::uint64_t footer_line = line_no_;
     if (ReadLine()) return Error(absl::StrCat("text after the footer (line ", footer_line, ")"));

@@ -17,8 +17,8 @@ namespace {
 using v1::TraceEvent;
 
 // Timeline geometry (SVG user units).
-constexpr int kLeft = 96;   // lane labels
-constexpr int kCol = 16;    // one column per event
+constexpr int kLeft = 96;  // lane labels
+constexpr int kCol = 16;   // one column per event
 constexpr int kRight = 24;
 // More than this many events left out between two drawn ones is a fold.
 constexpr std::uint64_t kFoldAt = 20;
@@ -38,23 +38,19 @@ Lane LaneOf(const TraceEvent& e) {
     case TraceEvent::kProtocolError:
     case TraceEvent::kConnectorError:
     case TraceEvent::kCallTimedOut:
-    case TraceEvent::kLivelock:
-      return kConnector;
+    case TraceEvent::kLivelock: return kConnector;
     case TraceEvent::kCheckpoint:
     case TraceEvent::kCommitted:
     case TraceEvent::kCommitFailed:
     case TraceEvent::kCommitNotice:
     case TraceEvent::kCrashed:
-    case TraceEvent::kRunEnded:
-      return kRuntime;
+    case TraceEvent::kRunEnded: return kRuntime;
     case TraceEvent::kAssigned:  // what a reader holds: on its own lane
     case TraceEvent::kRevoked:
     case TraceEvent::kCut:
     case TraceEvent::kReaderLeft:
-    case TraceEvent::kReaderJoined:
-      return kConnector;
-    default:
-      return kBroker;
+    case TraceEvent::kReaderJoined: return kConnector;
+    default: return kBroker;
   }
 }
 
@@ -82,8 +78,7 @@ const char* ClassOf(const TraceEvent& e) {
     case TraceEvent::kAckIgnored: return "ack-ignored";
     case TraceEvent::kRunEnded: return "run-ended";
     case TraceEvent::kCallTimedOut: return "timeout";
-    case TraceEvent::kBrokerCallFailed:
-      return e.broker_call_failed().code() == 8 ? "throttle" : "broker-error";
+    case TraceEvent::kBrokerCallFailed: return e.broker_call_failed().code() == 8 ? "throttle" : "broker-error";
     case TraceEvent::kFaultApplied: return "fault";
     case TraceEvent::kBrokerCall: return "call";
     case TraceEvent::kAssigned: return "assigned";
@@ -115,15 +110,12 @@ std::string Marker(const TraceEvent& e, int x, int y) {
     case TraceEvent::kRunEnded:
       return absl::StrFormat("<rect x=\"%d\" y=\"%d\" width=\"10\" height=\"10\"/>", x - 5, y - 5);
     case TraceEvent::kAcked:
-    case TraceEvent::kNacked:
-      return absl::StrFormat("<path d=\"M%d %dl6 6l-6 6l-6 -6z\"/>", x, y - 6);
-    case TraceEvent::kBrokerCallFailed:
-      return absl::StrFormat("<path d=\"M%d %dl6 11h-12z\"/>", x, y - 6);
+    case TraceEvent::kNacked: return absl::StrFormat("<path d=\"M%d %dl6 6l-6 6l-6 -6z\"/>", x, y - 6);
+    case TraceEvent::kBrokerCallFailed: return absl::StrFormat("<path d=\"M%d %dl6 11h-12z\"/>", x, y - 6);
     case TraceEvent::kStepped:
     case TraceEvent::kBrokerCall:
       return absl::StrFormat("<rect x=\"%d\" y=\"%d\" width=\"2\" height=\"12\"/>", x - 1, y - 6);
-    default:
-      return absl::StrFormat("<circle cx=\"%d\" cy=\"%d\" r=\"4\"/>", x, y);
+    default: return absl::StrFormat("<circle cx=\"%d\" cy=\"%d\" r=\"4\"/>", x, y);
   }
 }
 
@@ -170,8 +162,7 @@ std::string TimelineSvg(const ViolationTimeline& v) {
     const int x0 = kLeft + static_cast<int>(i) * kCol;
     absl::StrAppend(&out, absl::StrFormat("<rect class=\"band b%d\" x=\"%d\" y=\"20\" width=\"%d\" height=\"%d\"/>"
                                           "<text class=\"inc\" x=\"%d\" y=\"16\">incarnation %d</text>\n",
-                                          inc % 2, x0, static_cast<int>(j - i) * kCol, wm_bottom - 16, x0 + 2,
-                                          inc));
+                                          inc % 2, x0, static_cast<int>(j - i) * kCol, wm_bottom - 16, x0 + 2, inc));
     i = j;
   }
   // Lanes.
@@ -198,8 +189,8 @@ std::string TimelineSvg(const ViolationTimeline& v) {
   }
   // Time labels along the top of the lanes, every ten columns.
   for (std::size_t i = 0; i < n; i += 10) {
-    absl::StrAppend(&out, absl::StrFormat("<text class=\"tick\" x=\"%d\" y=\"34\">%s</text>\n",
-                                          ColumnX(i) - 4, FormatTime(v.events[i].event.t_ns())));
+    absl::StrAppend(&out, absl::StrFormat("<text class=\"tick\" x=\"%d\" y=\"34\">%s</text>\n", ColumnX(i) - 4,
+                                          FormatTime(v.events[i].event.t_ns())));
   }
 
   // Joins: each commit to the records of the epoch it closed, each ack to the
@@ -214,9 +205,9 @@ std::string TimelineSvg(const ViolationTimeline& v) {
       auto it = delivery.find(e.acked().receipt());
       if (it != delivery.end()) {
         const int x0 = ColumnX(it->second), x1 = ColumnX(i);
-        absl::StrAppend(&out, absl::StrFormat("<path class=\"join receipt-join\" d=\"M%d %dQ%d %d %d %d\"/>\n", x0,
-                                              lay.Y(kBroker) - 5, (x0 + x1) / 2, lay.Y(kBroker) - 26, x1,
-                                              lay.Y(kBroker) - 5));
+        absl::StrAppend(
+            &out, absl::StrFormat("<path class=\"join receipt-join\" d=\"M%d %dQ%d %d %d %d\"/>\n", x0,
+                                  lay.Y(kBroker) - 5, (x0 + x1) / 2, lay.Y(kBroker) - 26, x1, lay.Y(kBroker) - 5));
       }
     }
     if (e.has_committed()) {
@@ -249,15 +240,14 @@ std::string TimelineSvg(const ViolationTimeline& v) {
     const TimelineEvent& te = v.events[i];
     const TraceEvent& e = te.event;
     const int x = ColumnX(i), y = lay.Y(e);
-    absl::StrAppend(&out, "<g class=\"ev ", ClassOf(e), te.proving ? " proving" : "", "\" data-seq=\"", e.seq(),
-                    "\"><title>", EscapeMarkup(absl::StrCat("#", e.seq(), " at ", FormatTime(e.t_ns()),
-                                                            ", incarnation ", e.incarnation(),
-                                                            readers > 1 ? absl::StrCat(" (reader ", e.reader(), ")")
-                                                                        : std::string(),
-                                                            ": ",
-                                                            DescribeEvent(e), Detail(e))),
-                    "</title>");
-    if (te.proving) absl::StrAppend(&out, absl::StrFormat("<circle class=\"ring\" cx=\"%d\" cy=\"%d\" r=\"9\"/>", x, y));
+    absl::StrAppend(
+        &out, "<g class=\"ev ", ClassOf(e), te.proving ? " proving" : "", "\" data-seq=\"", e.seq(), "\"><title>",
+        EscapeMarkup(absl::StrCat("#", e.seq(), " at ", FormatTime(e.t_ns()), ", incarnation ", e.incarnation(),
+                                  readers > 1 ? absl::StrCat(" (reader ", e.reader(), ")") : std::string(), ": ",
+                                  DescribeEvent(e), Detail(e))),
+        "</title>");
+    if (te.proving)
+      absl::StrAppend(&out, absl::StrFormat("<circle class=\"ring\" cx=\"%d\" cy=\"%d\" r=\"9\"/>", x, y));
     absl::StrAppend(&out, Marker(e, x, y), "</g>\n");
   }
 
@@ -370,8 +360,8 @@ std::string OverviewSvg(const RunTimelines& run) {
                                           x0, std::max(2.0, x1 - x0)));
     for (const TimelineEvent& te : v.events) {
       if (!te.proving) continue;
-      absl::StrAppend(&out, absl::StrFormat("<path class=\"proving-mark\" d=\"M%.1f 2l4 6h-8z\"/>\n",
-                                            x(te.event.t_ns())));
+      absl::StrAppend(&out,
+                      absl::StrFormat("<path class=\"proving-mark\" d=\"M%.1f 2l4 6h-8z\"/>\n", x(te.event.t_ns())));
     }
   }
   for (const RunOverview::Mark& m : o.commits) {
@@ -438,8 +428,8 @@ std::string RunTimelinesHtml(const RunTimelines& run) {
   for (const ViolationTimeline& v : run.violations) {
     ++k;
     absl::StrAppend(&out, "<div class=\"violation\" data-invariant=\"", EscapeMarkup(v.invariant), "\">\n<h3>",
-                    "violation ", k, " of ", run.violations.size(), ": <span class=\"inv\">",
-                    EscapeMarkup(v.invariant), "</span></h3>\n<p>", EscapeMarkup(v.sentence), "</p>\n");
+                    "violation ", k, " of ", run.violations.size(), ": <span class=\"inv\">", EscapeMarkup(v.invariant),
+                    "</span></h3>\n<p>", EscapeMarkup(v.sentence), "</p>\n");
     if (v.events.empty()) {
       out += "<p class=\"elided\">No events to draw.</p>\n";
     } else {

@@ -48,8 +48,8 @@ struct TimelineEvent {
 };
 
 struct ViolationTimeline {
-  std::string invariant;  // e.g. "ack-before-commit"
-  std::string sentence;   // the oracle's one sentence about this violation
+  std::string invariant;              // e.g. "ack-before-commit"
+  std::string sentence;               // the oracle's one sentence about this violation
   std::vector<TimelineEvent> events;  // in trace order
   std::uint64_t elided = 0;           // selected around the violation but left out (bound)
 };

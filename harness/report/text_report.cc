@@ -14,21 +14,20 @@ std::string FormatVerdictTable(const Verdict& verdict) {
     const InvariantResult& r = verdict.at(inv);
     if (!r.applies) continue;  // the other broker shape's rule
     // Held means it had a chance to fail and did not (docs/coverage.md).
-    const char* word = !r.checked            ? "not claimed"
-                       : r.violations > 0    ? "FAILED"
-                       : r.chances == 0      ? "not exercised"
-                                             : "held";
+    const char* word = !r.checked         ? "not claimed"
+                       : r.violations > 0 ? "FAILED"
+                       : r.chances == 0   ? "not exercised"
+                                          : "held";
     out += absl::StrFormat("%-22s %-13s %10s  %d%s\n", InvariantName(inv), word,
                            r.checked ? absl::StrCat(r.chances) : std::string("-"), r.violations,
                            r.echoes > 0 ? absl::StrCat(" (+", r.echoes, " repeats)") : std::string());
   }
   // Figures that never fail a run on their own (see Verdict).
-  absl::StrAppend(&out, "figures: ", verdict.duplicate_records, " duplicate records, ",
-                  verdict.late_records, " late records (", verdict.forced_late_records,
-                  " forced by crashes, not failed)");
+  absl::StrAppend(&out, "figures: ", verdict.duplicate_records, " duplicate records, ", verdict.late_records,
+                  " late records (", verdict.forced_late_records, " forced by crashes, not failed)");
   if (verdict.at(Invariant::kOffsetGap).applies) {
-    absl::StrAppend(&out, ", ", verdict.deleted_unread, " offsets deleted unread, ",
-                    verdict.gap_offsets, " offsets reported as gaps, ", verdict.rewinds, " rewinds");
+    absl::StrAppend(&out, ", ", verdict.deleted_unread, " offsets deleted unread, ", verdict.gap_offsets,
+                    " offsets reported as gaps, ", verdict.rewinds, " rewinds");
   }
   out += "\n";
   return out;
@@ -41,15 +40,15 @@ std::string FormatViolations(const Verdict& verdict) {
     const InvariantResult& r = verdict.at(inv);
     absl::StrAppend(&out, "\nFAILED ", InvariantName(inv), " (", r.violations,
                     r.violations == 1 ? " violation" : " violations",
-                    r.echoes > 0 ? absl::StrCat("; ", r.echoes, r.echoes == 1 ? " repeat" : " repeats",
-                                                " of ", r.violations == 1 ? "it" : "them", " not counted")
+                    r.echoes > 0 ? absl::StrCat("; ", r.echoes, r.echoes == 1 ? " repeat" : " repeats", " of ",
+                                                r.violations == 1 ? "it" : "them", " not counted")
                                  : std::string(),
                     ")\n  rule: ", InvariantRule(inv), "\n");
     for (const Violation& v : r.first) {
       absl::StrAppend(&out, "  - ", v.sentence, "\n");
       for (const Evidence& e : v.evidence) {
-        absl::StrAppend(&out, absl::StrFormat("      #%-7d %16s  inc %-3d %s\n", e.seq,
-                                              FormatTime(e.t), e.incarnation, e.what));
+        absl::StrAppend(
+            &out, absl::StrFormat("      #%-7d %16s  inc %-3d %s\n", e.seq, FormatTime(e.t), e.incarnation, e.what));
       }
     }
     if (r.violations > r.first.size()) {

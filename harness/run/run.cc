@@ -41,8 +41,7 @@ class TraceFile : public TraceEncoder::LineSink {
   }
   absl::Status Finish(const std::string& header, const std::string& footer) {
     std::FILE* out = std::fopen(partial_.c_str(), "wb");
-    bool ok = out != nullptr && !failed_ && std::fflush(events_) == 0 &&
-              std::fseek(events_, 0, SEEK_SET) == 0;
+    bool ok = out != nullptr && !failed_ && std::fflush(events_) == 0 && std::fseek(events_, 0, SEEK_SET) == 0;
     if (ok) ok = std::fwrite(header.data(), 1, header.size(), out) == header.size();
     char buf[1 << 16];
     while (ok) {
@@ -76,14 +75,12 @@ std::uint32_t ReaderCount(const v1::Scenario& scenario) {
   return std::max<std::uint32_t>(1, scenario.readers().count());
 }
 
-absl::StatusOr<RunOutput> RunWithPort(const RunSpec& spec, ConnectorPort& port) {
-  return RunWithPorts(spec, {&port});
-}
+absl::StatusOr<RunOutput> RunWithPort(const RunSpec& spec, ConnectorPort& port) { return RunWithPorts(spec, {&port}); }
 
 absl::StatusOr<RunOutput> RunWithPorts(const RunSpec& spec, const std::vector<ConnectorPort*>& ports) {
   if (ports.size() != ReaderCount(spec.scenario)) {
-    return absl::InvalidArgumentError(absl::StrCat("the scenario has ", ReaderCount(spec.scenario),
-                                                   " readers, but ", ports.size(), " connector ports were given"));
+    return absl::InvalidArgumentError(absl::StrCat("the scenario has ", ReaderCount(spec.scenario), " readers, but ",
+                                                   ports.size(), " connector ports were given"));
   }
   std::unique_ptr<TraceFile> file;
   if (!spec.trace_path.empty()) {
@@ -93,16 +90,14 @@ absl::StatusOr<RunOutput> RunWithPorts(const RunSpec& spec, const std::vector<Co
   }
 
   TraceLog trace;
-  Oracle oracle(spec.scenario.profile(), spec.scenario.has_log() ? v1::LOG : v1::QUEUE,
-                ReaderCount(spec.scenario));
+  Oracle oracle(spec.scenario.profile(), spec.scenario.has_log() ? v1::LOG : v1::QUEUE, ReaderCount(spec.scenario));
   TraceEncoder encoder(file.get());
   trace.AddObserver(&encoder);
   trace.AddObserver(&oracle);
   for (TraceObserver* observer : spec.observers) trace.AddObserver(observer);
 
-  FaultSource faults = spec.plan.has_value()
-                           ? FaultSource(*spec.plan, spec.seed, trace)
-                           : FaultSource(spec.scenario.faults(), spec.seed, trace);
+  FaultSource faults = spec.plan.has_value() ? FaultSource(*spec.plan, spec.seed, trace)
+                                             : FaultSource(spec.scenario.faults(), spec.seed, trace);
   // The scenario's shape picks the model; everything else is the same.
   std::unique_ptr<QueueModel> queue;
   std::unique_ptr<LogModel> log;
@@ -120,8 +115,7 @@ absl::StatusOr<RunOutput> RunWithPorts(const RunSpec& spec, const std::vector<Co
   RuntimeModel runtime(spec.scenario, *broker, *session, ports, trace, faults);
   if (spec.wall_bounds) {
     runtime.set_wall_clock([] {  // the livelock bound in wall time
-      return std::chrono::duration_cast<std::chrono::milliseconds>(
-                 std::chrono::steady_clock::now().time_since_epoch())
+      return std::chrono::duration_cast<std::chrono::milliseconds>(std::chrono::steady_clock::now().time_since_epoch())
           .count();
     });
   }  // else only the step count bounds a livelock (runtime_model.h)

@@ -32,9 +32,9 @@ enum class Transport { kTcp, kUnix };
 // A connector process as the edge sees it at a hold (RunSpec::on_hold).
 struct HeldProcess {
   std::uint32_t reader = 0;
-  std::int64_t pid = 0;            // the process started (the wrapper's, when wrapped)
-  std::string connector_address;   // where it listens (its handshake line)
-  std::string broker_address;      // where its broker calls go
+  std::int64_t pid = 0;           // the process started (the wrapper's, when wrapped)
+  std::string connector_address;  // where it listens (its handshake line)
+  std::string broker_address;     // where its broker calls go
 };
 
 // Where a run holds: after event #(next_seq - 1) was recorded, before event
@@ -101,8 +101,7 @@ struct RunOutput {
 // when spec.stop became true.
 [[nodiscard]] absl::StatusOr<RunOutput> RunWithPort(const RunSpec& spec, ConnectorPort& port);
 // Many readers: one port per reader slot (ReaderCount(spec.scenario) of them).
-[[nodiscard]] absl::StatusOr<RunOutput> RunWithPorts(const RunSpec& spec,
-                                                     const std::vector<ConnectorPort*>& ports);
+[[nodiscard]] absl::StatusOr<RunOutput> RunWithPorts(const RunSpec& spec, const std::vector<ConnectorPort*>& ports);
 // The scenario's reader slots: readers.count, or 1.
 std::uint32_t ReaderCount(const v1::Scenario& scenario);
 

@@ -54,7 +54,7 @@ class CommitStore final : public CommittedView {
 
  private:
   std::optional<CommittedCheckpoint> latest_;
-  std::vector<bool> committed_;                      // queue: by message id
+  std::vector<bool> committed_;                       // queue: by message id
   std::map<std::uint32_t, OffsetRanges> partitions_;  // log: by partition
   std::uint64_t distinct_ = 0;
   std::uint64_t duplicates_ = 0;

@@ -29,13 +29,13 @@ namespace weir {
 struct ConnectorFailure {
   enum class Kind {
     kNone,
-    kStartFailed,  // never came up (no handshake, bad address, exec failed)
-    kTimeout,      // did not answer within the wall-clock bound
-    kExited,       // the process ended during or before the call
-    kCallFailed,   // broke the protocol: an answer that does not parse, a bad address…
+    kStartFailed,     // never came up (no handshake, bad address, exec failed)
+    kTimeout,         // did not answer within the wall-clock bound
+    kExited,          // the process ended during or before the call
+    kCallFailed,      // broke the protocol: an answer that does not parse, a bad address…
     kConnectorError,  // answered the call with an error status of its own (code)
-    kCrashed,      // killed by the port because broker.CrashRequested(): a crash point, not a fault
-    kInterrupted,  // weir itself is stopping (a signal): the incarnation was killed
+    kCrashed,         // killed by the port because broker.CrashRequested(): a crash point, not a fault
+    kInterrupted,     // weir itself is stopping (a signal): the incarnation was killed
   };
   Kind kind = Kind::kNone;
   std::string detail;       // what happened, for the report
@@ -56,29 +56,23 @@ class ConnectorPort {
   // REQUIRES: no incarnation is alive (Kill() was called or none started).
   [[nodiscard]] virtual ConnectorFailure Start(std::uint64_t incarnation) = 0;
 
-  [[nodiscard]] virtual ConnectorFailure Open(const v1::OpenRequest& request,
-                                              v1::OpenResponse* response,
+  [[nodiscard]] virtual ConnectorFailure Open(const v1::OpenRequest& request, v1::OpenResponse* response,
                                               BrokerEndpoint& broker) = 0;
-  [[nodiscard]] virtual ConnectorFailure Advance(const v1::AdvanceRequest& request,
-                                                 v1::AdvanceResponse* response,
+  [[nodiscard]] virtual ConnectorFailure Advance(const v1::AdvanceRequest& request, v1::AdvanceResponse* response,
                                                  BrokerEndpoint& broker) = 0;
   [[nodiscard]] virtual ConnectorFailure Checkpoint(const v1::CheckpointRequest& request,
-                                                    v1::CheckpointResponse* response,
-                                                    BrokerEndpoint& broker) = 0;
-  [[nodiscard]] virtual ConnectorFailure Committed(const v1::CommittedRequest& request,
-                                                   v1::CommittedResponse* response,
+                                                    v1::CheckpointResponse* response, BrokerEndpoint& broker) = 0;
+  [[nodiscard]] virtual ConnectorFailure Committed(const v1::CommittedRequest& request, v1::CommittedResponse* response,
                                                    BrokerEndpoint& broker) = 0;
 
   // Many readers (log shape): Assign, Revoke and Cut of the Connector service.
   // A port that cannot carry them answers kCallFailed.
-  [[nodiscard]] virtual ConnectorFailure Assign(const v1::AssignRequest& request,
-                                                v1::AssignResponse* response,
+  [[nodiscard]] virtual ConnectorFailure Assign(const v1::AssignRequest& request, v1::AssignResponse* response,
                                                 BrokerEndpoint& broker);
-  [[nodiscard]] virtual ConnectorFailure Revoke(const v1::RevokeRequest& request,
-                                                v1::RevokeResponse* response,
+  [[nodiscard]] virtual ConnectorFailure Revoke(const v1::RevokeRequest& request, v1::RevokeResponse* response,
                                                 BrokerEndpoint& broker);
-  [[nodiscard]] virtual ConnectorFailure Cut(const v1::CutRequest& request,
-                                             v1::CutResponse* response, BrokerEndpoint& broker);
+  [[nodiscard]] virtual ConnectorFailure Cut(const v1::CutRequest& request, v1::CutResponse* response,
+                                             BrokerEndpoint& broker);
 
   // Ends the live incarnation at once (SIGKILL to its process group, then
   // reaped, for the gRPC edge). Idempotent; safe when none is alive.

@@ -74,8 +74,7 @@ class CrashGate : public BrokerEndpoint {
     Counted(Count::kAnyCall);
     return st;
   }
-  CallStatus ListPartitions(const v1::ListPartitionsRequest& rq,
-                            v1::ListPartitionsResponse* rs) override {
+  CallStatus ListPartitions(const v1::ListPartitionsRequest& rq, v1::ListPartitionsResponse* rs) override {
     if (fired_) return Refused();
     CallStatus st = inner_.ListPartitions(rq, rs);
     Counted(Count::kAnyCall);
@@ -87,15 +86,13 @@ class CrashGate : public BrokerEndpoint {
     Counted(Count::kAnyCall);
     return st;
   }
-  CallStatus SaveBookmarks(const v1::SaveBookmarksRequest& rq,
-                           v1::SaveBookmarksResponse* rs) override {
+  CallStatus SaveBookmarks(const v1::SaveBookmarksRequest& rq, v1::SaveBookmarksResponse* rs) override {
     if (fired_) return Refused();
     CallStatus st = inner_.SaveBookmarks(rq, rs);
     Counted(Count::kAckCalls);
     return st;
   }
-  CallStatus LoadBookmarks(const v1::LoadBookmarksRequest& rq,
-                           v1::LoadBookmarksResponse* rs) override {
+  CallStatus LoadBookmarks(const v1::LoadBookmarksRequest& rq, v1::LoadBookmarksResponse* rs) override {
     if (fired_) return Refused();
     CallStatus st = inner_.LoadBookmarks(rq, rs);
     Counted(Count::kAnyCall);

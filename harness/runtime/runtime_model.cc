@@ -63,14 +63,12 @@ ConnectorFailure ConnectorPort::Cut(const v1::CutRequest&, v1::CutResponse*, Bro
   return NotCarried("Cut");
 }
 
-RuntimeModel::RuntimeModel(const v1::Scenario& scenario, BrokerModel& broker,
-                           BrokerSession& session, ConnectorPort& port, TraceLog& trace,
-                           FaultSource& faults)
+RuntimeModel::RuntimeModel(const v1::Scenario& scenario, BrokerModel& broker, BrokerSession& session,
+                           ConnectorPort& port, TraceLog& trace, FaultSource& faults)
     : RuntimeModel(scenario, broker, session, std::vector<ConnectorPort*>{&port}, trace, faults) {}
 
-RuntimeModel::RuntimeModel(const v1::Scenario& scenario, BrokerModel& broker,
-                           BrokerSession& session, std::vector<ConnectorPort*> ports,
-                           TraceLog& trace, FaultSource& faults)
+RuntimeModel::RuntimeModel(const v1::Scenario& scenario, BrokerModel& broker, BrokerSession& session,
+                           std::vector<ConnectorPort*> ports, TraceLog& trace, FaultSource& faults)
     : scenario_(scenario),
       broker_(broker),
       session_(session),
@@ -107,16 +105,14 @@ void RuntimeModel::TraceFailure(const char* call, const ConnectorFailure& failur
     case ConnectorFailure::Kind::kTimeout: {
       auto* x = e.mutable_call_timed_out();
       x->set_call(call);
-      x->set_bound_wall_ms(std::string_view(call) == "Start"
-                               ? scenario_.runtime().start_timeout_wall_ms()
-                               : scenario_.runtime().call_timeout_wall_ms());
+      x->set_bound_wall_ms(std::string_view(call) == "Start" ? scenario_.runtime().start_timeout_wall_ms()
+                                                             : scenario_.runtime().call_timeout_wall_ms());
       break;
     }
     case ConnectorFailure::Kind::kStartFailed:
     case ConnectorFailure::Kind::kExited: {
       auto* x = e.mutable_exited();
-      x->set_status(failure.exit_status.empty() ? failure.detail
-                                                : failure.detail + " (" + failure.exit_status + ")");
+      x->set_status(failure.exit_status.empty() ? failure.detail : failure.detail + " (" + failure.exit_status + ")");
       x->set_stderr_tail(failure.stderr_tail);
       x->set_call(call);
       break;
@@ -250,13 +246,10 @@ bool RuntimeModel::StartIncarnation(std::uint32_t r) {
     TraceFailure("Open", f);
     return false;
   }
-  const v1::SourceShape reads =
-      response.shape() == v1::SOURCE_SHAPE_UNSPECIFIED ? v1::QUEUE : response.shape();
+  const v1::SourceShape reads = response.shape() == v1::SOURCE_SHAPE_UNSPECIFIED ? v1::QUEUE : response.shape();
   if (reads != broker_.shape()) {
-    TraceProtocolError("Open", std::string("the connector reads a ") +
-                                   (reads == v1::LOG ? "log" : "queue") +
-                                   ", but this scenario's broker is a " +
-                                   (log() ? "log" : "queue"));
+    TraceProtocolError("Open", std::string("the connector reads a ") + (reads == v1::LOG ? "log" : "queue") +
+                                   ", but this scenario's broker is a " + (log() ? "log" : "queue"));
     return false;
   }
   PushStep(now_, r);
@@ -296,8 +289,7 @@ void RuntimeModel::AssignInitialSpans() {
   }
 }
 
-bool RuntimeModel::SendAssign(std::uint32_t r, std::vector<std::pair<std::uint32_t, HeldSpan>> spans,
-                              const char* why) {
+bool RuntimeModel::SendAssign(std::uint32_t r, std::vector<std::pair<std::uint32_t, HeldSpan>> spans, const char* why) {
   if (spans.empty()) return true;
   Select(r);
   v1::AssignRequest request;
@@ -325,8 +317,8 @@ bool RuntimeModel::SendAssign(std::uint32_t r, std::vector<std::pair<std::uint32
   return true;
 }
 
-bool RuntimeModel::SendRevoke(std::uint32_t r, const std::vector<std::uint32_t>& partitions,
-                              const char* why, bool crash_in_revoke) {
+bool RuntimeModel::SendRevoke(std::uint32_t r, const std::vector<std::uint32_t>& partitions, const char* why,
+                              bool crash_in_revoke) {
   if (partitions.empty()) return true;
   Select(r);
   v1::RevokeRequest request;
@@ -367,8 +359,8 @@ bool RuntimeModel::AssignNewPartitions() {
   return true;
 }
 
-std::optional<std::uint32_t> RuntimeModel::PickReceiver(std::uint32_t p, std::uint32_t not_r,
-                                                       std::string_view stream, std::uint64_t k) {
+std::optional<std::uint32_t> RuntimeModel::PickReceiver(std::uint32_t p, std::uint32_t not_r, std::string_view stream,
+                                                        std::uint64_t k) {
   std::vector<std::uint32_t> can;
   for (std::uint32_t r : LiveReaders()) {
     if (r != not_r && !R(r).spans.contains(p)) can.push_back(r);
@@ -392,7 +384,8 @@ bool RuntimeModel::MaybeCut(std::uint32_t r, std::uint64_t k, bool* crashed) {
       if (remaining_end(p, s) > s.emitted_next || !s.end.has_value()) cuttable.push_back(p);
     }
     if (cuttable.empty()) return false;
-    const std::uint32_t p = cuttable[faults_.Int("cut.partition", k, 0, static_cast<std::int64_t>(cuttable.size()) - 1)];
+    const std::uint32_t p =
+        cuttable[faults_.Int("cut.partition", k, 0, static_cast<std::int64_t>(cuttable.size()) - 1)];
     const auto to = PickReceiver(p, r, "cut.to", k);
     if (!to.has_value()) return false;
     auto* c = out->mutable_cut();
@@ -416,8 +409,9 @@ bool RuntimeModel::MaybeCut(std::uint32_t r, std::uint64_t k, bool* crashed) {
   const HeldSpan held = it->second;
   const std::uint64_t from = held.emitted_next;
   const std::uint64_t end = remaining_end(p, held);
-  const std::uint64_t at = from + static_cast<std::uint64_t>(
-                                      (static_cast<unsigned __int128>(end > from ? end - from : 0) * cut.at_ppm()) / 1000000);
+  const std::uint64_t at =
+      from + static_cast<std::uint64_t>((static_cast<unsigned __int128>(end > from ? end - from : 0) * cut.at_ppm()) /
+                                        1000000);
   Select(r);
   v1::CutRequest request;
   request.set_partition(p);
@@ -445,8 +439,8 @@ bool RuntimeModel::MaybeCut(std::uint32_t r, std::uint64_t k, bool* crashed) {
     bad = held.end.has_value() ? "gives an open tail of a closed span" : "gives a closed tail of an open span";
   }
   if (!bad.empty()) {
-    TraceProtocolError("Cut", "the answer to a cut of partition " + std::to_string(p) + " " + bad +
-                                  "; nothing changes hands");
+    TraceProtocolError("Cut",
+                       "the answer to a cut of partition " + std::to_string(p) + " " + bad + "; nothing changes hands");
     return true;
   }
   {
@@ -511,9 +505,9 @@ bool RuntimeModel::MaybeRebalance(std::uint64_t id) {
     if (d.has_value()) {
       const v1::Move& m = d->move();
       const std::uint32_t p = m.partition();
-      if (m.from_reader() < readers_.size() && m.to_reader() < readers_.size() &&
-          m.from_reader() != m.to_reader() && R(m.from_reader()).live && R(m.to_reader()).live &&
-          R(m.from_reader()).spans.contains(p) && !R(m.to_reader()).spans.contains(p)) {
+      if (m.from_reader() < readers_.size() && m.to_reader() < readers_.size() && m.from_reader() != m.to_reader() &&
+          R(m.from_reader()).live && R(m.to_reader()).live && R(m.from_reader()).spans.contains(p) &&
+          !R(m.to_reader()).spans.contains(p)) {
         const HeldSpan span = R(m.from_reader()).spans.at(p);
         ++moves_;
         if (!SendRevoke(m.from_reader(), {p}, "move", m.crash_in_revoke())) return false;
@@ -614,14 +608,13 @@ bool RuntimeModel::DoStep(std::uint32_t r) {
   Select(r);
   Reader& reader = R(r);
   std::optional<v1::Crash> crash;
-  if (auto d = faults_.Decide(v1::STEP, k, v1::FaultDecision::kCrash, now_,
-                              [&](v1::FaultDecision* out) {
-                                if (!faults_.Chance("crash", k, faults_.config().crash_rate())) {
-                                  return false;
-                                }
-                                out->mutable_crash()->set_point(v1::BEFORE_STEP);
-                                return true;
-                              })) {
+  if (auto d = faults_.Decide(v1::STEP, k, v1::FaultDecision::kCrash, now_, [&](v1::FaultDecision* out) {
+        if (!faults_.Chance("crash", k, faults_.config().crash_rate())) {
+          return false;
+        }
+        out->mutable_crash()->set_point(v1::BEFORE_STEP);
+        return true;
+      })) {
     crash = d->crash();
   }
   if (crash.has_value() && crash->point() == v1::BEFORE_STEP) {
@@ -655,8 +648,7 @@ bool RuntimeModel::DoStep(std::uint32_t r) {
     if (gap.from_offset() >= gap.to_offset() || !broker_.Identify(last, &why).has_value()) {
       TraceProtocolError("Advance", "gap [" + std::to_string(gap.from_offset()) + ", " +
                                         std::to_string(gap.to_offset()) + ") of partition " +
-                                        std::to_string(gap.partition()) +
-                                        " is empty or names offsets never appended");
+                                        std::to_string(gap.partition()) + " is empty or names offsets never appended");
       continue;
     }
     auto& e = trace_.Append(now_);
@@ -699,8 +691,8 @@ bool RuntimeModel::DoStep(std::uint32_t r) {
   if (response.next_case() == v1::AdvanceResponse::kResumeAtNs) {
     resume_at = response.resume_at_ns();
     if (resume_at < asked_at) {
-      TraceProtocolError("Advance", "resume_at " + FormatTime(resume_at) +
-                                        " is before the step's now " + FormatTime(asked_at));
+      TraceProtocolError("Advance",
+                         "resume_at " + FormatTime(resume_at) + " is before the step's now " + FormatTime(asked_at));
     }
     resume_at = std::max(resume_at, now_);
   } else if (response.next_case() == v1::AdvanceResponse::kFinished) {
@@ -749,7 +741,8 @@ bool RuntimeModel::DoStep(std::uint32_t r) {
 bool RuntimeModel::Livelocked(Reader& reader) {
   const auto& rp = scenario_.runtime();
   const std::uint64_t max_steps = rp.max_same_time_steps() > 0 ? rp.max_same_time_steps() : kDefaultMaxSameTimeSteps;
-  const std::int64_t max_wall_ms = rp.max_same_time_wall_ms() > 0 ? rp.max_same_time_wall_ms() : kDefaultMaxSameTimeWallMs;
+  const std::int64_t max_wall_ms =
+      rp.max_same_time_wall_ms() > 0 ? rp.max_same_time_wall_ms() : kDefaultMaxSameTimeWallMs;
   const std::int64_t wall_now = wall_clock_ms_ ? wall_clock_ms_() : 0;
   if (++reader.same_time_steps == 1) reader.same_time_since_wall_ms = wall_now;
   const std::int64_t wall_ms = wall_now - reader.same_time_since_wall_ms;
@@ -772,8 +765,7 @@ void RuntimeModel::ScheduleCheckpointTimer() {
   ++checkpoint_timer_generation_;
   const VirtualDuration interval = Millis(scenario_.runtime().checkpoint_interval_ms());
   if (interval > 0) {
-    queue_.Push(SaturatingAdd(now_, interval),
-                Event{EventKind::kCheckpointDue, checkpoint_timer_generation_});
+    queue_.Push(SaturatingAdd(now_, interval), Event{EventKind::kCheckpointDue, checkpoint_timer_generation_});
   }
 }
 
@@ -819,38 +811,36 @@ bool RuntimeModel::DoCheckpointCycle() {
   // Crash points of this checkpoint: one drawn out of the three, by its own
   // streams so that turning commit failures on or off does not move them.
   std::optional<v1::Crash> crash;
-  if (auto d = faults_.Decide(
-          v1::CHECKPOINT, id, v1::FaultDecision::kCrash, now_, [&](v1::FaultDecision* out) {
-            if (!faults_.Chance("checkpoint_crash", id, faults_.config().checkpoint_crash_rate())) {
-              return false;
-            }
-            // The notice acknowledges with acks (queue) or bookmark saves (log).
-            const v1::CrashPoint kPoints[] = {v1::AFTER_CHECKPOINT_BEFORE_COMMIT,
-                                              v1::AFTER_COMMIT_BEFORE_NOTICE,
-                                              log() ? v1::IN_NOTICE_AFTER_BOOKMARK_SAVE
-                                                    : v1::IN_NOTICE_AFTER_ACK};
-            auto* c = out->mutable_crash();
-            c->set_point(kPoints[faults_.Int("checkpoint_crash.point", id, 0, 2)]);
-            if (c->point() == kPoints[2]) c->set_after_calls(1);
-            if (many()) {
-              c->set_reader(live[faults_.Int("checkpoint_crash.reader", id, 0,
-                                             static_cast<std::int64_t>(live.size()) - 1)]);
-            }
-            return true;
-          })) {
+  if (auto d = faults_.Decide(v1::CHECKPOINT, id, v1::FaultDecision::kCrash, now_, [&](v1::FaultDecision* out) {
+        if (!faults_.Chance("checkpoint_crash", id, faults_.config().checkpoint_crash_rate())) {
+          return false;
+        }
+        // The notice acknowledges with acks (queue) or bookmark saves (log).
+        const v1::CrashPoint kPoints[] = {v1::AFTER_CHECKPOINT_BEFORE_COMMIT, v1::AFTER_COMMIT_BEFORE_NOTICE,
+                                          log() ? v1::IN_NOTICE_AFTER_BOOKMARK_SAVE : v1::IN_NOTICE_AFTER_ACK};
+        auto* c = out->mutable_crash();
+        c->set_point(kPoints[faults_.Int("checkpoint_crash.point", id, 0, 2)]);
+        if (c->point() == kPoints[2]) c->set_after_calls(1);
+        if (many()) {
+          c->set_reader(
+              live[faults_.Int("checkpoint_crash.reader", id, 0, static_cast<std::int64_t>(live.size()) - 1)]);
+        }
+        return true;
+      })) {
     crash = d->crash();
   }
   const auto crash_at = [&](v1::CrashPoint p) { return crash.has_value() && crash->point() == p; };
-  const std::uint32_t crash_reader =
-      crash.has_value() && crash->reader() < readers_.size() && R(crash->reader()).live ? crash->reader() : live.front();
+  const std::uint32_t crash_reader = crash.has_value() && crash->reader() < readers_.size() && R(crash->reader()).live
+                                         ? crash->reader()
+                                         : live.front();
   // The taken checkpoint is dropped with every reader's epoch: it never
   // reaches the store, and every reader restarts from the last committed one.
   if (crash_at(v1::AFTER_CHECKPOINT_BEFORE_COMMIT)) {
     return CrashAndRestartAll(CrashPointName(v1::AFTER_CHECKPOINT_BEFORE_COMMIT));
   }
 
-  const auto failure = faults_.Decide(
-      v1::CHECKPOINT, id, v1::FaultDecision::kCommitFailure, now_, [&](v1::FaultDecision* out) {
+  const auto failure =
+      faults_.Decide(v1::CHECKPOINT, id, v1::FaultDecision::kCommitFailure, now_, [&](v1::FaultDecision* out) {
         if (!faults_.Chance("commit_failure", id, faults_.config().commit_failure_rate())) {
           return false;
         }
@@ -871,8 +861,7 @@ bool RuntimeModel::DoCheckpointCycle() {
   for (const TakenPart& part : taken) all.insert(all.end(), part.epoch.begin(), part.epoch.end());
   store_.Commit(CommittedCheckpoint{id, taken.size() == 1 ? taken.front().part.state : std::string(),
                                     taken.size() == 1 ? taken.front().part.watermark : std::nullopt,
-                                    taken.size() == 1 ? taken.front().part.resume_points
-                                                      : std::vector<ResumePoint>{}},
+                                    taken.size() == 1 ? taken.front().part.resume_points : std::vector<ResumePoint>{}},
                 all);
   for (TakenPart& part : taken) {
     Reader& reader = R(part.reader);
@@ -903,8 +892,8 @@ bool RuntimeModel::DoCheckpointCycle() {
       e.mutable_commit_notice()->set_checkpoint_id(id);
       trace_.Commit();
     }
-    const bool notice_crash = r == crash_reader && (crash_at(v1::IN_NOTICE_AFTER_ACK) ||
-                                                    crash_at(v1::IN_NOTICE_AFTER_BOOKMARK_SAVE));
+    const bool notice_crash =
+        r == crash_reader && (crash_at(v1::IN_NOTICE_AFTER_ACK) || crash_at(v1::IN_NOTICE_AFTER_BOOKMARK_SAVE));
     if (notice_crash) gate_.Arm(CrashGate::Count::kAckCalls, crash->after_calls());
     v1::CommittedRequest notice;
     notice.set_checkpoint_id(id);
@@ -995,8 +984,7 @@ RunSummary RuntimeModel::Run() {
     }
   }
   if (!ok && crash_loop_) {
-    reason = "crash loop: " + std::to_string(kMaxCrashesWithoutStep) +
-             " crashes without a completed step";
+    reason = "crash loop: " + std::to_string(kMaxCrashesWithoutStep) + " crashes without a completed step";
   } else if (!ok) {
     reason = "connector failed";
     summary.connector_failed = true;

@@ -117,8 +117,8 @@ struct RunSummary {
 class RuntimeModel {
  public:
   // REQUIRES: every argument outlives the model; scenario is validated.
-  RuntimeModel(const v1::Scenario& scenario, BrokerModel& broker, BrokerSession& session,
-               ConnectorPort& port, TraceLog& trace, FaultSource& faults);
+  RuntimeModel(const v1::Scenario& scenario, BrokerModel& broker, BrokerSession& session, ConnectorPort& port,
+               TraceLog& trace, FaultSource& faults);
   // Many readers: one port per reader slot (scenario.readers.count of them).
   RuntimeModel(const v1::Scenario& scenario, BrokerModel& broker, BrokerSession& session,
                std::vector<ConnectorPort*> ports, TraceLog& trace, FaultSource& faults);
@@ -165,7 +165,7 @@ class RuntimeModel {
     std::optional<VirtualTime> watermark;      // last reported in this incarnation
     std::vector<RecordKey> open_epoch;         // keys of records not yet checkpointed
     std::optional<CommittedPart> committed;
-    std::map<std::uint32_t, HeldSpan> spans;   // log shape, many readers
+    std::map<std::uint32_t, HeldSpan> spans;  // log shape, many readers
   };
   // A taken, not yet committed checkpoint's part from one reader.
   struct TakenPart {
@@ -194,16 +194,14 @@ class RuntimeModel {
   // Many readers, log shape: the span table's moves, each traced and sent.
   void AssignInitialSpans();
   bool AssignNewPartitions();
-  bool SendAssign(std::uint32_t r, std::vector<std::pair<std::uint32_t, HeldSpan>> spans,
-                  const char* why);
-  bool SendRevoke(std::uint32_t r, const std::vector<std::uint32_t>& partitions, const char* why,
-                  bool crash_in_revoke);
+  bool SendAssign(std::uint32_t r, std::vector<std::pair<std::uint32_t, HeldSpan>> spans, const char* why);
+  bool SendRevoke(std::uint32_t r, const std::vector<std::uint32_t>& partitions, const char* why, bool crash_in_revoke);
   bool MaybeCut(std::uint32_t r, std::uint64_t k, bool* crashed);
   bool MaybeRebalance(std::uint64_t id);
   // A live reader other than `not_r` that holds no span of partition p, the
   // seeded pick among them (nullopt when none).
-  std::optional<std::uint32_t> PickReceiver(std::uint32_t p, std::uint32_t not_r,
-                                            std::string_view stream, std::uint64_t k);
+  std::optional<std::uint32_t> PickReceiver(std::uint32_t p, std::uint32_t not_r, std::string_view stream,
+                                            std::uint64_t k);
   std::vector<std::uint32_t> LiveReaders() const;
   void PushStep(VirtualTime t, std::uint32_t r);
 

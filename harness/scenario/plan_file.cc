@@ -16,21 +16,21 @@ void Validate(TextFile& f, const v1::FaultPlan& plan) {
     const std::string at = absl::StrCat("decisions[", i, "]");
     const std::string name = absl::StrCat("decisions #", i + 1);
     f.Require(d.site() != v1::SITE_UNSPECIFIED, {at, "site"},
-              name + ": expected a site (PULL, ACK, NACK, EXTEND_LEASE, PUBLISH, STEP, CHECKPOINT, "
-                     "or a log site: LIST_PARTITIONS, READ, SAVE_BOOKMARKS, LOAD_BOOKMARKS, APPEND)");
+              name +
+                  ": expected a site (PULL, ACK, NACK, EXTEND_LEASE, PUBLISH, STEP, CHECKPOINT, "
+                  "or a log site: LIST_PARTITIONS, READ, SAVE_BOOKMARKS, LOAD_BOOKMARKS, APPEND)");
     f.Require(d.position() >= 1, {at, "position"},
               name + ": expected a position of at least 1 (positions count from 1)");
     f.Require(d.fault_case() != v1::FaultDecision::FAULT_NOT_SET, {at},
-              name + ": expected one fault (latency_ms, throttle_retry_after_ms, transient, duplicate, "
-                     "lost_ack, visibility_delay_ms, reorder, broker_restart, commit_failure, crash, "
-                     "partition_outage_ms, empty_read, lost_bookmark)");
+              name +
+                  ": expected one fault (latency_ms, throttle_retry_after_ms, transient, duplicate, "
+                  "lost_ack, visibility_delay_ms, reorder, broker_restart, commit_failure, crash, "
+                  "partition_outage_ms, empty_read, lost_bookmark)");
     f.Require(d.latency_ms() >= 0, {at, "latency_ms"}, name + ": latency_ms must be >= 0");
     f.Require(d.throttle_retry_after_ms() >= 0, {at, "throttle_retry_after_ms"},
               name + ": throttle_retry_after_ms must be >= 0");
-    f.Require(d.visibility_delay_ms() >= 0, {at, "visibility_delay_ms"},
-              name + ": visibility_delay_ms must be >= 0");
-    f.Require(d.partition_outage_ms() >= 0, {at, "partition_outage_ms"},
-              name + ": partition_outage_ms must be >= 0");
+    f.Require(d.visibility_delay_ms() >= 0, {at, "visibility_delay_ms"}, name + ": visibility_delay_ms must be >= 0");
+    f.Require(d.partition_outage_ms() >= 0, {at, "partition_outage_ms"}, name + ": partition_outage_ms must be >= 0");
     if (d.has_transient()) {
       f.Require(d.transient().code() != v1::TRANSIENT_CODE_UNSPECIFIED, {at, "transient"},
                 name + ": expected transient { code: UNAVAILABLE } or DEADLINE_EXCEEDED");

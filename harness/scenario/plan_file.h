@@ -14,8 +14,7 @@
 namespace weir {
 
 [[nodiscard]] absl::StatusOr<v1::FaultPlan> LoadFaultPlan(const std::string& path);
-[[nodiscard]] absl::StatusOr<v1::FaultPlan> ParseFaultPlan(const std::string& path,
-                                                           std::string_view text);
+[[nodiscard]] absl::StatusOr<v1::FaultPlan> ParseFaultPlan(const std::string& path, std::string_view text);
 
 // The plan as text a person can edit, opening with a comment that says where it
 // came from. Decisions keep their order.

@@ -21,18 +21,17 @@ void ValidateProfile(TextFile& f, const v1::Profile& p, bool in_scenario) {
   };
   auto millis = [&](std::string_view field, std::int64_t value) {
     require(value >= 0 && value <= kMaxMillis, field,
-            absl::StrCat(std::string(field), " is ", value, "; expected 0 ..", std::int64_t{kMaxMillis}, " (milliseconds)"));
+            absl::StrCat(std::string(field), " is ", value, "; expected 0 ..", std::int64_t{kMaxMillis},
+                         " (milliseconds)"));
   };
   millis("min_backoff_ms", p.min_backoff_ms());
   millis("allowed_lateness_ms", p.allowed_lateness_ms());
   millis("idle_timeout_ms", p.idle_timeout_ms());
   if (p.has_idle_max_lag_ms()) millis("idle_max_lag_ms", p.idle_max_lag_ms());
   millis("max_watermark_lead_ms", p.max_watermark_lead_ms());
-  const bool claims = p.watermark_policy() == v1::Profile::MONOTONIC ||
-                      p.watermark_policy() == v1::Profile::BOUNDED_LATENESS;
-  require(p.allowed_lateness_ms() == 0 ||
-              p.watermark_policy() == v1::Profile::BOUNDED_LATENESS,
-          "allowed_lateness_ms",
+  const bool claims =
+      p.watermark_policy() == v1::Profile::MONOTONIC || p.watermark_policy() == v1::Profile::BOUNDED_LATENESS;
+  require(p.allowed_lateness_ms() == 0 || p.watermark_policy() == v1::Profile::BOUNDED_LATENESS, "allowed_lateness_ms",
           "allowed_lateness_ms is set; expected watermark_policy: BOUNDED_LATENESS with it");
   require(p.idle_timeout_ms() == 0 || claims, "idle_timeout_ms",
           "idle_timeout_ms is set; expected watermark_policy: MONOTONIC or BOUNDED_LATENESS "

@@ -25,8 +25,7 @@ namespace weir {
 
 [[nodiscard]] absl::StatusOr<v1::Profile> LoadProfile(const std::string& path);
 // Same, from text in memory; `path` is used in messages only.
-[[nodiscard]] absl::StatusOr<v1::Profile> ParseProfile(const std::string& path,
-                                                       std::string_view text);
+[[nodiscard]] absl::StatusOr<v1::Profile> ParseProfile(const std::string& path, std::string_view text);
 
 // Records in `f` every rule the profile breaks. `in_scenario`: the profile is
 // the scenario's `profile` field (errors are located inside it).

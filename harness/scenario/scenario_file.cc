@@ -18,8 +18,7 @@ constexpr std::uint32_t kMaxReaders = 16;
 // One year of virtual time: larger durations are surely typos.
 constexpr std::int64_t kMaxMillis = 365LL * 24 * 3600 * 1000;
 
-void CheckMillis(TextFile& f, std::int64_t value, const char* message_field,
-                 const char* field, bool positive) {
+void CheckMillis(TextFile& f, std::int64_t value, const char* message_field, const char* field, bool positive) {
   const std::string name = absl::StrCat(message_field, ".", field);
   if (positive) {
     f.Require(value >= 1 && value <= kMaxMillis, {message_field, field},
@@ -42,14 +41,12 @@ void ValidateLog(TextFile& f, const v1::LogConfig& l) {
   for (int i = 0; i < l.growth_size(); ++i) {
     const auto& g = l.growth(i);
     const std::string at = absl::StrCat("growth[", i, "]");
-    f.Require(g.count() >= 1, {"log", at},
-              absl::StrCat("log.", at, ".count is ", g.count(), "; expected at least 1"));
+    f.Require(g.count() >= 1, {"log", at}, absl::StrCat("log.", at, ".count is ", g.count(), "; expected at least 1"));
     CheckMillis(f, g.at_ms(), "log", "growth", false);
     total += g.count();
   }
   f.Require(total <= kMaxPartitions, {"log", "growth"},
-            absl::StrCat("log has ", total, " partitions after growth; expected at most ",
-                         kMaxPartitions));
+            absl::StrCat("log has ", total, " partitions after growth; expected at most ", kMaxPartitions));
   std::uint64_t idle = 0;
   for (int i = 0; i < l.idle_partitions_size(); ++i) {
     const std::uint32_t p = l.idle_partitions(i);
@@ -71,8 +68,7 @@ void ValidateReaders(TextFile& f, const v1::Scenario& s) {
   f.Require(r.count() >= 1 && r.count() <= kMaxReaders, {"readers", "count"},
             absl::StrCat("readers.count is ", r.count(), "; expected 1 ..", kMaxReaders));
   f.Require(r.initial() <= r.count(), {"readers", "initial"},
-            absl::StrCat("readers.initial is ", r.initial(), "; expected 0 (all) .. readers.count (",
-                         r.count(), ")"));
+            absl::StrCat("readers.initial is ", r.initial(), "; expected 0 (all) .. readers.count (", r.count(), ")"));
   const std::pair<double, const char*> rates[] = {{r.cut_rate(), "cut_rate"},
                                                   {r.move_rate(), "move_rate"},
                                                   {r.membership_rate(), "membership_rate"},

@@ -18,8 +18,7 @@ namespace weir {
 
 [[nodiscard]] absl::StatusOr<v1::Scenario> LoadScenario(const std::string& path);
 // Same, from text in memory; `path` is used in messages only.
-[[nodiscard]] absl::StatusOr<v1::Scenario> ParseScenario(const std::string& path,
-                                                         std::string_view text);
+[[nodiscard]] absl::StatusOr<v1::Scenario> ParseScenario(const std::string& path, std::string_view text);
 
 // `scenario` as a scenario file that LoadScenario reads back as the same
 // scenario: `comment` (each line after "# "), then the Protobuf text format.

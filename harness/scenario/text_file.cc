@@ -23,9 +23,7 @@ class Collector : public google::protobuf::io::ErrorCollector {
   void AddError(int line, int column, const std::string& message) override {
     errors.push_back(absl::StrCat(path_, ":", line + 1, ":", column + 1, ": ", message));
   }
-  void AddWarning(int line, int column, const std::string& message) override {
-    AddError(line, column, message);
-  }
+  void AddWarning(int line, int column, const std::string& message) override { AddError(line, column, message); }
   std::vector<std::string> errors;
 
  private:
@@ -48,8 +46,8 @@ absl::Status ReadWholeFile(const std::string& path, std::string* out, std::size_
   const std::streamoff size = in.tellg();
   if (size < 0) return absl::InvalidArgumentError(absl::StrCat(path, ": not a regular file"));
   if (static_cast<std::size_t>(size) > max_bytes) {
-    return absl::InvalidArgumentError(absl::StrCat(path, ":1:1: file is ", size,
-                                                   " bytes; expected at most ", max_bytes));
+    return absl::InvalidArgumentError(
+        absl::StrCat(path, ":1:1: file is ", size, " bytes; expected at most ", max_bytes));
   }
   in.seekg(0);
   out->assign(static_cast<std::size_t>(size), '\0');
@@ -134,8 +132,7 @@ std::string TextFile::Locate(std::initializer_list<std::string_view> field_path)
   return absl::StrCat(path_, ":", line + 1, ":", column + 1);
 }
 
-void TextFile::Require(bool ok, std::initializer_list<std::string_view> field_path,
-                       const std::string& message) {
+void TextFile::Require(bool ok, std::initializer_list<std::string_view> field_path, const std::string& message) {
   if (ok) return;
   errors_.push_back(absl::StrCat(Locate(field_path), ": ", message));
 }

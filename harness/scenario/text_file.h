@@ -30,8 +30,7 @@
 namespace weir {
 
 // Reads a whole file, at most max_bytes. Errors name the file and the cause.
-[[nodiscard]] absl::Status ReadWholeFile(const std::string& path, std::string* out,
-                                         std::size_t max_bytes = 16u << 20);
+[[nodiscard]] absl::Status ReadWholeFile(const std::string& path, std::string* out, std::size_t max_bytes = 16u << 20);
 
 // Writes "<path>.partial" and renames it into place, so a failed write leaves
 // neither a partial file nor a damaged old one. Errors name the path.
@@ -46,8 +45,7 @@ using TextOut = absl::FunctionRef<void(std::string_view)>;
 // byte reached the file; otherwise it is removed and an old `path` is left as
 // it was. Error: write's own status (its message after "path: "), or
 // Unavailable("path: cannot write: …").
-[[nodiscard]] absl::Status WriteFileAtomically(const std::string& path,
-                                               absl::FunctionRef<absl::Status(TextOut)> write);
+[[nodiscard]] absl::Status WriteFileAtomically(const std::string& path, absl::FunctionRef<absl::Status(TextOut)> write);
 
 class TextFile {
  public:
@@ -63,8 +61,7 @@ class TextFile {
   // field names from the root; a trailing element may be "name[i]" for a
   // repeated field) unless `ok`. Falls back to the nearest located parent, or
   // 1:1 for a field the file does not set.
-  void Require(bool ok, std::initializer_list<std::string_view> field_path,
-               const std::string& message);
+  void Require(bool ok, std::initializer_list<std::string_view> field_path, const std::string& message);
 
   // OK, or InvalidArgument listing every recorded error, one per line.
   [[nodiscard]] absl::Status status() const;

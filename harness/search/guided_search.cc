@@ -162,8 +162,8 @@ class Search {
         if (size == 0) break;
         auto* d = ds->Mutable(static_cast<int>(Below(static_cast<std::uint64_t>(size))));
         const std::int64_t delta = static_cast<std::int64_t>(1 + Below(3)) * (Coin(0.5) ? 1 : -1);
-        d->set_position(static_cast<std::uint64_t>(
-            std::max<std::int64_t>(1, static_cast<std::int64_t>(d->position()) + delta)));
+        d->set_position(
+            static_cast<std::uint64_t>(std::max<std::int64_t>(1, static_cast<std::int64_t>(d->position()) + delta)));
         return;
       }
       case 2: {  // splice: a decision of another run of the same scenario
@@ -173,7 +173,8 @@ class Search {
         }
         if (same.empty()) break;
         const Entry* other = same[Below(same.size())];
-        *ds->Add() = other->plan.decisions(static_cast<int>(Below(static_cast<std::uint64_t>(other->plan.decisions_size()))));
+        *ds->Add() =
+            other->plan.decisions(static_cast<int>(Below(static_cast<std::uint64_t>(other->plan.decisions_size()))));
         return;
       }
       case 3: {  // copy one to another position
@@ -215,7 +216,8 @@ class Search {
     }
     if (any.empty()) return;
     const Entry* other = any[Below(any.size())];
-    *ds->Add() = other->plan.decisions(static_cast<int>(Below(static_cast<std::uint64_t>(other->plan.decisions_size()))));
+    *ds->Add() =
+        other->plan.decisions(static_cast<int>(Below(static_cast<std::uint64_t>(other->plan.decisions_size()))));
   }
 
   const SearchOptions& options_;
@@ -256,7 +258,8 @@ std::vector<std::string> FeaturesOf(const Verdict& verdict) {
   for (const auto& [fault, n] : verdict.faults_applied) faults.push_back(fault);
   for (std::size_t a = 0; a < faults.size(); ++a) {
     out.push_back("fault " + faults[a]);
-    for (std::size_t b = a + 1; b < faults.size(); ++b) out.push_back(absl::StrCat("pair ", faults[a], " + ", faults[b]));
+    for (std::size_t b = a + 1; b < faults.size(); ++b)
+      out.push_back(absl::StrCat("pair ", faults[a], " + ", faults[b]));
   }
   return out;
 }
@@ -268,7 +271,7 @@ std::vector<std::string> RatesOn(const v1::FaultConfig& config) {
   for (int i = 0; i < d->field_count(); ++i) {
     const FieldDescriptor* f = d->field(i);
     if (!Switchable(f)) continue;
-    const bool on = f->is_repeated() ? r->FieldSize(config, f) > 0
+    const bool on = f->is_repeated()                                    ? r->FieldSize(config, f) > 0
                     : f->cpp_type() == FieldDescriptor::CPPTYPE_MESSAGE ? r->HasField(config, f)
                                                                         : r->GetDouble(config, f) > 0;
     if (on) out.push_back(f->name());

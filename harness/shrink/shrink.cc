@@ -45,9 +45,7 @@ std::optional<v1::Crash> LaterCrash(const v1::Crash& c) {
       next.set_point(v1::IN_STEP_AFTER_BROKER_CALL);
       next.set_after_calls(1);
       return next;
-    case v1::AFTER_CHECKPOINT_BEFORE_COMMIT:
-      next.set_point(v1::AFTER_COMMIT_BEFORE_NOTICE);
-      return next;
+    case v1::AFTER_CHECKPOINT_BEFORE_COMMIT: next.set_point(v1::AFTER_COMMIT_BEFORE_NOTICE); return next;
     case v1::AFTER_COMMIT_BEFORE_NOTICE:
       next.set_point(v1::IN_NOTICE_AFTER_ACK);
       next.set_after_calls(1);
@@ -59,8 +57,7 @@ std::optional<v1::Crash> LaterCrash(const v1::Crash& c) {
       next.set_point(c.point());
       next.set_after_calls(calls + 1);
       return next;
-    default:
-      return std::nullopt;
+    default: return std::nullopt;
   }
 }
 
@@ -85,8 +82,7 @@ class Search {
     const std::string key = Key(d);
     if (auto it = memo_.find(key); it != memo_.end()) return &it->second;
     if (stopped()) return nullptr;
-    if ((options_.max_reruns > 0 && reruns_ >= options_.max_reruns) ||
-        (options_.stop && options_.stop())) {
+    if ((options_.max_reruns > 0 && reruns_ >= options_.max_reruns) || (options_.stop && options_.stop())) {
       budget_reached_ = true;
       return nullptr;
     }
@@ -228,35 +224,22 @@ class Search {
     progress_.phase = ShrinkProgress::Phase::kWeakening;
     static constexpr Field kLatency{[](const v1::FaultDecision& d) { return d.latency_ms(); },
                                     [](v1::FaultDecision* d, std::int64_t v) { d->set_latency_ms(v); }, 1};
-    static constexpr Field kRetryAfter{
-        [](const v1::FaultDecision& d) { return d.throttle_retry_after_ms(); },
-        [](v1::FaultDecision* d, std::int64_t v) { d->set_throttle_retry_after_ms(v); }, 0};
-    static constexpr Field kVisibility{
-        [](const v1::FaultDecision& d) { return d.visibility_delay_ms(); },
-        [](v1::FaultDecision* d, std::int64_t v) { d->set_visibility_delay_ms(v); }, 1};
-    static constexpr Field kOutage{
-        [](const v1::FaultDecision& d) { return d.partition_outage_ms(); },
-        [](v1::FaultDecision* d, std::int64_t v) { d->set_partition_outage_ms(v); }, 1};
+    static constexpr Field kRetryAfter{[](const v1::FaultDecision& d) { return d.throttle_retry_after_ms(); },
+                                       [](v1::FaultDecision* d, std::int64_t v) { d->set_throttle_retry_after_ms(v); },
+                                       0};
+    static constexpr Field kVisibility{[](const v1::FaultDecision& d) { return d.visibility_delay_ms(); },
+                                       [](v1::FaultDecision* d, std::int64_t v) { d->set_visibility_delay_ms(v); }, 1};
+    static constexpr Field kOutage{[](const v1::FaultDecision& d) { return d.partition_outage_ms(); },
+                                   [](v1::FaultDecision* d, std::int64_t v) { d->set_partition_outage_ms(v); }, 1};
     bool changed = false;
     for (std::size_t i = 0; i < c->size() && !stopped(); ++i) {
       switch ((*c)[i].fault_case()) {
-        case v1::FaultDecision::kLatencyMs:
-          changed |= Shorten(c, i, kLatency);
-          break;
-        case v1::FaultDecision::kPartitionOutageMs:
-          changed |= Shorten(c, i, kOutage);
-          break;
-        case v1::FaultDecision::kThrottleRetryAfterMs:
-          changed |= Shorten(c, i, kRetryAfter);
-          break;
-        case v1::FaultDecision::kVisibilityDelayMs:
-          changed |= Shorten(c, i, kVisibility);
-          break;
-        case v1::FaultDecision::kCrash:
-          changed |= PostponeCrash(c, i);
-          break;
-        default:
-          break;
+        case v1::FaultDecision::kLatencyMs: changed |= Shorten(c, i, kLatency); break;
+        case v1::FaultDecision::kPartitionOutageMs: changed |= Shorten(c, i, kOutage); break;
+        case v1::FaultDecision::kThrottleRetryAfterMs: changed |= Shorten(c, i, kRetryAfter); break;
+        case v1::FaultDecision::kVisibilityDelayMs: changed |= Shorten(c, i, kVisibility); break;
+        case v1::FaultDecision::kCrash: changed |= PostponeCrash(c, i); break;
+        default: break;
       }
     }
     return changed;
@@ -268,8 +251,7 @@ class Search {
     std::size_t start = 0;
     for (std::size_t k = 0; k < n; ++k) {
       const std::size_t end = start + (c.size() - start) / (n - k);
-      parts.emplace_back(c.begin() + static_cast<std::ptrdiff_t>(start),
-                         c.begin() + static_cast<std::ptrdiff_t>(end));
+      parts.emplace_back(c.begin() + static_cast<std::ptrdiff_t>(start), c.begin() + static_cast<std::ptrdiff_t>(end));
       start = end;
     }
     return parts;

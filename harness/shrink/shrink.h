@@ -67,7 +67,7 @@ using Rerun = std::function<absl::StatusOr<RerunResult>(const v1::FaultPlan& pla
 struct ShrinkProgress {
   enum class Phase { kReproducing, kRemoving, kWeakening };
   Phase phase = Phase::kReproducing;
-  std::uint64_t reruns = 0;           // counted reruns so far
+  std::uint64_t reruns = 0;  // counted reruns so far
   std::size_t original_decisions = 0;
   std::size_t current_decisions = 0;  // of the smallest failing plan so far
 };
@@ -92,22 +92,20 @@ struct ShrinkResult {
   ShrinkOutcome outcome = ShrinkOutcome::kShrunk;
   std::string nondeterminism;  // kNondeterministic: what differed, in one sentence
 
-  v1::FaultPlan minimal;    // kShrunk: the smallest failing plan found
-  RerunResult original_run; // the rerun of the unchanged plan
-  RerunResult minimal_run;  // the run of `minimal`
-  std::uint64_t reruns = 0;          // counted reruns, the reproduction included
-  std::uint64_t removal_steps = 0;   // accepted reductions
-  std::uint64_t weakening_steps = 0; // accepted weakenings
-  bool one_minimal = false;  // every single removal was tried and held the target
-  bool budget_reached = false;  // stopped by max_reruns or stop()
+  v1::FaultPlan minimal;              // kShrunk: the smallest failing plan found
+  RerunResult original_run;           // the rerun of the unchanged plan
+  RerunResult minimal_run;            // the run of `minimal`
+  std::uint64_t reruns = 0;           // counted reruns, the reproduction included
+  std::uint64_t removal_steps = 0;    // accepted reductions
+  std::uint64_t weakening_steps = 0;  // accepted weakenings
+  bool one_minimal = false;           // every single removal was tried and held the target
+  bool budget_reached = false;        // stopped by max_reruns or stop()
 };
 
 // Shrinks `original` for options.target. `original_digest`, when not empty, is
 // the digest of the run that produced the plan; a reproduction with another
 // digest is nondeterminism. Errors: the first harness fault of a rerun.
-[[nodiscard]] absl::StatusOr<ShrinkResult> ShrinkPlan(const v1::FaultPlan& original,
-                                                      const std::string& original_digest,
-                                                      const Rerun& rerun,
-                                                      const ShrinkOptions& options);
+[[nodiscard]] absl::StatusOr<ShrinkResult> ShrinkPlan(const v1::FaultPlan& original, const std::string& original_digest,
+                                                      const Rerun& rerun, const ShrinkOptions& options);
 
 }  // namespace weir

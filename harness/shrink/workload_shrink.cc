@@ -147,7 +147,8 @@ absl::StatusOr<WorkloadShrinkResult> ShrinkWorkload(const v1::Scenario& scenario
     // their least): read it from the scenario itself.
     if (k.knob == WorkloadKnob::kSources) after = static_cast<std::uint64_t>(result.scenario.workload().sources_size());
     if (k.knob == WorkloadKnob::kPartitions) after = result.scenario.log().partitions();
-    if (k.knob == WorkloadKnob::kKeys) after = result.scenario.log().keys() == 0 ? kDefaultKeys : result.scenario.log().keys();
+    if (k.knob == WorkloadKnob::kKeys)
+      after = result.scenario.log().keys() == 0 ? kDefaultKeys : result.scenario.log().keys();
     if (after != before[k.knob]) result.changes.push_back({k.knob, before[k.knob], after});
   }
   result.reruns = search.reruns();

@@ -61,9 +61,9 @@ v1::Scenario WithKnob(const v1::Scenario& scenario, WorkloadKnob knob, std::uint
 
 // What one rerun of a candidate scenario showed.
 struct WorkloadRun {
-  bool fails = false;         // the target invariant failed
-  std::uint64_t events = 0;   // trace events of the run
-  std::string digest;         // of its event lines
+  bool fails = false;        // the target invariant failed
+  std::uint64_t events = 0;  // trace events of the run
+  std::string digest;        // of its event lines
 };
 
 // Errors are harness faults and end the search; CANCELLED (a signal) stops it
@@ -89,8 +89,8 @@ struct WorkloadShrinkResult {
   // The run of `scenario` (empty when unchanged: the caller has it).
   std::uint64_t events = 0;
   std::string digest;
-  std::uint64_t reruns = 0;         // counted reruns
-  bool budget_reached = false;      // stopped by max_reruns, stop() or CANCELLED
+  std::uint64_t reruns = 0;     // counted reruns
+  bool budget_reached = false;  // stopped by max_reruns, stop() or CANCELLED
   bool changed() const { return !changes.empty(); }
 };
 

@@ -17,8 +17,7 @@ namespace weir {
 std::string ReplayLine(const std::string& scenario_path, std::uint64_t seed, Transport transport,
                        const std::string& plan_path, const std::string& profile_path,
                        const std::vector<std::string>& argv) {
-  std::string line =
-      absl::StrCat(WeirProgram(), " run --scenario ", ShellQuote(scenario_path), " --seed ", seed);
+  std::string line = absl::StrCat(WeirProgram(), " run --scenario ", ShellQuote(scenario_path), " --seed ", seed);
   if (transport == Transport::kUnix) absl::StrAppend(&line, " --transport unix");
   if (!plan_path.empty()) absl::StrAppend(&line, " --plan ", ShellQuote(plan_path));
   if (!profile_path.empty()) absl::StrAppend(&line, " --profile ", ShellQuote(profile_path));
@@ -105,12 +104,10 @@ absl::StatusOr<SuiteResult> Certify(const LoadedSuite& suite, const CertifyOptio
       auto run_once = [&](const RunSpec& s) { return options.runner ? options.runner(s) : RunOverGrpc(s); };
       const auto start = std::chrono::steady_clock::now();
       auto out = run_once(spec);
-      const double wall =
-          std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
+      const double wall = std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
       // The determinism recheck: the same spec once more.
-      const bool recheck =
-          out.ok() && options.recheck.has_value() &&
-          (options.recheck->Contains(index) || (rechecking && !out->verdict.passed()));
+      const bool recheck = out.ok() && options.recheck.has_value() &&
+                           (options.recheck->Contains(index) || (rechecking && !out->verdict.passed()));
       std::optional<absl::StatusOr<RunOutput>> again;
       ReplayResult compared;
       absl::Status compare_status = absl::UnknownError("no trace of the first run to compare");
@@ -137,8 +134,7 @@ absl::StatusOr<SuiteResult> Certify(const LoadedSuite& suite, const CertifyOptio
       rec.set_seed(seed);
       rec.set_pair_index(index);
       rec.set_wall_seconds(wall);
-      rec.set_replay(ReplayLine(scenario_path, seed, options.transport, "", profile_path,
-                                options.connector_argv));
+      rec.set_replay(ReplayLine(scenario_path, seed, options.transport, "", profile_path, options.connector_argv));
       if (!out.ok()) {
         rec.set_passed(false);
         rec.set_harness_error(std::string(out.status().message()));
@@ -156,8 +152,8 @@ absl::StatusOr<SuiteResult> Certify(const LoadedSuite& suite, const CertifyOptio
         // connector that died is named before the messages it then lost).
         const auto by_cause = ViolationsByCause(out->verdict);
         if (!by_cause.empty()) {
-          rec.set_first_violation(absl::StrCat(InvariantName(by_cause.front()->invariant), ": ",
-                                               by_cause.front()->sentence));
+          rec.set_first_violation(
+              absl::StrCat(InvariantName(by_cause.front()->invariant), ": ", by_cause.front()->sentence));
         }
       }
       if (again.has_value()) {
@@ -179,8 +175,8 @@ absl::StatusOr<SuiteResult> Certify(const LoadedSuite& suite, const CertifyOptio
             rec.add_failed_invariants(kNondeterministicOutcome);
             if (!had_violation) {
               rec.set_first_violation(absl::StrCat(
-                  kNondeterministicOutcome, ": the same scenario, seed and connector gave trace digest ",
-                  out->digest, ", then ", (*again)->digest,
+                  kNondeterministicOutcome, ": the same scenario, seed and connector gave trace digest ", out->digest,
+                  ", then ", (*again)->digest,
                   rec.divergence().empty() ? std::string() : absl::StrCat("; first difference at ", rec.divergence()),
                   " (the connector reads the wall clock, uses unseeded randomness or races threads: its failures "
                   "cannot be replayed)"));

@@ -63,7 +63,7 @@ struct CertifyOptions {
   // Overrides every scenario's profile, and the suite's. Unset: the suite's
   // profile when it names one (LoadedSuite::profile), else each scenario's.
   std::optional<v1::Profile> profile;
-  std::string profile_path;            // for replay lines and the report
+  std::string profile_path;  // for replay lines and the report
   const std::atomic<bool>* stop = nullptr;
   // Runs one pair; default RunOverGrpc. An in-process host passes its own.
   std::function<absl::StatusOr<RunOutput>(const RunSpec&)> runner;

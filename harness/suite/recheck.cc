@@ -19,11 +19,13 @@ absl::StatusOr<RecheckRule> ParseRecheckRule(std::string_view text) {
     rule.kind = RecheckRule::Kind::kAll;
   } else if (text == "none") {
     rule.kind = RecheckRule::Kind::kNone;
-  } else if (text.find_first_not_of("0123456789") == std::string_view::npos && absl::SimpleAtoi(absl::string_view(text.data(), text.size()), &rule.count)) {
+  } else if (text.find_first_not_of("0123456789") == std::string_view::npos &&
+             absl::SimpleAtoi(absl::string_view(text.data(), text.size()), &rule.count)) {
     rule.kind = RecheckRule::Kind::kCount;
   } else {
-    return absl::InvalidArgumentError(absl::StrCat(
-        "--recheck is '", std::string(text), "'; expected a number of pairs to rerun (N), all, none or sample (the default)"));
+    return absl::InvalidArgumentError(
+        absl::StrCat("--recheck is '", std::string(text),
+                     "'; expected a number of pairs to rerun (N), all, none or sample (the default)"));
   }
   return rule;
 }

@@ -96,8 +96,8 @@ RunLog::~RunLog() {
 absl::Status RunLog::Append(const v1::RunRecord& run) {
   if (!status_.ok()) return status_;
   if (!google::protobuf::util::SerializeDelimitedToZeroCopyStream(run, out_.get())) {
-    status_ = absl::UnavailableError(absl::StrCat("run log: cannot write run ", size_ + 1, ": ",
-                                                  std::strerror(out_->GetErrno())));
+    status_ = absl::UnavailableError(
+        absl::StrCat("run log: cannot write run ", size_ + 1, ": ", std::strerror(out_->GetErrno())));
     return status_;
   }
   ++size_;

@@ -54,11 +54,11 @@ class Ed25519Key {
   // The same key without its private half.
   Ed25519Key PublicOnly() const;
 
-  std::string RawPublic() const;   // 32 bytes
-  std::string PublicDer() const;   // SubjectPublicKeyInfo, DER
+  std::string RawPublic() const;  // 32 bytes
+  std::string PublicDer() const;  // SubjectPublicKeyInfo, DER
   std::string PublicPem() const;
   // REQUIRES: has_private().
-  std::string PrivatePem() const;  // PKCS#8, unencrypted
+  std::string PrivatePem() const;   // PKCS#8, unencrypted
   std::string Fingerprint() const;  // "sha256:<hex of PublicDer()>"
 
   // The 64-byte Ed25519 signature of `message`. Error: no private key.

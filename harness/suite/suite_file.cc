@@ -45,8 +45,8 @@ absl::StatusOr<LoadedSuite> ParseSuite(const std::string& path, std::string_view
       return f.status();
     }
     const std::size_t line_start = text.rfind('\n', at);
-    const std::size_t line = 1 + static_cast<std::size_t>(std::count(
-                                     text.begin(), text.begin() + static_cast<std::ptrdiff_t>(at), '\n'));
+    const std::size_t line =
+        1 + static_cast<std::size_t>(std::count(text.begin(), text.begin() + static_cast<std::ptrdiff_t>(at), '\n'));
     const std::size_t column = line_start == std::string::npos ? at + 1 : at - line_start;
     return absl::InvalidArgumentError(absl::StrCat(path, ":", line, ":", column, ": ", what));
   };

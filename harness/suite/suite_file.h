@@ -27,7 +27,7 @@ namespace weir {
 struct LoadedSuite {
   v1::Suite suite;
   std::string path;
-  std::string digest;                    // "sha256:…"
+  std::string digest;                       // "sha256:…"
   std::vector<std::string> scenario_paths;  // resolved, as they open from here
   std::vector<v1::Scenario> scenarios;      // validated, defaults filled
   // The suite's `profile`, loaded and validated; unset: each scenario's own.

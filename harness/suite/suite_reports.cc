@@ -28,8 +28,8 @@ std::string ToJson(const google::protobuf::Message& m) {
 
 absl::Status FromJson(std::string_view text, google::protobuf::Message* m) {
   google::protobuf::util::JsonParseOptions options;
-  auto st = google::protobuf::util::JsonStringToMessage(
-      google::protobuf::StringPiece(text.data(), text.size()), m, options);
+  auto st =
+      google::protobuf::util::JsonStringToMessage(google::protobuf::StringPiece(text.data(), text.size()), m, options);
   if (!st.ok()) return absl::InvalidArgumentError(std::string(st.message()));
   return absl::OkStatus();
 }
@@ -90,8 +90,8 @@ absl::Status WriteSuiteJUnitXml(const v1::SuiteReport& head, const SuiteTally& t
   out("<?xml version=\"1.0\" encoding=\"UTF-8\"?>\n");
   out(absl::StrCat("<testsuite name=\"", EscapeMarkup(name), "\" timestamp=\"", EscapeMarkup(timestamp),
                    "\" hostname=\"", EscapeMarkup(hostname.empty() ? "localhost" : hostname), "\" tests=\"",
-                   tally.runs(), "\" failures=\"", tally.invariant_failures(), "\" errors=\"",
-                   tally.harness_faults(), "\" time=\"", absl::StrFormat("%.3f", tally.wall_seconds()), "\">\n"));
+                   tally.runs(), "\" failures=\"", tally.invariant_failures(), "\" errors=\"", tally.harness_faults(),
+                   "\" time=\"", absl::StrFormat("%.3f", tally.wall_seconds()), "\">\n"));
   out("  <properties>\n");
   auto property = [&out](const std::string& k, const std::string& v) {
     out(absl::StrCat("    <property name=\"", EscapeMarkup(k), "\" value=\"", EscapeMarkup(v), "\"/>\n"));
@@ -111,7 +111,8 @@ absl::Status WriteSuiteJUnitXml(const v1::SuiteReport& head, const SuiteTally& t
                           s.runs_judged(), " runs"));
   }
   std::string not_exercised;
-  for (const auto& name : tally.not_exercised()) absl::StrAppend(&not_exercised, not_exercised.empty() ? "" : ", ", name);
+  for (const auto& name : tally.not_exercised())
+    absl::StrAppend(&not_exercised, not_exercised.empty() ? "" : ", ", name);
   property("not_exercised", not_exercised);
   if (!head.recheck().empty()) {
     property("recheck", head.recheck());
@@ -124,9 +125,9 @@ absl::Status WriteSuiteJUnitXml(const v1::SuiteReport& head, const SuiteTally& t
     absl::StatusOr<bool> more = runs.Next(&run);
     if (!more.ok()) return more.status();
     if (!*more) break;
-    std::string one = absl::StrCat("  <testcase name=\"", EscapeMarkup(absl::StrCat("seed ", run.seed())),
-                                   "\" classname=\"", EscapeMarkup(run.scenario()), "\" time=\"",
-                                   absl::StrFormat("%.3f", run.wall_seconds()), "\"");
+    std::string one =
+        absl::StrCat("  <testcase name=\"", EscapeMarkup(absl::StrCat("seed ", run.seed())), "\" classname=\"",
+                     EscapeMarkup(run.scenario()), "\" time=\"", absl::StrFormat("%.3f", run.wall_seconds()), "\"");
     if (run.passed()) {
       one += "/>\n";
       out(one);
@@ -134,20 +135,19 @@ absl::Status WriteSuiteJUnitXml(const v1::SuiteReport& head, const SuiteTally& t
     }
     one += ">\n";
     if (!run.harness_error().empty()) {
-      absl::StrAppend(&one, "    <error type=\"harness-fault\" message=\"", EscapeMarkup(run.harness_error()),
-                      "\">", EscapeMarkup(absl::StrCat(run.harness_error(), "\nreplay: ", run.replay())),
-                      "</error>\n");
+      absl::StrAppend(&one, "    <error type=\"harness-fault\" message=\"", EscapeMarkup(run.harness_error()), "\">",
+                      EscapeMarkup(absl::StrCat(run.harness_error(), "\nreplay: ", run.replay())), "</error>\n");
     } else {
       std::string invariants;
       for (const auto& inv : run.failed_invariants()) {
         if (!invariants.empty()) invariants += ", ";
         invariants += inv;
       }
-      absl::StrAppend(&one, "    <failure type=\"", EscapeMarkup(invariants), "\" message=\"",
-                      EscapeMarkup(run.first_violation()), "\">",
-                      EscapeMarkup(absl::StrCat("failed: ", invariants, "\n", run.first_violation(),
-                                                "\nreplay: ", run.replay())),
-                      "</failure>\n");
+      absl::StrAppend(
+          &one, "    <failure type=\"", EscapeMarkup(invariants), "\" message=\"", EscapeMarkup(run.first_violation()),
+          "\">",
+          EscapeMarkup(absl::StrCat("failed: ", invariants, "\n", run.first_violation(), "\nreplay: ", run.replay())),
+          "</failure>\n");
     }
     one += "  </testcase>\n";
     out(one);
@@ -165,20 +165,20 @@ std::string SuiteSummaryText(const v1::SuiteReport& head, const SuiteTally& tall
                          "first failing seed");
   for (const auto& s : head.invariants()) {
     const bool judged = s.runs_judged() > 0;
-    absl::StrAppend(&out, absl::StrFormat("%-22s %-13s %8d %8d %10s  %s\n", s.invariant(), CoverageWord(s),
-                                          s.runs_passed(), s.runs_failed(),
-                                          judged ? absl::StrCat(s.chances()) : std::string("-"),
-                                          s.runs_failed() == 0
-                                              ? std::string("-")
-                                              : absl::StrCat(s.first_failing_scenario(), " seed ",
-                                                             s.first_failing_seed())));
+    absl::StrAppend(&out,
+                    absl::StrFormat("%-22s %-13s %8d %8d %10s  %s\n", s.invariant(), CoverageWord(s), s.runs_passed(),
+                                    s.runs_failed(), judged ? absl::StrCat(s.chances()) : std::string("-"),
+                                    s.runs_failed() == 0
+                                        ? std::string("-")
+                                        : absl::StrCat(s.first_failing_scenario(), " seed ", s.first_failing_seed())));
   }
   for (const auto& name : tally.not_exercised()) {
     for (int i = 0; i < kInvariantCount; ++i) {
       const auto inv = static_cast<Invariant>(i);
       if (name != InvariantName(inv)) continue;
-      absl::StrAppend(&out, "\nnot exercised: ", name, " had no chance to fail in any run (a chance: ",
-                      InvariantChance(inv), ").\n  would exercise it: ", InvariantExercisedBy(inv), "\n");
+      absl::StrAppend(&out, "\nnot exercised: ", name,
+                      " had no chance to fail in any run (a chance: ", InvariantChance(inv),
+                      ").\n  would exercise it: ", InvariantExercisedBy(inv), "\n");
     }
   }
   if (!tally.faults_applied().empty()) {
@@ -188,8 +188,7 @@ std::string SuiteSummaryText(const v1::SuiteReport& head, const SuiteTally& tall
   }
   for (const auto& s : head.invariants()) {
     if (s.runs_failed() > 0) {
-      absl::StrAppend(&out, "\nfirst ", s.invariant(), " failure:\n  replay: ", s.first_failing_replay(),
-                      "\n");
+      absl::StrAppend(&out, "\nfirst ", s.invariant(), " failure:\n  replay: ", s.first_failing_replay(), "\n");
     }
   }
   if (const auto& fault = tally.first_harness_fault(); fault.has_value()) {
@@ -233,29 +232,31 @@ std::string SuiteSummaryHtml(const v1::SuiteReport& head, const SuiteTally& tall
   }
   fact("weir", head.weir_version());
   fact("shard", absl::StrCat(head.shard_index(), "/", head.shard_count()));
-  fact("runs", absl::StrCat(tally.runs(), " of ", head.pairs_total(), " pairs: ", tally.passed(), " passed, ",
-                            tally.failed(), " failed",
-                            head.complete() ? "" : absl::StrCat(" (INCOMPLETE: ", head.stopped_because(), ")")));
-  out += "</table>\n<table class=\"invariants\">\n<tr><th>invariant</th><th>verdict</th><th>chances</th>"
-         "<th>runs passed</th><th>runs failed</th><th>first failing seed</th><th>replay</th></tr>\n";
+  fact("runs",
+       absl::StrCat(tally.runs(), " of ", head.pairs_total(), " pairs: ", tally.passed(), " passed, ", tally.failed(),
+                    " failed", head.complete() ? "" : absl::StrCat(" (INCOMPLETE: ", head.stopped_because(), ")")));
+  out +=
+      "</table>\n<table class=\"invariants\">\n<tr><th>invariant</th><th>verdict</th><th>chances</th>"
+      "<th>runs passed</th><th>runs failed</th><th>first failing seed</th><th>replay</th></tr>\n";
   for (const auto& s : head.invariants()) {
     const bool bad = s.runs_failed() > 0;
     const std::string word = CoverageWord(s);
     absl::StrAppend(&out, "<tr><td>", EscapeMarkup(s.invariant()), "</td><td class=\"",
-                    bad ? "verdict failed" : word == "held" ? "verdict passed" : "verdict unexercised", "\">", word, "</td><td>",
-                    s.runs_judged() > 0 ? absl::StrCat(s.chances()) : std::string("&#8211;"), "</td><td>",
-                    s.runs_passed(),
-                    "</td><td class=\"", bad ? "failed" : "passed", "\">", s.runs_failed(), "</td><td>",
+                    bad              ? "verdict failed"
+                    : word == "held" ? "verdict passed"
+                                     : "verdict unexercised",
+                    "\">", word, "</td><td>", s.runs_judged() > 0 ? absl::StrCat(s.chances()) : std::string("&#8211;"),
+                    "</td><td>", s.runs_passed(), "</td><td class=\"", bad ? "failed" : "passed", "\">",
+                    s.runs_failed(), "</td><td>",
                     bad ? EscapeMarkup(absl::StrCat(s.first_failing_scenario(), " seed ", s.first_failing_seed()))
                         : std::string("&#8211;"),
-                    "</td><td>",
-                    bad ? absl::StrCat("<code>", EscapeMarkup(s.first_failing_replay()), "</code>") : "",
+                    "</td><td>", bad ? absl::StrCat("<code>", EscapeMarkup(s.first_failing_replay()), "</code>") : "",
                     "</td></tr>\n");
   }
   out += "</table>\n";
   if (const auto& fault = tally.first_harness_fault(); fault.has_value()) {
-    absl::StrAppend(&out, "<p class=\"inv\">Harness fault in ", EscapeMarkup(fault->scenario), " seed ",
-                    fault->seed, ": ", EscapeMarkup(fault->error), "</p>\n");
+    absl::StrAppend(&out, "<p class=\"inv\">Harness fault in ", EscapeMarkup(fault->scenario), " seed ", fault->seed,
+                    ": ", EscapeMarkup(fault->error), "</p>\n");
   }
   out += "</section>\n";
   return out;
@@ -292,8 +293,7 @@ v1::Certificate MakeCertificate(const v1::SuiteReport& head, const SuiteTally& t
   c.set_recheck(head.recheck());
   c.set_runs_rechecked(tally.rechecked());
   c.set_runs_diverged(tally.diverged());
-  c.set_certified(head.complete() && head.shard_count() <= 1 && c.runs() == head.pairs_total() &&
-                  c.runs_failed() == 0);
+  c.set_certified(head.complete() && head.shard_count() <= 1 && c.runs() == head.pairs_total() && c.runs_failed() == 0);
   for (const auto& s : tally.invariants()) {
     if (s.runs_judged() > 0) AddCount(c.mutable_chances(), s.invariant(), s.chances());
   }
@@ -320,8 +320,7 @@ std::string SuiteReportJson(const v1::SuiteReport& report) {
   return out;
 }
 
-std::string SuiteJUnitXml(const v1::SuiteReport& report, const std::string& timestamp,
-                          const std::string& hostname) {
+std::string SuiteJUnitXml(const v1::SuiteReport& report, const std::string& timestamp, const std::string& hostname) {
   std::string out;
   auto runs = ReadRunsInMemory(report.runs());
   (void)WriteSuiteJUnitXml(report, SuiteTally::Of(report), *runs, timestamp, hostname,
@@ -329,13 +328,9 @@ std::string SuiteJUnitXml(const v1::SuiteReport& report, const std::string& time
   return out;
 }
 
-std::string SuiteSummaryText(const v1::SuiteReport& report) {
-  return SuiteSummaryText(report, SuiteTally::Of(report));
-}
+std::string SuiteSummaryText(const v1::SuiteReport& report) { return SuiteSummaryText(report, SuiteTally::Of(report)); }
 
-std::string SuiteSummaryHtml(const v1::SuiteReport& report) {
-  return SuiteSummaryHtml(report, SuiteTally::Of(report));
-}
+std::string SuiteSummaryHtml(const v1::SuiteReport& report) { return SuiteSummaryHtml(report, SuiteTally::Of(report)); }
 
 v1::Certificate MakeCertificate(const v1::SuiteReport& report) {
   return MakeCertificate(report, SuiteTally::Of(report));

@@ -43,9 +43,8 @@ const char* CoverageWord(const v1::InvariantSummary& summary);
 
 // `timestamp` "YYYY-MM-DDTHH:MM:SS" (no zone), `hostname` non-empty.
 // REQUIRES: `tally` is the tally of `runs`. Error: as WriteSuiteReportJson.
-[[nodiscard]] absl::Status WriteSuiteJUnitXml(const v1::SuiteReport& head, const SuiteTally& tally,
-                                              RunReader& runs, const std::string& timestamp,
-                                              const std::string& hostname, TextOut out);
+[[nodiscard]] absl::Status WriteSuiteJUnitXml(const v1::SuiteReport& head, const SuiteTally& tally, RunReader& runs,
+                                              const std::string& timestamp, const std::string& hostname, TextOut out);
 
 // Per invariant: runs passed / failed, first failing seed and its replay line.
 std::string SuiteSummaryText(const v1::SuiteReport& head, const SuiteTally& tally);
@@ -68,8 +67,7 @@ std::string CertificateJson(const v1::Certificate& certificate);
 // Whole-report forms, for a report held in memory (its runs in pair order):
 // the same text as the streaming forms above.
 std::string SuiteReportJson(const v1::SuiteReport& report);
-std::string SuiteJUnitXml(const v1::SuiteReport& report, const std::string& timestamp,
-                          const std::string& hostname);
+std::string SuiteJUnitXml(const v1::SuiteReport& report, const std::string& timestamp, const std::string& hostname);
 std::string SuiteSummaryText(const v1::SuiteReport& report);
 std::string SuiteSummaryHtml(const v1::SuiteReport& report);
 v1::Certificate MakeCertificate(const v1::SuiteReport& report);

@@ -39,8 +39,7 @@ inline void AddCount(google::protobuf::RepeatedPtrField<v1::Count>* list, const 
   c->set_count(count);
 }
 // The count named `name`, or null.
-inline const v1::Count* FindCount(const google::protobuf::RepeatedPtrField<v1::Count>& list,
-                                  const std::string& name) {
+inline const v1::Count* FindCount(const google::protobuf::RepeatedPtrField<v1::Count>& list, const std::string& name) {
   for (const v1::Count& c : list) {
     if (c.name() == name) return &c;
   }

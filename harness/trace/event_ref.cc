@@ -9,9 +9,8 @@ std::int64_t S(std::uint64_t v) { return static_cast<std::int64_t>(v); }
 std::uint64_t U(std::int64_t v) { return static_cast<std::uint64_t>(v); }
 
 // Broker methods are kept as small codes: an EventRef holds no strings.
-constexpr const char* kMethods[] = {"",     "Pull",          "Ack",          "Nack",
-                                    "ExtendLease", "ListPartitions", "Read", "SaveBookmarks",
-                                    "LoadBookmarks"};
+constexpr const char* kMethods[] = {"",     "Pull",          "Ack",          "Nack", "ExtendLease", "ListPartitions",
+                                    "Read", "SaveBookmarks", "LoadBookmarks"};
 constexpr std::int64_t kMethodCount = sizeof kMethods / sizeof kMethods[0];
 std::int64_t MethodCode(const std::string& m) {
   for (std::int64_t i = 1; i < kMethodCount; ++i) {
@@ -19,9 +18,7 @@ std::int64_t MethodCode(const std::string& m) {
   }
   return 0;
 }
-const char* MethodName(std::int64_t code) {
-  return code > 0 && code < kMethodCount ? kMethods[code] : "?";
-}
+const char* MethodName(std::int64_t code) { return code > 0 && code < kMethodCount ? kMethods[code] : "?"; }
 
 }  // namespace
 
@@ -58,8 +55,7 @@ EventRef MakeRef(const v1::TraceEvent& e) {
       r.f[1] = e.stepped().records();
       r.f[2] = e.stepped().watermark_ns();
       r.f[3] = e.stepped().resume_at_ns();
-      r.has_watermark = static_cast<std::uint8_t>(e.stepped().has_watermark_ns() |
-                                                  (e.stepped().finished() ? 2 : 0) |
+      r.has_watermark = static_cast<std::uint8_t>(e.stepped().has_watermark_ns() | (e.stepped().finished() ? 2 : 0) |
                                                   (e.stepped().broker_idle() ? 4 : 0));
       break;
     case TraceEvent::kCheckpoint:
@@ -69,15 +65,9 @@ EventRef MakeRef(const v1::TraceEvent& e) {
       r.f[3] = S(e.checkpoint().state_bytes());
       r.has_watermark = e.checkpoint().has_watermark_ns();
       break;
-    case TraceEvent::kCommitted:
-      r.f[0] = S(e.committed().checkpoint_id());
-      break;
-    case TraceEvent::kCommitFailed:
-      r.f[0] = S(e.commit_failed().checkpoint_id());
-      break;
-    case TraceEvent::kCommitNotice:
-      r.f[0] = S(e.commit_notice().checkpoint_id());
-      break;
+    case TraceEvent::kCommitted: r.f[0] = S(e.committed().checkpoint_id()); break;
+    case TraceEvent::kCommitFailed: r.f[0] = S(e.commit_failed().checkpoint_id()); break;
+    case TraceEvent::kCommitNotice: r.f[0] = S(e.commit_notice().checkpoint_id()); break;
     case TraceEvent::kAcked:
       r.f[0] = S(e.acked().message_id());
       r.f[1] = S(e.acked().receipt());
@@ -136,9 +126,7 @@ EventRef MakeRef(const v1::TraceEvent& e) {
       r.f[0] = e.retention_deleted().partition();
       r.f[1] = S(e.retention_deleted().first_retained_offset());
       break;
-    case TraceEvent::kPartitionAdded:
-      r.f[0] = e.partition_added().partition();
-      break;
+    case TraceEvent::kPartitionAdded: r.f[0] = e.partition_added().partition(); break;
     case TraceEvent::kBookmarkSaved:
       r.f[0] = e.bookmark_saved().partition();
       r.f[1] = S(e.bookmark_saved().next_offset());
@@ -167,8 +155,7 @@ EventRef MakeRef(const v1::TraceEvent& e) {
       r.f[2] = e.cut().has_tail() ? S(e.cut().tail().start_offset()) : -1;
       r.f[3] = e.cut().to_reader();
       break;
-    default:
-      break;
+    default: break;
   }
   return r;
 }
@@ -205,12 +192,8 @@ v1::TraceEvent Rebuild(const EventRef& r) {
       x->set_to_reader(static_cast<std::uint32_t>(r.f[3]));
       break;
     }
-    case TraceEvent::kReaderLeft:
-      e.mutable_reader_left();
-      break;
-    case TraceEvent::kReaderJoined:
-      e.mutable_reader_joined();
-      break;
+    case TraceEvent::kReaderLeft: e.mutable_reader_left(); break;
+    case TraceEvent::kReaderJoined: e.mutable_reader_joined(); break;
     case TraceEvent::kPublished: {
       auto* x = e.mutable_published();
       x->set_message_id(U(r.f[0]));
@@ -255,15 +238,9 @@ v1::TraceEvent Rebuild(const EventRef& r) {
       x->set_state_bytes(U(r.f[3]));
       break;
     }
-    case TraceEvent::kCommitted:
-      e.mutable_committed()->set_checkpoint_id(U(r.f[0]));
-      break;
-    case TraceEvent::kCommitFailed:
-      e.mutable_commit_failed()->set_checkpoint_id(U(r.f[0]));
-      break;
-    case TraceEvent::kCommitNotice:
-      e.mutable_commit_notice()->set_checkpoint_id(U(r.f[0]));
-      break;
+    case TraceEvent::kCommitted: e.mutable_committed()->set_checkpoint_id(U(r.f[0])); break;
+    case TraceEvent::kCommitFailed: e.mutable_commit_failed()->set_checkpoint_id(U(r.f[0])); break;
+    case TraceEvent::kCommitNotice: e.mutable_commit_notice()->set_checkpoint_id(U(r.f[0])); break;
     case TraceEvent::kAcked: {
       auto* x = e.mutable_acked();
       x->set_message_id(U(r.f[0]));
@@ -363,8 +340,7 @@ v1::TraceEvent Rebuild(const EventRef& r) {
       x->set_step(U(r.f[3]));
       break;
     }
-    default:
-      break;
+    default: break;
   }
   return e;
 }

@@ -36,10 +36,14 @@ using google::protobuf::Message;
 bool PlainJsonChar(unsigned char c) {
   if (c < 0x20 || c > 0x7e) return false;
   switch (c) {
-    case '"': case '\\': case '<': case '>': case '&': case '=': case '\'':
-      return false;
-    default:
-      return true;
+    case '"':
+    case '\\':
+    case '<':
+    case '>':
+    case '&':
+    case '=':
+    case '\'': return false;
+    default: return true;
   }
 }
 
@@ -79,8 +83,7 @@ struct FieldTable {
 };
 
 const MessageTable& TableFor(const google::protobuf::Descriptor* d) {
-  thread_local absl::flat_hash_map<const google::protobuf::Descriptor*, std::unique_ptr<MessageTable>>
-      tables;
+  thread_local absl::flat_hash_map<const google::protobuf::Descriptor*, std::unique_ptr<MessageTable>> tables;
   if (auto it = tables.find(d); it != tables.end()) return *it->second;
   auto& table = tables[d];
   table = std::make_unique<MessageTable>();
@@ -284,8 +287,8 @@ absl::StatusOr<v1::TraceLine> DecodeTraceLine(std::string_view line) {
   v1::TraceLine out;
   google::protobuf::util::JsonParseOptions options;
   options.ignore_unknown_fields = false;
-  auto status = google::protobuf::util::JsonStringToMessage(
-      google::protobuf::StringPiece(line.data(), line.size()), &out, options);
+  auto status = google::protobuf::util::JsonStringToMessage(google::protobuf::StringPiece(line.data(), line.size()),
+                                                            &out, options);
   if (!status.ok()) {
     return absl::InvalidArgumentError("not a trace line: " + std::string(status.message()));
   }
@@ -303,9 +306,7 @@ Sha256::Sha256() : impl_(std::make_unique<Impl>()) {
 
 Sha256::~Sha256() { EVP_MD_CTX_free(impl_->ctx); }
 
-void Sha256::Update(std::string_view bytes) {
-  EVP_DigestUpdate(impl_->ctx, bytes.data(), bytes.size());
-}
+void Sha256::Update(std::string_view bytes) { EVP_DigestUpdate(impl_->ctx, bytes.data(), bytes.size()); }
 
 std::string Sha256::HexDigest() {
   unsigned char md[EVP_MAX_MD_SIZE];

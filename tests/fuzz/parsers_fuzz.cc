@@ -36,11 +36,10 @@ std::string SuitePath() {
 void CheckError(const absl::Status& st, std::string_view path) {
   if (st.ok()) return;
   // Read errors cannot happen for text in memory, except a suite's scenario.
-  const bool located = absl::StartsWith(st.message(), std::string(path) + ":") ||
-                       absl::StrContains(st.message(), ".scenario:");
+  const bool located =
+      absl::StartsWith(st.message(), std::string(path) + ":") || absl::StrContains(st.message(), ".scenario:");
   if (st.code() != absl::StatusCode::kInvalidArgument || !located) {
-    std::fprintf(stderr, "error without a location or of the wrong kind: %s\n",
-                 st.ToString().c_str());
+    std::fprintf(stderr, "error without a location or of the wrong kind: %s\n", st.ToString().c_str());
     std::abort();
   }
 }

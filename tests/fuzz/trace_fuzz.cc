@@ -29,8 +29,7 @@ const std::string& InputPath() {
 }
 
 void Fail(const absl::Status& st) {
-  if (st.code() == absl::StatusCode::kInvalidArgument &&
-      absl::StartsWith(st.message(), InputPath() + ":")) {
+  if (st.code() == absl::StatusCode::kInvalidArgument && absl::StartsWith(st.message(), InputPath() + ":")) {
     return;
   }
   std::fprintf(stderr, "error without a location or of the wrong kind: %s\n", st.ToString().c_str());

@@ -41,8 +41,7 @@ class QueueOnlyBroker : public BrokerClient {
 // A log broker client with canned answers.
 class CannedLogBroker : public QueueOnlyBroker {
  public:
-  BrokerStatus Read(std::uint32_t partition, std::uint64_t offset, const ReadOptions&,
-                    ReadResult* out) override {
+  BrokerStatus Read(std::uint32_t partition, std::uint64_t offset, const ReadOptions&, ReadResult* out) override {
     last_partition = partition;
     last_offset = offset;
     *out = ReadResult{};
@@ -441,8 +440,7 @@ class OutOfRangeBroker final : public v1::Broker::Service {
   enum class Carry { kMetadata, kDetailOnly, kNothing };
   explicit OutOfRangeBroker(Carry carry) : carry_(carry) {}
 
-  grpc::Status Read(grpc::ServerContext* context, const v1::ReadRequest* request,
-                    v1::ReadResponse* response) override {
+  grpc::Status Read(grpc::ServerContext* context, const v1::ReadRequest* request, v1::ReadResponse* response) override {
     context->AddTrailingMetadata("weir-now-ns", "4200");
     if (request->offset() >= 77) {
       response->set_now_ns(4300);
@@ -460,13 +458,10 @@ class OutOfRangeBroker final : public v1::Broker::Service {
     switch (carry_) {
       case Carry::kMetadata:
         context->AddTrailingMetadata("weir-first-retained-offset", "77");
-        return grpc::Status(grpc::StatusCode::OUT_OF_RANGE, "first retained offset 77",
-                            detail.SerializeAsString());
+        return grpc::Status(grpc::StatusCode::OUT_OF_RANGE, "first retained offset 77", detail.SerializeAsString());
       case Carry::kDetailOnly:
-        return grpc::Status(grpc::StatusCode::OUT_OF_RANGE, "first retained offset 77",
-                            detail.SerializeAsString());
-      case Carry::kNothing:
-        break;
+        return grpc::Status(grpc::StatusCode::OUT_OF_RANGE, "first retained offset 77", detail.SerializeAsString());
+      case Carry::kNothing: break;
     }
     return grpc::Status(grpc::StatusCode::OUT_OF_RANGE, "gone");
   }
@@ -488,8 +483,7 @@ BrokerStatus ReadOverGrpc(OutOfRangeBroker::Carry carry, std::uint64_t offset, R
   BrokerStatus status;
   {
     internal::CallQueue calls(&queue);
-    internal::GrpcBrokerClient client("127.0.0.1:" + std::to_string(port), std::chrono::seconds(10),
-                                      calls);
+    internal::GrpcBrokerClient client("127.0.0.1:" + std::to_string(port), std::chrono::seconds(10), calls);
     status = client.Read(3, offset, {}, out);
   }
   server->Shutdown(std::chrono::system_clock::now() + std::chrono::seconds(5));

@@ -58,10 +58,10 @@ void ExpectWithinJitter(std::int64_t delay, double unjittered, int i) {
 TEST(BackoffPolicy, DefaultsAreGrpcConnectionBackoffParameters) {
   // grpc doc/connection-backoff.md, "Proposed Backoff Algorithm".
   const BackoffPolicy p;
-  EXPECT_EQ(p.initial_ns, 1 * kSecond);   // INITIAL_BACKOFF = 1 second
-  EXPECT_DOUBLE_EQ(p.multiplier, 1.6);    // MULTIPLIER = 1.6
-  EXPECT_DOUBLE_EQ(p.jitter, 0.2);        // JITTER = 0.2
-  EXPECT_EQ(p.max_ns, 120 * kSecond);     // MAX_BACKOFF = 120 seconds
+  EXPECT_EQ(p.initial_ns, 1 * kSecond);  // INITIAL_BACKOFF = 1 second
+  EXPECT_DOUBLE_EQ(p.multiplier, 1.6);   // MULTIPLIER = 1.6
+  EXPECT_DOUBLE_EQ(p.jitter, 0.2);       // JITTER = 0.2
+  EXPECT_EQ(p.max_ns, 120 * kSecond);    // MAX_BACKOFF = 120 seconds
 }
 
 TEST(Backoff, EachDelayIsWithinTwentyPercentOfTheCappedExponentialSequence) {

@@ -139,16 +139,14 @@ const KindCase kKinds[] = {
        f->set_max_visibility_delay_ms(3000);
      }},
     {"reorder", v1::FaultDecision::kReorder, [](v1::FaultConfig* f) { f->set_reorder_rate(0.5); }},
-    {"duplicate", v1::FaultDecision::kDuplicate,
-     [](v1::FaultConfig* f) { f->set_duplicate_rate(0.5); }},
+    {"duplicate", v1::FaultDecision::kDuplicate, [](v1::FaultConfig* f) { f->set_duplicate_rate(0.5); }},
     {"lost_ack", v1::FaultDecision::kLostAck, [](v1::FaultConfig* f) { f->set_lost_ack_rate(0.3); }},
     {"transient", v1::FaultDecision::kTransient,
      [](v1::FaultConfig* f) {
        f->set_unavailable_rate(0.2);
        f->set_deadline_exceeded_rate(0.2);
      }},
-    {"broker_restart", v1::FaultDecision::kBrokerRestart,
-     [](v1::FaultConfig* f) { f->set_broker_restart_rate(0.2); }},
+    {"broker_restart", v1::FaultDecision::kBrokerRestart, [](v1::FaultConfig* f) { f->set_broker_restart_rate(0.2); }},
     {"throttle_window", v1::FaultDecision::kThrottleRetryAfterMs,
      [](v1::FaultConfig* f) {
        auto* w = f->add_throttle_windows();
@@ -253,8 +251,7 @@ TEST(BrokerFaults, EffectsShowInTheTrace) {
     }
     for (const auto& d : r.Applied(v1::FaultDecision::kVisibilityDelayMs)) {
       ASSERT_TRUE(first_delivered.contains(d.position()));
-      EXPECT_GE(first_delivered[d.position()],
-                published[d.position()] + Millis(d.visibility_delay_ms()));
+      EXPECT_GE(first_delivered[d.position()], published[d.position()] + Millis(d.visibility_delay_ms()));
     }
   }
   // Lost ack: the call says OK, nothing is acked, and the message comes back.
@@ -339,8 +336,7 @@ TEST(BrokerFaults, TurningOneKindOffLeavesTheOthersDecisionsUnchanged) {
   };
   const Off offs[] = {
       {v1::FaultDecision::kLatencyMs, [](v1::FaultConfig* f) { f->mutable_latency()->set_rate(0); }},
-      {v1::FaultDecision::kVisibilityDelayMs,
-       [](v1::FaultConfig* f) { f->set_visibility_delay_rate(0); }},
+      {v1::FaultDecision::kVisibilityDelayMs, [](v1::FaultConfig* f) { f->set_visibility_delay_rate(0); }},
       {v1::FaultDecision::kLostAck, [](v1::FaultConfig* f) { f->set_lost_ack_rate(0); }},
       {v1::FaultDecision::kTransient,
        [](v1::FaultConfig* f) {
@@ -398,8 +394,7 @@ TEST(BrokerFaults, PlanModeReplaysADrawnRunExactly) {
   replayed.Script(40);
   ASSERT_EQ(drawn.rec.events.size(), replayed.rec.events.size());
   for (std::size_t i = 0; i < drawn.rec.events.size(); ++i) {
-    ASSERT_EQ(drawn.rec.events[i].SerializeAsString(), replayed.rec.events[i].SerializeAsString())
-        << i;
+    ASSERT_EQ(drawn.rec.events[i].SerializeAsString(), replayed.rec.events[i].SerializeAsString()) << i;
   }
 }
 
@@ -444,7 +439,7 @@ TEST(BrokerFaults, TokenBucketFollowsRfc2697) {
   // (admitted) "if Tc(t)-B >= 0 … and Tc is decremented by B", else it is red
   // (here: throttled). The reference below is that rule, tick by tick
   // (docs/references.md).
-  constexpr double kRate = 10;  // CIR: one token per 100 ms
+  constexpr double kRate = 10;        // CIR: one token per 100 ms
   constexpr std::int64_t kBurst = 3;  // CBS
   v1::Scenario s = Base();
   s.mutable_faults()->mutable_token_bucket()->set_rate_per_s(kRate);
@@ -452,8 +447,8 @@ TEST(BrokerFaults, TokenBucketFollowsRfc2697) {
   Rig r(s, 1);
 
   // Bursty call times (ms): a burst at 0, a trickle, another burst, a gap.
-  std::vector<std::int64_t> times_ms = {0, 0, 1, 2, 3, 50, 99, 100, 101, 150, 199, 200, 200,
-                                        250, 300, 305, 310, 800, 800, 800, 800, 801, 900, 1000};
+  std::vector<std::int64_t> times_ms = {0,   0,   1,   2,   3,   50,  99,  100, 101, 150, 199, 200,
+                                        200, 250, 300, 305, 310, 800, 800, 800, 800, 801, 900, 1000};
   std::vector<bool> throttled;
   std::vector<VirtualDuration> retry_after;
   for (std::int64_t t : times_ms) {
@@ -569,9 +564,8 @@ TEST(FaultValidation, BundledScenariosAreClean) {
   // WEIR_SOURCE_DIR (set by weir_add_test): __FILE__ is relative when ccache
   // rewrites paths under its base_dir.
   const char* source = std::getenv("WEIR_SOURCE_DIR");
-  const auto dir = source != nullptr
-                       ? std::filesystem::path(source) / "fixtures/scenarios"
-                       : std::filesystem::path(__FILE__).parent_path() / "../../fixtures/scenarios";
+  const auto dir = source != nullptr ? std::filesystem::path(source) / "fixtures/scenarios"
+                                     : std::filesystem::path(__FILE__).parent_path() / "../../fixtures/scenarios";
   int seen = 0;
   for (const auto& entry : std::filesystem::directory_iterator(dir)) {
     if (entry.path().extension() != ".scenario") continue;

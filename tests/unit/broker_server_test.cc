@@ -29,9 +29,7 @@ class FakeBroker : public BrokerEndpoint {
   }
   CallStatus Ack(const v1::AckRequest&, v1::AckResponse*) override { return {}; }
   CallStatus Nack(const v1::NackRequest&, v1::NackResponse*) override { return {}; }
-  CallStatus ExtendLease(const v1::ExtendLeaseRequest&, v1::ExtendLeaseResponse*) override {
-    return {};
-  }
+  CallStatus ExtendLease(const v1::ExtendLeaseRequest&, v1::ExtendLeaseResponse*) override { return {}; }
   void OnStrayCall(const std::string&) override {}
   bool CrashRequested() const override { return crash; }
 
@@ -83,7 +81,8 @@ TEST(BrokerServer, CallInsideAWindowRunsOnTheServingThread) {
   BrokerServer::Window window{broker, [] {}};
   Caller caller(server->address());
   const auto give_up = Clock::now() + std::chrono::seconds(10);
-  server->Serve(window, [&] { return caller.done() || Clock::now() > give_up; }, milliseconds(5));
+  server->Serve(
+      window, [&] { return caller.done() || Clock::now() > give_up; }, milliseconds(5));
   ASSERT_TRUE(caller.done());
   EXPECT_TRUE(caller.status().ok()) << caller.status().error_message();
   EXPECT_EQ(broker.pulls, 1);
@@ -118,14 +117,17 @@ TEST(BrokerServer, CrashPointRunsTheCrashActionAndHoldsTheAnswerUntilTheWindowEn
   Caller caller(server->address());
   const auto give_up = Clock::now() + std::chrono::seconds(10);
   bool answer_seen_in_window = false;
-  server->Serve(window, [&] {
-    if (!crash_action_ran) return Clock::now() > give_up;
-    // The crash action ran: the answer must not reach the caller while the
-    // window is open, however long it stays open.
-    std::this_thread::sleep_for(milliseconds(200));
-    answer_seen_in_window = caller.done();
-    return true;
-  }, milliseconds(5));
+  server->Serve(
+      window,
+      [&] {
+        if (!crash_action_ran) return Clock::now() > give_up;
+        // The crash action ran: the answer must not reach the caller while the
+        // window is open, however long it stays open.
+        std::this_thread::sleep_for(milliseconds(200));
+        answer_seen_in_window = caller.done();
+        return true;
+      },
+      milliseconds(5));
   EXPECT_TRUE(crash_action_ran);
   EXPECT_TRUE(window.crashed);
   EXPECT_FALSE(answer_seen_in_window);

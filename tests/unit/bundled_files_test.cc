@@ -54,10 +54,8 @@ TEST_F(BundledFilesTest, DirIsShareWeirBesideTheCommand) {
 TEST_F(BundledFilesTest, BareNamesResolveByKind) {
   EXPECT_EQ(ResolveBundled("quick", BundledKind::kSuite, Dir()), Dir() + "/suites/quick.suite");
   EXPECT_EQ(ResolveBundled("quick.suite", BundledKind::kSuite, Dir()), Dir() + "/suites/quick.suite");
-  EXPECT_EQ(ResolveBundled("crash_storm", BundledKind::kScenario, Dir()),
-            Dir() + "/scenarios/crash_storm.scenario");
-  EXPECT_EQ(ResolveBundled("exactly_once", BundledKind::kProfile, Dir()),
-            Dir() + "/profiles/exactly_once.profile");
+  EXPECT_EQ(ResolveBundled("crash_storm", BundledKind::kScenario, Dir()), Dir() + "/scenarios/crash_storm.scenario");
+  EXPECT_EQ(ResolveBundled("exactly_once", BundledKind::kProfile, Dir()), Dir() + "/profiles/exactly_once.profile");
   // The kind decides the directory: no suite is called crash_storm.
   EXPECT_EQ(ResolveBundled("crash_storm", BundledKind::kSuite, Dir()), "crash_storm");
 }

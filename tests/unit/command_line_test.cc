@@ -19,8 +19,7 @@ TEST(WeirProgram, IsThePathBelowTheWorkingDirectory) {
 }
 
 TEST(WeirProgram, IsTheAbsolutePathElsewhere) {
-  EXPECT_EQ(WeirProgramFor("/src/weir/build/harness/weir", "/home/ci", std::nullopt),
-            "/src/weir/build/harness/weir");
+  EXPECT_EQ(WeirProgramFor("/src/weir/build/harness/weir", "/home/ci", std::nullopt), "/src/weir/build/harness/weir");
   EXPECT_EQ(WeirProgramFor("/opt/my tools/weir", "/home/ci", std::nullopt), "'/opt/my tools/weir'");
   // Another weir on PATH is not this one.
   EXPECT_EQ(WeirProgramFor("/src/weir/build/harness/weir", "/home/ci", std::string("/bin/sh")),

@@ -113,9 +113,8 @@ TEST_F(ConnectorIdentityTest, AMissingExecutableCannotStartAndSaysWhatWasRecorde
   fs::remove(dir_ + "/bin/conn");
   auto c = ResolveRecordedConnector(h, {});
   ASSERT_EQ(c.status().code(), absl::StatusCode::kFailedPrecondition);
-  EXPECT_EQ(c.status().message(),
-            "the connector cannot start: '" + dir_ + "/bin/conn' (recorded as 'bin/conn' in " + dir_ +
-                ") no longer exists; give --connector 'CMD ARGS…' to name it");
+  EXPECT_EQ(c.status().message(), "the connector cannot start: '" + dir_ + "/bin/conn' (recorded as 'bin/conn' in " +
+                                      dir_ + ") no longer exists; give --connector 'CMD ARGS…' to name it");
 }
 
 TEST_F(ConnectorIdentityTest, AMissingFileArgumentCannotStart) {
@@ -125,8 +124,7 @@ TEST_F(ConnectorIdentityTest, AMissingFileArgumentCannotStart) {
   fs::remove(dir_ + "/source.py");
   auto c = ResolveRecordedConnector(h, {});
   ASSERT_EQ(c.status().code(), absl::StatusCode::kFailedPrecondition);
-  EXPECT_TRUE(absl::StrContains(c.status().message(), "its file argument '" + dir_ + "/source.py'"))
-      << c.status();
+  EXPECT_TRUE(absl::StrContains(c.status().message(), "its file argument '" + dir_ + "/source.py'")) << c.status();
 }
 
 TEST_F(ConnectorIdentityTest, AnOverrideIsTakenAsGivenAndStillCompared) {
@@ -141,8 +139,7 @@ TEST_F(ConnectorIdentityTest, AnOverrideIsTakenAsGivenAndStillCompared) {
   auto other = ResolveRecordedConnector(h, {"./other"});
   ASSERT_TRUE(other.ok()) << other.status();
   EXPECT_TRUE(other->changed());
-  EXPECT_EQ(ResolveRecordedConnector(h, {"./absent"}).status().code(),
-            absl::StatusCode::kFailedPrecondition);
+  EXPECT_EQ(ResolveRecordedConnector(h, {"./absent"}).status().code(), absl::StatusCode::kFailedPrecondition);
 }
 
 TEST_F(ConnectorIdentityTest, ATraceWithoutIdentityRunsTheCommandAsGiven) {

@@ -39,12 +39,10 @@ class FakeConnector : public ConnectorPort {
     }
     return {};
   }
-  ConnectorFailure Advance(const v1::AdvanceRequest& rq, v1::AdvanceResponse* rs,
-                           BrokerEndpoint& broker) override {
+  ConnectorFailure Advance(const v1::AdvanceRequest& rq, v1::AdvanceResponse* rs, BrokerEndpoint& broker) override {
     calls.push_back("Advance");
     if (exit_on_step != 0 && rq.step() == exit_on_step) {
-      return ConnectorFailure{ConnectorFailure::Kind::kExited, "died during Advance",
-                              "signal 11 (SIGSEGV)", ""};
+      return ConnectorFailure{ConnectorFailure::Kind::kExited, "died during Advance", "signal 11 (SIGSEGV)", ""};
     }
     if (livelock) {
       rs->set_resume_at_ns(rq.now_ns());
@@ -81,16 +79,14 @@ class FakeConnector : public ConnectorPort {
     (void)rq;
     return {};
   }
-  ConnectorFailure Checkpoint(const v1::CheckpointRequest& rq, v1::CheckpointResponse* rs,
-                              BrokerEndpoint&) override {
+  ConnectorFailure Checkpoint(const v1::CheckpointRequest& rq, v1::CheckpointResponse* rs, BrokerEndpoint&) override {
     calls.push_back("Checkpoint");
     epochs_[rq.checkpoint_id()] = std::move(open_);
     open_.clear();
     rs->set_state("state-" + std::to_string(rq.checkpoint_id()));
     return {};
   }
-  ConnectorFailure Committed(const v1::CommittedRequest& rq, v1::CommittedResponse*,
-                             BrokerEndpoint& broker) override {
+  ConnectorFailure Committed(const v1::CommittedRequest& rq, v1::CommittedResponse*, BrokerEndpoint& broker) override {
     calls.push_back("Committed");
     // One ack call per epoch (at most ack_batch receipts each), so a notice
     // covering several epochs makes several ack calls.
@@ -117,8 +113,7 @@ class FakeConnector : public ConnectorPort {
  private:
   ConnectorFailure Crashed(const char* call) {
     calls.push_back(std::string("Crashed in ") + call);
-    return ConnectorFailure{ConnectorFailure::Kind::kCrashed,
-                            std::string("killed during ") + call, "", ""};
+    return ConnectorFailure{ConnectorFailure::Kind::kCrashed, std::string("killed during ") + call, "", ""};
   }
 
   std::set<std::uint64_t> seen_;

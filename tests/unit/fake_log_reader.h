@@ -39,12 +39,12 @@ struct LogBugs {
   bool idle_stalls = false;            // watermark-stall (an idle partition holds it back)
   bool global_resume_point = false;    // offset-gap: one resume point (the largest) for all
   // Many readers.
-  bool cut_tail_emit = false;          // record-outside-span: reads on into the tail it gave
-  bool cut_overlap = false;            // cut-conservation: the tail starts one before the head's end
-  bool cut_drops_first = false;        // cut-conservation: the tail starts one after the head's end
-  bool keeps_revoked = false;          // record-outside-span: reads on what was revoked
+  bool cut_tail_emit = false;                // record-outside-span: reads on into the tail it gave
+  bool cut_overlap = false;                  // cut-conservation: the tail starts one before the head's end
+  bool cut_drops_first = false;              // cut-conservation: the tail starts one after the head's end
+  bool keeps_revoked = false;                // record-outside-span: reads on what was revoked
   bool checkpoint_forgets_assigned = false;  // checkpoint-coverage: names only spans held at the last one
-  bool trusts_state = false;           // record-outside-span: on restore reads what its state names
+  bool trusts_state = false;                 // record-outside-span: on restore reads what its state names
 };
 
 class FakeLogReader : public ConnectorPort {
@@ -138,8 +138,7 @@ class FakeLogReader : public ConnectorPort {
     if (!bugs_.cut_tail_emit) part.end = bugs_.cut_overlap ? c + 1 : c;
     return {};
   }
-  ConnectorFailure Advance(const v1::AdvanceRequest& rq, v1::AdvanceResponse* rs,
-                           BrokerEndpoint& broker) override {
+  ConnectorFailure Advance(const v1::AdvanceRequest& rq, v1::AdvanceResponse* rs, BrokerEndpoint& broker) override {
     VirtualTime now = rq.now_ns();
     if (new_held_ && !(bugs_.ignore_new_partitions && listed_)) {
       v1::ListPartitionsResponse list;
@@ -156,9 +155,8 @@ class FakeLogReader : public ConnectorPort {
       if (part.end.has_value() && part.next >= *part.end) continue;  // a closed span, done
       v1::ReadRequest read;
       read.set_partition(p);
-      read.set_max_records(part.end.has_value()
-                               ? static_cast<std::uint32_t>(std::min<std::uint64_t>(16, *part.end - part.next))
-                               : 16);
+      read.set_max_records(
+          part.end.has_value() ? static_cast<std::uint32_t>(std::min<std::uint64_t>(16, *part.end - part.next)) : 16);
       v1::ReadResponse got;
       CallStatus st;
       // At most twice: after a gap, read again at once from the first retained
@@ -232,8 +230,7 @@ class FakeLogReader : public ConnectorPort {
     rs->set_resume_at_ns(all_caught_up ? now + Millis(100) : now);
     return {};
   }
-  ConnectorFailure Checkpoint(const v1::CheckpointRequest& rq, v1::CheckpointResponse* rs,
-                              BrokerEndpoint&) override {
+  ConnectorFailure Checkpoint(const v1::CheckpointRequest& rq, v1::CheckpointResponse* rs, BrokerEndpoint&) override {
     auto& snapshot = epochs_[rq.checkpoint_id()];
     std::string spans;
     std::set<std::uint32_t> named_now;
@@ -251,8 +248,7 @@ class FakeLogReader : public ConnectorPort {
     rs->set_state((watermark_.has_value() ? std::to_string(*watermark_) : std::string()) + "|" + spans);
     return {};
   }
-  ConnectorFailure Committed(const v1::CommittedRequest& rq, v1::CommittedResponse*,
-                             BrokerEndpoint& broker) override {
+  ConnectorFailure Committed(const v1::CommittedRequest& rq, v1::CommittedResponse*, BrokerEndpoint& broker) override {
     auto it = epochs_.find(rq.checkpoint_id());
     if (it == epochs_.end()) return {};
     if (!bugs_.bookmark_on_read) {

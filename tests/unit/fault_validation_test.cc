@@ -50,8 +50,7 @@ TEST(FaultValidation, InStepCrashPointAtACheckpointSiteIsRejected) {
 }
 
 TEST(FaultValidation, CheckpointCrashPointsAtAStepSiteAreRejected) {
-  for (const char* point :
-       {"AFTER_CHECKPOINT_BEFORE_COMMIT", "AFTER_COMMIT_BEFORE_NOTICE", "IN_NOTICE_AFTER_ACK"}) {
+  for (const char* point : {"AFTER_CHECKPOINT_BEFORE_COMMIT", "AFTER_COMMIT_BEFORE_NOTICE", "IN_NOTICE_AFTER_ACK"}) {
     const std::string e = Error(std::string("faults {\n  scripted {\n    position: 3\n    site: STEP\n") +
                                 "    crash { point: " + point + " }\n  }\n}\n");
     EXPECT_EQ(e.rfind("s.scenario:5:5:", 0), 0u) << e;
@@ -61,14 +60,14 @@ TEST(FaultValidation, CheckpointCrashPointsAtAStepSiteAreRejected) {
 }
 
 TEST(FaultValidation, CrashPointsAtTheirOwnSitesAreAccepted) {
-  EXPECT_TRUE(Valid(
-      "faults {\n"
-      "  scripted { site: STEP position: 1 crash { point: BEFORE_STEP } }\n"
-      "  scripted { site: STEP position: 2 crash { point: IN_STEP_AFTER_BROKER_CALL after_calls: 1 } }\n"
-      "  scripted { site: CHECKPOINT position: 1 crash { point: AFTER_CHECKPOINT_BEFORE_COMMIT } }\n"
-      "  scripted { site: CHECKPOINT position: 2 crash { point: AFTER_COMMIT_BEFORE_NOTICE } }\n"
-      "  scripted { site: CHECKPOINT position: 3 crash { point: IN_NOTICE_AFTER_ACK after_calls: 1 } }\n"
-      "}\n"));
+  EXPECT_TRUE(
+      Valid("faults {\n"
+            "  scripted { site: STEP position: 1 crash { point: BEFORE_STEP } }\n"
+            "  scripted { site: STEP position: 2 crash { point: IN_STEP_AFTER_BROKER_CALL after_calls: 1 } }\n"
+            "  scripted { site: CHECKPOINT position: 1 crash { point: AFTER_CHECKPOINT_BEFORE_COMMIT } }\n"
+            "  scripted { site: CHECKPOINT position: 2 crash { point: AFTER_COMMIT_BEFORE_NOTICE } }\n"
+            "  scripted { site: CHECKPOINT position: 3 crash { point: IN_NOTICE_AFTER_ACK after_calls: 1 } }\n"
+            "}\n"));
 }
 
 TEST(FaultValidation, CrashWithoutAPointIsRejected) {
@@ -83,13 +82,14 @@ TEST(FaultValidation, BrokerFaultsAtTheWrongSiteAreRejectedAsInPlanFiles) {
   EXPECT_NE(Error("faults { scripted { site: STEP position: 1 latency_ms: 5 } }\n")
                 .find("expected site PULL, ACK, NACK or EXTEND_LEASE"),
             std::string::npos);
-  EXPECT_NE(Error("faults { scripted { site: ACK position: 1 commit_failure: true } }\n")
-                .find("expected site CHECKPOINT"),
-            std::string::npos);
-  EXPECT_TRUE(Valid("faults { scripted { site: ACK position: 1 lost_ack: true }\n"
-                    "         scripted { site: NACK position: 1 transient { code: UNAVAILABLE } }\n"
-                    "         scripted { site: PULL position: 1 broker_restart: true }\n"
-                    "         scripted { site: PUBLISH position: 1 visibility_delay_ms: 5 } }\n"));
+  EXPECT_NE(
+      Error("faults { scripted { site: ACK position: 1 commit_failure: true } }\n").find("expected site CHECKPOINT"),
+      std::string::npos);
+  EXPECT_TRUE(
+      Valid("faults { scripted { site: ACK position: 1 lost_ack: true }\n"
+            "         scripted { site: NACK position: 1 transient { code: UNAVAILABLE } }\n"
+            "         scripted { site: PULL position: 1 broker_restart: true }\n"
+            "         scripted { site: PUBLISH position: 1 visibility_delay_ms: 5 } }\n"));
 }
 
 }  // namespace

@@ -21,8 +21,7 @@ const std::string kFffd = "\xEF\xBF\xBD";
 TEST(EscapeMarkup, TurnsScriptTagsQuotesAndAmpersandsIntoEntities) {
   // The five characters HTML and XML treat as markup (HTML Living Standard,
   // "Escaping a string"; XML 1.0 §2.4 predefined entities).
-  EXPECT_EQ(EscapeMarkup("<script>alert(\"x\")</script>"),
-            "&lt;script&gt;alert(&quot;x&quot;)&lt;/script&gt;");
+  EXPECT_EQ(EscapeMarkup("<script>alert(\"x\")</script>"), "&lt;script&gt;alert(&quot;x&quot;)&lt;/script&gt;");
   EXPECT_EQ(EscapeMarkup("a & b 'c'"), "a &amp; b &#39;c&#39;");
   EXPECT_EQ(EscapeMarkup("&amp;"), "&amp;amp;");
   EXPECT_EQ(EscapeMarkup("plain text, tab\tnewline\n"), "plain text, tab\tnewline\n");
@@ -36,7 +35,9 @@ TEST(EscapeMarkup, ReplacesInvalidUtf8WithReplacementCharacters) {
   // Ill-formed sequences per RFC 3629 §3-4: a lone 0xFF, a stray continuation
   // byte, an overlong NUL (C0 80), a UTF-16 surrogate (ED A0 80), a code point
   // above U+10FFFF (F4 90 80 80) and a truncated 3-byte sequence.
-  EXPECT_EQ(EscapeMarkup("a\xFF" "b"), "a" + kFffd + "b");
+  EXPECT_EQ(EscapeMarkup("a\xFF"
+                         "b"),
+            "a" + kFffd + "b");
   EXPECT_EQ(EscapeMarkup("\x80"), kFffd);
   EXPECT_EQ(EscapeMarkup("\xC0\x80"), kFffd + kFffd);
   EXPECT_EQ(EscapeMarkup("\xED\xA0\x80"), kFffd + kFffd + kFffd);
@@ -134,11 +135,11 @@ TEST(HtmlTimeline, DrawsOneOverviewMarkPerCommitAndCrash) {
 
 TEST(HtmlTimeline, JoinsCommitsToTheirEpochAndAcksToTheirRecord) {
   const std::string html = RunTimelinesHtml(HostileRun());
-  EXPECT_EQ(Count(html, "class=\"join commit-join\""), 1u);  // checkpoint 1 closed the epoch of one record
+  EXPECT_EQ(Count(html, "class=\"join commit-join\""), 1u);   // checkpoint 1 closed the epoch of one record
   EXPECT_EQ(Count(html, "class=\"join ack-join bad\""), 1u);  // the proving ack, to message 3's record
   EXPECT_EQ(Count(html, "class=\"join receipt-join\""), 1u);  // and to its delivery (receipt 30)
   EXPECT_EQ(Count(html, " proving\" data-seq="), 2u);
-  EXPECT_EQ(Count(html, "class=\"watermark\""), 0u);  // no watermark was reported
+  EXPECT_EQ(Count(html, "class=\"watermark\""), 0u);   // no watermark was reported
   EXPECT_EQ(Count(html, "<circle class=\"et\""), 1u);  // the record at its event time
 }
 
@@ -154,7 +155,7 @@ TEST(HtmlTimeline, FoldsTheLongStretchBetweenTwoWindows) {
   const std::string html = RunTimelinesHtml(run);
   EXPECT_EQ(Count(html, "class=\"fold\""), 1u);
   EXPECT_NE(html.find(">994 events folded<"), std::string::npos);  // #6 … #999
-  v.events[5].event.set_seq(26);  // a jump of 20 events (#6 … #25) is no fold
+  v.events[5].event.set_seq(26);                                   // a jump of 20 events (#6 … #25) is no fold
   v.events[6].event.set_seq(27);
   v.events[7].event.set_seq(28);
   EXPECT_EQ(Count(RunTimelinesHtml(run), "class=\"fold\""), 0u);

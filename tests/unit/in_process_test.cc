@@ -75,8 +75,8 @@ class TimeOrder : public TraceObserver {
  public:
   void OnEvent(const v1::TraceEvent& e) override {
     if (e.t_ns() < last_t && first_bad.empty()) {
-      first_bad = absl::StrCat("event #", e.seq(), " at ", e.t_ns(), " ns after event #", e.seq() - 1, " at ",
-                               last_t, " ns: ", e.ShortDebugString());
+      first_bad = absl::StrCat("event #", e.seq(), " at ", e.t_ns(), " ns after event #", e.seq() - 1, " at ", last_t,
+                               " ns: ", e.ShortDebugString());
     }
     last_t = std::max(last_t, e.t_ns());
   }
@@ -101,8 +101,7 @@ TEST(InProcess, TraceOrderIsTimeOrderInEveryBundledScenario) {
 // The log shape in-process: the log reference reads, reports gaps and saves
 // bookmarks through the same simulation, with the digest of the gRPC run.
 TEST(InProcess, LogReferenceGivesTheSameDigestAsOverGrpc) {
-  for (const char* scenario :
-       {"log_steady_river_gauges.scenario", "log_retention_race_pollen_traps.scenario"}) {
+  for (const char* scenario : {"log_steady_river_gauges.scenario", "log_retention_race_pollen_traps.scenario"}) {
     RunSpec spec = Spec(scenario, 3);
     auto in_process = RunInProcess(spec, [] { return std::make_unique<fixtures::LogReferenceSource>(); });
     ASSERT_TRUE(in_process.ok()) << in_process.status();
@@ -137,9 +136,7 @@ class EmptyLogEndpoint final : public BrokerEndpoint {
   CallStatus Ack(const v1::AckRequest&, v1::AckResponse*) override { return {}; }
   CallStatus Nack(const v1::NackRequest&, v1::NackResponse*) override { return {}; }
   CallStatus ExtendLease(const v1::ExtendLeaseRequest&, v1::ExtendLeaseResponse*) override { return {}; }
-  CallStatus ListPartitions(const v1::ListPartitionsRequest&, v1::ListPartitionsResponse*) override {
-    return {};
-  }
+  CallStatus ListPartitions(const v1::ListPartitionsRequest&, v1::ListPartitionsResponse*) override { return {}; }
   CallStatus Read(const v1::ReadRequest& request, v1::ReadResponse* response) override {
     ++reads;
     response->set_partition(request.partition());
@@ -219,8 +216,7 @@ TEST(InProcessReaders, ASourceWithoutManyReadersAnswersAssignAsAConnectorError) 
   EXPECT_EQ(assign.kind, ConnectorFailure::Kind::kConnectorError);
   EXPECT_EQ(assign.code, static_cast<int>(grpc::StatusCode::UNIMPLEMENTED));
   v1::RevokeResponse revoked;
-  EXPECT_EQ(port.Revoke(v1::RevokeRequest(), &revoked, broker).code,
-            static_cast<int>(grpc::StatusCode::UNIMPLEMENTED));
+  EXPECT_EQ(port.Revoke(v1::RevokeRequest(), &revoked, broker).code, static_cast<int>(grpc::StatusCode::UNIMPLEMENTED));
   v1::CutRequest cut;
   cut.set_partition(2);
   cut.set_at_offset(7);

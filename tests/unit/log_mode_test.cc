@@ -20,9 +20,9 @@
 namespace weir {
 namespace {
 
+using testing::Failed;
 using testing::FakeLogReader;
 using testing::LogBugs;
-using testing::Failed;
 using testing::TraceRecorder;
 
 v1::Scenario LogScenario(std::uint64_t records, std::uint32_t partitions) {
@@ -138,8 +138,7 @@ TEST(LogModel, ReadBelowRetentionFailsNamingTheFirstRetainedOffset) {
   EXPECT_EQ(st.code, CallCode::kOutOfRange);
   EXPECT_EQ(st.first_retained_offset, model.first_retained(0));
   EXPECT_GT(model.first_retained(0), 70u);
-  EXPECT_NE(st.message.find("first retained offset is " + std::to_string(model.first_retained(0))),
-            std::string::npos)
+  EXPECT_NE(st.message.find("first retained offset is " + std::to_string(model.first_retained(0))), std::string::npos)
       << st.message;
   rq.set_offset(model.first_retained(0));
   st = model.Read(rq, &now, &rs, 2);
@@ -227,8 +226,7 @@ TEST(LogMode, ResumeAtCheckpointPlusOneIsASkip) {
   const Verdict v = run.Run();
   EXPECT_GT(run.Violations(v, Invariant::kResumeExact), 0u) << Failed(v);
   ASSERT_FALSE(v.at(Invariant::kResumeExact).first.empty());
-  EXPECT_NE(v.at(Invariant::kResumeExact).first[0].sentence.find("a skip of 1 offset"),
-            std::string::npos)
+  EXPECT_NE(v.at(Invariant::kResumeExact).first[0].sentence.find("a skip of 1 offset"), std::string::npos)
       << v.at(Invariant::kResumeExact).first[0].sentence;
   EXPECT_GT(run.Violations(v, Invariant::kOffsetGap), 0u);
 }
@@ -298,8 +296,7 @@ TEST(LogMode, IgnoringNewPartitionsIsNamed) {
   LogRun run(s, LogBugs{.ignore_new_partitions = true});
   const Verdict v = run.Run();
   ASSERT_GT(run.Violations(v, Invariant::kNewPartition), 0u) << Failed(v);
-  EXPECT_NE(v.at(Invariant::kNewPartition).first[0].sentence.find("was never read"),
-            std::string::npos);
+  EXPECT_NE(v.at(Invariant::kNewPartition).first[0].sentence.find("was never read"), std::string::npos);
 }
 
 TEST(LogMode, JumpingPastDeletedRecordsSilentlyIsCaughtAndReportingThemIsNot) {
@@ -353,9 +350,7 @@ TEST(LogMode, OneResumePointForEveryPartitionLosesOffsets) {
   s.mutable_faults()->set_crash_rate(0.02);
   LogRun run(s, LogBugs{.global_resume_point = true});
   const Verdict v = run.Run();
-  EXPECT_GT(run.Violations(v, Invariant::kOffsetGap) + run.Violations(v, Invariant::kResumeExact),
-            0u)
-      << Failed(v);
+  EXPECT_GT(run.Violations(v, Invariant::kOffsetGap) + run.Violations(v, Invariant::kResumeExact), 0u) << Failed(v);
   EXPECT_GT(run.Violations(v, Invariant::kOffsetGap), 0u) << Failed(v);
 }
 

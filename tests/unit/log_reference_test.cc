@@ -46,14 +46,9 @@ class FakeLog : public adapter::BrokerClient {
     out->clear();
     return Fail(grpc::StatusCode::FAILED_PRECONDITION);
   }
-  BrokerStatus Ack(const std::vector<std::uint64_t>&) override {
-    return Fail(grpc::StatusCode::FAILED_PRECONDITION);
-  }
-  BrokerStatus Nack(const std::vector<std::uint64_t>&) override {
-    return Fail(grpc::StatusCode::FAILED_PRECONDITION);
-  }
-  BrokerStatus ExtendLease(const std::vector<std::uint64_t>&, std::int64_t,
-                           std::vector<std::uint64_t>*) override {
+  BrokerStatus Ack(const std::vector<std::uint64_t>&) override { return Fail(grpc::StatusCode::FAILED_PRECONDITION); }
+  BrokerStatus Nack(const std::vector<std::uint64_t>&) override { return Fail(grpc::StatusCode::FAILED_PRECONDITION); }
+  BrokerStatus ExtendLease(const std::vector<std::uint64_t>&, std::int64_t, std::vector<std::uint64_t>*) override {
     return Fail(grpc::StatusCode::FAILED_PRECONDITION);
   }
 
@@ -202,8 +197,7 @@ class Driver {
     EXPECT_TRUE(ctx.misuse().empty()) << ctx.misuse();
     auto span_of = [](const v1::Span& sp) {
       return adapter::Span{sp.partition(), sp.start_offset(),
-                           sp.has_end_offset() ? std::optional<std::uint64_t>(sp.end_offset())
-                                               : std::nullopt};
+                           sp.has_end_offset() ? std::optional<std::uint64_t>(sp.end_offset()) : std::nullopt};
     };
     std::optional<adapter::Span> tail;
     if (response.has_tail()) tail = span_of(response.tail());
@@ -675,17 +669,17 @@ TEST(LogReaders, RevokeDropsABookmarkNotYetSaved) {
 TEST(LogReaders, CutHeadAndTailAreDisjointMakeTheSpanAndHoldEveryEmittedOffset) {
   struct Case {
     std::optional<std::uint64_t> end;
-    int steps;          // steps before the cut (64 records each)
-    std::uint64_t at;   // the proposed tail start
+    int steps;         // steps before the cut (64 records each)
+    std::uint64_t at;  // the proposed tail start
   };
   const std::vector<Case> cases = {
-      {std::nullopt, 0, 0},  {std::nullopt, 0, 30}, {std::nullopt, 1, 10}, {std::nullopt, 1, 64},
-      {std::nullopt, 1, 90}, {std::nullopt, 2, 500}, {150, 1, 10},         {150, 1, 100},
-      {150, 0, 149},
+      {std::nullopt, 0, 0},  {std::nullopt, 0, 30}, {std::nullopt, 1, 10},
+      {std::nullopt, 1, 64}, {std::nullopt, 1, 90}, {std::nullopt, 2, 500},
+      {150, 1, 10},          {150, 1, 100},         {150, 0, 149},
   };
   for (const Case& c : cases) {
-    SCOPED_TRACE(testing::Message() << "end " << (c.end ? std::to_string(*c.end) : "open") << " steps "
-                                    << c.steps << " at " << c.at);
+    SCOPED_TRACE(testing::Message() << "end " << (c.end ? std::to_string(*c.end) : "open") << " steps " << c.steps
+                                    << " at " << c.at);
     Driver d;
     d.readers = 2;
     d.log.Append(0, 0, 300);

@@ -18,9 +18,9 @@
 namespace weir {
 namespace {
 
+using testing::Failed;
 using testing::FakeLogReader;
 using testing::LogBugs;
-using testing::Failed;
 using testing::TraceRecorder;
 
 v1::Scenario ReadersScenario(std::uint32_t readers, std::uint32_t partitions) {
@@ -169,8 +169,8 @@ TEST(ManyReaders, EachBugIsRefusedByItsRule) {
       {"cut_overlap", LogBugs{.cut_overlap = true}, Invariant::kCutConservation, CutHeavy()},
       {"cut_drops_first", LogBugs{.cut_drops_first = true}, Invariant::kCutConservation, CutHeavy()},
       {"keeps_revoked", LogBugs{.keeps_revoked = true}, Invariant::kRecordOutsideSpan, MoveHeavy(0)},
-      {"checkpoint_forgets_assigned", LogBugs{.checkpoint_forgets_assigned = true},
-       Invariant::kCheckpointCoverage, MoveHeavy(0)},
+      {"checkpoint_forgets_assigned", LogBugs{.checkpoint_forgets_assigned = true}, Invariant::kCheckpointCoverage,
+       MoveHeavy(0)},
       {"trusts_state", LogBugs{.trusts_state = true}, Invariant::kRecordOutsideSpan, MoveHeavy(0.03)},
   };
   for (const BugCase& c : cases) {

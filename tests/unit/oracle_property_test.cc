@@ -65,39 +65,28 @@ class RunModel {
   void Apply(const Action& x) {
     switch (x.kind) {
       case 0:
-      case 1:
-        Publish();
-        break;
+      case 1: Publish(); break;
       case 2:
-      case 3:
-        Deliver(x.a);
-        break;
+      case 3: Deliver(x.a); break;
       case 4:
-      case 5:
-        Step(x.a, x.b);
-        break;
-      case 6:
-        Checkpoint();
-        break;
-      case 7:
-        Commit(x.a, x.b);
-        break;
+      case 5: Step(x.a, x.b); break;
+      case 6: Checkpoint(); break;
+      case 7: Commit(x.a, x.b); break;
       case 8:
-        if (x.b % 3 == 0) CommitFailed(x.a);
-        else Commit(x.a, x.b);
+        if (x.b % 3 == 0)
+          CommitFailed(x.a);
+        else
+          Commit(x.a, x.b);
         break;
-      case 9:
-        Ack(x.a, x.b);
-        break;
+      case 9: Ack(x.a, x.b); break;
       case 10:
-        if (x.b % 2 == 0) CrashAndOpen(x.a);
-        else LeaseExpired(x.a);
+        if (x.b % 2 == 0)
+          CrashAndOpen(x.a);
+        else
+          LeaseExpired(x.a);
         break;
-      case 11:
-        Ack(x.a, x.b);
-        break;
-      default:
-        break;
+      case 11: Ack(x.a, x.b); break;
+      default: break;
     }
   }
 
@@ -209,8 +198,7 @@ class RunModel {
     const std::int64_t delta = Millis(static_cast<std::int64_t>((b >> 4) % 50));
     switch (b % 8) {
       case 0:
-      case 1:
-        break;  // no watermark
+      case 1: break;  // no watermark
       case 2:
         w = base;  // same again
         break;
@@ -220,9 +208,7 @@ class RunModel {
       case 4:
         w = std::int64_t{0};  // a connector that forgot its watermark
         break;
-      default:
-        w = base + delta;
-        break;
+      default: w = base + delta; break;
     }
     EndStep(w);
   }
@@ -281,8 +267,10 @@ class RunModel {
     Opened();
     // The restored connector resumes from the committed watermark, or (a bug
     // the oracle must catch) from nothing.
-    if (last_committed_.has_value() && a % 3 != 0) watermark_ = last_committed_->second;
-    else watermark_.reset();
+    if (last_committed_.has_value() && a % 3 != 0)
+      watermark_ = last_committed_->second;
+    else
+      watermark_.reset();
   }
 
   void RecomputeCommitted() {
@@ -293,9 +281,7 @@ class RunModel {
     committed_.clear();
     for (const TraceEvent& e : trace_) {
       switch (e.kind_case()) {
-        case TraceEvent::kEmitted:
-          open.push_back(e.emitted().message_id());
-          break;
+        case TraceEvent::kEmitted: open.push_back(e.emitted().message_id()); break;
         case TraceEvent::kCheckpoint:
           epochs[e.checkpoint().checkpoint_id()] = open;
           open.clear();
@@ -308,8 +294,7 @@ class RunModel {
           open.clear();
           epochs.clear();
           break;
-        default:
-          break;
+        default: break;
       }
     }
   }
@@ -320,7 +305,7 @@ class RunModel {
   std::uint64_t next_receipt_ = 100;
   std::uint64_t next_checkpoint_ = 1;
   std::uint64_t step_ = 0;
-  std::optional<std::int64_t> watermark_;  // the connector's last reported
+  std::optional<std::int64_t> watermark_;                         // the connector's last reported
   std::map<std::uint64_t, std::vector<std::uint64_t>> receipts_;  // by message
   std::set<std::uint64_t> delivered_here_;                        // this incarnation
   std::set<std::uint64_t> committed_;
@@ -398,8 +383,7 @@ Counts BruteForce(const std::vector<TraceEvent>& t, bool exactly_once) {
     if (t[j].kind_case() == TraceEvent::kRunEnded) end = j;
   }
   for (std::size_t j = 0; j < t.size(); ++j) {
-    if (t[j].kind_case() == TraceEvent::kPublished &&
-        !committed_before(t[j].published().message_id(), end)) {
+    if (t[j].kind_case() == TraceEvent::kPublished && !committed_before(t[j].published().message_id(), end)) {
       ++out.lost;
     }
   }
@@ -468,16 +452,14 @@ std::vector<TraceEvent> Generate(const std::vector<Action>& actions, bool drain)
 }
 
 RC_GTEST_PROP(OracleProperty, AgreesWithBruteForce, ()) {
-  const auto actions =
-      *rc::gen::scale(3.0, rc::gen::arbitrary<std::vector<Action>>()).as("actions");
+  const auto actions = *rc::gen::scale(3.0, rc::gen::arbitrary<std::vector<Action>>()).as("actions");
   const bool drain = *rc::gen::arbitrary<bool>().as("drain");
   const bool exactly_once = *rc::gen::arbitrary<bool>().as("exactly_once");
   const std::vector<TraceEvent> trace = Generate(actions, drain);
   const Counts want = BruteForce(trace, exactly_once);
   const Verdict got = RunOracle(trace, exactly_once);
 
-  RC_TAG(want.ack_before_commit > 0, want.lost > 0, want.duplicate_records > 0,
-         want.watermark_regression > 0);
+  RC_TAG(want.ack_before_commit > 0, want.lost > 0, want.duplicate_records > 0, want.watermark_regression > 0);
   RC_ASSERT(got.at(Invariant::kAckBeforeCommit).violations == want.ack_before_commit);
   RC_ASSERT(got.at(Invariant::kLostMessage).violations == want.lost);
   RC_ASSERT(got.at(Invariant::kDuplicateOutput).violations == want.duplicate_violations);
@@ -492,10 +474,11 @@ RC_GTEST_PROP(OracleProperty, AgreesWithBruteForce, ()) {
 // A fixed trace through the same two checkers, so a reader sees the shape.
 TEST(OracleProperty, HandWrittenTraceAgrees) {
   std::vector<Action> actions = {
-      {0, 0, 0}, {0, 0, 0}, {2, 0, 0}, {2, 1, 0}, {4, 2, 5}, {9, 0, 0},  // ack before commit
-      {6, 0, 0}, {7, 0, 0}, {4, 0, 3 + (20 << 4)},                       // regression
-      {10, 1, 0},                                                        // crash, restore
-      {4, 0, 4},  // back to 0: below the restored checkpoint's watermark?
+      {0, 0, 0},  {0, 0, 0}, {2, 0, 0},
+      {2, 1, 0},  {4, 2, 5}, {9, 0, 0},              // ack before commit
+      {6, 0, 0},  {7, 0, 0}, {4, 0, 3 + (20 << 4)},  // regression
+      {10, 1, 0},                                    // crash, restore
+      {4, 0, 4},                                     // back to 0: below the restored checkpoint's watermark?
   };
   for (bool eo : {true, false}) {
     const auto trace = Generate(actions, true);

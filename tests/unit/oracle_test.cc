@@ -11,8 +11,7 @@ namespace {
 // Builds a trace by hand and feeds it to an oracle.
 class TraceBuilder {
  public:
-  explicit TraceBuilder(v1::Profile::Guarantee g = v1::Profile::EXACTLY_ONCE,
-                        std::int64_t min_backoff_ms = 0)
+  explicit TraceBuilder(v1::Profile::Guarantee g = v1::Profile::EXACTLY_ONCE, std::int64_t min_backoff_ms = 0)
       : oracle_(Profile(g, min_backoff_ms)) {}
   explicit TraceBuilder(const v1::Profile& profile) : oracle_(profile) {}
 
@@ -112,8 +111,7 @@ class TraceBuilder {
     e.mutable_broker_call()->set_position(position);
     return Send(e);
   }
-  std::uint64_t BrokerCallFailed(const std::string& method, VirtualTime t, int code,
-                                 VirtualDuration retry_after = 0) {
+  std::uint64_t BrokerCallFailed(const std::string& method, VirtualTime t, int code, VirtualDuration retry_after = 0) {
     auto& e = Next();
     e.set_t_ns(t);
     e.mutable_broker_call_failed()->set_method(method);
@@ -425,8 +423,8 @@ TEST(Oracle, ThrottleHoldsAfterTheRetryAfterAndForOtherMethods) {
   TraceBuilder t;
   t.BrokerCall("Pull", Millis(100), 1);
   t.BrokerCallFailed("Pull", Millis(100), kThrottled, Millis(50));
-  t.BrokerCall("Ack", Millis(101), 1);          // a throttled pull does not forbid acks
-  t.BrokerCall("Pull", Millis(150), 2);         // exactly at the retry-after: fine
+  t.BrokerCall("Ack", Millis(101), 1);   // a throttled pull does not forbid acks
+  t.BrokerCall("Pull", Millis(150), 2);  // exactly at the retry-after: fine
   t.BrokerCall("Pull", Millis(151), 3);
   Verdict v = t.End();
   EXPECT_EQ(v.at(Invariant::kThrottleViolation).violations, 0u);
@@ -492,9 +490,9 @@ TEST(Oracle, WatermarkStuckThroughALongIdlePeriodIsAStall) {
   t.At(Millis(10)).Delivered(1, 10);
   t.At(Millis(10)).Record(1, Millis(5));
   const auto begin = t.At(Millis(10)).Stepped(Millis(5), /*broker_idle=*/true);
-  t.At(Millis(500)).Stepped(Millis(5), true);   // idle 490 ms: within the timeout
+  t.At(Millis(500)).Stepped(Millis(5), true);                     // idle 490 ms: within the timeout
   const auto late = t.At(Millis(1500)).Stepped(Millis(5), true);  // idle 1.49 s, watermark 1.495 s behind
-  t.At(Millis(2500)).Stepped(Millis(5), true);  // same idle period: not reported again
+  t.At(Millis(2500)).Stepped(Millis(5), true);                    // same idle period: not reported again
   Verdict v = t.End();
   const auto& r = v.at(Invariant::kWatermarkStall);
   ASSERT_TRUE(r.checked);
@@ -510,7 +508,7 @@ TEST(Oracle, WatermarkThatAdvancesWhileIdleHolds) {
   t.At(Millis(10)).Delivered(1, 10);
   t.At(Millis(10)).Record(1, Millis(5));
   t.At(Millis(10)).Stepped(Millis(5), true);
-  t.At(Millis(1500)).Stepped(Millis(600), true);   // 900 ms behind now: within the 1 s lag
+  t.At(Millis(1500)).Stepped(Millis(600), true);  // 900 ms behind now: within the 1 s lag
   t.At(Millis(3000)).Stepped(Millis(2500), true);
   t.At(Millis(3000)).Checkpoint(1);
   t.At(Millis(3000)).Committed(1);
@@ -523,14 +521,14 @@ TEST(Oracle, NotIdleWhileADeliveredMessageHasNoRecordOrTheBrokerHasWork) {
   TraceBuilder t(StallProfile(1000));
   t.At(Millis(10)).Published(1);
   t.At(Millis(10)).Delivered(1, 10);
-  t.At(Millis(10)).Stepped(std::nullopt, true);     // message 1 still has no record: busy
+  t.At(Millis(10)).Stepped(std::nullopt, true);  // message 1 still has no record: busy
   t.At(Millis(2000)).Stepped(std::nullopt, true);
   t.At(Millis(2000)).Record(1, Millis(5));
-  t.At(Millis(2000)).Stepped(Millis(5), false);     // the broker has work: busy
+  t.At(Millis(2000)).Stepped(Millis(5), false);  // the broker has work: busy
   t.At(Millis(4000)).Stepped(Millis(5), false);
-  t.At(Millis(4000)).Stepped(Millis(5), true);      // idle starts here
-  t.At(Millis(4500)).Published(2);                  // and ends here
-  t.At(Millis(5500)).Stepped(Millis(5), true);      // a new idle period starts
+  t.At(Millis(4000)).Stepped(Millis(5), true);  // idle starts here
+  t.At(Millis(4500)).Published(2);              // and ends here
+  t.At(Millis(5500)).Stepped(Millis(5), true);  // a new idle period starts
   Verdict v = t.End();
   EXPECT_EQ(v.at(Invariant::kWatermarkStall).violations, 0u);
 }
@@ -664,7 +662,7 @@ TEST(Oracle, RecordsOfRedeliveredAndRetiredMessagesAreFine) {
   t.Emitted(1);
   t.Checkpoint(1);
   t.Committed(1);
-  t.Acked(1, 11);      // retired
+  t.Acked(1, 11);  // retired
   Verdict v = t.End();
   EXPECT_EQ(v.at(Invariant::kProtocolError).violations, 0u);
   EXPECT_TRUE(v.passed());
@@ -704,7 +702,8 @@ namespace {
 // exchange; garbage on the wire stays a protocol-error.
 TEST(Oracle, AnErrorStatusFromTheConnectorIsAConnectorErrorNotAProtocolError) {
   TraceBuilder t;
-  const auto e = t.ConnectorError("Advance", 13, "Advance answered INTERNAL: source raised during advance: RuntimeError: x");
+  const auto e =
+      t.ConnectorError("Advance", 13, "Advance answered INTERNAL: source raised during advance: RuntimeError: x");
   const Verdict v = t.End();
   EXPECT_EQ(v.at(Invariant::kProtocolError).violations, 0u);
   const auto& r = v.at(Invariant::kConnectorError);
@@ -774,9 +773,9 @@ TEST(Oracle, AWatermarkAtOrBelowNowPlusTheAllowanceHolds) {
 TEST(Oracle, AWatermarkThatFallsBackWithinTheBoundAndRunsAheadAgainIsTwoCauses) {
   TraceBuilder t(MonotonicProfile(/*max_lead_ms=*/1000));
   t.At(Seconds(1));
-  t.Stepped(Seconds(5), false);   // ahead by 4 s
+  t.Stepped(Seconds(5), false);  // ahead by 4 s
   t.At(Seconds(5));
-  t.Stepped(Seconds(5), false);   // within the bound again
+  t.Stepped(Seconds(5), false);  // within the bound again
   t.At(Seconds(6));
   t.Stepped(Seconds(60), false);  // ahead again
   EXPECT_EQ(t.End().at(Invariant::kWatermarkAhead).violations, 2u);
@@ -852,10 +851,10 @@ TEST(Oracle, OneThrottleMisuseIsOneViolationUntilTheConnectorWaits) {
 
   TraceBuilder u;
   u.BrokerCallFailed("Pull", Millis(100), 8, Millis(500));
-  u.BrokerCall("Pull", Millis(110), 2);          // misuse 1
-  u.BrokerCall("Pull", Millis(700), 3);          // waited: served its time
+  u.BrokerCall("Pull", Millis(110), 2);  // misuse 1
+  u.BrokerCall("Pull", Millis(700), 3);  // waited: served its time
   u.BrokerCallFailed("Pull", Millis(700), 8, Millis(500));
-  u.BrokerCall("Pull", Millis(710), 4);          // misuse 2: a new cause
+  u.BrokerCall("Pull", Millis(710), 4);  // misuse 2: a new cause
   const Verdict v = u.End();
   EXPECT_EQ(v.at(Invariant::kThrottleViolation).violations, 2u);
   EXPECT_EQ(v.at(Invariant::kThrottleViolation).echoes, 0u);
@@ -1013,8 +1012,7 @@ TEST(OracleCoverage, ThrottleViolationHasAChanceOnlyWhenTheThrottledMethodIsCall
     const Verdict v = t.End();
     EXPECT_EQ(v.at(Invariant::kThrottleViolation).chances, 1u);
     EXPECT_EQ(v.at(Invariant::kThrottleViolation).violations, 0u);
-    EXPECT_NE(FormatVerdictTable(v).find("throttle-violation     held"), std::string::npos)
-        << FormatVerdictTable(v);
+    EXPECT_NE(FormatVerdictTable(v).find("throttle-violation     held"), std::string::npos) << FormatVerdictTable(v);
   }
 }
 

@@ -38,7 +38,7 @@ class BrokerModelTest : public ::testing::Test {
 };
 
 TEST_F(BrokerModelTest, PublishesOverVirtualTimeOnly) {
-  EXPECT_EQ(Pull(0).deliveries_size(), 1);    // message 1 at 0 ms
+  EXPECT_EQ(Pull(0).deliveries_size(), 1);           // message 1 at 0 ms
   EXPECT_EQ(Pull(Millis(15)).deliveries_size(), 1);  // message 2 at 10 ms
   EXPECT_EQ(model_.published(), 2u);
   EXPECT_FALSE(model_.all_published());

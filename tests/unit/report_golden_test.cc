@@ -44,8 +44,7 @@ void ExpectGolden(const std::string& name, const Verdict& v) {
   ASSERT_TRUE(in.good()) << path << " is missing; run with WEIR_UPDATE_GOLDEN=1 to create it";
   std::stringstream expected;
   expected << in.rdbuf();
-  EXPECT_EQ(actual, expected.str()) << "report differs from " << path
-                                    << " (WEIR_UPDATE_GOLDEN=1 rewrites it)";
+  EXPECT_EQ(actual, expected.str()) << "report differs from " << path << " (WEIR_UPDATE_GOLDEN=1 rewrites it)";
 }
 
 // Feeds events one at a time, numbering them and stamping time = seq × 1 ms.

@@ -73,7 +73,8 @@ TEST(RunLog, RunsReadBackUnchangedAndInTheOrderAppended) {
   ASSERT_EQ(runs.size(), kRuns - 1);
   for (std::uint64_t i = 1; i < kRuns; ++i) {
     ASSERT_TRUE(google::protobuf::util::MessageDifferencer::Equals(runs[i - 1], RunNumber(i)))
-        << "run " << i << ":\n" << runs[i - 1].DebugString();
+        << "run " << i << ":\n"
+        << runs[i - 1].DebugString();
   }
   // A run with fewer fields set than the one before it reads back without
   // the previous run's fields (reading replaces, it does not merge).
@@ -97,7 +98,8 @@ TEST(RunLog, EmptyLogReadsNothing) {
 // path (a crash, SIGKILL) can leave it behind; and a connector process started
 // meanwhile does not inherit its descriptor.
 TEST(RunLog, LeavesNothingOnDiskAndIsNotInherited) {
-  const std::string tmp = (std::filesystem::temp_directory_path() / ("weir-run-log-test-" + std::to_string(::getpid()))).string();
+  const std::string tmp =
+      (std::filesystem::temp_directory_path() / ("weir-run-log-test-" + std::to_string(::getpid()))).string();
   std::filesystem::create_directories(tmp);
   const char* old = std::getenv("TMPDIR");
   const std::string saved = old != nullptr ? old : "";

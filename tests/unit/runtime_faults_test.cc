@@ -48,7 +48,8 @@ struct Harness {
     return -1;
   }
   int Find(TraceEvent::KindCase kind, int from = 0) const {
-    return Find(kind, [](const TraceEvent&) { return true; }, from);
+    return Find(
+        kind, [](const TraceEvent&) { return true; }, from);
   }
   int Crash(const std::string& point) const {
     return Find(TraceEvent::kCrashed, [&](const TraceEvent& e) { return e.crashed().point() == point; });
@@ -160,8 +161,7 @@ TEST(RuntimeFaults, InStepAfterBrokerCallKillsRightAfterTheNthCall) {
     }
   }
   EXPECT_TRUE(delivered_in_incarnation);
-  EXPECT_NE(std::find(h.port.calls.begin(), h.port.calls.end(), "Crashed in Advance"),
-            h.port.calls.end());
+  EXPECT_NE(std::find(h.port.calls.begin(), h.port.calls.end(), "Crashed in Advance"), h.port.calls.end());
   h.ExpectRestartAfter(crash);
 }
 
@@ -187,7 +187,9 @@ TEST(RuntimeFaults, AfterCheckpointBeforeCommitDropsTheCheckpoint) {
   EXPECT_GE(h.Find(TraceEvent::kCheckpoint, id2), 0);
   EXPECT_LT(h.Find(TraceEvent::kCheckpoint, id2), crash);
   EXPECT_EQ(h.Find(TraceEvent::kCommitted, [](const TraceEvent& e) { return e.committed().checkpoint_id() == 2; }), -1);
-  EXPECT_EQ(h.Find(TraceEvent::kCommitNotice, [](const TraceEvent& e) { return e.commit_notice().checkpoint_id() == 2; }), -1);
+  EXPECT_EQ(
+      h.Find(TraceEvent::kCommitNotice, [](const TraceEvent& e) { return e.commit_notice().checkpoint_id() == 2; }),
+      -1);
   h.ExpectRestartAfter(crash);
   EXPECT_EQ(*h.LastCommittedBefore(crash), 1u);
 }
@@ -200,10 +202,13 @@ TEST(RuntimeFaults, AfterCommitBeforeNoticeCommitsButNeverNotices) {
   ExpectCleanEnd(h, s);
   const int crash = h.Crash("after-commit-before-notice");
   ASSERT_GE(crash, 0);
-  const int committed = h.Find(TraceEvent::kCommitted, [](const TraceEvent& e) { return e.committed().checkpoint_id() == 2; });
+  const int committed =
+      h.Find(TraceEvent::kCommitted, [](const TraceEvent& e) { return e.committed().checkpoint_id() == 2; });
   ASSERT_GE(committed, 0);
   EXPECT_LT(committed, crash);
-  EXPECT_EQ(h.Find(TraceEvent::kCommitNotice, [](const TraceEvent& e) { return e.commit_notice().checkpoint_id() == 2; }), -1);
+  EXPECT_EQ(
+      h.Find(TraceEvent::kCommitNotice, [](const TraceEvent& e) { return e.commit_notice().checkpoint_id() == 2; }),
+      -1);
   h.ExpectRestartAfter(crash);
   const int opened = h.Find(TraceEvent::kOpened, crash);
   EXPECT_EQ(h.rec.events[opened].opened().checkpoint_id(), 2u);
@@ -218,7 +223,8 @@ TEST(RuntimeFaults, InNoticeAfterAckKillsAfterTheNthAck) {
   ExpectCleanEnd(h, s);
   const int crash = h.Crash("in-notice-after-ack");
   ASSERT_GE(crash, 0);
-  const int notice = h.Find(TraceEvent::kCommitNotice, [](const TraceEvent& e) { return e.commit_notice().checkpoint_id() == 1; });
+  const int notice =
+      h.Find(TraceEvent::kCommitNotice, [](const TraceEvent& e) { return e.commit_notice().checkpoint_id() == 1; });
   ASSERT_GE(notice, 0);
   EXPECT_LT(notice, crash);
   // Exactly two ack calls reached the broker between the notice and the crash.
@@ -242,7 +248,9 @@ TEST(RuntimeFaults, CommitFailureDiscardsTheEpochAndRestarts) {
   ASSERT_GE(failed, 0);
   EXPECT_EQ(h.rec.events[failed].commit_failed().checkpoint_id(), 3u);
   EXPECT_EQ(h.Find(TraceEvent::kCommitted, [](const TraceEvent& e) { return e.committed().checkpoint_id() == 3; }), -1);
-  EXPECT_EQ(h.Find(TraceEvent::kCommitNotice, [](const TraceEvent& e) { return e.commit_notice().checkpoint_id() == 3; }), -1);
+  EXPECT_EQ(
+      h.Find(TraceEvent::kCommitNotice, [](const TraceEvent& e) { return e.commit_notice().checkpoint_id() == 3; }),
+      -1);
   const int crash = h.Crash("commit-failed");
   ASSERT_GT(crash, failed);
   h.ExpectRestartAfter(crash);

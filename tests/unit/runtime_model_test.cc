@@ -153,8 +153,7 @@ TEST(RuntimeModel, ALivelockIsStoppedAfterTheDefaultThousandSteps) {
   EXPECT_FALSE(events[0].livelock().by_wall_time());
   const Verdict v = oracle.Finish();
   ASSERT_EQ(v.at(Invariant::kLivelock).violations, 1u);
-  EXPECT_NE(v.at(Invariant::kLivelock).first[0].sentence.find("runtime.max_same_time_steps is 1000"),
-            std::string::npos)
+  EXPECT_NE(v.at(Invariant::kLivelock).first[0].sentence.find("runtime.max_same_time_steps is 1000"), std::string::npos)
       << v.at(Invariant::kLivelock).first[0].sentence;
   EXPECT_EQ(v.at(Invariant::kProtocolError).violations, 0u);
 }

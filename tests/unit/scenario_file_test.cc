@@ -44,8 +44,7 @@ TEST(ScenarioFile, OutOfRangeValueNamesTheFieldLocationAndTheExpectation) {
 }
 
 TEST(ScenarioFile, NegativeDurationIsRejected) {
-  const std::string e =
-      Error("workload { messages: 1 publish_interval_ms: 1 }\nbroker {\n  lease_ms: -5\n}\n");
+  const std::string e = Error("workload { messages: 1 publish_interval_ms: 1 }\nbroker {\n  lease_ms: -5\n}\n");
   EXPECT_EQ(e.rfind("s.scenario:3:3:", 0), 0u) << e;
 }
 

@@ -19,8 +19,7 @@ v1::FaultDecision Latency(std::uint64_t pull, std::int64_t ms) {
   return d;
 }
 
-v1::FaultDecision Crash(v1::Site site, std::uint64_t position, v1::CrashPoint point,
-                        std::uint32_t after = 0) {
+v1::FaultDecision Crash(v1::Site site, std::uint64_t position, v1::CrashPoint point, std::uint32_t after = 0) {
   v1::FaultDecision d;
   d.set_site(site);
   d.set_position(position);
@@ -207,8 +206,7 @@ TEST(Shrink, APlanThatNoLongerFailsIsNondeterminism) {
   auto r = ShrinkPlan(TwentyLatenciesAndACrash(), "", rerun, options);
   ASSERT_TRUE(r.ok());
   EXPECT_EQ(r->outcome, ShrinkOutcome::kNondeterministic);
-  EXPECT_EQ(r->nondeterminism,
-            "the unchanged fault plan no longer fails duplicate-output (every invariant held)");
+  EXPECT_EQ(r->nondeterminism, "the unchanged fault plan no longer fails duplicate-output (every invariant held)");
 }
 
 TEST(Shrink, RerunBudgetStopsWithAPlanThatStillFails) {

@@ -62,8 +62,8 @@ decisions { site: PULL position: 20 transient { code: UNAVAILABLE } }
 void PrintTo(const Mutant& m, std::ostream* os) { *os << m.name; }
 
 const Mutant kZoo[] = {
-    {"mutant_ack_on_checkpoint", [](fixtures::Bugs& b) { b.ack_on_checkpoint = true; },
-     "broker_restart_greenhouse", 1, Invariant::kAckBeforeCommit},
+    {"mutant_ack_on_checkpoint", [](fixtures::Bugs& b) { b.ack_on_checkpoint = true; }, "broker_restart_greenhouse", 1,
+     Invariant::kAckBeforeCommit},
     {"mutant_ack_on_pull", [](fixtures::Bugs& b) { b.ack_on_pull = true; }, "broker_restart_greenhouse", 1,
      Invariant::kAckBeforeCommit},
     {"mutant_drop_batch_on_error", [](fixtures::Bugs& b) { b.drop_batch_on_error = true; },
@@ -76,16 +76,16 @@ const Mutant kZoo[] = {
      "broker_restart_greenhouse", 1, Invariant::kWatermarkRegression},
     {"mutant_no_dedup_in_checkpoint", [](fixtures::Bugs& b) { b.no_dedup_in_checkpoint = true; },
      "crash_storm_weather_buoys", 1, Invariant::kDuplicateOutput},
-    {"mutant_no_idle_watermark", [](fixtures::Bugs& b) { b.no_idle_watermark = true; },
-     "idle_watermark_beehive_scales", 1, Invariant::kWatermarkStall, false, kIdleBystanders},
-    {"mutant_no_redelivery_dedup", [](fixtures::Bugs& b) { b.no_redelivery_dedup = true; },
-     "broker_restart_greenhouse", 1, Invariant::kDuplicateOutput},
+    {"mutant_no_idle_watermark", [](fixtures::Bugs& b) { b.no_idle_watermark = true; }, "idle_watermark_beehive_scales",
+     1, Invariant::kWatermarkStall, false, kIdleBystanders},
+    {"mutant_no_redelivery_dedup", [](fixtures::Bugs& b) { b.no_redelivery_dedup = true; }, "broker_restart_greenhouse",
+     1, Invariant::kDuplicateOutput},
     {"mutant_no_watermark_restore", [](fixtures::Bugs& b) { b.no_watermark_restore = true; },
      "commit_failures_cold_chain", 1, Invariant::kWatermarkRegression},
     {"mutant_receipt_as_message_id", [](fixtures::Bugs& b) { b.receipt_as_message_id = true; },
      "broker_restart_greenhouse", 1, Invariant::kProtocolError},
-    {"mutant_tight_retry_loop", [](fixtures::Bugs& b) { b.tight_retry_loop = true; },
-     "flaky_acks_orchard_sensors", 1, Invariant::kRetryStorm},
+    {"mutant_tight_retry_loop", [](fixtures::Bugs& b) { b.tight_retry_loop = true; }, "flaky_acks_orchard_sensors", 1,
+     Invariant::kRetryStorm},
 };
 
 struct Row {
@@ -188,25 +188,24 @@ class ZooReport : public ::testing::Environment {
  public:
   void TearDown() override {
     if (Rows().empty()) return;
-    std::printf("\n%-36s %9s %9s %9s %13s %7s\n", "mutant", "decisions", "-> after", "reduction",
-                "events", "reruns");
+    std::printf("\n%-36s %9s %9s %9s %13s %7s\n", "mutant", "decisions", "-> after", "reduction", "events", "reruns");
     std::vector<double> reductions;  // of runs that had decisions to remove
     for (const Row& row : Rows()) {
       const double reduction = row.before == 0 ? 0.0 : 100.0 * (row.before - row.after) / row.before;
       if (row.before > 0) reductions.push_back(reduction);
       std::printf("%-36s %9d %9d %9s %6llu->%-6llu %7llu\n", row.name.c_str(), row.before, row.after,
                   row.before == 0 ? "n/a" : absl::StrCat(static_cast<int>(reduction + 0.5), "%").c_str(),
-                  static_cast<unsigned long long>(row.events_before),
-                  static_cast<unsigned long long>(row.events_after),
+                  static_cast<unsigned long long>(row.events_before), static_cast<unsigned long long>(row.events_after),
                   static_cast<unsigned long long>(row.reruns));
     }
     if (reductions.empty()) return;
     std::sort(reductions.begin(), reductions.end());
     const std::size_t n = reductions.size();
     const double median = n % 2 == 1 ? reductions[n / 2] : (reductions[n / 2 - 1] + reductions[n / 2]) / 2;
-    std::printf("median reduction: %.0f%% of the fault plan's decisions removed (%zu mutants whose failing "
-                "run had decisions; n/a: it fails with no fault at all)\n",
-                median, n);
+    std::printf(
+        "median reduction: %.0f%% of the fault plan's decisions removed (%zu mutants whose failing "
+        "run had decisions; n/a: it fails with no fault at all)\n",
+        median, n);
   }
 };
 const ::testing::Environment* const kReport = ::testing::AddGlobalTestEnvironment(new ZooReport);

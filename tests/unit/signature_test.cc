@@ -25,7 +25,9 @@
 namespace weir {
 namespace {
 
-std::string Hex(std::string_view bytes) { return absl::BytesToHexString(absl::string_view(bytes.data(), bytes.size())); }
+std::string Hex(std::string_view bytes) {
+  return absl::BytesToHexString(absl::string_view(bytes.data(), bytes.size()));
+}
 std::string Bytes(std::string_view hex) { return absl::HexStringToBytes(absl::string_view(hex.data(), hex.size())); }
 
 // RFC 8032 "Edwards-Curve Digital Signature Algorithm (EdDSA)", section 7.1
@@ -128,10 +130,11 @@ TEST(Ed25519, PemRoundTripAndRefusals) {
   EXPECT_FALSE(Ed25519Key::FromRawPrivate(std::string(31, 'a')).ok());
   // A well-formed key of another algorithm, same size: an X25519 public key
   // (OID 1.3.101.110, RFC 8410), made with `openssl genpkey -algorithm X25519`.
-  auto x25519 = Ed25519Key::FromPublicPem("-----BEGIN PUBLIC KEY-----\n"
-                                          "MCowBQYDK2VuAyEAx3vs/B/yPy5xA1UHn6Q2lFaRWWJIwijkE1Oz1xm5okk=\n"
-                                          "-----END PUBLIC KEY-----\n",
-                                          "x25519.pub");
+  auto x25519 = Ed25519Key::FromPublicPem(
+      "-----BEGIN PUBLIC KEY-----\n"
+      "MCowBQYDK2VuAyEAx3vs/B/yPy5xA1UHn6Q2lFaRWWJIwijkE1Oz1xm5okk=\n"
+      "-----END PUBLIC KEY-----\n",
+      "x25519.pub");
   ASSERT_FALSE(x25519.ok());
   EXPECT_NE(x25519.status().message().find("another algorithm"), std::string::npos) << x25519.status();
 }
@@ -304,8 +307,8 @@ v1::Certificate FullCertificate() {
   for (int i = 0; i < d->field_count(); ++i) {
     const auto* f = d->field(i);
     if (f->name() == "signature" || f->name() == "key_fingerprint") continue;
-    const bool set = f->is_repeated() ? cert.GetReflection()->FieldSize(cert, f) > 0
-                                      : cert.GetReflection()->HasField(cert, f);
+    const bool set =
+        f->is_repeated() ? cert.GetReflection()->FieldSize(cert, f) > 0 : cert.GetReflection()->HasField(cert, f);
     std::string ignored;
     if (!set) (void)Tamper(&cert, f, &ignored);
   }
@@ -413,9 +416,9 @@ TEST(RecheckSample, RuleSizesAndReproducibleChoice) {
     const char* rule;
     std::uint64_t pairs, want;
   };
-  for (const Case c : {Case{"", 24, 2}, Case{"", 9, 1}, Case{"", 1, 1}, Case{"", 0, 0}, Case{"", 1000, 100},
-                       Case{"5", 24, 5}, Case{"50", 24, 24}, Case{"0", 24, 0}, Case{"all", 24, 24},
-                       Case{"none", 24, 0}}) {
+  for (const Case c :
+       {Case{"", 24, 2}, Case{"", 9, 1}, Case{"", 1, 1}, Case{"", 0, 0}, Case{"", 1000, 100}, Case{"5", 24, 5},
+        Case{"50", 24, 24}, Case{"0", 24, 0}, Case{"all", 24, 24}, Case{"none", 24, 0}}) {
     SCOPED_TRACE(absl::StrCat(c.rule, " of ", c.pairs));
     RecheckSample s(*parse(c.rule), "sha256:9913", c.pairs);
     EXPECT_EQ(s.size(), c.want);

@@ -22,9 +22,8 @@ namespace fs = std::filesystem;
 class SuiteFileTest : public ::testing::Test {
  protected:
   void SetUp() override {
-    dir_ = fs::temp_directory_path() /
-           ("weir_suite_file_test_" + std::to_string(::getpid()) + "_" +
-            ::testing::UnitTest::GetInstance()->current_test_info()->name());
+    dir_ = fs::temp_directory_path() / ("weir_suite_file_test_" + std::to_string(::getpid()) + "_" +
+                                        ::testing::UnitTest::GetInstance()->current_test_info()->name());
     fs::create_directories(dir_ / "suites");
     fs::create_directories(dir_ / "profiles");
     fs::copy_file(fs::path(testing::SourceDir()) / "fixtures/scenarios/steady_parcel_scanners.scenario",
@@ -73,15 +72,15 @@ TEST_F(SuiteFileTest, AProfileThatCannotBeReadIsAnErrorAtItsLine) {
 
 TEST_F(SuiteFileTest, ABadProfileIsAnErrorInTheProfileFile) {
   Write("profiles/bad.profile", "watermark_policy: MONOTONIC\nallowed_lateness_ms: 5\n");
-  auto suite = LoadSuite(Write("suites/bad.suite", "scenarios: [\"../steady.scenario\"]\nseeds: 1\n"
-                                                   "profile: \"../profiles/bad.profile\"\n"));
+  auto suite = LoadSuite(Write("suites/bad.suite",
+                               "scenarios: [\"../steady.scenario\"]\nseeds: 1\n"
+                               "profile: \"../profiles/bad.profile\"\n"));
   ASSERT_FALSE(suite.ok());
   EXPECT_NE(suite.status().message().find("bad.profile:2:"), std::string::npos) << suite.status();
 }
 
 TEST_F(SuiteFileTest, AnUnknownSettingIsAnErrorWithItsLocation) {
-  const std::string path = Write("suites/typo.suite",
-                                 "scenarios: [\"../steady.scenario\"]\nseeds: 1\nprofil: \"x\"\n");
+  const std::string path = Write("suites/typo.suite", "scenarios: [\"../steady.scenario\"]\nseeds: 1\nprofil: \"x\"\n");
   auto suite = LoadSuite(path);
   ASSERT_FALSE(suite.ok());
   EXPECT_NE(suite.status().message().find(path + ":3:"), std::string::npos) << suite.status();

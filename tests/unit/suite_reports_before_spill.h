@@ -139,7 +139,7 @@ inline std::string SuiteReportJson(const v1::SuiteReport& report) {
 }
 
 inline std::string SuiteJUnitXml(const v1::SuiteReport& report, const std::string& timestamp,
-                          const std::string& hostname) {
+                                 const std::string& hostname) {
   std::uint64_t failures = 0, errors = 0;
   double time = 0;
   for (const auto& run : report.runs()) {
@@ -153,9 +153,9 @@ inline std::string SuiteJUnitXml(const v1::SuiteReport& report, const std::strin
   const std::string name = report.suite_name().empty() ? "weir" : report.suite_name();
   std::string out = "<?xml version=\"1.0\" encoding=\"UTF-8\"?>\n";
   absl::StrAppend(&out, "<testsuite name=\"", EscapeMarkup(name), "\" timestamp=\"", EscapeMarkup(timestamp),
-                  "\" hostname=\"", EscapeMarkup(hostname.empty() ? "localhost" : hostname),
-                  "\" tests=\"", report.runs_size(), "\" failures=\"", failures, "\" errors=\"",
-                  errors, "\" time=\"", absl::StrFormat("%.3f", time), "\">\n");
+                  "\" hostname=\"", EscapeMarkup(hostname.empty() ? "localhost" : hostname), "\" tests=\"",
+                  report.runs_size(), "\" failures=\"", failures, "\" errors=\"", errors, "\" time=\"",
+                  absl::StrFormat("%.3f", time), "\">\n");
   out += "  <properties>\n";
   auto property = [&out](const std::string& k, const std::string& v) {
     absl::StrAppend(&out, "    <property name=\"", EscapeMarkup(k), "\" value=\"", EscapeMarkup(v), "\"/>\n");
@@ -173,33 +173,32 @@ inline std::string SuiteJUnitXml(const v1::SuiteReport& report, const std::strin
                           s.runs_judged(), " runs"));
   }
   std::string not_exercised;
-  for (const auto& name : NotExercised(report)) absl::StrAppend(&not_exercised, not_exercised.empty() ? "" : ", ", name);
+  for (const auto& name : NotExercised(report))
+    absl::StrAppend(&not_exercised, not_exercised.empty() ? "" : ", ", name);
   property("not_exercised", not_exercised);
   out += "  </properties>\n";
   for (const auto& run : report.runs()) {
-    absl::StrAppend(&out, "  <testcase name=\"", EscapeMarkup(absl::StrCat("seed ", run.seed())),
-                    "\" classname=\"", EscapeMarkup(run.scenario()), "\" time=\"",
-                    absl::StrFormat("%.3f", run.wall_seconds()), "\"");
+    absl::StrAppend(&out, "  <testcase name=\"", EscapeMarkup(absl::StrCat("seed ", run.seed())), "\" classname=\"",
+                    EscapeMarkup(run.scenario()), "\" time=\"", absl::StrFormat("%.3f", run.wall_seconds()), "\"");
     if (run.passed()) {
       out += "/>\n";
       continue;
     }
     out += ">\n";
     if (!run.harness_error().empty()) {
-      absl::StrAppend(&out, "    <error type=\"harness-fault\" message=\"", EscapeMarkup(run.harness_error()),
-                      "\">", EscapeMarkup(absl::StrCat(run.harness_error(), "\nreplay: ", run.replay())),
-                      "</error>\n");
+      absl::StrAppend(&out, "    <error type=\"harness-fault\" message=\"", EscapeMarkup(run.harness_error()), "\">",
+                      EscapeMarkup(absl::StrCat(run.harness_error(), "\nreplay: ", run.replay())), "</error>\n");
     } else {
       std::string invariants;
       for (const auto& inv : run.failed_invariants()) {
         if (!invariants.empty()) invariants += ", ";
         invariants += inv;
       }
-      absl::StrAppend(&out, "    <failure type=\"", EscapeMarkup(invariants), "\" message=\"",
-                      EscapeMarkup(run.first_violation()), "\">",
-                      EscapeMarkup(absl::StrCat("failed: ", invariants, "\n", run.first_violation(),
-                                             "\nreplay: ", run.replay())),
-                      "</failure>\n");
+      absl::StrAppend(
+          &out, "    <failure type=\"", EscapeMarkup(invariants), "\" message=\"", EscapeMarkup(run.first_violation()),
+          "\">",
+          EscapeMarkup(absl::StrCat("failed: ", invariants, "\n", run.first_violation(), "\nreplay: ", run.replay())),
+          "</failure>\n");
     }
     out += "  </testcase>\n";
   }
@@ -217,20 +216,20 @@ inline std::string SuiteSummaryText(const v1::SuiteReport& report) {
   out += absl::StrFormat("%-22s %-13s %8s %8s %10s  %s\n", "invariant", "verdict", "passed", "failed", "chances",
                          "first failing seed");
   for (const auto& s : report.invariants()) {
-    absl::StrAppend(&out, absl::StrFormat("%-22s %-13s %8d %8d %10s  %s\n", s.invariant(), CoverageWord(s),
-                                          s.runs_passed(), s.runs_failed(),
-                                          s.runs_judged() > 0 ? absl::StrCat(s.chances()) : std::string("-"),
-                                          s.runs_failed() == 0
-                                              ? std::string("-")
-                                              : absl::StrCat(s.first_failing_scenario(), " seed ",
-                                                             s.first_failing_seed())));
+    absl::StrAppend(&out,
+                    absl::StrFormat("%-22s %-13s %8d %8d %10s  %s\n", s.invariant(), CoverageWord(s), s.runs_passed(),
+                                    s.runs_failed(), s.runs_judged() > 0 ? absl::StrCat(s.chances()) : std::string("-"),
+                                    s.runs_failed() == 0
+                                        ? std::string("-")
+                                        : absl::StrCat(s.first_failing_scenario(), " seed ", s.first_failing_seed())));
   }
   for (const auto& name : NotExercised(report)) {
     for (int i = 0; i < kInvariantCount; ++i) {
       const auto inv = static_cast<Invariant>(i);
       if (name != InvariantName(inv)) continue;
-      absl::StrAppend(&out, "\nnot exercised: ", name, " had no chance to fail in any run (a chance: ",
-                      InvariantChance(inv), ").\n  would exercise it: ", InvariantExercisedBy(inv), "\n");
+      absl::StrAppend(&out, "\nnot exercised: ", name,
+                      " had no chance to fail in any run (a chance: ", InvariantChance(inv),
+                      ").\n  would exercise it: ", InvariantExercisedBy(inv), "\n");
     }
   }
   if (!report.faults_applied().empty()) {
@@ -240,20 +239,20 @@ inline std::string SuiteSummaryText(const v1::SuiteReport& report) {
   }
   for (const auto& s : report.invariants()) {
     if (s.runs_failed() > 0) {
-      absl::StrAppend(&out, "\nfirst ", s.invariant(), " failure:\n  replay: ", s.first_failing_replay(),
-                      "\n");
+      absl::StrAppend(&out, "\nfirst ", s.invariant(), " failure:\n  replay: ", s.first_failing_replay(), "\n");
     }
   }
   for (const auto& run : report.runs()) {
     if (!run.harness_error().empty()) {
-      absl::StrAppend(&out, "\nharness fault in ", run.scenario(), " seed ", run.seed(), ": ",
-                      run.harness_error(), "\n");
+      absl::StrAppend(&out, "\nharness fault in ", run.scenario(), " seed ", run.seed(), ": ", run.harness_error(),
+                      "\n");
       break;
     }
   }
-  absl::StrAppend(&out, "\n", report.runs_size(), " runs, ", report.runs_size() - static_cast<int>(failed),
-                  " passed, ", failed, " failed", report.complete() ? "" : " (INCOMPLETE: ",
-                  report.complete() ? "" : report.stopped_because(), report.complete() ? "" : ")", "\n");
+  absl::StrAppend(&out, "\n", report.runs_size(), " runs, ", report.runs_size() - static_cast<int>(failed), " passed, ",
+                  failed, " failed",
+                  report.complete() ? "" : " (INCOMPLETE: ", report.complete() ? "" : report.stopped_because(),
+                  report.complete() ? "" : ")", "\n");
   return out;
 }
 
@@ -281,23 +280,25 @@ inline std::string SuiteSummaryHtml(const v1::SuiteReport& report) {
   if (!report.profile().empty()) fact("profile (every scenario)", report.profile());
   fact("weir", report.weir_version());
   fact("shard", absl::StrCat(report.shard_index(), "/", report.shard_count()));
-  fact("runs", absl::StrCat(report.runs_size(), " of ", report.pairs_total(), " pairs: ",
-                            report.runs_size() - static_cast<int>(failed), " passed, ", failed, " failed",
+  fact("runs", absl::StrCat(report.runs_size(), " of ", report.pairs_total(),
+                            " pairs: ", report.runs_size() - static_cast<int>(failed), " passed, ", failed, " failed",
                             report.complete() ? "" : absl::StrCat(" (INCOMPLETE: ", report.stopped_because(), ")")));
-  out += "</table>\n<table class=\"invariants\">\n<tr><th>invariant</th><th>verdict</th><th>chances</th>"
-         "<th>runs passed</th><th>runs failed</th><th>first failing seed</th><th>replay</th></tr>\n";
+  out +=
+      "</table>\n<table class=\"invariants\">\n<tr><th>invariant</th><th>verdict</th><th>chances</th>"
+      "<th>runs passed</th><th>runs failed</th><th>first failing seed</th><th>replay</th></tr>\n";
   for (const auto& s : report.invariants()) {
     const bool bad = s.runs_failed() > 0;
     const std::string word = CoverageWord(s);
     absl::StrAppend(&out, "<tr><td>", EscapeMarkup(s.invariant()), "</td><td class=\"",
-                    bad ? "verdict failed" : word == "held" ? "verdict passed" : "verdict unexercised", "\">", word, "</td><td>",
-                    s.runs_judged() > 0 ? absl::StrCat(s.chances()) : std::string("&#8211;"), "</td><td>",
-                    s.runs_passed(),
-                    "</td><td class=\"", bad ? "failed" : "passed", "\">", s.runs_failed(), "</td><td>",
+                    bad              ? "verdict failed"
+                    : word == "held" ? "verdict passed"
+                                     : "verdict unexercised",
+                    "\">", word, "</td><td>", s.runs_judged() > 0 ? absl::StrCat(s.chances()) : std::string("&#8211;"),
+                    "</td><td>", s.runs_passed(), "</td><td class=\"", bad ? "failed" : "passed", "\">",
+                    s.runs_failed(), "</td><td>",
                     bad ? EscapeMarkup(absl::StrCat(s.first_failing_scenario(), " seed ", s.first_failing_seed()))
                         : std::string("&#8211;"),
-                    "</td><td>",
-                    bad ? absl::StrCat("<code>", EscapeMarkup(s.first_failing_replay()), "</code>") : "",
+                    "</td><td>", bad ? absl::StrCat("<code>", EscapeMarkup(s.first_failing_replay()), "</code>") : "",
                     "</td></tr>\n");
   }
   out += "</table>\n";

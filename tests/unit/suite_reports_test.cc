@@ -102,7 +102,8 @@ v1::SuiteReport RandomReport(std::mt19937_64& rng, int runs) {
     }
     // Coverage: some invariants judged (chances, often none), some faults.
     for (int k = 0; k < kInvariantCount; ++k) {
-      if (coin(0.5)) AddCount(run->mutable_chances(), InvariantName(static_cast<Invariant>(k)), coin(0.3) ? 0 : rng() % 1000);
+      if (coin(0.5))
+        AddCount(run->mutable_chances(), InvariantName(static_cast<Invariant>(k)), coin(0.3) ? 0 : rng() % 1000);
     }
     for (const char* fault : {"crash at IN_NOTICE", "latency_ms at <ACK> & \"x\"", "throttle_retry_after_ms at PULL"}) {
       if (coin(0.4)) AddCount(run->mutable_faults_applied(), fault, 1 + rng() % 5);
@@ -164,7 +165,8 @@ TEST(SuiteReports, StreamedFromARunLogTheyAreByteIdenticalToTheWholeReportOnes) 
       ASSERT_EQ(head.invariants_size(), report.invariants_size());
       for (int i = 0; i < head.invariants_size(); ++i) {
         EXPECT_TRUE(google::protobuf::util::MessageDifferencer::Equals(head.invariants(i), report.invariants(i)))
-            << head.invariants(i).DebugString() << "\nexpected\n" << report.invariants(i).DebugString();
+            << head.invariants(i).DebugString() << "\nexpected\n"
+            << report.invariants(i).DebugString();
       }
 
       const std::string json = Collect([&](TextOut out) {

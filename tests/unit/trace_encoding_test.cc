@@ -99,9 +99,16 @@ void FillRandomly(Message* m, std::mt19937_64& rng, int depth) {
       case FieldDescriptor::CPPTYPE_FLOAT: r.SetFloat(m, f, static_cast<float>(rng() % 1000) / 7.0f); break;
       case FieldDescriptor::CPPTYPE_DOUBLE: r.SetDouble(m, f, static_cast<double>(rng() % 1000) / 7.0); break;
       case FieldDescriptor::CPPTYPE_STRING: {
-        static const std::string kTexts[] = {"", "Pull", "in-step-after-broker-call",
-                                             "exit code 3", "line\nbreak", "quote\"d",
-                                             "tag <b>", "caf\xc3\xa9", "a=b&c", "x\x01y"};
+        static const std::string kTexts[] = {"",
+                                             "Pull",
+                                             "in-step-after-broker-call",
+                                             "exit code 3",
+                                             "line\nbreak",
+                                             "quote\"d",
+                                             "tag <b>",
+                                             "caf\xc3\xa9",
+                                             "a=b&c",
+                                             "x\x01y"};
         r.SetString(m, f, kTexts[rng() % std::size(kTexts)]);
         break;
       }

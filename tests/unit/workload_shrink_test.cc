@@ -30,13 +30,13 @@ std::uint64_t FakeEvents(const v1::Scenario& s) {
 TEST(ShrinkWorkload, FindsTheThresholdOfAMonotonicFailure) {
   // Fails from 37 messages and 3 sources on: the least failing workload.
   int runs = 0;
-  auto r = ShrinkWorkload(
-      QueueScenario(1000, 8),
-      [&](const v1::Scenario& s) -> absl::StatusOr<WorkloadRun> {
-        ++runs;
-        return FakeRun(s.workload().messages() >= 37 && s.workload().sources_size() >= 3, FakeEvents(s));
-      },
-      {});
+  auto r =
+      ShrinkWorkload(QueueScenario(1000, 8),
+                     [&](const v1::Scenario& s) -> absl::StatusOr<WorkloadRun> {
+                       ++runs;
+                       return FakeRun(s.workload().messages() >= 37 && s.workload().sources_size() >= 3, FakeEvents(s));
+                     },
+                     {});
   ASSERT_TRUE(r.ok()) << r.status();
   EXPECT_EQ(r->scenario.workload().messages(), 37u);
   EXPECT_EQ(r->scenario.workload().sources_size(), 3);
@@ -68,14 +68,13 @@ TEST(ShrinkWorkload, NeverAcceptsAWorkloadThatWasNotSeenToFail) {
   // Not monotonic: fails only at exactly 1000 and 600 messages (and 1000 was
   // the caller's run). Whatever it returns must be one of those.
   std::set<std::uint64_t> tried;
-  auto r = ShrinkWorkload(
-      QueueScenario(1000, 1),
-      [&](const v1::Scenario& s) -> absl::StatusOr<WorkloadRun> {
-        tried.insert(s.workload().messages());
-        const auto m = s.workload().messages();
-        return FakeRun(m == 1000 || m == 600, m);
-      },
-      {});
+  auto r = ShrinkWorkload(QueueScenario(1000, 1),
+                          [&](const v1::Scenario& s) -> absl::StatusOr<WorkloadRun> {
+                            tried.insert(s.workload().messages());
+                            const auto m = s.workload().messages();
+                            return FakeRun(m == 1000 || m == 600, m);
+                          },
+                          {});
   ASSERT_TRUE(r.ok());
   const auto m = r->scenario.workload().messages();
   EXPECT_TRUE(m == 1000 || m == 600) << m;
@@ -96,19 +95,18 @@ TEST(ShrinkWorkload, StopsAtTheRerunBudgetWithAFailingWorkload) {
   ASSERT_TRUE(r.ok());
   EXPECT_EQ(r->reruns, 3u);
   EXPECT_TRUE(r->budget_reached);
-  EXPECT_GE(r->scenario.workload().messages(), 12345u);  // still fails
+  EXPECT_GE(r->scenario.workload().messages(), 12345u);    // still fails
   EXPECT_LT(r->scenario.workload().messages(), 1u << 20);  // and did shrink: 1, then 2^19 … both tried
 }
 
 TEST(ShrinkWorkload, ACancelledRerunStopsTheSearch) {
   int runs = 0;
-  auto r = ShrinkWorkload(
-      QueueScenario(100, 1),
-      [&](const v1::Scenario&) -> absl::StatusOr<WorkloadRun> {
-        ++runs;
-        return absl::CancelledError("signal");
-      },
-      {});
+  auto r = ShrinkWorkload(QueueScenario(100, 1),
+                          [&](const v1::Scenario&) -> absl::StatusOr<WorkloadRun> {
+                            ++runs;
+                            return absl::CancelledError("signal");
+                          },
+                          {});
   ASSERT_TRUE(r.ok());
   EXPECT_EQ(runs, 1);
   EXPECT_TRUE(r->budget_reached);
@@ -135,11 +133,11 @@ TEST(ShrinkWorkload, LogKnobsKeepIdlePartitionsValid) {
   EXPECT_EQ(knobs[1].least, 6u);  // partition 4 stays idle and one above it receives records
   EXPECT_EQ(knobs[2].knob, WorkloadKnob::kKeys);
   EXPECT_EQ(knobs[2].value, 64u);
-  auto r = ShrinkWorkload(
-      s, [](const v1::Scenario& c) -> absl::StatusOr<WorkloadRun> {
-        return FakeRun(c.log().keys() >= 5 || c.log().keys() == 0, FakeEvents(c));
-      },
-      {});
+  auto r = ShrinkWorkload(s,
+                          [](const v1::Scenario& c) -> absl::StatusOr<WorkloadRun> {
+                            return FakeRun(c.log().keys() >= 5 || c.log().keys() == 0, FakeEvents(c));
+                          },
+                          {});
   ASSERT_TRUE(r.ok());
   EXPECT_EQ(r->scenario.workload().messages(), 1u);
   EXPECT_EQ(r->scenario.log().partitions(), 6u);

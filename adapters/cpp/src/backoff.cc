@@ -22,9 +22,7 @@ std::int64_t SaturatingAdd(std::int64_t a, std::int64_t b) {
 
 }  // namespace
 
-std::uint64_t MixSeed(std::uint64_t a, std::uint64_t b) {
-  return Mix64(a ^ Mix64(b + 0x9E3779B97F4A7C15ULL));
-}
+std::uint64_t MixSeed(std::uint64_t a, std::uint64_t b) { return Mix64(a ^ Mix64(b + 0x9E3779B97F4A7C15ULL)); }
 
 Backoff::Backoff(std::uint64_t seed, BackoffPolicy policy)
     : policy_(policy), state_(seed), base_ns_(static_cast<double>(policy.initial_ns)) {}

@@ -39,9 +39,7 @@ BrokerStatus BrokerClient::Read(std::uint32_t, std::uint64_t, const ReadOptions&
   return Unimplemented("Read");
 }
 
-BrokerStatus BrokerClient::SaveBookmarks(const std::vector<Bookmark>&) {
-  return Unimplemented("SaveBookmarks");
-}
+BrokerStatus BrokerClient::SaveBookmarks(const std::vector<Bookmark>&) { return Unimplemented("SaveBookmarks"); }
 
 BrokerStatus BrokerClient::LoadBookmarks(std::vector<Bookmark>* out) {
   out->clear();
@@ -68,8 +66,8 @@ void Context::Emit(std::uint64_t message_id, std::int64_t event_time_ns, std::st
   r.set_value(std::move(value));
 }
 
-void Context::EmitLogRecord(std::uint32_t partition, std::uint64_t offset,
-                            std::int64_t event_time_ns, std::string value) {
+void Context::EmitLogRecord(std::uint32_t partition, std::uint64_t offset, std::int64_t event_time_ns,
+                            std::string value) {
   if (!AllowedHere("EmitLogRecord")) return;
   v1::Record& r = records_.emplace_back();
   r.set_partition(partition);
@@ -141,8 +139,7 @@ BrokerStatus Context::ClockedBroker::Nack(const std::vector<std::uint64_t>& rece
   return Observe(inner_.Nack(receipts));
 }
 
-BrokerStatus Context::ClockedBroker::ExtendLease(const std::vector<std::uint64_t>& receipts,
-                                                 std::int64_t extension_ns,
+BrokerStatus Context::ClockedBroker::ExtendLease(const std::vector<std::uint64_t>& receipts, std::int64_t extension_ns,
                                                  std::vector<std::uint64_t>* rejected) {
   return Observe(inner_.ExtendLease(receipts, extension_ns, rejected));
 }
@@ -155,8 +152,8 @@ BrokerStatus Context::ClockedBroker::ListPartitions(std::vector<v1::PartitionInf
   return Observe(inner_.ListPartitions(out));
 }
 
-BrokerStatus Context::ClockedBroker::Read(std::uint32_t partition, std::uint64_t offset,
-                                          const ReadOptions& options, ReadResult* out) {
+BrokerStatus Context::ClockedBroker::Read(std::uint32_t partition, std::uint64_t offset, const ReadOptions& options,
+                                          ReadResult* out) {
   return Observe(inner_.Read(partition, offset, options, out));
 }
 
@@ -194,8 +191,7 @@ void WriteOpen(const Source& source, v1::OpenResponse* response) {
   if (source.shape() == SourceShape::kLog) response->set_shape(v1::LOG);
 }
 
-void RunCheckpoint(Source& source, std::uint64_t checkpoint_id, Context& ctx,
-                   v1::CheckpointResponse* response) {
+void RunCheckpoint(Source& source, std::uint64_t checkpoint_id, Context& ctx, v1::CheckpointResponse* response) {
   response->set_state(source.Checkpoint(checkpoint_id, ctx));
   for (const ResumePoint& p : source.ResumePoints()) {
     v1::ResumePoint* out = response->add_resume_points();
@@ -270,8 +266,7 @@ Span SpansTold::Held(std::uint32_t partition) const {
   return Span{partition, 0, std::nullopt};
 }
 
-grpc::Status RunAssign(Source& source, const v1::AssignRequest& request, Context& ctx,
-                       SpansTold* told) {
+grpc::Status RunAssign(Source& source, const v1::AssignRequest& request, Context& ctx, SpansTold* told) {
   std::vector<Span> spans;
   spans.reserve(static_cast<std::size_t>(request.spans_size()));
   for (const v1::Span& s : request.spans()) spans.push_back(SpanFrom(s));
@@ -280,17 +275,14 @@ grpc::Status RunAssign(Source& source, const v1::AssignRequest& request, Context
   return status;
 }
 
-grpc::Status RunRevoke(Source& source, const v1::RevokeRequest& request, Context& ctx,
-                       SpansTold* told) {
-  const std::vector<std::uint32_t> partitions(request.partitions().begin(),
-                                              request.partitions().end());
+grpc::Status RunRevoke(Source& source, const v1::RevokeRequest& request, Context& ctx, SpansTold* told) {
+  const std::vector<std::uint32_t> partitions(request.partitions().begin(), request.partitions().end());
   grpc::Status status = source.Revoke(partitions, ctx);
   if (status.ok()) told->Revoked(partitions);
   return status;
 }
 
-void RunCut(Source& source, const v1::CutRequest& request, Context& ctx, SpansTold* told,
-            v1::CutResponse* response) {
+void RunCut(Source& source, const v1::CutRequest& request, Context& ctx, SpansTold* told, v1::CutResponse* response) {
   const CutAnswer answer = source.Cut(told->Held(request.partition()), request.at_offset(), ctx);
   told->Cut(answer);
   WriteSpan(answer.head, response->mutable_head());

@@ -25,8 +25,7 @@ std::optional<Int> TrailingInt(const grpc::ClientContext& call, std::string_view
 
 // The first retained offset of an OUT_OF_RANGE read: the trailing metadata, or
 // else the OffsetOutOfRange status detail.
-std::optional<std::uint64_t> FirstRetainedOffset(const grpc::ClientContext& call,
-                                                 const grpc::Status& status) {
+std::optional<std::uint64_t> FirstRetainedOffset(const grpc::ClientContext& call, const grpc::Status& status) {
   if (auto offset = TrailingInt<std::uint64_t>(call, kFirstRetainedOffsetMetadataKey)) return offset;
   v1::OffsetOutOfRange detail;
   if (!status.error_details().empty() && detail.ParseFromString(status.error_details())) {
@@ -69,13 +68,12 @@ std::shared_ptr<grpc::Channel> MakeChannel(const std::string& target) {
 
 }  // namespace
 
-GrpcBrokerClient::GrpcBrokerClient(const std::string& target, std::chrono::seconds call_timeout,
-                                   CallQueue& queue)
+GrpcBrokerClient::GrpcBrokerClient(const std::string& target, std::chrono::seconds call_timeout, CallQueue& queue)
     : call_timeout_(call_timeout), queue_(queue), stub_(v1::Broker::NewStub(MakeChannel(target))) {}
 
 template <typename Request, typename Response, typename Start>
-grpc::Status GrpcBrokerClient::Call(grpc::ClientContext* call, const Request& request,
-                                    Response* response, Start start) {
+grpc::Status GrpcBrokerClient::Call(grpc::ClientContext* call, const Request& request, Response* response,
+                                    Start start) {
   grpc::Status status;
   DoneTag answered;
   auto rpc = (stub_.get()->*start)(call, request, queue_.queue());
@@ -136,8 +134,7 @@ BrokerStatus GrpcBrokerClient::Nack(const std::vector<std::uint64_t>& receipts) 
   return Succeeded(response.now_ns());
 }
 
-BrokerStatus GrpcBrokerClient::ExtendLease(const std::vector<std::uint64_t>& receipts,
-                                           std::int64_t extension_ns,
+BrokerStatus GrpcBrokerClient::ExtendLease(const std::vector<std::uint64_t>& receipts, std::int64_t extension_ns,
                                            std::vector<std::uint64_t>* rejected) {
   rejected->clear();
   grpc::ClientContext call;
@@ -158,16 +155,15 @@ BrokerStatus GrpcBrokerClient::ListPartitions(std::vector<v1::PartitionInfo>* ou
   Prepare(&call);
   v1::ListPartitionsRequest request;
   v1::ListPartitionsResponse response;
-  grpc::Status status =
-      Call(&call, request, &response, &v1::Broker::Stub::PrepareAsyncListPartitions);
+  grpc::Status status = Call(&call, request, &response, &v1::Broker::Stub::PrepareAsyncListPartitions);
   if (!status.ok()) return Failed(call, status);
   out->reserve(static_cast<std::size_t>(response.partitions_size()));
   for (v1::PartitionInfo& p : *response.mutable_partitions()) out->push_back(std::move(p));
   return Succeeded(response.now_ns());
 }
 
-BrokerStatus GrpcBrokerClient::Read(std::uint32_t partition, std::uint64_t offset,
-                                    const ReadOptions& options, ReadResult* out) {
+BrokerStatus GrpcBrokerClient::Read(std::uint32_t partition, std::uint64_t offset, const ReadOptions& options,
+                                    ReadResult* out) {
   out->records.clear();
   out->next_offset = offset;
   grpc::ClientContext call;

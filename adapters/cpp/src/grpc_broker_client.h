@@ -45,8 +45,7 @@ class GrpcBrokerClient final : public BrokerClient {
   void Prepare(grpc::ClientContext* call) const;
   // Starts the call on the queue and polls it until the answer is there.
   template <typename Request, typename Response, typename Start>
-  grpc::Status Call(grpc::ClientContext* call, const Request& request, Response* response,
-                    Start start);
+  grpc::Status Call(grpc::ClientContext* call, const Request& request, Response* response, Start start);
 
   const std::chrono::seconds call_timeout_;
   CallQueue& queue_;

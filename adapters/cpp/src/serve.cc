@@ -39,11 +39,9 @@ grpc::Status Guarded(const char* call, Context& ctx, Body body) {
     grpc::Status status = body();
     if (!status.ok()) return status;
   } catch (const std::exception& e) {
-    return grpc::Status(grpc::StatusCode::INTERNAL,
-                        std::string("source threw during ") + call + ": " + e.what());
+    return grpc::Status(grpc::StatusCode::INTERNAL, std::string("source threw during ") + call + ": " + e.what());
   } catch (...) {
-    return grpc::Status(grpc::StatusCode::INTERNAL,
-                        std::string("source threw a non-exception during ") + call);
+    return grpc::Status(grpc::StatusCode::INTERNAL, std::string("source threw a non-exception during ") + call);
   }
   if (!ctx.misuse().empty()) return grpc::Status(grpc::StatusCode::FAILED_PRECONDITION, ctx.misuse());
   return grpc::Status::OK;
@@ -121,8 +119,7 @@ class ConnectorCalls {
 template <typename Request, typename Response>
 using RequestFn = void (v1::Connector::AsyncService::*)(grpc::ServerContext*, Request*,
                                                         grpc::ServerAsyncResponseWriter<Response>*,
-                                                        grpc::CompletionQueue*,
-                                                        grpc::ServerCompletionQueue*, void*);
+                                                        grpc::CompletionQueue*, grpc::ServerCompletionQueue*, void*);
 template <typename Request, typename Response>
 using HandlerFn = grpc::Status (ConnectorCalls::*)(const Request&, Response*);
 
@@ -143,10 +140,8 @@ class MethodCall final : public internal::QueueTag, public internal::ArrivedCall
     ConnectorCalls& handlers;
   };
 
-  MethodCall(const Shared& shared, const Method& method)
-      : shared_(shared), method_(method), responder_(&context_) {
-    (shared_.service.*method_.request)(&context_, &request_, &responder_, shared_.queue,
-                                        shared_.queue, this);
+  MethodCall(const Shared& shared, const Method& method) : shared_(shared), method_(method), responder_(&context_) {
+    (shared_.service.*method_.request)(&context_, &request_, &responder_, shared_.queue, shared_.queue, this);
   }
 
   void Proceed(bool ok) override {
@@ -197,8 +192,7 @@ bool ParseReadyFd(std::string_view text, int* fd, std::string* error) {
     return false;
   }
   if (::fcntl(*fd, F_GETFD) == -1) {
-    *error = "WEIR_READY_FD " + std::string(text) + " is not an open file descriptor (" +
-             std::strerror(errno) + ")";
+    *error = "WEIR_READY_FD " + std::string(text) + " is not an open file descriptor (" + std::strerror(errno) + ")";
     return false;
   }
   return true;
@@ -222,8 +216,8 @@ bool WriteAll(int fd, const std::string& text, std::string* error) {
     const ssize_t n = ::write(fd, text.data() + done, text.size() - done);
     if (n < 0 && errno == EINTR) continue;
     if (n <= 0) {
-      *error = "cannot write the listen address to WEIR_READY_FD " + std::to_string(fd) + " (" +
-               std::strerror(errno) + ")";
+      *error =
+          "cannot write the listen address to WEIR_READY_FD " + std::to_string(fd) + " (" + std::strerror(errno) + ")";
       return false;
     }
     done += static_cast<std::size_t>(n);
@@ -259,33 +253,29 @@ int Serve(Source& source) {
   std::unique_ptr<grpc::ServerCompletionQueue> queue = builder.AddCompletionQueue();
   std::unique_ptr<grpc::Server> server = builder.BuildAndStart();
   if (server == nullptr || selected_port == 0) {
-    return StartupError(std::string("cannot listen on WEIR_LISTEN_ADDRESS \"") + listen_address +
-                        "\"");
+    return StartupError(std::string("cannot listen on WEIR_LISTEN_ADDRESS \"") + listen_address + "\"");
   }
 
   // Everything from here on runs on this thread, from one queue; the calls
   // are awaited before the address is announced.
   internal::CallQueue calls(queue.get());
-  internal::GrpcBrokerClient broker(broker_address,
-                                    std::chrono::seconds(kBrokerCallWallTimeoutSeconds), calls);
+  internal::GrpcBrokerClient broker(broker_address, std::chrono::seconds(kBrokerCallWallTimeoutSeconds), calls);
   ConnectorCalls handlers(source, broker);
   using Svc = v1::Connector::AsyncService;
-  new MethodCall<v1::OpenRequest, v1::OpenResponse>(
-      {service, queue.get(), calls, handlers}, {&Svc::RequestOpen, &ConnectorCalls::Open});
-  new MethodCall<v1::AdvanceRequest, v1::AdvanceResponse>(
-      {service, queue.get(), calls, handlers}, {&Svc::RequestAdvance, &ConnectorCalls::Advance});
-  new MethodCall<v1::CheckpointRequest, v1::CheckpointResponse>(
-      {service, queue.get(), calls, handlers},
-      {&Svc::RequestCheckpoint, &ConnectorCalls::Checkpoint});
-  new MethodCall<v1::CommittedRequest, v1::CommittedResponse>(
-      {service, queue.get(), calls, handlers},
-      {&Svc::RequestCommitted, &ConnectorCalls::Committed});
-  new MethodCall<v1::AssignRequest, v1::AssignResponse>(
-      {service, queue.get(), calls, handlers}, {&Svc::RequestAssign, &ConnectorCalls::Assign});
-  new MethodCall<v1::RevokeRequest, v1::RevokeResponse>(
-      {service, queue.get(), calls, handlers}, {&Svc::RequestRevoke, &ConnectorCalls::Revoke});
-  new MethodCall<v1::CutRequest, v1::CutResponse>(
-      {service, queue.get(), calls, handlers}, {&Svc::RequestCut, &ConnectorCalls::Cut});
+  new MethodCall<v1::OpenRequest, v1::OpenResponse>({service, queue.get(), calls, handlers},
+                                                    {&Svc::RequestOpen, &ConnectorCalls::Open});
+  new MethodCall<v1::AdvanceRequest, v1::AdvanceResponse>({service, queue.get(), calls, handlers},
+                                                          {&Svc::RequestAdvance, &ConnectorCalls::Advance});
+  new MethodCall<v1::CheckpointRequest, v1::CheckpointResponse>({service, queue.get(), calls, handlers},
+                                                                {&Svc::RequestCheckpoint, &ConnectorCalls::Checkpoint});
+  new MethodCall<v1::CommittedRequest, v1::CommittedResponse>({service, queue.get(), calls, handlers},
+                                                              {&Svc::RequestCommitted, &ConnectorCalls::Committed});
+  new MethodCall<v1::AssignRequest, v1::AssignResponse>({service, queue.get(), calls, handlers},
+                                                        {&Svc::RequestAssign, &ConnectorCalls::Assign});
+  new MethodCall<v1::RevokeRequest, v1::RevokeResponse>({service, queue.get(), calls, handlers},
+                                                        {&Svc::RequestRevoke, &ConnectorCalls::Revoke});
+  new MethodCall<v1::CutRequest, v1::CutResponse>({service, queue.get(), calls, handlers},
+                                                  {&Svc::RequestCut, &ConnectorCalls::Cut});
 
   if (!WriteAll(ready_fd, ListenedAddress(listen_address, selected_port) + "\n", &error)) {
     // gRPC requires the awaited calls back before the queue goes.

@@ -34,8 +34,7 @@ std::uint32_t Fnv1a32(std::string_view bytes) {
   return h;
 }
 
-LogModel::LogModel(const v1::Scenario& scenario, std::uint64_t seed, TraceLog& trace,
-                   FaultSource& faults)
+LogModel::LogModel(const v1::Scenario& scenario, std::uint64_t seed, TraceLog& trace, FaultSource& faults)
     : scenario_(scenario),
       config_(scenario.log()),
       seed_(seed),
@@ -43,8 +42,7 @@ LogModel::LogModel(const v1::Scenario& scenario, std::uint64_t seed, TraceLog& t
       faults_(faults),
       workload_(scenario.workload(), seed) {
   growth_.assign(config_.growth().begin(), config_.growth().end());
-  std::stable_sort(growth_.begin(), growth_.end(),
-                   [](const auto& a, const auto& b) { return a.at_ms() < b.at_ms(); });
+  std::stable_sort(growth_.begin(), growth_.end(), [](const auto& a, const auto& b) { return a.at_ms() < b.at_ms(); });
   last_change_time_ = workload_.last_publish_time();
   for (const auto& g : growth_) last_change_time_ = std::max(last_change_time_, Millis(g.at_ms()));
   // The partitions of the start exist before anything else: not traced.
@@ -57,9 +55,8 @@ void LogModel::AddPartitions(std::uint32_t count, VirtualTime at) {
     const auto p = static_cast<std::uint32_t>(partitions_.size());
     Partition part;
     const std::int64_t max_lag = config_.max_partition_lag_ms();
-    part.lag = max_lag > 0 ? Millis(static_cast<std::int64_t>(
-                                 Draw(seed_, "log.partition_lag", p) %
-                                 static_cast<std::uint64_t>(max_lag + 1)))
+    part.lag = max_lag > 0 ? Millis(static_cast<std::int64_t>(Draw(seed_, "log.partition_lag", p) %
+                                                              static_cast<std::uint64_t>(max_lag + 1)))
                            : 0;
     part.idle = std::find(config_.idle_partitions().begin(), config_.idle_partitions().end(), p) !=
                 config_.idle_partitions().end();
@@ -103,18 +100,15 @@ void LogModel::Append(const MessageSpec& spec) {
   ++appended_;
 
   const auto& cfg = faults_.config();
-  auto delay = faults_.Decide(v1::APPEND, k, v1::FaultDecision::kVisibilityDelayMs,
-                              spec.publish_time, [&](v1::FaultDecision* out) {
-                                if (cfg.max_visibility_delay_ms() <= 0) return false;
-                                if (!faults_.Chance("visibility_delay", k,
-                                                    cfg.visibility_delay_rate())) {
-                                  return false;
-                                }
-                                out->set_visibility_delay_ms(
-                                    faults_.Int("visibility_delay", k, 1,
-                                                cfg.max_visibility_delay_ms()));
-                                return true;
-                              });
+  auto delay = faults_.Decide(
+      v1::APPEND, k, v1::FaultDecision::kVisibilityDelayMs, spec.publish_time, [&](v1::FaultDecision* out) {
+        if (cfg.max_visibility_delay_ms() <= 0) return false;
+        if (!faults_.Chance("visibility_delay", k, cfg.visibility_delay_rate())) {
+          return false;
+        }
+        out->set_visibility_delay_ms(faults_.Int("visibility_delay", k, 1, cfg.max_visibility_delay_ms()));
+        return true;
+      });
   VirtualTime visible_at = spec.publish_time;
   if (delay.has_value() && delay->visibility_delay_ms() > 0) {
     visible_at = SaturatingAdd(spec.publish_time, Millis(delay->visibility_delay_ms()));
@@ -131,8 +125,7 @@ void LogModel::Append(const MessageSpec& spec) {
     trace_.Commit();
   }
   if (config_.retention_ms() > 0) {
-    expiries_.push_back(Expiry{SaturatingAdd(spec.publish_time, Millis(config_.retention_ms())), p,
-                               offset});
+    expiries_.push_back(Expiry{SaturatingAdd(spec.publish_time, Millis(config_.retention_ms())), p, offset});
   }
   if (config_.retention_records() > 0 && part.records.size() > config_.retention_records()) {
     DeleteOldest(p);
@@ -165,8 +158,7 @@ void LogModel::AdvanceTo(VirtualTime now) {
   for (;;) {
     const MessageSpec* next = workload_.Peek();
     const VirtualTime publish_at = next != nullptr ? next->publish_time : kNever;
-    const VirtualTime growth_at =
-        next_growth_ < growth_.size() ? Millis(growth_[next_growth_].at_ms()) : kNever;
+    const VirtualTime growth_at = next_growth_ < growth_.size() ? Millis(growth_[next_growth_].at_ms()) : kNever;
     const VirtualTime expiry_at = expiries_.empty() ? kNever : expiries_.front().at;
     const VirtualTime at = std::min({publish_at, growth_at, expiry_at});
     if (at > now || at == kNever) break;
@@ -197,9 +189,7 @@ void LogModel::AdvanceTo(VirtualTime now) {
   }
 }
 
-bool LogModel::all_published() const {
-  return workload_.Peek() == nullptr && next_growth_ >= growth_.size();
-}
+bool LogModel::all_published() const { return workload_.Peek() == nullptr && next_growth_ >= growth_.size(); }
 
 std::uint64_t LogModel::ReadableEnd(const Partition& p, VirtualTime now) const {
   for (const Hidden& h : p.hidden) {
@@ -243,14 +233,13 @@ std::optional<RecordKey> LogModel::Identify(const v1::Record& record, std::strin
     return std::nullopt;
   }
   if (record.partition() >= partitions_.size()) {
-    *why = absl::StrCat("names partition ", record.partition(), ", which does not exist (",
-                        partitions_.size(), " partitions)");
+    *why = absl::StrCat("names partition ", record.partition(), ", which does not exist (", partitions_.size(),
+                        " partitions)");
     return std::nullopt;
   }
   if (record.offset() >= partitions_[record.partition()].next) {
     *why = absl::StrCat("names offset ", record.offset(), " of partition ", record.partition(),
-                        ", which was never appended (next offset ",
-                        partitions_[record.partition()].next, ")");
+                        ", which was never appended (next offset ", partitions_[record.partition()].next, ")");
     return std::nullopt;
   }
   return LogRecordKey(record.partition(), record.offset());
@@ -284,51 +273,45 @@ void LogModel::ListPartitions(VirtualTime now, v1::ListPartitionsResponse* respo
   }
 }
 
-CallStatus LogModel::Read(const v1::ReadRequest& request, VirtualTime* now,
-                          v1::ReadResponse* response, std::uint64_t position) {
+CallStatus LogModel::Read(const v1::ReadRequest& request, VirtualTime* now, v1::ReadResponse* response,
+                          std::uint64_t position) {
   AdvanceTo(*now);
   CallStatus status;
   status.now = *now;
   const std::uint32_t p = request.partition();
   if (p >= partitions_.size()) {
     status.code = CallCode::kInvalidArgument;
-    status.message = absl::StrCat("partition ", p, " does not exist (", partitions_.size(),
-                                  " partitions)");
+    status.message = absl::StrCat("partition ", p, " does not exist (", partitions_.size(), " partitions)");
     return status;
   }
   const auto& cfg = faults_.config();
   const VirtualTime t = *now;
-  auto restart = faults_.Decide(v1::READ, position, v1::FaultDecision::kBrokerRestart, t,
-                                [&](v1::FaultDecision* out) {
-                                  if (!faults_.Chance("broker_restart", position,
-                                                      cfg.broker_restart_rate())) {
-                                    return false;
-                                  }
-                                  out->set_broker_restart(true);
-                                  return true;
-                                });
+  auto restart = faults_.Decide(v1::READ, position, v1::FaultDecision::kBrokerRestart, t, [&](v1::FaultDecision* out) {
+    if (!faults_.Chance("broker_restart", position, cfg.broker_restart_rate())) {
+      return false;
+    }
+    out->set_broker_restart(true);
+    return true;
+  });
   if (restart.has_value() && restart->broker_restart()) {
-    const VirtualTime until = SaturatingAdd(
-        t, Millis(config_.broker_restart_ms() > 0 ? config_.broker_restart_ms() : kDefaultRestartMs));
+    const VirtualTime until =
+        SaturatingAdd(t, Millis(config_.broker_restart_ms() > 0 ? config_.broker_restart_ms() : kDefaultRestartMs));
     for (Partition& part : partitions_) part.unavailable_until = std::max(part.unavailable_until, until);
   }
-  auto outage = faults_.Decide(
-      v1::READ, position, v1::FaultDecision::kPartitionOutageMs, t, [&](v1::FaultDecision* out) {
+  auto outage =
+      faults_.Decide(v1::READ, position, v1::FaultDecision::kPartitionOutageMs, t, [&](v1::FaultDecision* out) {
         if (cfg.max_partition_outage_ms() <= 0) return false;
         if (!faults_.Chance("partition_outage", position, cfg.partition_outage_rate())) return false;
-        out->set_partition_outage_ms(
-            faults_.Int("partition_outage", position, 1, cfg.max_partition_outage_ms()));
+        out->set_partition_outage_ms(faults_.Int("partition_outage", position, 1, cfg.max_partition_outage_ms()));
         return true;
       });
   Partition& part = partitions_[p];
   if (outage.has_value() && outage->partition_outage_ms() > 0) {
-    part.unavailable_until =
-        std::max(part.unavailable_until, SaturatingAdd(t, Millis(outage->partition_outage_ms())));
+    part.unavailable_until = std::max(part.unavailable_until, SaturatingAdd(t, Millis(outage->partition_outage_ms())));
   }
   if (t < part.unavailable_until) {
     status.code = CallCode::kUnavailable;
-    status.message = absl::StrCat("partition ", p, " is unavailable until ",
-                                  FormatTime(part.unavailable_until));
+    status.message = absl::StrCat("partition ", p, " is unavailable until ", FormatTime(part.unavailable_until));
     return status;
   }
 
@@ -347,8 +330,7 @@ CallStatus LogModel::Read(const v1::ReadRequest& request, VirtualTime* now,
   };
   if (request.offset() < part.first_retained) {
     return out_of_range(absl::StrCat("offset ", request.offset(), " of partition ", p,
-                                     " was deleted by retention; the first retained offset is ",
-                                     part.first_retained));
+                                     " was deleted by retention; the first retained offset is ", part.first_retained));
   }
   if (request.offset() > part.next) {
     return out_of_range(absl::StrCat("offset ", request.offset(), " of partition ", p,
@@ -378,14 +360,13 @@ CallStatus LogModel::Read(const v1::ReadRequest& request, VirtualTime* now,
   response->set_readable_end(end);
   bool emptied = false;
   if (end > request.offset()) {
-    auto empty = faults_.Decide(v1::READ, position, v1::FaultDecision::kEmptyRead, *now,
-                                [&](v1::FaultDecision* out) {
-                                  if (!faults_.Chance("empty_read", position, cfg.empty_read_rate())) {
-                                    return false;
-                                  }
-                                  out->set_empty_read(true);
-                                  return true;
-                                });
+    auto empty = faults_.Decide(v1::READ, position, v1::FaultDecision::kEmptyRead, *now, [&](v1::FaultDecision* out) {
+      if (!faults_.Chance("empty_read", position, cfg.empty_read_rate())) {
+        return false;
+      }
+      out->set_empty_read(true);
+      return true;
+    });
     emptied = empty.has_value() && empty->empty_read();
   }
   const std::uint32_t cap = config_.max_read() > 0 ? config_.max_read() : kDefaultMaxRead;
@@ -394,8 +375,7 @@ CallStatus LogModel::Read(const v1::ReadRequest& request, VirtualTime* now,
   std::uint64_t bytes = 0;
   const std::uint32_t payload_bytes = scenario_.workload().payload_bytes();
   while (!emptied && offset < end && static_cast<std::uint64_t>(response->records_size()) < max) {
-    if (request.max_bytes() > 0 && response->records_size() > 0 &&
-        bytes + payload_bytes > request.max_bytes()) {
+    if (request.max_bytes() > 0 && response->records_size() > 0 && bytes + payload_bytes > request.max_bytes()) {
       break;
     }
     const Rec& r = part.records[static_cast<std::size_t>(offset - part.first_retained)];
@@ -424,28 +404,26 @@ CallStatus LogModel::Read(const v1::ReadRequest& request, VirtualTime* now,
   return status;
 }
 
-CallStatus LogModel::SaveBookmarks(const v1::SaveBookmarksRequest& request, VirtualTime now,
-                                   std::uint64_t position) {
+CallStatus LogModel::SaveBookmarks(const v1::SaveBookmarksRequest& request, VirtualTime now, std::uint64_t position) {
   AdvanceTo(now);
   CallStatus status;
   status.now = now;
   for (const auto& b : request.bookmarks()) {
     if (b.partition() >= partitions_.size()) {
       status.code = CallCode::kInvalidArgument;
-      status.message = absl::StrCat("bookmark for partition ", b.partition(),
-                                    ", which does not exist (", partitions_.size(), " partitions)");
+      status.message = absl::StrCat("bookmark for partition ", b.partition(), ", which does not exist (",
+                                    partitions_.size(), " partitions)");
       return status;
     }
   }
-  auto lost = faults_.Decide(v1::SAVE_BOOKMARKS, position, v1::FaultDecision::kLostBookmark, now,
-                             [&](v1::FaultDecision* out) {
-                               if (!faults_.Chance("lost_bookmark", position,
-                                                   faults_.config().lost_bookmark_rate())) {
-                                 return false;
-                               }
-                               out->set_lost_bookmark(true);
-                               return true;
-                             });
+  auto lost =
+      faults_.Decide(v1::SAVE_BOOKMARKS, position, v1::FaultDecision::kLostBookmark, now, [&](v1::FaultDecision* out) {
+        if (!faults_.Chance("lost_bookmark", position, faults_.config().lost_bookmark_rate())) {
+          return false;
+        }
+        out->set_lost_bookmark(true);
+        return true;
+      });
   const bool is_lost = lost.has_value() && lost->lost_bookmark();
   for (const auto& b : request.bookmarks()) {
     if (!is_lost) bookmarks_[b.partition()] = b.next_offset();

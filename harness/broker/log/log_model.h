@@ -89,15 +89,11 @@ class LogModel final : public BrokerModel {
   // `position`: the call's 1-based position among calls of its method.
   void ListPartitions(VirtualTime now, v1::ListPartitionsResponse* response);
   // May move *now forward (a read that waits at the readable end).
-  CallStatus Read(const v1::ReadRequest& request, VirtualTime* now, v1::ReadResponse* response,
-                  std::uint64_t position);
-  CallStatus SaveBookmarks(const v1::SaveBookmarksRequest& request, VirtualTime now,
-                           std::uint64_t position);
+  CallStatus Read(const v1::ReadRequest& request, VirtualTime* now, v1::ReadResponse* response, std::uint64_t position);
+  CallStatus SaveBookmarks(const v1::SaveBookmarksRequest& request, VirtualTime now, std::uint64_t position);
   void LoadBookmarks(VirtualTime now, v1::LoadBookmarksResponse* response);
 
-  std::uint32_t partition_count() const override {
-    return static_cast<std::uint32_t>(partitions_.size());
-  }
+  std::uint32_t partition_count() const override { return static_cast<std::uint32_t>(partitions_.size()); }
   std::uint64_t first_retained(std::uint32_t p) const { return partitions_[p].first_retained; }
   std::uint64_t next_offset(std::uint32_t p) const { return partitions_[p].next; }
   std::uint64_t partition_end(std::uint32_t p) const override {
@@ -110,9 +106,9 @@ class LogModel final : public BrokerModel {
   struct Rec {
     VirtualTime append_time = 0;
     VirtualTime event_time = 0;
-    std::uint64_t seq = 0;      // k: the workload item, for the payload
-    std::uint32_t key = 0;      // key index; kHotKey for "hot"
-    std::uint32_t crc = 0;      // CRC-32C of the payload
+    std::uint64_t seq = 0;  // k: the workload item, for the payload
+    std::uint32_t key = 0;  // key index; kHotKey for "hot"
+    std::uint32_t crc = 0;  // CRC-32C of the payload
   };
   struct Hidden {
     std::uint64_t offset;
@@ -122,11 +118,11 @@ class LogModel final : public BrokerModel {
     std::deque<Rec> records;  // offsets [first_retained, next)
     std::uint64_t first_retained = 0;
     std::uint64_t next = 0;
-    VirtualDuration lag = 0;           // event-time lag, drawn once
+    VirtualDuration lag = 0;  // event-time lag, drawn once
     VirtualTime unavailable_until = 0;
-    std::deque<Hidden> hidden;         // delayed records, by offset
-    std::uint64_t read_next = 0;       // where the live incarnation's reads got to
-    bool idle = false;                 // never receives a record
+    std::deque<Hidden> hidden;    // delayed records, by offset
+    std::uint64_t read_next = 0;  // where the live incarnation's reads got to
+    bool idle = false;            // never receives a record
   };
   struct Expiry {
     VirtualTime at;

@@ -7,8 +7,7 @@
 
 namespace weir {
 
-QueueModel::QueueModel(const v1::Scenario& scenario, std::uint64_t seed, TraceLog& trace,
-                         FaultSource& faults)
+QueueModel::QueueModel(const v1::Scenario& scenario, std::uint64_t seed, TraceLog& trace, FaultSource& faults)
     : scenario_(scenario), seed_(seed), trace_(trace), faults_(faults), workload_(scenario.workload(), seed) {}
 
 void QueueModel::AdvanceTo(VirtualTime now) {
@@ -17,8 +16,8 @@ void QueueModel::AdvanceTo(VirtualTime now) {
     while (!leases_.empty()) {
       const Lease& top = leases_.top();
       auto it = messages_.find(top.message_id);
-      if (it != messages_.end() && it->second.state == State::kLeased &&
-          it->second.receipt == top.receipt && it->second.lease_deadline == top.deadline) {
+      if (it != messages_.end() && it->second.state == State::kLeased && it->second.receipt == top.receipt &&
+          it->second.lease_deadline == top.deadline) {
         break;
       }
       leases_.pop();  // superseded by an ack, nack, extension, redelivery or restart
@@ -73,18 +72,15 @@ void QueueModel::Publish(const MessageSpec& spec) {
 
   const auto& cfg = faults_.config();
   auto delay = faults_.Decide(
-      v1::PUBLISH, spec.id, v1::FaultDecision::kVisibilityDelayMs, spec.publish_time,
-      [&](v1::FaultDecision* out) {
+      v1::PUBLISH, spec.id, v1::FaultDecision::kVisibilityDelayMs, spec.publish_time, [&](v1::FaultDecision* out) {
         if (cfg.max_visibility_delay_ms() <= 0) return false;
         if (!faults_.Chance("visibility_delay", spec.id, cfg.visibility_delay_rate())) return false;
-        out->set_visibility_delay_ms(
-            faults_.Int("visibility_delay", spec.id, 1, cfg.max_visibility_delay_ms()));
+        out->set_visibility_delay_ms(faults_.Int("visibility_delay", spec.id, 1, cfg.max_visibility_delay_ms()));
         return true;
       });
   if (delay.has_value() && delay->visibility_delay_ms() > 0) {
     m.state = State::kHidden;
-    hidden_.push(Reveal{SaturatingAdd(spec.publish_time, Millis(delay->visibility_delay_ms())),
-                        spec.id});
+    hidden_.push(Reveal{SaturatingAdd(spec.publish_time, Millis(delay->visibility_delay_ms())), spec.id});
     messages_.emplace(spec.id, m);
     return;
   }
@@ -129,15 +125,14 @@ void QueueModel::Shuffle(std::uint64_t position) {
   // pull position gives the same order.
   std::vector<std::uint64_t> ids(ready_.begin(), ready_.end());
   for (std::size_t i = ids.size(); i > 1; --i) {
-    const auto j = static_cast<std::size_t>(
-        faults_.Int("reorder.shuffle", position, 0, static_cast<std::int64_t>(i - 1), i));
+    const auto j =
+        static_cast<std::size_t>(faults_.Int("reorder.shuffle", position, 0, static_cast<std::int64_t>(i - 1), i));
     std::swap(ids[i - 1], ids[j]);
   }
   ready_.assign(ids.begin(), ids.end());
 }
 
-void QueueModel::FillDelivery(std::uint64_t id, const Message& m,
-                               v1::PullResponse* response) const {
+void QueueModel::FillDelivery(std::uint64_t id, const Message& m, v1::PullResponse* response) const {
   v1::Delivery* d = response->add_deliveries();
   d->set_message_id(id);
   d->set_receipt(m.receipt);
@@ -154,8 +149,8 @@ void QueueModel::FillDelivery(std::uint64_t id, const Message& m,
   }
 }
 
-void QueueModel::TraceDelivered(VirtualTime now, std::uint64_t id, std::uint64_t receipt,
-                                 std::uint32_t attempt, VirtualTime deadline) {
+void QueueModel::TraceDelivered(VirtualTime now, std::uint64_t id, std::uint64_t receipt, std::uint32_t attempt,
+                                VirtualTime deadline) {
   auto& e = trace_.Append(now);
   auto* x = e.mutable_delivered();
   x->set_message_id(id);
@@ -194,8 +189,8 @@ bool QueueModel::Duplicate(std::uint64_t position, VirtualTime now, v1::PullResp
   for (const auto& [id, a] : recently_acked_) candidates.push_back(id);  // pruned: within horizon
   if (candidates.empty()) return false;
   std::sort(candidates.begin(), candidates.end());
-  const std::uint64_t id = candidates[static_cast<std::size_t>(faults_.Int(
-      "duplicate.pick", position, 0, static_cast<std::int64_t>(candidates.size() - 1)))];
+  const std::uint64_t id = candidates[static_cast<std::size_t>(
+      faults_.Int("duplicate.pick", position, 0, static_cast<std::int64_t>(candidates.size() - 1)))];
   if (messages_.contains(id)) {
     Deliver(id, now, response);
     return true;
@@ -210,39 +205,34 @@ bool QueueModel::Duplicate(std::uint64_t position, VirtualTime now, v1::PullResp
   return true;
 }
 
-void QueueModel::Pull(const v1::PullRequest& request, VirtualTime now,
-                       v1::PullResponse* response, std::uint64_t position) {
+void QueueModel::Pull(const v1::PullRequest& request, VirtualTime now, v1::PullResponse* response,
+                      std::uint64_t position) {
   AdvanceTo(now);
   std::uint32_t n = request.max_messages();
   if (scenario_.broker().max_pull() > 0) n = std::min(n, scenario_.broker().max_pull());
   const auto& cfg = faults_.config();
   if (position > 0) {
-    if (faults_.Decide(v1::PULL, position, v1::FaultDecision::kBrokerRestart, now,
-                       [&](v1::FaultDecision* out) {
-                         if (!faults_.Chance("broker_restart", position, cfg.broker_restart_rate()))
-                           return false;
-                         out->set_broker_restart(true);
-                         return true;
-                       })) {
+    if (faults_.Decide(v1::PULL, position, v1::FaultDecision::kBrokerRestart, now, [&](v1::FaultDecision* out) {
+          if (!faults_.Chance("broker_restart", position, cfg.broker_restart_rate())) return false;
+          out->set_broker_restart(true);
+          return true;
+        })) {
       Restart(now);
     }
-    if (faults_.Decide(v1::PULL, position, v1::FaultDecision::kReorder, now,
-                       [&](v1::FaultDecision* out) {
-                         if (ready_.size() < 2) return false;  // nothing to reorder
-                         if (!faults_.Chance("reorder", position, cfg.reorder_rate())) return false;
-                         out->set_reorder(true);
-                         return true;
-                       })) {
+    if (faults_.Decide(v1::PULL, position, v1::FaultDecision::kReorder, now, [&](v1::FaultDecision* out) {
+          if (ready_.size() < 2) return false;  // nothing to reorder
+          if (!faults_.Chance("reorder", position, cfg.reorder_rate())) return false;
+          out->set_reorder(true);
+          return true;
+        })) {
       Shuffle(position);
     }
-    if (n > 0 && faults_.Decide(v1::PULL, position, v1::FaultDecision::kDuplicate, now,
-                                [&](v1::FaultDecision* out) {
-                                  if (!faults_.Chance("duplicate", position, cfg.duplicate_rate()))
-                                    return false;
-                                  if (!HasDuplicateCandidate()) return false;
-                                  out->set_duplicate(true);
-                                  return true;
-                                })) {
+    if (n > 0 && faults_.Decide(v1::PULL, position, v1::FaultDecision::kDuplicate, now, [&](v1::FaultDecision* out) {
+          if (!faults_.Chance("duplicate", position, cfg.duplicate_rate())) return false;
+          if (!HasDuplicateCandidate()) return false;
+          out->set_duplicate(true);
+          return true;
+        })) {
       // The copy takes one of the n slots: a connector never gets more than it asked for.
       if (Duplicate(position, now, response)) --n;
     }
@@ -255,8 +245,8 @@ void QueueModel::Pull(const v1::PullRequest& request, VirtualTime now,
   response->set_now_ns(now);
 }
 
-QueueModel::Message* QueueModel::Holder(std::uint64_t receipt, VirtualTime /*now*/,
-                                          std::uint64_t* message_id, const char** reason) {
+QueueModel::Message* QueueModel::Holder(std::uint64_t receipt, VirtualTime /*now*/, std::uint64_t* message_id,
+                                        const char** reason) {
   *message_id = 0;
   auto owner = receipt_owner_.find(receipt);
   if (owner == receipt_owner_.end()) {
@@ -266,16 +256,15 @@ QueueModel::Message* QueueModel::Holder(std::uint64_t receipt, VirtualTime /*now
   }
   *message_id = owner->second;
   auto it = messages_.find(owner->second);
-  if (it == messages_.end() || it->second.state != State::kLeased ||
-      it->second.receipt != receipt) {
+  if (it == messages_.end() || it->second.state != State::kLeased || it->second.receipt != receipt) {
     *reason = "receipt no longer holds the message";
     return nullptr;
   }
   return &it->second;
 }
 
-void QueueModel::TraceIgnored(VirtualTime now, const char* call, std::uint64_t receipt,
-                               std::uint64_t message_id, const char* reason) {
+void QueueModel::TraceIgnored(VirtualTime now, const char* call, std::uint64_t receipt, std::uint64_t message_id,
+                              const char* reason) {
   if (std::string_view(reason).rfind("lost by a fault", 0) != 0) ++ignored_receipts_;
   auto& e = trace_.Append(now);
   auto* x = e.mutable_ack_ignored();
@@ -287,14 +276,11 @@ void QueueModel::TraceIgnored(VirtualTime now, const char* call, std::uint64_t r
 
 void QueueModel::Ack(const v1::AckRequest& request, VirtualTime now, std::uint64_t position) {
   AdvanceTo(now);
-  if (position > 0 &&
-      faults_.Decide(v1::ACK, position, v1::FaultDecision::kLostAck, now,
-                     [&](v1::FaultDecision* out) {
-                       if (!faults_.Chance("lost_ack", position, faults_.config().lost_ack_rate()))
-                         return false;
-                       out->set_lost_ack(true);
-                       return true;
-                     })) {
+  if (position > 0 && faults_.Decide(v1::ACK, position, v1::FaultDecision::kLostAck, now, [&](v1::FaultDecision* out) {
+        if (!faults_.Chance("lost_ack", position, faults_.config().lost_ack_rate())) return false;
+        out->set_lost_ack(true);
+        return true;
+      })) {
     for (std::uint64_t receipt : request.receipts()) {
       auto owner = receipt_owner_.find(receipt);
       TraceIgnored(now, "ack", receipt, owner != receipt_owner_.end() ? owner->second : 0,
@@ -362,7 +348,7 @@ void QueueModel::Nack(const v1::NackRequest& request, VirtualTime now) {
 }
 
 void QueueModel::ExtendLease(const v1::ExtendLeaseRequest& request, VirtualTime now,
-                              v1::ExtendLeaseResponse* response) {
+                             v1::ExtendLeaseResponse* response) {
   AdvanceTo(now);
   for (std::uint64_t receipt : request.receipts()) {
     if (auto g = ghosts_.find(receipt); g != ghosts_.end() && request.extension_ns() > 0) {
@@ -395,10 +381,8 @@ void QueueModel::ExtendLease(const v1::ExtendLeaseRequest& request, VirtualTime 
 }
 
 std::optional<RecordKey> QueueModel::Identify(const v1::Record& record, std::string* why) const {
-  if (record.message_id() == 0 || record.message_id() > total_messages() ||
-      record.message_id() > kMaxOffset) {
-    *why = "names message " + std::to_string(record.message_id()) +
-           ", which the broker never published";
+  if (record.message_id() == 0 || record.message_id() > total_messages() || record.message_id() > kMaxOffset) {
+    *why = "names message " + std::to_string(record.message_id()) + ", which the broker never published";
     return std::nullopt;
   }
   return RecordKey{record.message_id()};

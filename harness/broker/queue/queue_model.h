@@ -66,12 +66,10 @@ class QueueModel final : public BrokerModel {
 
   // Each REQUIRES: now is not earlier than any earlier call's now.
   // `position`: this call's 1-based position among calls of its method (0: none).
-  void Pull(const v1::PullRequest& request, VirtualTime now, v1::PullResponse* response,
-            std::uint64_t position = 0);
+  void Pull(const v1::PullRequest& request, VirtualTime now, v1::PullResponse* response, std::uint64_t position = 0);
   void Ack(const v1::AckRequest& request, VirtualTime now, std::uint64_t position = 0);
   void Nack(const v1::NackRequest& request, VirtualTime now);
-  void ExtendLease(const v1::ExtendLeaseRequest& request, VirtualTime now,
-                   v1::ExtendLeaseResponse* response);
+  void ExtendLease(const v1::ExtendLeaseRequest& request, VirtualTime now, v1::ExtendLeaseResponse* response);
 
   std::uint64_t total_messages() const override { return workload_.total(); }
   std::uint64_t published() const override { return published_; }
@@ -135,9 +133,7 @@ class QueueModel final : public BrokerModel {
   struct Reveal {  // a hidden message becoming visible
     VirtualTime at;
     std::uint64_t message_id;
-    bool operator>(const Reveal& o) const {
-      return at != o.at ? at > o.at : message_id > o.message_id;
-    }
+    bool operator>(const Reveal& o) const { return at != o.at ? at > o.at : message_id > o.message_id; }
   };
 
   void Publish(const MessageSpec& spec);
@@ -150,14 +146,13 @@ class QueueModel final : public BrokerModel {
   // Hands out one more copy of a leased or recently acked message, if any.
   bool Duplicate(std::uint64_t position, VirtualTime now, v1::PullResponse* response);
   void FillDelivery(std::uint64_t id, const Message& m, v1::PullResponse* response) const;
-  void TraceDelivered(VirtualTime now, std::uint64_t id, std::uint64_t receipt,
-                      std::uint32_t attempt, VirtualTime deadline);
+  void TraceDelivered(VirtualTime now, std::uint64_t id, std::uint64_t receipt, std::uint32_t attempt,
+                      VirtualTime deadline);
   void ExpireLease(const Lease& lease);
   // The leased message this receipt currently holds, or nullptr (and the reason).
-  Message* Holder(std::uint64_t receipt, VirtualTime now, std::uint64_t* message_id,
-                  const char** reason);
-  void TraceIgnored(VirtualTime now, const char* call, std::uint64_t receipt,
-                    std::uint64_t message_id, const char* reason);
+  Message* Holder(std::uint64_t receipt, VirtualTime now, std::uint64_t* message_id, const char** reason);
+  void TraceIgnored(VirtualTime now, const char* call, std::uint64_t receipt, std::uint64_t message_id,
+                    const char* reason);
 
   const v1::Scenario& scenario_;
   const std::uint64_t seed_;
@@ -171,7 +166,7 @@ class QueueModel final : public BrokerModel {
   std::priority_queue<Reveal, std::vector<Reveal>, std::greater<Reveal>> hidden_;
   absl::flat_hash_map<std::uint64_t, Acked> recently_acked_;
   std::deque<std::pair<VirtualTime, std::uint64_t>> ack_order_;  // (acked_at, id), time order
-  std::map<std::uint64_t, Ghost> ghosts_;  // by receipt; ordered so pruning is deterministic
+  std::map<std::uint64_t, Ghost> ghosts_;                        // by receipt; ordered so pruning is deterministic
   std::uint64_t published_ = 0;
   std::uint64_t last_receipt_ = 0;
   std::uint64_t ignored_receipts_ = 0;

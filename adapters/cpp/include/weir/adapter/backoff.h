@@ -27,10 +27,10 @@
 namespace weir::adapter {
 
 struct BackoffPolicy {
-  std::int64_t initial_ns = 1'000'000'000;   // delay after the first failure
-  double multiplier = 1.6;                   // growth per further consecutive failure
-  std::int64_t max_ns = 120'000'000'000;     // cap on the un-jittered delay
-  double jitter = 0.2;                       // each delay is scaled by U[1 - jitter, 1 + jitter)
+  std::int64_t initial_ns = 1'000'000'000;  // delay after the first failure
+  double multiplier = 1.6;                  // growth per further consecutive failure
+  std::int64_t max_ns = 120'000'000'000;    // cap on the un-jittered delay
+  double jitter = 0.2;                      // each delay is scaled by U[1 - jitter, 1 + jitter)
 };
 
 // Mixes two integers into a well-spread seed (SplitMix64 finalizer), e.g.

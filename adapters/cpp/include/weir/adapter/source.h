@@ -198,8 +198,7 @@ class BrokerClient {
   [[nodiscard]] virtual BrokerStatus Nack(const std::vector<std::uint64_t>& receipts) = 0;
   // Moves the lease deadline of these receipts to now + extension_ns. Replaces
   // *rejected with the receipts whose lease could not be extended.
-  [[nodiscard]] virtual BrokerStatus ExtendLease(const std::vector<std::uint64_t>& receipts,
-                                                 std::int64_t extension_ns,
+  [[nodiscard]] virtual BrokerStatus ExtendLease(const std::vector<std::uint64_t>& receipts, std::int64_t extension_ns,
                                                  std::vector<std::uint64_t>* rejected) = 0;
 
   // Log shape. The default implementations answer UNIMPLEMENTED (a host that
@@ -211,8 +210,8 @@ class BrokerClient {
   // Reads records of `partition` from `offset` on. On success *out holds them and
   // where the partition stands; on error its records are empty. OUT_OF_RANGE:
   // `offset` is below the first retained offset, which the status carries.
-  [[nodiscard]] virtual BrokerStatus Read(std::uint32_t partition, std::uint64_t offset,
-                                          const ReadOptions& options, ReadResult* out);
+  [[nodiscard]] virtual BrokerStatus Read(std::uint32_t partition, std::uint64_t offset, const ReadOptions& options,
+                                          ReadResult* out);
   // Stores these bookmarks at the broker. Only resume points of a committed
   // checkpoint may be saved (see the log protocol at the top of this file).
   [[nodiscard]] virtual BrokerStatus SaveBookmarks(const std::vector<Bookmark>& bookmarks);
@@ -249,8 +248,7 @@ class Context {
   void Emit(std::uint64_t message_id, std::int64_t event_time_ns, std::string value = {});
   // Advance only, log shape. Adds a record produced from the log record at
   // (partition, offset).
-  void EmitLogRecord(std::uint32_t partition, std::uint64_t offset, std::int64_t event_time_ns,
-                     std::string value = {});
+  void EmitLogRecord(std::uint32_t partition, std::uint64_t offset, std::int64_t event_time_ns, std::string value = {});
   // Advance only, log shape. Offsets [from_offset, to_offset) of `partition` will
   // never be emitted: retention deleted them before they could be read. A reader
   // that skips offsets must say so; skipping silently is a violation.
@@ -315,7 +313,7 @@ struct OpenInfo {
   std::uint64_t incarnation = 0;  // 1 for the first life of the connector, then 2, ...
   bool restore = false;           // true: restore from the committed checkpoint below
   std::uint64_t checkpoint_id = 0;
-  std::string checkpoint_state;   // bytes the source returned from Checkpoint(checkpoint_id)
+  std::string checkpoint_state;  // bytes the source returned from Checkpoint(checkpoint_id)
   // The broker redelivers an acked message no later than this long after the ack,
   // so dedup memory of acked messages may be dropped after it.
   std::int64_t redelivery_horizon_ns = 0;
@@ -391,8 +389,7 @@ class Source {
   [[nodiscard]] virtual grpc::Status Assign(const std::vector<Span>& spans, Context& ctx);
   // Gives up the spans of `partitions` (whole): nothing of them is read or
   // emitted from now on.
-  [[nodiscard]] virtual grpc::Status Revoke(const std::vector<std::uint32_t>& partitions,
-                                            Context& ctx);
+  [[nodiscard]] virtual grpc::Status Revoke(const std::vector<std::uint32_t>& partitions, Context& ctx);
   // Gives up the unread tail of the span it holds of `held.partition`, the
   // runtime asking for the tail to begin at `at_offset`. `held` is the span as
   // the host told it to the source (Open, Assign, earlier Cut answers; from
@@ -410,8 +407,7 @@ OpenInfo OpenInfoFrom(const v1::OpenRequest& request);
 // source, which the contract reads as QUEUE) into *response.
 void WriteOpen(const Source& source, v1::OpenResponse* response);
 // Runs Checkpoint and then ResumePoints, writing both into *response.
-void RunCheckpoint(Source& source, std::uint64_t checkpoint_id, Context& ctx,
-                   v1::CheckpointResponse* response);
+void RunCheckpoint(Source& source, std::uint64_t checkpoint_id, Context& ctx, v1::CheckpointResponse* response);
 
 // Many readers. The spans a source has been told it holds, kept by a host so
 // that Cut can name the held span: reset by Open, grown by Assign, shrunk by
@@ -430,13 +426,10 @@ class SpansTold {
 };
 
 // Runs Assign / Revoke with the request's spans or partitions, keeping *told.
-[[nodiscard]] grpc::Status RunAssign(Source& source, const v1::AssignRequest& request, Context& ctx,
-                                     SpansTold* told);
-[[nodiscard]] grpc::Status RunRevoke(Source& source, const v1::RevokeRequest& request, Context& ctx,
-                                     SpansTold* told);
+[[nodiscard]] grpc::Status RunAssign(Source& source, const v1::AssignRequest& request, Context& ctx, SpansTold* told);
+[[nodiscard]] grpc::Status RunRevoke(Source& source, const v1::RevokeRequest& request, Context& ctx, SpansTold* told);
 // Runs Cut on the held span of the request's partition and writes the answer
 // into *response, keeping *told.
-void RunCut(Source& source, const v1::CutRequest& request, Context& ctx, SpansTold* told,
-            v1::CutResponse* response);
+void RunCut(Source& source, const v1::CutRequest& request, Context& ctx, SpansTold* told, v1::CutResponse* response);
 
 }  // namespace weir::adapter
