@@ -18,11 +18,13 @@ set_target_properties(weir_proto PROPERTIES EXPORT_NAME proto)
 set_target_properties(weir_core PROPERTIES EXPORT_NAME core)
 set_target_properties(weir_run PROPERTIES EXPORT_NAME run)
 set_target_properties(weir_edge PROPERTIES EXPORT_NAME edge)
+set_target_properties(weir_replay PROPERTIES EXPORT_NAME replay)
+set_target_properties(weir_suite PROPERTIES EXPORT_NAME suite)
 set_target_properties(weir_adapter PROPERTIES EXPORT_NAME adapter)
 set_target_properties(weir_inprocess PROPERTIES EXPORT_NAME inprocess)
 
 install(TARGETS weir EXPORT weirTargets RUNTIME DESTINATION ${CMAKE_INSTALL_BINDIR})
-install(TARGETS weir_proto weir_core weir_run weir_edge weir_adapter weir_inprocess
+install(TARGETS weir_proto weir_core weir_run weir_edge weir_replay weir_suite weir_adapter weir_inprocess
   EXPORT weirTargets ARCHIVE DESTINATION ${CMAKE_INSTALL_LIBDIR})
 
 # Headers. The adapter's and the generated protos' sit under include/weir/

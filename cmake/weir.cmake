@@ -2,7 +2,9 @@
 function(weir_warnings target)
   # -Wrestrict: GCC 12 reports false positives inside std::string at -O2
   # (GCC bug 105329), so it is off for GCC only.
-  target_compile_options(${target} PRIVATE -Wall -Wextra -Werror
+  # -Wshadow: a name that hides another in an enclosing scope is a bug waiting
+  # to happen in code that keeps models, ports and runs side by side.
+  target_compile_options(${target} PRIVATE -Wall -Wextra -Wshadow -Werror
     $<$<CXX_COMPILER_ID:GNU>:-Wno-restrict>)
 endfunction()
 

@@ -1,18 +1,35 @@
 #!/usr/bin/env bash
-# Installs weir's build and test dependencies from Debian 12 packages.
+# Installs weir's dependencies from Debian 12 packages.
+#   bash scripts/setup-deps.sh main    what building weir and certifying a connector needs
+#   bash scripts/setup-deps.sh tests   that, plus what the tests need (the default):
+#                                      GoogleTest, benchmarks, property tests, Python's
+#                                      gRPC, clang and LLVM for the sanitizer and fuzzing
+#                                      builds, clang-format, a headless browser for the
+#                                      HTML report checks
 # Idempotent: packages already present are left alone; apt-get runs only when
 # something is missing. Must run as root (or with sudo available).
 set -euo pipefail
 
-packages=(
+main_packages=(
   build-essential cmake ninja-build pkg-config git
   libgrpc++-dev protobuf-compiler-grpc libprotobuf-dev protobuf-compiler
-  libboost-dev libcli11-dev libgtest-dev libgmock-dev libbenchmark-dev
-  librapidcheck-dev libxml2-utils libssl-dev
+  libboost-dev libcli11-dev libssl-dev
+)
+test_packages=(
+  libgtest-dev libgmock-dev libbenchmark-dev librapidcheck-dev libxml2-utils
   chromium
   python3 python3-grpcio python3-protobuf python3-pytest
-  clang libclang-rt-14-dev llvm-14
+  clang libclang-rt-14-dev llvm-14 clang-format-14
 )
+
+case ${1:-tests} in
+  main) packages=("${main_packages[@]}") ;;
+  tests) packages=("${main_packages[@]}" "${test_packages[@]}") ;;
+  *)
+    echo "setup-deps: '$1' is not a set; expected main or tests" >&2
+    exit 2
+    ;;
+esac
 
 missing=()
 for p in "${packages[@]}"; do

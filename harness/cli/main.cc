@@ -17,7 +17,9 @@
 #include "absl/strings/match.h"
 #include "absl/strings/str_cat.h"
 #include "harness/cli/bundled_files.h"
-#include "harness/cli/command_line.h"
+#include "harness/edge/command_line.h"
+#include "harness/edge/replay_line.h"
+#include "harness/cli/command_flags.h"
 #include "harness/cli/hold_prompt.h"
 #include "harness/cli/search_command.h"
 #include "harness/cli/shrink_command.h"
@@ -38,63 +40,22 @@
 namespace weir {
 namespace {
 
-constexpr int kExitPassed = 0;
-constexpr int kExitFailed = 1;
-constexpr int kExitUsage = 2;
-constexpr int kExitHarness = 3;
-
 struct RunFlags {
   std::string scenario;
   std::uint64_t seed = 0;
   bool seed_given = false;
-  std::string connector;
-  std::vector<std::string> command;
+  ConnectorFlags connector;
   std::string trace;
-  std::string transport = "tcp";
   std::string plan;
   std::string save_plan;
   std::string profile;  // overrides the scenario's profile
 };
 
-int UsageError(const std::string& message) {
-  std::fprintf(stderr, "weir: %s\n", message.c_str());
-  return kExitUsage;
-}
-
-// What to do with a failing run, before its replay line (which stays last).
-std::string NextStepsHint(const std::string& trace, const std::string& replay) {
-  if (!trace.empty()) {
-    const std::string t = ShellQuote(trace);
-    const std::string& weir = WeirProgram();
-    return absl::StrCat("next: ", weir, " replay ", t, "    (rerun, compare event by event)\n", "      ", weir,
-                        " explain ", t, "   (timeline around each violation)\n", "      ", weir, " shrink ", t,
-                        " --out minimal.plan   (smallest fault plan that still fails)\n");
-  }
-  // "weir run …" → "weir shrink …": shrink takes the same flags.
-  return absl::StrCat("next: ", WeirProgram(), " shrink",
-                      replay.substr(WeirProgram().size() + std::string(" run").size()),
-                      " --out minimal.plan\n      (smallest fault plan that still fails; add --trace FILE "
-                      "to weir run for replay and explain)\n");
-}
-
 int RunCommand(RunFlags& flags) {
-  std::vector<std::string> argv;
-  if (!flags.connector.empty() && !flags.command.empty()) {
-    return UsageError("give the connector either as --connector 'CMD ARGS' or after --, not both");
-  }
-  if (!flags.connector.empty()) {
-    auto split = SplitCommandLine(flags.connector);
-    if (!split.ok()) {
-      return UsageError(absl::StrCat("--connector ", split.status().message()));
-    }
-    argv = std::move(*split);
-  } else {
-    argv = flags.command;
-  }
-  if (argv.empty()) return UsageError("no connector command; expected --connector 'CMD ARGS…'");
-  if (!ResolveExecutable(argv[0]).has_value()) {
-    return UsageError("--connector: '" + argv[0] + "' is not an executable file (nor found on PATH)");
-  }
+  auto connector = ParseConnectorFlags(flags.connector, ConnectorNeed::kRequired);
+  if (!connector.ok()) return UsageError(connector.status().message());
+  const std::vector<std::string>& argv = connector->argv;
+  const Transport transport = connector->transport;
   // Where the command points now, for a trace that is replayed elsewhere.
   std::optional<v1::ConnectorIdentity> identity;
   if (!flags.trace.empty()) {
@@ -102,16 +63,8 @@ int RunCommand(RunFlags& flags) {
     if (!id.ok()) return UsageError(absl::StrCat("--connector: ", id.status().message()));
     identity = std::move(*id);
   }
-  Transport transport;
-  if (flags.transport == "tcp") {
-    transport = Transport::kTcp;
-  } else if (flags.transport == "unix") {
-    transport = Transport::kUnix;
-  } else {
-    return UsageError("--transport is '" + flags.transport + "'; expected tcp or unix");
-  }
-  for (const auto& [flag, path] : {std::pair{"--trace", flags.trace}, std::pair{"--save-plan", flags.save_plan}}) {
-    if (absl::Status st = CheckOutputPath(flag, path); !st.ok()) return UsageError(std::string(st.message()));
+  if (absl::Status st = CheckOutputPaths({{"--trace", flags.trace}, {"--save-plan", flags.save_plan}}); !st.ok()) {
+    return UsageError(st.message());
   }
   if (!flags.seed_given) flags.seed = std::random_device{}() * 65536ULL + std::random_device{}() % 65536;
 
@@ -155,7 +108,8 @@ int RunCommand(RunFlags& flags) {
   spec.trace_path = flags.trace;
   spec.stop = InstallStopSignals();
   auto out = RunOverGrpc(spec);
-  const std::string replay = ReplayLine(flags.scenario, flags.seed, transport, flags.plan, flags.profile, argv);
+  const PairFlags pair{flags.scenario, flags.seed, transport, flags.plan, flags.profile, argv};
+  const std::string replay = PairCommand("run", pair);
   if (absl::IsCancelled(out.status())) {
     std::fprintf(stderr,
                  "weir: interrupted by signal %d: the connector was killed, no trace or plan "
@@ -213,7 +167,7 @@ int RunCommand(RunFlags& flags) {
   } else {
     std::printf("\n%s\n", passed ? "PASSED: every invariant held." : "FAILED.");
   }
-  if (!passed) std::printf("%s", NextStepsHint(flags.trace, replay).c_str());
+  if (!passed) std::printf("%s", NextStepsHint(flags.trace, pair).c_str());
   std::printf("replay: %s\n", replay.c_str());
   return passed ? kExitPassed : kExitFailed;
 }
@@ -255,8 +209,7 @@ int StatusExit(const absl::Status& st) {
 // connector that did not come up.
 struct ReplayFlags {
   std::string trace;
-  std::string transport = "tcp";
-  std::string connector;
+  ConnectorFlags connector;  // --connector and --transport; no words after --
   // Debugging the connector (docs/debugging.md).
   bool no_wall_bounds = false;
   std::string wrap;                    // 'CMD ARGS', split like --connector
@@ -268,16 +221,10 @@ struct ReplayFlags {
 int ReplayCommand(const ReplayFlags& flags) {
   const std::string& trace = flags.trace;
   ReplayOptions options;
-  if (flags.transport == "unix") {
-    options.transport = Transport::kUnix;
-  } else if (flags.transport != "tcp") {
-    return UsageError("--transport is '" + flags.transport + "'; expected tcp or unix");
-  }
-  if (!flags.connector.empty()) {
-    auto split = SplitCommandLine(flags.connector);
-    if (!split.ok()) return UsageError(absl::StrCat("--connector ", split.status().message()));
-    options.connector_argv = std::move(*split);
-  }
+  auto connector = ParseConnectorFlags(flags.connector, ConnectorNeed::kOptional);
+  if (!connector.ok()) return UsageError(connector.status().message());
+  options.transport = connector->transport;
+  options.connector_argv = std::move(connector->argv);
   if (!flags.wrap.empty()) {
     auto split = SplitCommandLine(flags.wrap);
     if (!split.ok()) return UsageError(absl::StrCat("--wrap ", split.status().message()));
@@ -416,9 +363,8 @@ int main(int argc, char** argv) {
   app.footer(absl::StrCat("Bundled scenarios, profiles and suites: ",
                           bundled.value_or("none found (expected in ../share/weir beside the weir binary)"),
                           "\nA bare name picks one: --suite quick, --scenario crash_storm_weather_buoys, "
-                          "--profile exactly_once.\n"
-                          "Exit codes: 0 every invariant held, 1 an invariant failed, 2 usage or input error, "
-                          "3 harness fault, 4 interrupted."));
+                          "--profile exactly_once.\n",
+                          ExitCodesHelp()));
 
   RunFlags run_flags;
   CLI::App* run = app.add_subcommand("run", "One seeded run of a connector against a scenario");
@@ -426,11 +372,8 @@ int main(int argc, char** argv) {
                   "Scenario file (Protobuf text format), or a bundled scenario's name")
       ->required();
   run->add_option("--seed", run_flags.seed, "Seed (default: a random one, printed first)")->check(WholeNumber());
-  run->add_option("--connector", run_flags.connector,
-                  "Connector command, split into argv without a shell: 'CMD ARGS…'");
+  AddConnectorFlags(*run, run_flags.connector, "Connector command, split into argv without a shell: 'CMD ARGS…'");
   run->add_option("--trace", run_flags.trace, "Write the trace (JSON lines) to this file");
-  run->add_option("--transport", run_flags.transport, "tcp (loopback, default) or unix");
-  run->add_option("command", run_flags.command, "Connector command after --");
   run->add_option("--plan", run_flags.plan,
                   "Apply exactly this fault plan (text format) instead of the scenario's rates");
   run->add_option("--profile", run_flags.profile,
@@ -452,8 +395,8 @@ int main(int argc, char** argv) {
   ReplayFlags replay_flags;
   CLI::App* replay = app.add_subcommand("replay", "Rerun a saved trace's run and compare it event by event");
   replay->add_option("trace", replay_flags.trace, "Trace file (weir run --trace)")->required();
-  replay->add_option("--transport", replay_flags.transport, "tcp (loopback, default) or unix");
-  replay->add_option("--connector", replay_flags.connector,
+  replay->add_option("--transport", replay_flags.connector.transport, "tcp (loopback, default) or unix");
+  replay->add_option("--connector", replay_flags.connector.connector,
                      "Connector command replacing the trace header's: 'CMD ARGS…'");
   replay->add_flag("--no-wall-bounds", replay_flags.no_wall_bounds,
                    "Lift every wall-clock bound on the connector (start-up, per-call, the livelock "

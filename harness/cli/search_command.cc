@@ -12,7 +12,7 @@
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_format.h"
 #include "absl/strings/str_join.h"
-#include "harness/cli/command_line.h"
+#include "harness/edge/command_line.h"
 #include "harness/cli/stop_signal.h"
 #include "harness/edge/grpc_run.h"
 #include "harness/report/html_timeline.h"
@@ -27,12 +27,10 @@
 namespace weir {
 namespace {
 
-constexpr int kNothingFound = 0, kFound = 1, kUsage = 2, kHarness = 3;
+// search's own words for the shared exit codes 0 and 1 (command_flags.h).
+constexpr int kNothingFound = kExitPassed, kFound = kExitFailed;
 
-int Usage(const std::string& message) {
-  std::fprintf(stderr, "weir: %s\n", message.c_str());
-  return kUsage;
-}
+int Usage(absl::string_view message) { return UsageError(message); }
 
 // The scenario a candidate runs: the loaded one, with its swarm's fault kinds
 // switched off.
@@ -111,10 +109,8 @@ void AddSearchCommand(CLI::App& app, SearchFlags& f) {
   f.command = c;
   c->add_option("--scenario", f.scenarios, "Scenario file (repeat for several), or a bundled scenario's name")
       ->required();
-  c->add_option("inputs", f.inputs, "The connector command after --");
-  c->add_option("--connector", f.connector, "Connector command 'CMD ARGS…' (no shell)");
+  AddConnectorFlags(*c, f.connector, "Connector command 'CMD ARGS…' (no shell)");
   c->add_option("--profile", f.profile, "Profile file overriding every scenario's (the connector's claim)");
-  c->add_option("--transport", f.transport, "tcp (loopback, default) or unix");
   c->add_option("--budget", f.budget, "Runs to spend at most (default 200)")->check(kNotNegative);
   c->add_option("--search-seed", f.search_seed, "Seed of the search's own choices (default 1)")->check(kNotNegative);
   c->add_option("--first-seed", f.first_seed, "First run seed drawn (default 1)")->check(kNotNegative);
@@ -129,14 +125,10 @@ void AddSearchCommand(CLI::App& app, SearchFlags& f) {
 
 int RunSearchCommand(SearchFlags& f) {
   if (f.command == nullptr || !f.command->parsed()) return -1;
-  Transport transport;
-  if (f.transport == "tcp") {
-    transport = Transport::kTcp;
-  } else if (f.transport == "unix") {
-    transport = Transport::kUnix;
-  } else {
-    return Usage("--transport is '" + f.transport + "'; expected tcp or unix");
-  }
+  auto connector = ParseConnectorFlags(f.connector, ConnectorNeed::kRequired);
+  if (!connector.ok()) return UsageError(connector.status().message());
+  const Transport transport = connector->transport;
+  const std::vector<std::string> argv = connector->argv;
   if (f.progress != "auto" && f.progress != "lines" && f.progress != "none") {
     return Usage("--progress is '" + f.progress + "'; expected auto, lines or none");
   }
@@ -145,30 +137,15 @@ int RunSearchCommand(SearchFlags& f) {
     return Usage(absl::StrCat("--max-seconds is ", f.max_seconds, "; expected a number of seconds >= 0 (0: no limit)"));
   }
   if (f.out.empty()) return Usage("--out is empty; expected a directory for the findings");
-  for (const auto& [flag, path] : {std::pair{"--coverage", f.coverage}, std::pair{"--html", f.html}}) {
-    if (absl::Status st = CheckOutputPath(flag, path); !st.ok()) return Usage(std::string(st.message()));
-  }
-  std::vector<std::string> argv;
-  if (!f.connector.empty() && !f.inputs.empty()) {
-    return Usage("give the connector either as --connector 'CMD ARGS' or after --, not both");
-  }
-  if (!f.connector.empty()) {
-    auto split = SplitCommandLine(f.connector);
-    if (!split.ok()) return Usage(absl::StrCat("--connector ", split.status().message()));
-    argv = *split;
-  } else {
-    argv = f.inputs;
-  }
-  if (argv.empty()) return Usage("no connector command; expected --connector 'CMD ARGS…'");
-  if (!ResolveExecutable(argv[0]).has_value()) {
-    return Usage("--connector: '" + argv[0] + "' is not an executable file (nor found on PATH)");
+  if (absl::Status st = CheckOutputPaths({{"--coverage", f.coverage}, {"--html", f.html}}); !st.ok()) {
+    return UsageError(st.message());
   }
   std::optional<v1::Profile> profile;
   if (!f.profile.empty()) {
     auto p = LoadProfile(f.profile);
     if (!p.ok()) {
       std::fprintf(stderr, "%s\n", std::string(p.status().message()).c_str());
-      return kUsage;
+      return kExitUsage;
     }
     profile = std::move(*p);
   }
@@ -178,7 +155,7 @@ int RunSearchCommand(SearchFlags& f) {
     auto s = LoadScenario(path);
     if (!s.ok()) {
       std::fprintf(stderr, "%s\n", std::string(s.status().message()).c_str());
-      return kUsage;
+      return kExitUsage;
     }
     if (profile.has_value()) *s->mutable_profile() = *profile;
     options.scenarios.push_back(SearchScenario{RatesOn(s->faults())});
@@ -245,14 +222,14 @@ int RunSearchCommand(SearchFlags& f) {
   }
   if (!result.ok()) {
     std::fprintf(stderr, "weir: harness fault: %s\n", std::string(result.status().message()).c_str());
-    return kHarness;
+    return kExitHarness;
   }
   if (!f.coverage.empty()) {
     std::string text;
     for (std::size_t n : result->features_after_run) absl::StrAppend(&text, n, "\n");
     if (absl::Status st = WriteFileAtomically(f.coverage, text); !st.ok()) {
       std::fprintf(stderr, "weir: %s\n", std::string(st.message()).c_str());
-      return kHarness;
+      return kExitHarness;
     }
   }
   std::printf("%llu runs, %zu features seen, corpus of %zu plans, %.1f s\n",
@@ -279,7 +256,7 @@ int RunSearchCommand(SearchFlags& f) {
           "runs.\n",
           static_cast<unsigned long long>(result->runs), static_cast<unsigned long long>(f.budget));
     }
-    return write_html() ? kNothingFound : kHarness;
+    return write_html() ? kNothingFound : kExitHarness;
   }
   int k = 0;
   for (const SearchFinding& found : result->findings) {
@@ -303,7 +280,7 @@ int RunSearchCommand(SearchFlags& f) {
                                     absl::StrCat("found by weir search: fails ", InvariantNames(found.failed)))}}) {
       if (absl::Status st = WriteFileAtomically(path, text); !st.ok()) {
         std::fprintf(stderr, "weir: %s\n", std::string(st.message()).c_str());
-        return kHarness;
+        return kExitHarness;
       }
     }
     std::printf("\nFOUND %s at run %llu (%s, seed %llu, %d fault decisions)\n  files:   %s.{scenario,plan,suite}\n",
@@ -316,7 +293,7 @@ int RunSearchCommand(SearchFlags& f) {
     std::printf("  certify: %s certify --suite %s --connector %s\n", WeirProgram().c_str(),
                 ShellQuote(base + ".suite").c_str(), ShellQuote(ShellJoin(argv)).c_str());
   }
-  return write_html() ? kFound : kHarness;
+  return write_html() ? kFound : kExitHarness;
 }
 
 }  // namespace weir

@@ -22,15 +22,15 @@
 
 #include <CLI/CLI.hpp>
 
+#include "harness/cli/command_flags.h"
+
 namespace weir {
 
 struct SearchFlags {
   CLI::App* command = nullptr;
   std::vector<std::string> scenarios;
-  std::vector<std::string> inputs;  // the connector command after --
-  std::string connector;
+  ConnectorFlags connector;
   std::string profile;
-  std::string transport = "tcp";
   std::uint64_t budget = 200;
   std::uint64_t search_seed = 1;
   std::uint64_t first_seed = 1;

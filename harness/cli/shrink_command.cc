@@ -11,7 +11,7 @@
 #include "absl/strings/match.h"
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_join.h"
-#include "harness/cli/command_line.h"
+#include "harness/edge/command_line.h"
 #include "harness/cli/stop_signal.h"
 #include "harness/edge/connector_identity.h"
 #include "harness/edge/grpc_run.h"
@@ -28,16 +28,14 @@
 namespace weir {
 namespace {
 
-constexpr int kShrunk = 0, kNondeterministic = 1, kUsage = 2, kHarness = 3;
+// shrink's own words for the shared exit codes 0 and 1 (command_flags.h).
+constexpr int kShrunk = kExitPassed, kNondeterministic = kExitFailed;
 
-int Usage(const std::string& message) {
-  std::fprintf(stderr, "weir: %s\n", message.c_str());
-  return kUsage;
-}
+int Usage(absl::string_view message) { return UsageError(message); }
 
 int InputError(const absl::Status& st) {
   std::fprintf(stderr, "%s\n", std::string(st.message()).c_str());
-  return absl::IsInvalidArgument(st) || absl::IsNotFound(st) ? kUsage : kHarness;
+  return absl::IsInvalidArgument(st) || absl::IsNotFound(st) ? kExitUsage : kExitHarness;
 }
 
 RerunResult ToRerunResult(const RunOutput& out) {
@@ -153,14 +151,9 @@ int RunShrinkCommand(ShrinkFlags& f) {
   const bool from_trace = f.scenario.empty();
   const bool seed_given = f.command->count("--seed") > 0;
 
-  Transport transport;
-  if (f.transport == "tcp") {
-    transport = Transport::kTcp;
-  } else if (f.transport == "unix") {
-    transport = Transport::kUnix;
-  } else {
-    return Usage("--transport is '" + f.transport + "'; expected tcp or unix");
-  }
+  auto parsed_transport = ParseTransport(f.transport);
+  if (!parsed_transport.ok()) return Usage(parsed_transport.status().message());
+  const Transport transport = *parsed_transport;
   if (f.progress != "auto" && f.progress != "bar" && f.progress != "lines" && f.progress != "none") {
     return Usage("--progress is '" + f.progress + "'; expected auto, bar, lines or none");
   }
@@ -255,7 +248,7 @@ int RunShrinkCommand(ShrinkFlags& f) {
         ResolveRecordedConnector(header, f.connector.empty() ? std::vector<std::string>{} : spec.connector_argv);
     if (!connector.ok()) {
       std::fprintf(stderr, "weir shrink: %s; nothing shrunk\n", std::string(connector.status().message()).c_str());
-      return kUsage;
+      return kExitUsage;
     }
     spec.connector_argv = connector->argv;
     changes = connector->changes;
@@ -287,7 +280,7 @@ int RunShrinkCommand(ShrinkFlags& f) {
   if (absl::IsCancelled(original.status())) return interrupted();
   if (!original.ok()) {
     std::fprintf(stderr, "weir: harness fault: %s\n", std::string(original.status().message()).c_str());
-    return kHarness;
+    return kExitHarness;
   }
   const RerunResult first = ToRerunResult(*original);
   // A connector that never came up: not a failure worth shrinking, and (from a
@@ -295,7 +288,7 @@ int RunShrinkCommand(ShrinkFlags& f) {
   if (!start_watch.reason().empty() && (from_trace ? first.digest != saved_digest : start_watch.incarnation() == 1)) {
     std::printf("weir shrink: the connector could not start: %s\n  connector: %s\nnothing shrunk\n",
                 start_watch.reason().c_str(), ShellJoin(spec.connector_argv).c_str());
-    return kHarness;
+    return kExitHarness;
   }
   if (from_trace && first.digest != saved_digest && !changes.empty()) {
     std::printf(
@@ -305,7 +298,7 @@ int RunShrinkCommand(ShrinkFlags& f) {
         "recorded build (--connector), or a new run of this one (weir shrink --scenario S --seed N).\n",
         first.digest.c_str(), static_cast<unsigned long long>(first.events), saved_digest.c_str(),
         static_cast<unsigned long long>(saved_events));
-    return kUsage;
+    return kExitUsage;
   }
   if (from_trace && first.digest != saved_digest) {
     std::printf(
@@ -317,12 +310,12 @@ int RunShrinkCommand(ShrinkFlags& f) {
   }
   if (first.failed.empty()) {
     std::fprintf(stderr, "weir: the run passed every invariant (digest %s); nothing to shrink\n", first.digest.c_str());
-    return kUsage;
+    return kExitUsage;
   }
   if (wanted && !first.Fails(*wanted)) {
     std::fprintf(stderr, "weir: the run did not fail %s; it failed %s (choose with --invariant)\n",
                  InvariantName(*wanted), InvariantNames(first.failed).c_str());
-    return kUsage;
+    return kExitUsage;
   }
   const Invariant target = wanted ? *wanted : first.failed.front();
   const v1::FaultPlan start = original->plan;
@@ -377,7 +370,7 @@ int RunShrinkCommand(ShrinkFlags& f) {
   if (progress_shown) std::printf("\n");
   if (!r.ok()) {
     std::fprintf(stderr, "weir: harness fault: %s\n", std::string(r.status().message()).c_str());
-    return kHarness;
+    return kExitHarness;
   }
   if (stop->load() && r->minimal.decisions_size() == start.decisions_size()) return interrupted();
   if (r->outcome == ShrinkOutcome::kNondeterministic) {
@@ -396,7 +389,7 @@ int RunShrinkCommand(ShrinkFlags& f) {
                    " decisions", r->one_minimal ? ", 1-minimal." : ", not proven 1-minimal (budget reached).");
   if (absl::Status st = WriteFileAtomically(f.out, FormatFaultPlan(r->minimal, comment)); !st.ok()) {
     std::fprintf(stderr, "weir: %s\n", std::string(st.message()).c_str());
-    return kHarness;
+    return kExitHarness;
   }
   const RerunResult& m = r->minimal_run;
   std::printf("after      %s, %llu events, %llu steps (digest %s)\n", Decisions(r->minimal.decisions_size()).c_str(),
@@ -466,25 +459,26 @@ int RunShrinkCommand(ShrinkFlags& f) {
     if (!w.ok()) {
       std::fprintf(stderr, "weir: harness fault while shrinking the workload: %s\n",
                    std::string(w.status().message()).c_str());
-      return kHarness;
+      return kExitHarness;
     }
     if (!w->changed()) {
       std::printf("workload   no smaller workload still fails %s (%llu reruns)\n", InvariantName(target),
                   static_cast<unsigned long long>(w->reruns));
     } else {
-      std::vector<std::string> changes;
+      std::vector<std::string> knobs;
       for (const KnobChange& c : w->changes) {
-        changes.push_back(absl::StrCat(WorkloadKnobName(c.knob), " ", c.before, " -> ", c.after));
+        knobs.push_back(absl::StrCat(WorkloadKnobName(c.knob), " ", c.before, " -> ", c.after));
       }
-      const std::string comment =
+      const std::string scenario_comment =
           absl::StrCat("Shrunk workload (weir shrink) for ", InvariantName(target), " under ", f.out, ": scenario ",
-                       spec.scenario_path, ", seed ", spec.seed, ";\n", absl::StrJoin(changes, ", "), ".",
+                       spec.scenario_path, ", seed ", spec.seed, ";\n", absl::StrJoin(knobs, ", "), ".",
                        w->budget_reached ? " Not proven smallest (budget reached)." : "");
-      if (absl::Status st = WriteFileAtomically(f.out_scenario, FormatScenario(w->scenario, comment)); !st.ok()) {
+      if (absl::Status st = WriteFileAtomically(f.out_scenario, FormatScenario(w->scenario, scenario_comment));
+          !st.ok()) {
         std::fprintf(stderr, "weir: %s\n", std::string(st.message()).c_str());
-        return kHarness;
+        return kExitHarness;
       }
-      std::printf("workload   %s (%llu reruns%s)\n", absl::StrJoin(changes, ", ").c_str(),
+      std::printf("workload   %s (%llu reruns%s)\n", absl::StrJoin(knobs, ", ").c_str(),
                   static_cast<unsigned long long>(w->reruns),
                   w->budget_reached ? "; budget reached, not proven smallest" : "");
       std::printf("events     %llu before -> %llu with the minimal plan -> %llu with the shrunk workload\n",
@@ -509,7 +503,7 @@ int RunShrinkCommand(ShrinkFlags& f) {
       std::printf("trace      not written (interrupted)\n");
     } else if (!out.ok()) {
       std::fprintf(stderr, "weir: harness fault: %s\n", std::string(out.status().message()).c_str());
-      return kHarness;
+      return kExitHarness;
     } else {
       std::printf("trace      %s%s\n", f.trace.c_str(),
                   out->digest == final_digest ? "" : " (its digest differs: the connector is nondeterministic)");

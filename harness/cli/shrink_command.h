@@ -20,6 +20,8 @@
 
 #include <CLI/CLI.hpp>
 
+#include "harness/cli/command_flags.h"
+
 namespace weir {
 
 struct ShrinkFlags {

@@ -4,7 +4,7 @@
 // the handler only sets a flag. Everything that runs a connector watches the
 // flag (RunSpec::stop, CertifyOptions::stop), kills and reaps the connector,
 // removes its temporary files and sockets, and the command exits with
-// kExitInterrupted. Repeated signals change nothing; every wait is bounded.
+// kExitInterrupted (command_flags.h). Repeated signals change nothing; every wait is bounded.
 //
 // Thread safety: the flag is an atomic; install once, from main.
 #pragma once
@@ -12,8 +12,6 @@
 #include <atomic>
 
 namespace weir {
-
-inline constexpr int kExitInterrupted = 4;
 
 // Installs the handlers (idempotent) and returns the flag they set.
 const std::atomic<bool>* InstallStopSignals();

@@ -18,7 +18,8 @@
 #include "absl/strings/numbers.h"
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_split.h"
-#include "harness/cli/command_line.h"
+#include "harness/edge/command_line.h"
+#include "harness/edge/connector_identity.h"
 #include "harness/cli/stop_signal.h"
 #include "harness/edge/private_dir.h"
 #include "harness/replay/explain.h"
@@ -37,27 +38,7 @@
 namespace weir {
 namespace {
 
-constexpr int kPassed = 0, kFailed = 1, kUsage = 2, kHarness = 3, kInterrupted = kExitInterrupted;
-// Every run passed, but --require-coverage was given and some judged
-// invariant had no chance to fail in any run.
-constexpr int kNotExercised = 5;
-
-int Usage(const std::string& message) {
-  std::fprintf(stderr, "weir: %s\n", message.c_str());
-  return kUsage;
-}
-
-absl::StatusOr<std::string> FileSha256(const std::string& path) {
-  std::ifstream in(path, std::ios::binary);
-  if (!in) return absl::NotFoundError(absl::StrCat(path, ": cannot open"));
-  Sha256 h;
-  std::string buf(1 << 16, '\0');
-  while (in) {
-    in.read(buf.data(), static_cast<std::streamsize>(buf.size()));
-    h.Update(std::string_view(buf.data(), static_cast<std::size_t>(in.gcount())));
-  }
-  return h.HexDigest();
-}
+int Usage(absl::string_view message) { return UsageError(message); }
 
 // --signing-key: the key, nullopt when not given, or the exit code of a
 // usage error (a key file others can read, not a key, no --certificate).
@@ -211,44 +192,28 @@ int WriteReports(const SuiteCommands& s, const SuiteResult& result, const v1::Ce
 }
 
 int Certify(SuiteCommands& s) {
-  std::vector<std::string> argv;
-  if (!s.connector.empty() && !s.command.empty()) {
-    return Usage("give the connector either as --connector 'CMD ARGS' or after --, not both");
-  }
-  if (!s.connector.empty()) {
-    auto split = SplitCommandLine(s.connector);
-    if (!split.ok()) return Usage(absl::StrCat("--connector ", split.status().message()));
-    argv = *split;
-  } else {
-    argv = s.command;
-  }
-  if (argv.empty()) return Usage("no connector command; expected --connector 'CMD ARGS…'");
-  const auto binary = ResolveExecutable(argv[0]);
-  if (!binary.has_value()) {
-    return Usage("--connector: '" + argv[0] + "' is not an executable file (nor found on PATH)");
-  }
-  Transport transport = Transport::kTcp;
-  if (s.transport == "unix") {
-    transport = Transport::kUnix;
-  } else if (s.transport != "tcp") {
-    return Usage("--transport is '" + s.transport + "'; expected tcp or unix");
-  }
+  auto connector = ParseConnectorFlags(s.connector, ConnectorNeed::kRequired);
+  if (!connector.ok()) return UsageError(connector.status().message());
+  const std::vector<std::string>& argv = connector->argv;
+  const Transport transport = connector->transport;
+  const std::optional<std::string> binary = ResolveExecutable(argv[0]);
   if (s.progress != "auto" && s.progress != "bar" && s.progress != "lines" && s.progress != "none") {
     return Usage("--progress is '" + s.progress + "'; expected auto, bar, lines or none");
   }
   if (s.certify->count("--jobs") > 0 && (s.jobs < 1 || s.jobs > 1024)) {
     return Usage(absl::StrCat("--jobs is ", s.jobs, "; expected 1 ..1024 runs at a time"));
   }
-  for (const auto& [flag, path] :
-       {std::pair{"--json", s.json}, std::pair{"--junit", s.junit}, std::pair{"--certificate", s.certificate}}) {
-    if (absl::Status st = CheckOutputPath(flag, path); !st.ok()) return Usage(std::string(st.message()));
+  if (absl::Status st = CheckOutputPaths(
+          {{"--json", s.json}, {"--junit", s.junit}, {"--certificate", s.certificate}, {"--html", s.html}});
+      !st.ok()) {
+    return UsageError(st.message());
   }
   auto shard = ResolveShard(s);
   if (!shard.ok()) return Usage(std::string(shard.status().message()));
   auto suite = LoadSuite(s.suite);
   if (!suite.ok()) {
     std::fprintf(stderr, "%s\n", std::string(suite.status().message()).c_str());
-    return kUsage;
+    return kExitUsage;
   }
   auto sha = FileSha256(*binary);
   if (!sha.ok()) return Usage(std::string(sha.status().message()));
@@ -260,7 +225,7 @@ int Certify(SuiteCommands& s) {
   auto weir_sha = FileSha256("/proc/self/exe");
   if (!weir_sha.ok()) {
     std::fprintf(stderr, "weir: harness fault: %s\n", std::string(weir_sha.status().message()).c_str());
-    return kHarness;
+    return kExitHarness;
   }
 
   CertifyOptions options;
@@ -268,7 +233,7 @@ int Certify(SuiteCommands& s) {
     auto profile = LoadProfile(s.profile);
     if (!profile.ok()) {
       std::fprintf(stderr, "%s\n", std::string(profile.status().message()).c_str());
-      return kUsage;
+      return kExitUsage;
     }
     options.profile = std::move(*profile);
     options.profile_path = s.profile;
@@ -289,7 +254,7 @@ int Certify(SuiteCommands& s) {
     auto dir = PrivateDir::Create();
     if (!dir.ok()) {
       std::fprintf(stderr, "weir: harness fault: %s\n", std::string(dir.status().message()).c_str());
-      return kHarness;
+      return kExitHarness;
     }
     trace_dir = std::move(*dir);
     if (!s.html.empty()) {
@@ -346,7 +311,7 @@ int Certify(SuiteCommands& s) {
   auto result = weir::Certify(*suite, options);
   if (!result.ok()) {
     std::fprintf(stderr, "weir: harness fault: %s\n", std::string(result.status().message()).c_str());
-    return kHarness;
+    return kExitHarness;
   }
   if (!result->head.profile().empty()) {
     auto profile_sha = FileSha256(result->head.profile());
@@ -361,7 +326,7 @@ int Certify(SuiteCommands& s) {
     if (cert.not_exercised_size() > 0) cert.set_certified(false);
     cert.set_seal(CertificateSeal(cert));
   }
-  if (!MaybeSign(signing_key, &cert)) return kHarness;
+  if (!MaybeSign(signing_key, &cert)) return kExitHarness;
   std::printf("\n%s", SuiteSummaryText(result->head, tally).c_str());
   const int write_errors = WriteReports(s, *result, cert, first_failures.get(), /*announce=*/true);
   if (signing_key.has_value() && write_errors == 0) {
@@ -371,17 +336,17 @@ int Certify(SuiteCommands& s) {
   if (stop->load()) {
     std::printf("INTERRUPTED by signal %d: %llu finished run(s) reported; every connector was killed.\n", StopSignal(),
                 static_cast<unsigned long long>(tally.runs()));
-    return kInterrupted;
+    return kExitInterrupted;
   }
-  if (write_errors > 0 || tally.harness_faults() > 0) return kHarness;
-  if (tally.invariant_failures() > 0) return kFailed;
+  if (write_errors > 0 || tally.harness_faults() > 0) return kExitHarness;
+  if (tally.invariant_failures() > 0) return kExitFailed;
   if (options.shard.count <= 1) {
     if (s.require_coverage && cert.not_exercised_size() > 0 && tally.failed() == 0 && result->head.complete()) {
       std::printf(
           "NOT CERTIFIED (--require-coverage): every run passed, but %d claimed invariant(s) had no "
           "chance to fail (see \"not exercised\" above).\n",
           cert.not_exercised_size());
-      return kNotExercised;
+      return kExitNotExercised;
     }
     std::printf("%s%s\n",
                 cert.certified() ? "CERTIFIED: every run of the suite passed."
@@ -391,11 +356,11 @@ int Certify(SuiteCommands& s) {
                                    " invariant(s) no run exercised; it lists them.")
                           .c_str()
                     : "");
-    return cert.certified() ? kPassed : kFailed;
+    return cert.certified() ? kExitPassed : kExitFailed;
   }
   std::printf("shard %u/%u: every run passed; merge the shard reports with weir merge.\n", options.shard.index,
               options.shard.count);
-  return kPassed;
+  return kExitPassed;
 }
 
 int Verify(SuiteCommands& s) {
@@ -412,24 +377,24 @@ int Verify(SuiteCommands& s) {
     if (!trusted.ok()) return Usage(absl::StrCat("--trusted-key ", trusted.status().message()));
     if (absl::Status st = CheckCertificateSignature(*cert, *trusted); !st.ok()) {
       std::printf("REJECTED: %s: %s.\n", s.cert_file.c_str(), std::string(st.message()).c_str());
-      return kFailed;
+      return kExitFailed;
     }
   }
   if (CertificateSeal(*cert) != cert->seal()) {
     std::printf("REJECTED: %s has been altered (its seal does not match its contents).\n", s.cert_file.c_str());
-    return kFailed;
+    return kExitFailed;
   }
   if (*sha != cert->connector_sha256()) {
     std::printf("REJECTED: %s certifies connector %s, but %s is %s.\n", s.cert_file.c_str(),
                 cert->connector_sha256().c_str(), s.connector_binary.c_str(), sha->c_str());
-    return kFailed;
+    return kExitFailed;
   }
   if (!cert->certified()) {
     std::printf(
         "REJECTED: the certificate is intact and names this binary, but the suite did not pass "
         "(%llu of %llu runs failed).\n",
         static_cast<unsigned long long>(cert->runs_failed()), static_cast<unsigned long long>(cert->runs()));
-    return kFailed;
+    return kExitFailed;
   }
   std::printf("VERIFIED: %s certifies %s: suite %s (%s), %llu runs passed, weir %s.\n", s.cert_file.c_str(),
               s.connector_binary.c_str(), cert->suite_name().c_str(), cert->suite_digest().c_str(),
@@ -462,16 +427,21 @@ int Verify(SuiteCommands& s) {
         "pass --trusted-key to check the signature\n",
         cert->key_fingerprint().c_str());
   }
-  return kPassed;
+  return kExitPassed;
 }
 
 // Each shard's runs go to a run log of their own, sorted, one shard parsed at
 // a time; the logs are then merged in pair order into the merged result's
 // log. So merge holds one shard's parsed report at a time, not every shard's.
 int Merge(SuiteCommands& s) {
+  if (absl::Status st = CheckOutputPaths(
+          {{"--json", s.json}, {"--junit", s.junit}, {"--certificate", s.certificate}, {"--html", s.html}});
+      !st.ok()) {
+    return UsageError(st.message());
+  }
   auto harness_fault = [](const absl::Status& st) {
     std::fprintf(stderr, "weir: harness fault: %s\n", std::string(st.message()).c_str());
-    return kHarness;
+    return kExitHarness;
   };
   auto signing = LoadSigningKey(s);
   if (std::holds_alternative<int>(signing)) return std::get<int>(signing);
@@ -557,10 +527,10 @@ int Merge(SuiteCommands& s) {
   head.set_runs_rechecked(merged.tally.rechecked());
   head.set_runs_diverged(merged.tally.diverged());
   v1::Certificate cert = MakeCertificate(head, merged.tally);
-  if (!MaybeSign(signing_key, &cert)) return kHarness;
+  if (!MaybeSign(signing_key, &cert)) return kExitHarness;
   std::printf("%s", SuiteSummaryText(head, merged.tally).c_str());
-  if (WriteReports(s, merged, cert, nullptr, /*announce=*/false) > 0) return kHarness;
-  return cert.certified() ? kPassed : kFailed;
+  if (WriteReports(s, merged, cert, nullptr, /*announce=*/false) > 0) return kExitHarness;
+  return cert.certified() ? kExitPassed : kExitFailed;
 }
 
 int Keygen(SuiteCommands& s) {
@@ -568,7 +538,7 @@ int Keygen(SuiteCommands& s) {
   if (!key.ok()) {
     if (absl::IsInternal(key.status())) {
       std::fprintf(stderr, "weir: harness fault: %s\n", std::string(key.status().message()).c_str());
-      return kHarness;
+      return kExitHarness;
     }
     return Usage(std::string(key.status().message()));
   }
@@ -577,7 +547,7 @@ int Keygen(SuiteCommands& s) {
       "public key   %s.pub (PEM SubjectPublicKeyInfo; weir verify --trusted-key)\n"
       "fingerprint  %s\n",
       s.key_out.c_str(), s.key_out.c_str(), key->Fingerprint().c_str());
-  return kPassed;
+  return kExitPassed;
 }
 
 }  // namespace
@@ -588,8 +558,7 @@ void AddSuiteCommands(CLI::App& app, SuiteCommands& s) {
       ->add_option("--suite", s.suite,
                    "Suite file (Protobuf text format), or a bundled suite's name (quick, standard, …)")
       ->required();
-  s.certify->add_option("--connector", s.connector, "Connector command 'CMD ARGS…' (no shell)");
-  s.certify->add_option("command", s.command, "Connector command after --");
+  AddConnectorFlags(*s.certify, s.connector, "Connector command 'CMD ARGS…' (no shell)");
   s.certify->add_option("--jobs", s.jobs, "Runs at a time (default: one per core)")
       ->multi_option_policy(CLI::MultiOptionPolicy::TakeLast)
       ->check(WholeNumber());
@@ -605,7 +574,6 @@ void AddSuiteCommands(CLI::App& app, SuiteCommands& s) {
   s.certify->add_option("--certificate", s.certificate, "Write the certificate here");
   s.certify->add_option("--html", s.html,
                         "Write an HTML report here: summary and a timeline of each invariant's first failure");
-  s.certify->add_option("--transport", s.transport, "tcp (default) or unix");
   s.certify->add_option("--progress", s.progress, "auto (bar on a terminal), bar, lines or none");
   s.certify->add_option("--profile", s.profile,
                         "Profile file, or a bundled profile's name: what the connector claims; judges every "

@@ -12,6 +12,8 @@
 
 #include <CLI/CLI.hpp>
 
+#include "harness/cli/command_flags.h"
+
 namespace weir {
 
 struct SuiteCommands {
@@ -21,14 +23,12 @@ struct SuiteCommands {
   CLI::App* keygen = nullptr;
   // certify
   std::string suite;
-  std::string connector;
-  std::vector<std::string> command;
+  ConnectorFlags connector;  // --connector, the words after --, --transport
   unsigned jobs = 0;
   std::uint64_t max_failures = 0;
   std::string shard;
   std::uint32_t shard_count_for_index = 0;
   std::string json, junit, certificate, html;
-  std::string transport = "tcp";
   std::string progress = "auto";
   std::string profile;            // overrides the suite's and every scenario's profile
   bool require_coverage = false;  // an invariant not exercised fails certify (exit 5)

@@ -12,7 +12,8 @@
 #include "absl/container/flat_hash_map.h"
 #include "absl/strings/str_cat.h"
 #include "absl/strings/str_format.h"
-#include "harness/cli/command_line.h"
+#include "harness/edge/command_line.h"
+#include "harness/edge/replay_line.h"
 #include "harness/core/record_key.h"
 #include "harness/core/virtual_time.h"
 #include "harness/oracle/oracle.h"
@@ -199,7 +200,7 @@ absl::StatusOr<ExplainOutput> ExplainTrace(const std::string& path, const Explai
   tl.scenario = absl::StrCat(header.scenario_path(), " (", header.scenario().name(), ")");
   tl.seed = header.seed();
   tl.connector = ShellJoin(argv);
-  tl.replay = options.replay.empty() ? absl::StrCat(WeirProgram(), " replay ", ShellQuote(path)) : options.replay;
+  tl.replay = options.replay.empty() ? TraceCommand("replay", path) : options.replay;
   tl.passed = verdict.passed();
   tl.overview.events = verdict.events;
 

@@ -125,7 +125,7 @@ int ColumnX(std::size_t i) { return kLeft + static_cast<int>(i) * kCol + kCol / 
 // ("connector" with one reader, "reader N" with several), the runtime, then
 // the watermark panel.
 struct Layout {
-  explicit Layout(std::uint32_t readers) : readers(std::max<std::uint32_t>(1, readers)) {}
+  explicit Layout(std::uint32_t reader_count) : readers(std::max<std::uint32_t>(1, reader_count)) {}
   int Y(Lane lane, std::uint32_t reader = 0) const {
     switch (lane) {
       case kBroker: return kBrokerY;

@@ -7,23 +7,12 @@
 
 #include "absl/status/status.h"
 #include "absl/strings/str_cat.h"
-#include "harness/cli/command_line.h"
+#include "harness/edge/replay_line.h"
 #include "harness/oracle/verdict.h"
 #include "harness/replay/replay.h"
 #include "harness/suite/reorder_buffer.h"
 
 namespace weir {
-
-std::string ReplayLine(const std::string& scenario_path, std::uint64_t seed, Transport transport,
-                       const std::string& plan_path, const std::string& profile_path,
-                       const std::vector<std::string>& argv) {
-  std::string line = absl::StrCat(WeirProgram(), " run --scenario ", ShellQuote(scenario_path), " --seed ", seed);
-  if (transport == Transport::kUnix) absl::StrAppend(&line, " --transport unix");
-  if (!plan_path.empty()) absl::StrAppend(&line, " --plan ", ShellQuote(plan_path));
-  if (!profile_path.empty()) absl::StrAppend(&line, " --profile ", ShellQuote(profile_path));
-  absl::StrAppend(&line, " --connector ", ShellQuote(ShellJoin(argv)));
-  return line;
-}
 
 absl::StatusOr<SuiteResult> Certify(const LoadedSuite& suite, const CertifyOptions& options) {
   // Pair k of this shard is pair index + k * count of the suite (scenario-major,

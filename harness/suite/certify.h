@@ -39,6 +39,7 @@
 
 #include "absl/status/statusor.h"
 #include "harness/edge/grpc_run.h"
+#include "harness/edge/replay_line.h"
 #include "harness/suite/first_failures.h"
 #include "harness/suite/recheck.h"
 #include "harness/suite/run_log.h"
@@ -108,12 +109,5 @@ struct SuiteResult {
 // log. For small suites and tests; a large suite's reports are written from
 // the log (suite_reports.h). Error: the log could not be read.
 [[nodiscard]] absl::StatusOr<v1::SuiteReport> LoadReport(const SuiteResult& result);
-
-// "weir run --scenario … --seed … --connector '…'" for one pair, weir named
-// as WeirProgram() says (command_line.h), so the line works as printed.
-// plan_path and profile_path are left out when empty.
-std::string ReplayLine(const std::string& scenario_path, std::uint64_t seed, Transport transport,
-                       const std::string& plan_path, const std::string& profile_path,
-                       const std::vector<std::string>& argv);
 
 }  // namespace weir

@@ -111,8 +111,8 @@ absl::Status WriteSuiteJUnitXml(const v1::SuiteReport& head, const SuiteTally& t
                           s.runs_judged(), " runs"));
   }
   std::string not_exercised;
-  for (const auto& name : tally.not_exercised())
-    absl::StrAppend(&not_exercised, not_exercised.empty() ? "" : ", ", name);
+  for (const auto& rule : tally.not_exercised())
+    absl::StrAppend(&not_exercised, not_exercised.empty() ? "" : ", ", rule);
   property("not_exercised", not_exercised);
   if (!head.recheck().empty()) {
     property("recheck", head.recheck());

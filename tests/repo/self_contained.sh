@@ -1,5 +1,5 @@
 #!/usr/bin/env bash
-# self_contained.sh (ctest, label unit): the repository stands on its own.
+# self_contained.sh (ctest, label repo): the repository stands on its own.
 # A reader of a clone has nothing but the clone, so no file may point to a
 # path outside it (a sibling folder next to the checkout) or to a tracker
 # entry by number: a comment says why, and docs/design.md and

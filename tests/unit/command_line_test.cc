@@ -1,5 +1,5 @@
 // How printed command lines name weir: they must work as printed.
-#include "harness/cli/command_line.h"
+#include "harness/edge/command_line.h"
 
 #include <gtest/gtest.h>
 

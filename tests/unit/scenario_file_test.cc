@@ -7,7 +7,7 @@
 #include <fstream>
 #include <sstream>
 
-#include "harness/cli/command_line.h"
+#include "harness/edge/command_line.h"
 #include "harness/scenario/text_file.h"
 
 namespace weir {

@@ -1,4 +1,4 @@
-#include "harness/cli/command_line.h"
+#include "harness/edge/command_line.h"
 
 #include <filesystem>
 
