@@ -23,10 +23,10 @@ class App;
 namespace weir {
 
 // Exit codes of every command; the README's table and `weir --help` say the same.
-inline constexpr int kExitPassed = 0;  // every invariant held (certify: CERTIFIED; shrink: shrunk; search: nothing)
-inline constexpr int kExitFailed = 1;  // an invariant failed (search: a finding; shrink: nondeterministic)
-inline constexpr int kExitUsage = 2;   // usage or input error: a bad flag, a bad file (file:line:column)
-inline constexpr int kExitHarness = 3;       // weir itself could not run
+inline constexpr int kExitPassed = 0;   // every invariant held (certify: CERTIFIED; shrink: shrunk; search: nothing)
+inline constexpr int kExitFailed = 1;   // an invariant failed (search: a finding; shrink: nondeterministic)
+inline constexpr int kExitUsage = 2;    // usage or input error: a bad flag, a bad file (file:line:column)
+inline constexpr int kExitHarness = 3;  // weir itself could not run
 inline constexpr int kExitInterrupted = 4;   // SIGINT/SIGTERM/SIGHUP: connectors killed, finished work reported
 inline constexpr int kExitNotExercised = 5;  // certify --require-coverage: passed, a claimed rule not exercised
 

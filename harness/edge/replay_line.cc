@@ -6,8 +6,8 @@
 namespace weir {
 
 std::string PairCommand(std::string_view verb, const PairFlags& pair) {
-  std::string line =
-      absl::StrCat(WeirProgram(), " ", std::string(verb), " --scenario ", ShellQuote(pair.scenario_path), " --seed ", pair.seed);
+  std::string line = absl::StrCat(WeirProgram(), " ", std::string(verb), " --scenario ", ShellQuote(pair.scenario_path),
+                                  " --seed ", pair.seed);
   if (pair.transport == Transport::kUnix) absl::StrAppend(&line, " --transport unix");
   if (!pair.plan_path.empty()) absl::StrAppend(&line, " --plan ", ShellQuote(pair.plan_path));
   if (!pair.profile_path.empty()) absl::StrAppend(&line, " --profile ", ShellQuote(pair.profile_path));
@@ -27,9 +27,9 @@ std::string TraceCommand(std::string_view verb, const std::string& trace_path) {
 
 std::string NextStepsHint(const std::string& trace_path, const PairFlags& pair) {
   if (!trace_path.empty()) {
-    return absl::StrCat("next: ", TraceCommand("replay", trace_path), "    (rerun, compare event by event)\n",
-                        "      ", TraceCommand("explain", trace_path), "   (timeline around each violation)\n",
-                        "      ", TraceCommand("shrink", trace_path),
+    return absl::StrCat("next: ", TraceCommand("replay", trace_path), "    (rerun, compare event by event)\n", "      ",
+                        TraceCommand("explain", trace_path), "   (timeline around each violation)\n", "      ",
+                        TraceCommand("shrink", trace_path),
                         " --out minimal.plan   (smallest fault plan that still fails)\n");
   }
   return absl::StrCat("next: ", PairCommand("shrink", pair),

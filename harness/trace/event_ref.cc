@@ -1,6 +1,9 @@
 #include "harness/trace/event_ref.h"
 
+#include <cctype>
+
 #include "harness/core/record_key.h"
+#include "weir/v1/faults.pb.h"
 
 namespace weir {
 namespace {
@@ -19,6 +22,21 @@ std::int64_t MethodCode(const std::string& m) {
   return 0;
 }
 const char* MethodName(std::int64_t code) { return code > 0 && code < kMethodCount ? kMethods[code] : "?"; }
+
+// A crash point as the trace words it ("in-notice-after-ack": CrashPoint's
+// name in lower case with dashes), kept as the enum's number.
+std::string CrashPointWords(std::int64_t code) {
+  if (code <= 0 || !v1::CrashPoint_IsValid(static_cast<int>(code))) return "";
+  std::string words = v1::CrashPoint_Name(static_cast<v1::CrashPoint>(code));
+  for (char& c : words) c = c == '_' ? '-' : static_cast<char>(std::tolower(static_cast<unsigned char>(c)));
+  return words;
+}
+std::int64_t CrashPointCode(const std::string& words) {
+  for (int v = v1::CrashPoint_MIN; v <= v1::CrashPoint_MAX; ++v) {
+    if (v1::CrashPoint_IsValid(v) && v > 0 && CrashPointWords(v) == words) return v;
+  }
+  return 0;
+}
 
 }  // namespace
 
@@ -154,6 +172,19 @@ EventRef MakeRef(const v1::TraceEvent& e) {
       r.f[1] = S(e.cut().head().end_offset());
       r.f[2] = e.cut().has_tail() ? S(e.cut().tail().start_offset()) : -1;
       r.f[3] = e.cut().to_reader();
+      break;
+    case TraceEvent::kCrashed: r.f[0] = CrashPointCode(e.crashed().point()); break;
+    case TraceEvent::kConnectorError: r.f[0] = e.connector_error().code(); break;
+    case TraceEvent::kCallTimedOut: r.f[0] = e.call_timed_out().bound_wall_ms(); break;
+    case TraceEvent::kRunEnded:
+      r.f[0] = S(e.run_ended().published());
+      r.f[1] = S(e.run_ended().committed_messages());
+      break;
+    case TraceEvent::kLivelock:
+      r.f[0] = S(e.livelock().steps());
+      r.f[1] = e.livelock().wall_ms();
+      r.f[2] = e.livelock().by_wall_time() ? 1 : 0;
+      r.f[3] = S(e.livelock().max_steps());
       break;
     default: break;
   }
@@ -338,6 +369,26 @@ v1::TraceEvent Rebuild(const EventRef& r) {
       x->set_from_offset(U(r.f[1]));
       x->set_to_offset(U(r.f[2]));
       x->set_step(U(r.f[3]));
+      break;
+    }
+    // Events whose meaning lives in strings keep their kind and numbers; the
+    // strings are gone (the oracle describes the failing one when it happens).
+    case TraceEvent::kCrashed: e.mutable_crashed()->set_point(CrashPointWords(r.f[0])); break;
+    case TraceEvent::kExited: e.mutable_exited(); break;
+    case TraceEvent::kProtocolError: e.mutable_protocol_error(); break;
+    case TraceEvent::kFaultApplied: e.mutable_fault_applied(); break;
+    case TraceEvent::kConnectorError: e.mutable_connector_error()->set_code(static_cast<std::int32_t>(r.f[0])); break;
+    case TraceEvent::kCallTimedOut: e.mutable_call_timed_out()->set_bound_wall_ms(r.f[0]); break;
+    case TraceEvent::kRunEnded:
+      e.mutable_run_ended()->set_published(U(r.f[0]));
+      e.mutable_run_ended()->set_committed_messages(U(r.f[1]));
+      break;
+    case TraceEvent::kLivelock: {
+      auto* x = e.mutable_livelock();
+      x->set_steps(U(r.f[0]));
+      x->set_wall_ms(r.f[1]);
+      x->set_by_wall_time(r.f[2] != 0);
+      x->set_max_steps(U(r.f[3]));
       break;
     }
     default: break;

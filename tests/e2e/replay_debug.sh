@@ -70,6 +70,17 @@ check "--stop-before shows the saved event #$k" grep -qF "$next_line" stop.out
 check "--stop-before goes on at end of input" grep -q "^weir replay: end of input; going on from event #$k" stop.out
 check "--stop-before identical" identical stop.out
 
+# 3b. --stop-before past the last event: the rerun ends first and says it
+#     never held (a wrong K is not silently ignored); the verdict is unchanged.
+beyond=$((events + 10))
+rc=0
+"$weir" replay run.jsonl --stop-before "$beyond" </dev/null >never.out 2>&1 || rc=$?
+check "--stop-before past the end exit 0" test "$rc" = 0
+check "--stop-before past the end says it never held" \
+  grep -q "^weir replay: the rerun ended after $events events, before event #$beyond: it never held" never.out
+check "--stop-before past the end did not hold" bash -c "! grep -q 'holding before event' never.out"
+check "--stop-before past the end identical" identical never.out
+
 # 4. --stop-before with a FIFO on stdin: weir waits until a line comes, and
 #    the pid it printed is a live process meanwhile.
 mkfifo in.fifo
@@ -77,7 +88,7 @@ mkfifo in.fifo
 weir_pid=$!
 exec 3>in.fifo
 held=no
-for _ in $(seq 200); do
+for _ in $(seq 600); do
   if grep -q "weir waits for Enter" fifo.out; then held=yes; break; fi
   sleep 0.1
 done
@@ -101,7 +112,7 @@ check "--stop-before (fifo) connector gone afterwards" bash -c "! kill -0 ${pid:
 weir_pid=$!
 exec 3>in.fifo
 held=no
-for _ in $(seq 200); do
+for _ in $(seq 600); do
   if grep -q "weir waits for Enter" sig.out; then held=yes; break; fi
   sleep 0.1
 done

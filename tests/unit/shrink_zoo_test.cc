@@ -179,8 +179,8 @@ TEST_P(ShrinkZoo, MinimalPlanStillFailsAndIsOneMinimal) {
 }
 
 INSTANTIATE_TEST_SUITE_P(EveryMutantButTheWallClockOne, ShrinkZoo, ::testing::ValuesIn(kZoo),
-                         [](const ::testing::TestParamInfo<Mutant>& info) {
-                           return std::string(info.param.name).substr(std::string("mutant_").size());
+                         [](const ::testing::TestParamInfo<Mutant>& mutant) {
+                           return std::string(mutant.param.name).substr(std::string("mutant_").size());
                          });
 
 // Prints the table and the median reduction once every mutant has run.

@@ -173,8 +173,8 @@ inline std::string SuiteJUnitXml(const v1::SuiteReport& report, const std::strin
                           s.runs_judged(), " runs"));
   }
   std::string not_exercised;
-  for (const auto& name : NotExercised(report))
-    absl::StrAppend(&not_exercised, not_exercised.empty() ? "" : ", ", name);
+  for (const auto& rule : NotExercised(report))
+    absl::StrAppend(&not_exercised, not_exercised.empty() ? "" : ", ", rule);
   property("not_exercised", not_exercised);
   out += "  </properties>\n";
   for (const auto& run : report.runs()) {

@@ -62,5 +62,13 @@ TEST(TraceEventKinds, EveryKindSurvivesTheCompactReference) {
   }
 }
 
+// A crash cited as evidence keeps its point (kept as a number, not a string).
+TEST(TraceEventKinds, ACrashKeepsItsPointThroughTheReference) {
+  v1::TraceEvent e;
+  e.mutable_crashed()->set_point("in-notice-after-ack");
+  EXPECT_EQ(Rebuild(MakeRef(e)).crashed().point(), "in-notice-after-ack");
+  EXPECT_EQ(DescribeEvent(Rebuild(MakeRef(e))), "crashed the connector at in-notice-after-ack");
+}
+
 }  // namespace
 }  // namespace weir

@@ -30,9 +30,9 @@ class QueueTag {
 // A tag that only records that it fired (a broker call's Finish).
 class DoneTag final : public QueueTag {
  public:
-  void Proceed(bool ok) override {
+  void Proceed(bool succeeded) override {
     fired = true;
-    this->ok = ok;
+    ok = succeeded;
   }
   bool fired = false;
   bool ok = false;
