@@ -13,7 +13,9 @@
 //      scenario in-process (no gRPC) shows what the simulation itself costs.
 //   3. restart: median wall time of Kill + Start + Open of an incarnation.
 //
-// usage: call_cost CONNECTOR SCENARIO [ECHO_CALLS [RESTARTS [ROUNDS]]]
+// usage: call_cost CONNECTOR SCENARIO [ECHO_CALLS [RESTARTS [ROUNDS [LOAD]]]]
+//   LOAD: busy-looping processes kept running beside every measurement (the
+//   loaded variant; bench/run_all.sh uses one per core), default 0.
 //   defaults: 20000 echo calls per transport, 30 restarts, 5 rounds. A round
 //   is echo TCP, weir TCP, echo Unix, weir Unix, back to back; figures are
 //   medians over rounds and ratios medians of the per-round ratios.
@@ -34,7 +36,7 @@
 
 #include "absl/synchronization/mutex.h"
 
-#include "echo.grpc.pb.h"  // generated from bench/echo.proto
+#include "bench/echo_baseline.h"
 #include "fixtures/connectors/reference_source.h"
 #include "harness/edge/broker_server.h"
 #include "harness/edge/child_process.h"
@@ -51,127 +53,12 @@ using Clock = std::chrono::steady_clock;
 
 double Seconds(Clock::duration d) { return std::chrono::duration<double>(d).count(); }
 
-double Median(std::vector<double> v) {
-  if (v.empty()) return 0;
-  std::sort(v.begin(), v.end());
-  return v[v.size() / 2];
-}
+using bench::Fail;
+using bench::ListenAddress;
+using bench::MeasureEcho;
+using bench::Median;
 
-double Percentile(std::vector<double> v, double p) {
-  if (v.empty()) return 0;
-  std::sort(v.begin(), v.end());
-  return v[std::min(v.size() - 1, static_cast<std::size_t>(p * static_cast<double>(v.size())))];
-}
-
-[[noreturn]] void Fail(const std::string& what) {
-  std::fprintf(stderr, "call_cost: %s\n", what.c_str());
-  std::exit(1);
-}
-
-// --- the child: a sync echo server, started with weir's handshake ---------
-
-class EchoService final : public bench::Echo::Service {
-  grpc::Status Echo(grpc::ServerContext*, const bench::EchoMessage* request, bench::EchoMessage* response) override {
-    if (request->answer_bytes() == 0) {
-      response->set_payload(request->payload());
-    } else {
-      response->set_payload(std::string(request->answer_bytes(), 'y'));
-    }
-    return grpc::Status::OK;
-  }
-};
-
-int ServeEcho() {
-  const char* listen = std::getenv("WEIR_LISTEN_ADDRESS");
-  if (listen == nullptr) return 2;
-  EchoService service;
-  grpc::ServerBuilder builder;
-  builder.AddChannelArgument(GRPC_ARG_ALLOW_REUSEPORT, 0);
-  int port = 0;
-  builder.AddListeningPort(listen, grpc::InsecureServerCredentials(), &port);
-  builder.RegisterService(&service);
-  auto server = builder.BuildAndStart();
-  if (server == nullptr) return 2;
-  std::string address = listen;
-  if (address.rfind("unix:", 0) != 0) {
-    address = address.substr(0, address.rfind(':')) + ":" + std::to_string(port);
-  }
-  address += "\n";
-  if (::write(3, address.data(), address.size()) != static_cast<ssize_t>(address.size())) return 2;
-  ::close(3);
-  server->Wait();
-  return 0;
-}
-
-// --- 1. the bare round trip -------------------------------------------------
-
-struct Listen {
-  std::unique_ptr<PrivateDir> dir;
-  std::string address;
-};
-
-Listen ListenAddress(Transport transport, const char* name) {
-  Listen l;
-  if (transport == Transport::kTcp) {
-    l.address = "127.0.0.1:0";
-    return l;
-  }
-  auto dir = PrivateDir::Create();
-  if (!dir.ok()) Fail(std::string(dir.status().message()));
-  l.dir = std::move(*dir);
-  l.address = "unix:" + l.dir->path() + "/" + name + ".sock";
-  return l;
-}
-
-const char* Name(Transport t) { return t == Transport::kTcp ? "tcp" : "unix"; }
-
-// Mean microseconds per round trip. request_bytes / answer_bytes: the payload
-// sent and the payload answered (answer_bytes 0: the request's, echoed).
-double MeasureEcho(const std::string& self, Transport transport, int calls, std::size_t request_bytes = 100,
-                   std::size_t answer_bytes = 0) {
-  Listen listen = ListenAddress(transport, "echo");
-  ChildProcess::Options spawn;
-  spawn.argv = {self, "--echo-server"};
-  spawn.env["WEIR_LISTEN_ADDRESS"] = listen.address;
-  auto child = ChildProcess::Spawn(spawn);
-  if (!child.ok()) Fail(std::string(child.status().message()));
-  auto line = (*child)->ReadReadyLine(std::chrono::milliseconds(10000));
-  if (!line.ok()) Fail("echo server: " + std::string(line.status().message()));
-  grpc::ChannelArguments args;
-  args.SetInt(GRPC_ARG_ENABLE_RETRIES, 0);
-  auto channel = grpc::CreateCustomChannel(*line, grpc::InsecureChannelCredentials(), args);
-  if (!channel->WaitForConnected(std::chrono::system_clock::now() + std::chrono::seconds(10))) {
-    Fail("cannot connect to the echo server at " + *line);
-  }
-  auto stub = bench::Echo::NewStub(channel);
-  bench::EchoMessage request;
-  request.set_payload(std::string(request_bytes, 'x'));
-  request.set_answer_bytes(static_cast<std::uint32_t>(answer_bytes));
-  const std::size_t expect = answer_bytes == 0 ? request_bytes : answer_bytes;
-  std::vector<double> us;
-  us.reserve(static_cast<std::size_t>(calls));
-  const int warm_up = std::max(1, calls / 20);
-  const auto start = Clock::now();
-  Clock::time_point measured_from = start;
-  for (int i = 0; i < warm_up + calls; ++i) {
-    if (i == warm_up) measured_from = Clock::now();
-    grpc::ClientContext context;
-    context.set_deadline(std::chrono::system_clock::now() + std::chrono::seconds(10));
-    bench::EchoMessage response;
-    const auto t0 = Clock::now();
-    const grpc::Status status = stub->Echo(&context, request, &response);
-    if (!status.ok() || response.payload().size() != expect) Fail("echo call failed: " + status.error_message());
-    if (i >= warm_up) us.push_back(Seconds(Clock::now() - t0) * 1e6);
-  }
-  const double wall = Seconds(Clock::now() - measured_from);
-  const double mean = wall * 1e6 / calls;
-  std::printf(
-      "echo %-4s  %d calls, one outstanding, %zu B sent, %zu B answered: mean %.1f us, p50 %.1f us, "
-      "p99 %.1f us = %.0f round trips/s\n",
-      Name(transport), calls, request_bytes, expect, mean, Median(us), Percentile(us, 0.99), calls / wall);
-  (*child)->Kill();
-  return mean;
-}
+const char* Name(Transport t) { return bench::TransportName(t); }
 
 // --- 2. calls through weir ---------------------------------------------------
 
@@ -322,8 +209,8 @@ RunSpec SpecFor(const v1::Scenario& scenario, const std::string& path, const std
 
 // The edge as RunOverGrpc wires it, with a CountingPort around the real port.
 WeirFigures MeasureWeir(const RunSpec& spec, Transport transport, double baseline_us) {
-  Listen broker_listen = ListenAddress(transport, "broker");
-  Listen connector_listen = ListenAddress(transport, "connector");
+  const ListenAddress broker_listen(transport, "broker");
+  const ListenAddress connector_listen(transport, "connector");
   const auto bound = std::chrono::milliseconds(spec.scenario.runtime().call_timeout_wall_ms());
   auto server = BrokerServer::Start(broker_listen.address);
   if (!server.ok()) Fail(std::string(server.status().message()));
@@ -391,13 +278,6 @@ double MeasureRestart(const std::string& connector, int restarts) {
   return median;
 }
 
-std::string SelfPath() {
-  char buf[4096];
-  const ssize_t n = ::readlink("/proc/self/exe", buf, sizeof buf - 1);
-  if (n <= 0) Fail("cannot read /proc/self/exe");
-  return std::string(buf, static_cast<std::size_t>(n));
-}
-
 }  // namespace
 }  // namespace weir
 
@@ -406,22 +286,27 @@ int main(int argc, char** argv) {
   // As weir's edge and the C++ adapter do: the echo baseline gets the same
   // gRPC process settings as the calls it is compared with.
   absl::SetMutexDeadlockDetectionMode(absl::OnDeadlockCycle::kIgnore);
-  if (argc == 2 && std::strcmp(argv[1], "--echo-server") == 0) return ServeEcho();
+  if (std::optional<int> child = bench::ServeChildMode(argc, argv)) return *child;
   if (argc < 3) {
-    std::fprintf(stderr, "usage: %s CONNECTOR SCENARIO [ECHO_CALLS [RESTARTS [ROUNDS]]]\n", argv[0]);
+    std::fprintf(stderr, "usage: %s CONNECTOR SCENARIO [ECHO_CALLS [RESTARTS [ROUNDS [LOAD]]]]\n", argv[0]);
     return 2;
   }
   const std::string connector = argv[1];
   const int echo_calls = argc > 3 ? std::atoi(argv[3]) : 20000;
   const int restarts = argc > 4 ? std::atoi(argv[4]) : 30;
   const int rounds = argc > 5 ? std::max(1, std::atoi(argv[5])) : 5;
+  const int load = argc > 6 ? std::max(0, std::atoi(argv[6])) : 0;
   auto scenario = LoadScenario(argv[2]);
   if (!scenario.ok()) {
     std::fprintf(stderr, "%s\n", std::string(scenario.status().message()).c_str());
     return 2;
   }
   const RunSpec spec = SpecFor(*scenario, argv[2], connector);
-  const std::string self = SelfPath();
+  const std::string self = bench::SelfPath();
+  // The loaded variant: LOAD busy-looping processes at normal priority beside
+  // everything measured (echo and weir alike), started and stopped here.
+  const bench::BusyLoad busy(self, load);
+  std::printf("load: %d busy-looping process(es) beside the measurements\n", busy.processes());
 
   // Rounds interleave the echo and weir on each transport, so that both see
   // the same machine load; each figure is the median over rounds, and each

@@ -13,9 +13,11 @@
 # the absolute figures. The raw output of every run is kept in
 # $BENCH_OUT (default: a temporary directory, printed at the end).
 #
-# Needs: the targets weir, reference_connector, call_cost, oracle_bench,
-# log_oracle_bench and suite_throughput (`ninja -C build weir
-# reference_connector call_cost oracle_bench log_oracle_bench suite_throughput`).
+# Needs: the targets weir, reference_connector, call_cost, certify_floor,
+# oracle_bench, log_oracle_bench and suite_throughput (`ninja -C build weir
+# reference_connector call_cost certify_floor oracle_bench log_oracle_bench
+# suite_throughput`), and for the Python figures the Python stubs
+# (build/adapters/python) with Debian's python3-grpcio.
 set -euo pipefail
 ROOT=$(cd "$(dirname "$0")/.." && pwd)
 BUILD=${WEIR_BUILD_DIR:-build}
@@ -37,7 +39,7 @@ fi
 
 WEIR=$BUILD/harness/weir
 CONNECTOR=$BUILD/fixtures/connectors/reference_connector
-for exe in "$WEIR" "$CONNECTOR" "$BUILD/bench/call_cost" "$BUILD/bench/oracle_bench" \
+for exe in "$WEIR" "$CONNECTOR" "$BUILD/bench/call_cost" "$BUILD/bench/certify_floor" "$BUILD/bench/oracle_bench" \
            "$BUILD/bench/log_oracle_bench" "$BUILD/bench/suite_throughput"; do
   if [[ ! -x $exe ]]; then
     echo "run_all.sh: $exe is missing; build it first (see the top of this script)" >&2
@@ -52,6 +54,7 @@ if ((TINY)); then
   ORACLE_EVENTS=100000
   LOG_OFFSETS=100000 LOG_PARTITIONS=100
   SUITE=$ROOT/tests/e2e/tiny.suite
+  FLOOR_SUITE=$ROOT/tests/e2e/tiny.suite FLOOR_ECHO=200 FLOOR_RESTARTS=3
 else
   STEADY=$ROOT/bench/steady_calls.scenario
   ECHO_CALLS=5000 RESTARTS=30 ROUNDS=5
@@ -59,7 +62,10 @@ else
   ORACLE_EVENTS=10000000
   LOG_OFFSETS=10000000 LOG_PARTITIONS=1000
   SUITE=$ROOT/fixtures/suites/quick.suite
+  FLOOR_SUITE=$ROOT/fixtures/suites/standard.suite FLOOR_ECHO=5000 FLOOR_RESTARTS=20
 fi
+CORES=$(nproc)
+PY_REFERENCE=$ROOT/fixtures/connectors/python/reference.py
 
 OUT=${BENCH_OUT:-$(mktemp -d "${TMPDIR:-/tmp}/weir-bench-XXXXXX")}
 mkdir -p "$OUT"
@@ -93,6 +99,21 @@ for ((i = 1; i <= REPEATS; i++)); do
   log=$OUT/call_cost.$i.log
   run call_cost "$log" "$BUILD/bench/call_cost" "$CONNECTOR" "$STEADY" "$ECHO_CALLS" "$RESTARTS" "$ROUNDS"
   grep '^result ' "$log" | cut -d' ' -f2- >>"$VALUES"
+
+  # The same with one busy-looping process per core beside it (call_cost
+  # starts and stops them): what a busy CI runner leaves weir.
+  log=$OUT/call_cost_loaded.$i.log
+  run call_cost_loaded "$log" "$BUILD/bench/call_cost" "$CONNECTOR" "$STEADY" "$ECHO_CALLS" "$RESTARTS" "$ROUNDS" "$CORES"
+  grep '^result ' "$log" | cut -d' ' -f2- | sed 's/^/loaded_/' >>"$VALUES"
+
+  # The certify floor, C++ and Python references, --jobs = cores.
+  log=$OUT/floor_cpp.$i.log
+  run certify_floor "$log" "$BUILD/bench/certify_floor" "$FLOOR_SUITE" "$CORES" "$FLOOR_ECHO" "$FLOOR_RESTARTS" -- "$CONNECTOR"
+  grep '^result ' "$log" | cut -d' ' -f2- | sed 's/^/floor_cpp_/' >>"$VALUES"
+  log=$OUT/floor_python.$i.log
+  run certify_floor_python "$log" env PYTHONPATH="$BUILD/adapters/python" \
+    "$BUILD/bench/certify_floor" "$FLOOR_SUITE" "$CORES" "$FLOOR_ECHO" "$FLOOR_RESTARTS" -- "$PY_REFERENCE"
+  grep '^result ' "$log" | cut -d' ' -f2- | sed 's/^/floor_python_/' >>"$VALUES"
 
   log=$OUT/idle_hour.$i.log
   run idle_hour "$log" bash "$ROOT/bench/idle_hour.sh" "$WEIR" "$CONNECTOR" "$IDLE"
@@ -156,6 +177,12 @@ printf '| 2 | weir cost per call / bare round trip, TCP | %s us = %sx | <= 1.5x 
   "$(median weir_tcp_us)" "$tcp_ratio" "$(verdict "$tcp_ratio" '<=' 1.5)"
 printf '| 2 | weir cost per call / bare round trip, Unix socket | %s us = %sx | <= 1.5x | %s |\n' \
   "$(median weir_unix_us)" "$unix_ratio" "$(verdict "$unix_ratio" '<=' 1.5)"
+loaded_tcp=$(median loaded_weir_tcp_ratio)
+loaded_unix=$(median loaded_weir_unix_ratio)
+printf '| 2 | loaded (%s busy processes beside it): cost per call / round trip, TCP | %s us / %s us = %sx | <= 1.4x | %s |\n' \
+  "$CORES" "$(median loaded_weir_tcp_us)" "$(median loaded_echo_tcp_us)" "$loaded_tcp" "$(verdict "$loaded_tcp" '<=' 1.4)"
+printf '| 2 | loaded (%s busy processes beside it): cost per call / round trip, Unix socket | %s us / %s us = %sx | <= 1.4x | %s |\n' \
+  "$CORES" "$(median loaded_weir_unix_us)" "$(median loaded_echo_unix_us)" "$loaded_unix" "$(verdict "$loaded_unix" '<=' 1.4)"
 printf '| 2 | (context) cost per call / echo carrying the mean message sizes of weir'"'"'s calls, TCP, Unix | %sx (echo %s us), %sx (echo %s us) | | |\n' \
   "$(median weir_tcp_sized_ratio)" "$(median echo_tcp_sized_us)" "$(median weir_unix_sized_ratio)" "$(median echo_unix_sized_us)"
 printf '| 2 | simulation and reference connector alone (in-process), per call | %s us | | |\n' "$(median inprocess_us)"
@@ -185,5 +212,12 @@ printf '| 5 | suite %s --jobs 2: seed-runs/min over gRPC, in-process | %s, %s | 
 printf '| 5 | in-process / gRPC suite throughput | %sx | >= 20x | %s |\n' \
   "$suite_ratio" "$(verdict "$suite_ratio" '>=' 20)"
 printf '| 6 | restart: kill + start + Open of an incarnation, median | %s ms | | |\n' "$(median restart_ms)"
+floor_cpp=$(median floor_cpp_floor_ratio)
+floor_py=$(median floor_python_floor_ratio)
+printf '| 7 | certify floor, C++ reference, %s --jobs %s: wall / floor | %s s / %s s = %sx | <= 1.3x | %s |\n' \
+  "$(basename "$FLOOR_SUITE")" "$CORES" "$(median floor_cpp_wall_s)" "$(median floor_cpp_floor_s)" "$floor_cpp" \
+  "$(verdict "$floor_cpp" '<=' 1.3)"
+printf '| 7 | certify floor, Python reference, same suite: wall / floor | %s s / %s s = %sx | <= 1.3x | %s |\n' \
+  "$(median floor_python_wall_s)" "$(median floor_python_floor_s)" "$floor_py" "$(verdict "$floor_py" '<=' 1.3)"
 echo
 ((TINY)) || echo "raw output: $OUT"

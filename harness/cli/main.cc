@@ -335,6 +335,7 @@ int ReplayCommand(const ReplayFlags& flags) {
 // (1 only for a failed run would hide the explanation's own errors).
 // With --html FILE, also writes the page with the SVG timelines (atomically).
 int ExplainCommand(const std::string& trace, const std::string& html) {
+  if (absl::Status st = CheckOutputPaths({{"--html", html}}); !st.ok()) return UsageError(st.message());
   auto r = ExplainTrace(trace);
   if (!r.ok()) return StatusExit(r.status());
   std::printf("%s", r->text.c_str());

@@ -91,6 +91,7 @@ ConnectorFailure RuntimeModel::Call(Method method, Request& request, Response* r
   request.set_now_ns(now_);
   broker_.AdvanceTo(now_);
   session_.BeginCall(now_);
+  ++connector_calls_;
   ConnectorFailure failure = (readers_[selected_].port->*method)(request, response, gate_);
   now_ = std::max(now_, session_.EndCall());
   broker_.AdvanceTo(now_);  // a call that only failed or waited moved the clock, not the broker
@@ -1002,6 +1003,7 @@ RunSummary RuntimeModel::Run() {
   summary.committed_messages = store_.committed_messages();
   summary.duplicate_records = store_.duplicate_records();
   summary.broker_calls = session_.calls_total();
+  summary.connector_calls = connector_calls_;
   summary.max_broker_calls_in_one_call = session_.max_calls_in_window();
   summary.ignored_receipts = broker_.ignored_receipts();
   summary.readers = static_cast<std::uint32_t>(readers_.size());

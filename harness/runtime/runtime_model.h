@@ -104,6 +104,9 @@ struct RunSummary {
   // receipts the broker ignored (see BrokerModel::ignored_receipts).
   std::uint64_t broker_calls = 0;
   std::uint64_t max_broker_calls_in_one_call = 0;
+  // Calls weir made to the connector (Open, Advance, Checkpoint, Committed,
+  // and the many-readers calls), answered or not.
+  std::uint64_t connector_calls = 0;
   std::uint64_t ignored_receipts = 0;
   // Many readers: reader slots, and what changed hands (cuts answered with a
   // tail, moves, joins, leaves).
@@ -232,7 +235,8 @@ class RuntimeModel {
   EventQueue<Event> queue_;
   CommitStore store_;
   VirtualTime now_ = 0;
-  std::uint64_t incarnations_ = 0;  // Starts so far: the last incarnation number
+  std::uint64_t incarnations_ = 0;     // Starts so far: the last incarnation number
+  std::uint64_t connector_calls_ = 0;  // every call through Call(): the connector side of the cost
   std::uint64_t step_ = 0;
   std::uint64_t next_checkpoint_id_ = 1;
   std::uint64_t checkpoint_timer_generation_ = 0;

@@ -132,6 +132,33 @@ bad flag-max-failures "--max-failures: 'lots' is not a whole number" -- "${CERTI
 bad flag-progress "--progress is 'loud'; expected auto, bar, lines or none" -- "${CERTIFY[@]}" --suite "$SCEN/../suites/quick.suite" --progress loud
 bad flag-json-dir "--json $WORK/missing/r.json: directory '$WORK/missing' does not exist" -- \
   "$WEIR" certify --suite "$SCEN/../suites/quick.suite" --connector "$REF" --junit "$WORK/out.xml" --json "$WORK/missing/r.json"
+# Every command checks every output path before any work starts.
+bad flag-certify-html-dir "--html $WORK/missing/r.html: directory '$WORK/missing' does not exist" -- \
+  "$WEIR" certify --suite "$SCEN/../suites/quick.suite" --connector "$REF" --html "$WORK/missing/r.html"
+bad flag-merge-json-dir "--json $WORK/missing/m.json: directory '$WORK/missing' does not exist" -- \
+  "$WEIR" merge /dev/null --json "$WORK/missing/m.json"
+bad flag-explain-html-dir "--html $WORK/missing/e.html: directory '$WORK/missing' does not exist" -- \
+  "$WEIR" explain /dev/null --html "$WORK/missing/e.html"
+bad flag-search-html-dir "--html $WORK/missing/s.html: directory '$WORK/missing' does not exist" -- \
+  "$WEIR" search --scenario "$GOOD" --connector "$REF" --out "$WORK/search" --html "$WORK/missing/s.html"
+bad flag-shrink-out-dir "--out $WORK/missing/m.plan: directory '$WORK/missing' does not exist" -- \
+  "$WEIR" shrink --scenario "$GOOD" --seed 1 --out "$WORK/missing/m.plan" -- "$REF"
+# One parser for the connector and transport flags: every command says the same.
+for cmd in certify search; do
+  case $cmd in
+    certify) args=(--suite "$SCEN/../suites/quick.suite") ;;
+    search) args=(--scenario "$GOOD" --out "$WORK/search") ;;
+  esac
+  bad "flag-$cmd-transport" "--transport is 'udp'; expected tcp or unix" -- \
+    "$WEIR" "$cmd" "${args[@]}" --connector "$REF" --transport udp
+  bad "flag-$cmd-both-connectors" "give the connector either as --connector 'CMD ARGS' or after --, not both" -- \
+    "$WEIR" "$cmd" "${args[@]}" --connector "$REF" -- "$REF"
+  bad "flag-$cmd-connector-missing" "--connector: '/no/such/connector' is not an executable" -- \
+    "$WEIR" "$cmd" "${args[@]}" --connector /no/such/connector
+done
+bad flag-replay-transport "--transport is 'udp'; expected tcp or unix" -- "$WEIR" replay /dev/null --transport udp
+bad flag-shrink-transport "--transport is 'udp'; expected tcp or unix" -- \
+  "$WEIR" shrink --scenario "$GOOD" --seed 1 --transport udp -- "$REF"
 bad flag-no-subcommand "subcommand" -- "$WEIR"
 bad flag-unknown-subcommand "frobnicate|subcommand" -- "$WEIR" frobnicate
 

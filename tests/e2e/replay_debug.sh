@@ -70,16 +70,15 @@ check "--stop-before shows the saved event #$k" grep -qF "$next_line" stop.out
 check "--stop-before goes on at end of input" grep -q "^weir replay: end of input; going on from event #$k" stop.out
 check "--stop-before identical" identical stop.out
 
-# 3b. --stop-before past the last event: the rerun ends first and says it
-#     never held (a wrong K is not silently ignored); the verdict is unchanged.
+# 3b. --stop-before past the last event: refused before anything starts
+#     (exit 2, the range it expected), never silently ignored.
 beyond=$((events + 10))
 rc=0
 "$weir" replay run.jsonl --stop-before "$beyond" </dev/null >never.out 2>&1 || rc=$?
-check "--stop-before past the end exit 0" test "$rc" = 0
-check "--stop-before past the end says it never held" \
-  grep -q "^weir replay: the rerun ended after $events events, before event #$beyond: it never held" never.out
+check "--stop-before past the end exit 2" test "$rc" = 2
+check "--stop-before past the end names the events there are" \
+  grep -q "has no event #$beyond; expected an event number from 1 to $((events - 1))" never.out
 check "--stop-before past the end did not hold" bash -c "! grep -q 'holding before event' never.out"
-check "--stop-before past the end identical" identical never.out
 
 # 4. --stop-before with a FIFO on stdin: weir waits until a line comes, and
 #    the pid it printed is a live process meanwhile.
