@@ -11,6 +11,7 @@ packages=(
   librapidcheck-dev libxml2-utils libssl-dev
   chromium
   python3 python3-grpcio python3-protobuf python3-pytest
+  golang-go golang-google-grpc-dev golang-google-protobuf-dev protoc-gen-go protoc-gen-go-grpc
   clang libclang-rt-14-dev llvm-14
 )
 
