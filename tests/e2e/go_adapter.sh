@@ -5,10 +5,10 @@
 # mutant is refused with its expected invariant; a connector started outside
 # weir, or with a bad flag, refuses with exit 2.
 # Two parts, so CTest can run them side by side:
-#   go_adapter.sh reference WEIR CPP_REFERENCE SOURCE_DIR GO_CONNECTOR_DIR
-#   go_adapter.sh mutants   WEIR CPP_REFERENCE SOURCE_DIR GO_CONNECTOR_DIR
+#   go_adapter.sh reference WEIR CPP_REFERENCE SOURCE_DIR GO_CONNECTOR_DIR GO_EXAMPLE_DIR
+#   go_adapter.sh mutants   WEIR CPP_REFERENCE SOURCE_DIR GO_CONNECTOR_DIR GO_EXAMPLE_DIR
 set -uo pipefail
-PART=$1 WEIR=$2 CPP_REF=$3 SRC=$4 GOBIN=$5
+PART=$1 WEIR=$2 CPP_REF=$3 SRC=$4 GOBIN=$5 EXAMPLES=$6
 WORK=$(mktemp -d)
 trap 'rm -rf "$WORK"' EXIT
 source "$(dirname "${BASH_SOURCE[0]}")/lib.sh"
@@ -83,6 +83,13 @@ mutant receipt_as_message_id protocol-error
 rc=$?
 check "the go reference passes the mutants' suite (got $rc)" test $rc -eq 0
 [ $rc -eq 0 ] || tail -n 20 "$WORK/reference.out"
+
+# The guide's example connector (docs/go.md) passes the same scenarios.
+"$WEIR" certify --suite "$MUTANT_SUITE" --connector "$EXAMPLES/tide_gauges" --jobs 2 --progress none \
+  >"$WORK/example.out" 2>&1
+rc=$?
+check "the docs/go.md example is certified (got $rc)" test $rc -eq 0
+[ $rc -eq 0 ] || tail -n 20 "$WORK/example.out"
 
 else
   echo "go_adapter.sh: first argument must be 'reference' or 'mutants', got '$PART'" >&2
