@@ -14,6 +14,9 @@
 //   3. restart: median wall time of Kill + Start + Open of an incarnation.
 //
 // usage: call_cost CONNECTOR SCENARIO [ECHO_CALLS [RESTARTS [ROUNDS]]]
+//   WEIR_BENCH_ECHO_SERVER=CMD: the echo child is CMD (same handshake) instead
+//   of this binary, e.g. the Go echo server (bench/go/echo_server) to measure a
+//   Go connector against gRPC for Go's own round trip.
 //   defaults: 20000 echo calls per transport, 30 restarts, 5 rounds. A round
 //   is echo TCP, weir TCP, echo Unix, weir Unix, back to back; figures are
 //   medians over rounds and ratios medians of the per-round ratios.
@@ -132,6 +135,9 @@ double MeasureEcho(const std::string& self, Transport transport, int calls, std:
   Listen listen = ListenAddress(transport, "echo");
   ChildProcess::Options spawn;
   spawn.argv = {self, "--echo-server"};
+  if (const char* other = std::getenv("WEIR_BENCH_ECHO_SERVER"); other != nullptr && *other != '\0') {
+    spawn.argv = {other};
+  }
   spawn.env["WEIR_LISTEN_ADDRESS"] = listen.address;
   auto child = ChildProcess::Spawn(spawn);
   if (!child.ok()) Fail(std::string(child.status().message()));

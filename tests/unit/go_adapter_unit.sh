@@ -9,7 +9,7 @@ set -uo pipefail
 GO=$1 SRC=$2
 GOFMT=$(dirname "$(readlink -f "$GO")")/gofmt
 failures=0
-unformatted=$("$GOFMT" -l "$SRC/adapters/go" "$SRC/fixtures/connectors/go")
+unformatted=$("$GOFMT" -l "$SRC/adapters/go" "$SRC/fixtures/connectors/go" "$SRC/bench/go")
 if [ -n "$unformatted" ]; then
   echo "FAIL not gofmt'd (run gofmt -w):"; echo "$unformatted"; failures=$((failures + 1))
 else
@@ -19,7 +19,8 @@ fi
 packages() {  # packages DIR IMPORT_PREFIX
   find "$1" -name '*.go' -printf '%h\n' | sort -u | sed "s|^$1|$2|"
 }
-pkgs=$(packages "$SRC/adapters/go" weir/adapter; packages "$SRC/fixtures/connectors/go" weir/fixtures/go)
+pkgs=$(packages "$SRC/adapters/go" weir/adapter; packages "$SRC/fixtures/connectors/go" weir/fixtures/go;
+  packages "$SRC/bench/go" weir/bench)
 if "$GO" vet $pkgs; then
   echo "ok   go vet"
 else
