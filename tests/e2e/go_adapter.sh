@@ -4,9 +4,13 @@
 # run (same broker calls at the same virtual times, jitter included); each Go
 # mutant is refused with its expected invariant; a connector started outside
 # weir, or with a bad flag, refuses with exit 2.
-# Two parts, so CTest can run them side by side:
+# The log shape likewise: the Go log reference gives the C++ log reference's
+# digests on the log quick suite and with several readers on the readers
+# quick suite, and each Go log mutant is refused with its invariant.
+# Three parts, so CTest can run them side by side:
 #   go_adapter.sh reference WEIR CPP_REFERENCE SOURCE_DIR GO_CONNECTOR_DIR GO_EXAMPLE_DIR
 #   go_adapter.sh mutants   WEIR CPP_REFERENCE SOURCE_DIR GO_CONNECTOR_DIR GO_EXAMPLE_DIR
+#   go_adapter.sh log       WEIR CPP_LOG_REFERENCE SOURCE_DIR GO_CONNECTOR_DIR GO_EXAMPLE_DIR
 set -uo pipefail
 PART=$1 WEIR=$2 CPP_REF=$3 SRC=$4 GOBIN=$5 EXAMPLES=$6
 WORK=$(mktemp -d)
@@ -91,8 +95,49 @@ rc=$?
 check "the docs/go.md example is certified (got $rc)" test $rc -eq 0
 [ $rc -eq 0 ] || tail -n 20 "$WORK/example.out"
 
+elif [ "$PART" = log ]; then
+# 5. The Go log reference: certified, and the C++ log reference's digests,
+#    run by run, on the log quick suite and on the readers quick suite.
+for suite in log_quick readers_quick; do
+  "$WEIR" certify --suite "$SRC/fixtures/suites/$suite.suite" --connector "$GOBIN/log_reference" \
+    --jobs 2 --progress none --json "$WORK/go_$suite.json" >"$WORK/go_$suite.out" 2>&1
+  rc=$?
+  check "go log reference certified on $suite (got $rc)" test $rc -eq 0
+  [ $rc -eq 0 ] || tail -n 40 "$WORK/go_$suite.out"
+  "$WEIR" certify --suite "$SRC/fixtures/suites/$suite.suite" --connector "$CPP_REF" \
+    --jobs 2 --progress none --json "$WORK/cpp_$suite.json" >"$WORK/cpp_$suite.out" 2>&1
+  check "C++ log reference certified on $suite" test $? -eq 0
+  digests "$WORK/go_$suite.json" >"$WORK/go_$suite.digests"
+  digests "$WORK/cpp_$suite.json" >"$WORK/cpp_$suite.digests"
+  check "$suite: $(wc -l <"$WORK/go_$suite.digests") run digests" test "$(wc -l <"$WORK/go_$suite.digests")" -gt 0
+  check "$suite: go and C++ log references give identical traces on every run" \
+    cmp -s "$WORK/go_$suite.digests" "$WORK/cpp_$suite.digests"
+done
+
+# 6. Every Go log mutant is refused (exit 1) with its invariant failing, on
+#    one (scenario, seed) that catches it.
+SCEN=$SRC/fixtures/scenarios
+mutant() {  # mutant NAME SCENARIO SEED INVARIANT
+  local out=$WORK/$1.out
+  "$WEIR" run --scenario "$SCEN/$2.scenario" --seed "$3" --connector "$GOBIN/mutant_$1" >"$out" 2>&1
+  local rc=$?
+  check "mutant_$1 on $2 seed $3 exits 1 (got $rc)" test $rc -eq 1
+  check "mutant_$1 fails $4" grep -Eq "^$4 +FAILED " "$out"
+  [ $rc -eq 1 ] || tail -n 20 "$out"
+}
+mutant log_bookmark_on_read log_steady_river_gauges 1 position-before-commit
+mutant log_resume_after_checkpoint log_steady_river_gauges 1 resume-exact
+mutant log_resume_before_checkpoint log_steady_river_gauges 1 resume-exact
+mutant log_global_resume_point log_steady_river_gauges 1 offset-gap
+mutant log_fastest_partition_watermark log_hot_partition_rail_axle_counters 1 late-record
+mutant log_idle_partition_stalls log_idle_partitions_snow_pillows 1 watermark-stall
+mutant log_silent_skip log_retention_race_pollen_traps 1 silent-skip
+mutant log_ignore_new_partitions log_partition_growth_wind_turbines 1 new-partition
+mutant readers_tail_emit readers_frequent_cuts_seismographs 1 record-outside-span
+mutant readers_keeps_revoked readers_hot_rebalance_wind_farms 1 record-outside-span
+
 else
-  echo "go_adapter.sh: first argument must be 'reference' or 'mutants', got '$PART'" >&2
+  echo "go_adapter.sh: first argument must be 'reference', 'mutants' or 'log', got '$PART'" >&2
   exit 2
 fi
 
