@@ -122,7 +122,11 @@ func (b *Backoff) Failures() uint32 { return b.failures }
 //			pull.OnSuccess()
 //		}
 //	}
-//	step.ResumeAt(max(adapter.Now(ctx)+idle, pull.NotBefore()))
+//	next := adapter.Now(ctx) + idle
+//	if pull.NotBefore() > next {
+//		next = pull.NotBefore()
+//	}
+//	step.ResumeAt(next)
 type RetryGate struct {
 	backoff     Backoff
 	notBeforeNs int64
