@@ -68,6 +68,11 @@ struct EchoChild {
 EchoChild StartEcho(const std::string& self, const ListenAddress& listen) {
   ChildProcess::Options spawn;
   spawn.argv = {self, "--echo-server"};
+  // Another echo server with the same handshake (e.g. one written in Go, to
+  // measure a Go connector against its own language's round trip).
+  if (const char* other = std::getenv("WEIR_BENCH_ECHO_SERVER"); other != nullptr && *other != '\0') {
+    spawn.argv = {other};
+  }
   spawn.env["WEIR_LISTEN_ADDRESS"] = listen.address;
   auto child = ChildProcess::Spawn(spawn);
   if (!child.ok()) Fail(std::string(child.status().message()));

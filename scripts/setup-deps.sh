@@ -2,7 +2,7 @@
 # Installs weir's dependencies from Debian 12 packages.
 #   bash scripts/setup-deps.sh main    what building weir and certifying a connector needs
 #   bash scripts/setup-deps.sh tests   that, plus what the tests need (the default):
-#                                      GoogleTest, benchmarks, property tests, Python's
+#                                      GoogleTest, benchmarks, property tests, Go and Python's
 #                                      gRPC, clang and LLVM for the sanitizer and fuzzing
 #                                      builds, clang-format, a headless browser for the
 #                                      HTML report checks
@@ -19,6 +19,7 @@ test_packages=(
   libgtest-dev libgmock-dev libbenchmark-dev librapidcheck-dev libxml2-utils
   chromium
   python3 python3-grpcio python3-protobuf python3-pytest
+  golang-go golang-google-grpc-dev golang-google-protobuf-dev protoc-gen-go protoc-gen-go-grpc
   clang libclang-rt-14-dev llvm-14 clang-format-14
 )
 
