@@ -12,11 +12,11 @@ source "$(dirname "${BASH_SOURCE[0]}")/lib.sh"
 marked_workdir go-hostile
 SCENARIO=$DIR/hostile.scenario
 
-# hostile CASE EXIT INVARIANT MESSAGE [TRANSPORT]: one run, checked.
+# hostile CASE EXIT INVARIANT MESSAGE [TRANSPORT [SCENARIO]]: one run, checked.
 hostile() {
-  local name=$1 want=$2 invariant=$3 message=$4 transport=${5:-tcp}
+  local name=$1 want=$2 invariant=$3 message=$4 transport=${5:-tcp} scenario=${6:-$SCENARIO}
   local out=$WORK/$name.out
-  timeout 60 "$WEIR" run --scenario "$SCENARIO" --seed 1 --transport "$transport" \
+  timeout 60 "$WEIR" run --scenario "$scenario" --seed 1 --transport "$transport" \
     --connector "$BIN/hostile_$name $MARK-$name" --trace "$WORK/$name.jsonl" >"$out" 2>&1
   local rc=$?
   check "$name: exit $want (got $rc)" test "$rc" -eq "$want"
@@ -31,10 +31,11 @@ hostile() {
 hostile panic_in_step 1 connector-error \
   "reported its own failure in Advance: Advance answered INTERNAL: source panicked during Advance: hostile panic_in_step gives up in step 2"
 hostile panic_in_goroutine 1 unexpected-exit "panic: hostile panic_in_goroutine gives up in step 2"
-hostile hang_in_step 1 step-timeout "did not answer Advance within 1000 ms"
-hostile hang_in_step 1 step-timeout "did not answer Advance within 1000 ms" unix
-hostile silent_start 1 step-timeout "did not report its address on WEIR_READY_FD within 1000 ms"
-hostile no_listen 1 protocol-error "but nothing accepted a connection there within 1000 ms"
+# As in hostile.sh: the bound under test is tight, every other one generous.
+hostile hang_in_step 1 step-timeout "did not answer Advance within 1000 ms" tcp "$DIR/step_bound.scenario"
+hostile hang_in_step 1 step-timeout "did not answer Advance within 1000 ms" unix "$DIR/step_bound.scenario"
+hostile silent_start 1 step-timeout "did not report its address on WEIR_READY_FD within 1000 ms" tcp "$DIR/start_bound.scenario"
+hostile no_listen 1 protocol-error "but nothing accepted a connection there within 1000 ms" tcp "$DIR/start_bound.scenario"
 hostile garbage_answer 1 protocol-error "Open answered no message, or bytes that are not a weir.v1.OpenResponse message"
 # The panic that killed the process: exit code 2 is the Go runtime's.
 check "panic_in_goroutine: the exit code is named" grep -q "exit code 2" "$WORK/panic_in_goroutine.out"
