@@ -8,7 +8,8 @@
 //   2. threads: how many threads N live processes add (each used to have
 //      its own output reader thread).
 //   3. exec and loading: the connector started without weir's environment
-//      exits at its first check in main; spawn until reaped.
+//      complains at its first check in main; from the spawn to the first byte
+//      of that complaint (exec, loading, static initialisers).
 //   4. restart: Kill + Start + Open of an incarnation of CONNECTOR over TCP,
 //      RESTARTS times, split into the phases of GrpcConnectorPort::Start
 //      (kill, spawn, handshake, connect) and the Open call. The handshake
@@ -18,7 +19,9 @@
 //   defaults: 30 restarts, 200 exits per way, 32 children.
 // Prints one human line per measurement, then `result NAME VALUE` lines.
 #include <dirent.h>
+#include <fcntl.h>
 #include <signal.h>
+#include <spawn.h>
 #include <sys/wait.h>
 #include <unistd.h>
 
@@ -113,6 +116,35 @@ double NoticeByPolling() {
   }
 }
 
+// --- 3. exec and loading ---------------------------------------------------------
+
+extern "C" char** environ;
+
+double ExecAndLoad(const std::string& connector) {
+  int out[2];
+  if (::pipe2(out, O_CLOEXEC) != 0) Fail("pipe failed");
+  posix_spawn_file_actions_t actions;
+  posix_spawn_file_actions_init(&actions);
+  posix_spawn_file_actions_adddup2(&actions, out[1], 1);
+  posix_spawn_file_actions_adddup2(&actions, out[1], 2);
+  std::vector<char*> argv = {const_cast<char*>(connector.c_str()), nullptr};
+  pid_t pid = -1;
+  const auto t0 = Clock::now();
+  const int rc = ::posix_spawn(&pid, connector.c_str(), &actions, nullptr, argv.data(), environ);
+  posix_spawn_file_actions_destroy(&actions);
+  ::close(out[1]);
+  if (rc != 0) Fail("cannot start " + connector);
+  char byte;
+  const ssize_t n = ::read(out[0], &byte, 1);
+  const double ms = Ms(Clock::now() - t0);
+  ::close(out[0]);
+  ::kill(pid, SIGKILL);
+  int status = 0;
+  ::waitpid(pid, &status, 0);
+  if (n != 1) Fail("the connector wrote nothing when started without weir's environment");
+  return ms;
+}
+
 // --- 4. restart -----------------------------------------------------------------
 
 class NoBroker : public BrokerEndpoint {
@@ -180,16 +212,7 @@ int main(int argc, char** argv) {
 
   // 3.
   std::vector<double> exec_ms;
-  for (int i = 0; i < restarts; ++i) {
-    ChildProcess::Options options;
-    options.argv = {connector};
-    options.ready_pipe = false;
-    const auto t0 = Clock::now();
-    auto child = ChildProcess::Spawn(options);
-    if (!child.ok()) Fail(std::string(child.status().message()));
-    if (!(*child)->TryReap(std::chrono::seconds(30)).has_value()) Fail("the connector did not exit without weir's environment");
-    exec_ms.push_back(Ms(Clock::now() - t0));
-  }
+  for (int i = 0; i < restarts; ++i) exec_ms.push_back(ExecAndLoad(connector));
 
   // 4.
   auto server = BrokerServer::Start("127.0.0.1:0");
@@ -225,14 +248,16 @@ int main(int argc, char** argv) {
       "(medians of each; min total %.2f, max %.2f)\n",
       restarts, Median(total), Median(kill), Median(spawn), Median(handshake), Median(connect), Median(open),
       *std::min_element(total.begin(), total.end()), *std::max_element(total.begin(), total.end()));
-  std::printf("exec and loading (the connector exits at its first check): median %.2f ms; so its server start is about %.2f ms\n",
-              Median(exec_ms), Median(handshake) - Median(exec_ms));
-  std::printf("result restart_ms %.2f\n", Median(total));
-  std::printf("result restart_kill_ms %.2f\n", Median(kill));
-  std::printf("result restart_spawn_ms %.2f\n", Median(spawn));
-  std::printf("result restart_handshake_ms %.2f\n", Median(handshake));
-  std::printf("result restart_connect_ms %.2f\n", Median(connect));
-  std::printf("result restart_open_ms %.2f\n", Median(open));
-  std::printf("result exec_and_load_ms %.2f\n", Median(exec_ms));
+  std::printf(
+      "exec and loading (spawn to the first byte the connector writes without weir's environment): median %.2f ms; so "
+      "its server start is about %.2f ms\n",
+      Median(exec_ms), Median(handshake) - Median(exec_ms));
+  std::printf("result supervise_restart_ms %.2f\n", Median(total));
+  std::printf("result supervise_kill_ms %.2f\n", Median(kill));
+  std::printf("result supervise_spawn_ms %.2f\n", Median(spawn));
+  std::printf("result supervise_handshake_ms %.2f\n", Median(handshake));
+  std::printf("result supervise_connect_ms %.2f\n", Median(connect));
+  std::printf("result supervise_open_ms %.2f\n", Median(open));
+  std::printf("result supervise_exec_load_ms %.2f\n", Median(exec_ms));
   return 0;
 }
