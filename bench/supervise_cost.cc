@@ -13,7 +13,8 @@
 //   4. restart: Kill + Start + Open of an incarnation of CONNECTOR over TCP,
 //      RESTARTS times, split into the phases of GrpcConnectorPort::Start
 //      (kill, spawn, handshake, connect) and the Open call. The handshake
-//      minus (3) is about the connector's own server start.
+//      minus (3) is about the connector's own server start. Then the first
+//      Advance, whose Pull is the connector's first broker call.
 //
 // usage: supervise_cost CONNECTOR [RESTARTS [EXITS [CHILDREN]]]
 //   defaults: 30 restarts, 200 exits per way, 32 children.
@@ -223,7 +224,7 @@ int main(int argc, char** argv) {
   options.listen_address = "127.0.0.1:0";
   GrpcConnectorPort port(options, **server);
   NoBroker broker;
-  std::vector<double> total, kill, spawn, handshake, connect, open;
+  std::vector<double> total, kill, spawn, handshake, connect, open, advance;
   for (int i = 0; i <= restarts; ++i) {
     const auto t0 = Clock::now();
     if (ConnectorFailure f = port.Start(static_cast<std::uint64_t>(i + 1)); !f.ok()) Fail("start: " + f.detail);
@@ -233,6 +234,12 @@ int main(int argc, char** argv) {
     v1::OpenResponse response;
     if (ConnectorFailure f = port.Open(request, &response, broker); !f.ok()) Fail("open: " + f.detail);
     const auto t2 = Clock::now();
+    // The first step: its Pull is the connector's first broker call.
+    v1::AdvanceRequest step;
+    step.set_step(1);
+    v1::AdvanceResponse stepped;
+    if (ConnectorFailure f = port.Advance(step, &stepped, broker); !f.ok()) Fail("advance: " + f.detail);
+    const auto t3 = Clock::now();
     if (i == 0) continue;  // the first start has nothing to kill
     const GrpcConnectorPort::StartPhases& p = port.last_start_phases();
     total.push_back(Ms(t2 - t0));
@@ -241,6 +248,7 @@ int main(int argc, char** argv) {
     handshake.push_back(Ms(p.handshake));
     connect.push_back(Ms(p.connect));
     open.push_back(Ms(t2 - t1));
+    advance.push_back(Ms(t3 - t2));
   }
   port.Kill();
   std::printf(
@@ -259,5 +267,8 @@ int main(int argc, char** argv) {
   std::printf("result supervise_connect_ms %.2f\n", Median(connect));
   std::printf("result supervise_open_ms %.2f\n", Median(open));
   std::printf("result supervise_exec_load_ms %.2f\n", Median(exec_ms));
+  std::printf("first Advance after the restart (its Pull is the connector's first broker call): median %.2f ms\n",
+              Median(advance));
+  std::printf("result supervise_first_advance_ms %.2f\n", Median(advance));
   return 0;
 }
