@@ -14,10 +14,11 @@
 # $BENCH_OUT (default: a temporary directory, printed at the end).
 #
 # Needs: the targets weir, reference_connector, call_cost, certify_floor,
-# oracle_bench, log_oracle_bench and suite_throughput (`ninja -C build weir
-# reference_connector call_cost certify_floor oracle_bench log_oracle_bench
-# suite_throughput`), and for the Python figures the Python stubs
-# (build/adapters/python) with Debian's python3-grpcio.
+# oracle_bench, log_oracle_bench, suite_throughput and supervise_cost
+# (`ninja -C build weir reference_connector call_cost certify_floor
+# oracle_bench log_oracle_bench suite_throughput supervise_cost`), and for the
+# Python figures the Python stubs (build/adapters/python) with Debian's
+# python3-grpcio.
 set -euo pipefail
 ROOT=$(cd "$(dirname "$0")/.." && pwd)
 BUILD=${WEIR_BUILD_DIR:-build}
@@ -40,7 +41,7 @@ fi
 WEIR=$BUILD/harness/weir
 CONNECTOR=$BUILD/fixtures/connectors/reference_connector
 for exe in "$WEIR" "$CONNECTOR" "$BUILD/bench/call_cost" "$BUILD/bench/certify_floor" "$BUILD/bench/oracle_bench" \
-           "$BUILD/bench/log_oracle_bench" "$BUILD/bench/suite_throughput"; do
+           "$BUILD/bench/log_oracle_bench" "$BUILD/bench/suite_throughput" "$BUILD/bench/supervise_cost"; do
   if [[ ! -x $exe ]]; then
     echo "run_all.sh: $exe is missing; build it first (see the top of this script)" >&2
     exit 2
@@ -49,7 +50,7 @@ done
 
 if ((TINY)); then
   STEADY=$ROOT/fixtures/scenarios/steady_parcel_scanners.scenario
-  ECHO_CALLS=200 RESTARTS=3 ROUNDS=1
+  ECHO_CALLS=200 RESTARTS=3 ROUNDS=1 EXITS=5
   IDLE=$ROOT/bench/idle_tiny.scenario
   ORACLE_EVENTS=100000
   LOG_OFFSETS=100000 LOG_PARTITIONS=100
@@ -57,7 +58,7 @@ if ((TINY)); then
   FLOOR_SUITE=$ROOT/tests/e2e/tiny.suite FLOOR_ECHO=200 FLOOR_RESTARTS=3
 else
   STEADY=$ROOT/bench/steady_calls.scenario
-  ECHO_CALLS=5000 RESTARTS=30 ROUNDS=5
+  ECHO_CALLS=5000 RESTARTS=30 ROUNDS=5 EXITS=200
   IDLE=$ROOT/bench/idle_hour.scenario
   ORACLE_EVENTS=10000000
   LOG_OFFSETS=10000000 LOG_PARTITIONS=1000
@@ -142,6 +143,10 @@ for ((i = 1; i <= REPEATS; i++)); do
   pick "$log" 's/^over gRPC .* \([0-9.]*\) runs\/min$/\1/p' suite_grpc_rpm
   pick "$log" 's/^in-process .* \([0-9.]*\) runs\/min$/\1/p' suite_inproc_rpm
   pick "$log" 's/^in-process \/ gRPC = \([0-9.]*\)x.*/\1/p' suite_ratio
+
+  log=$OUT/supervise.$i.log
+  run supervise_cost "$log" "$BUILD/bench/supervise_cost" "$CONNECTOR" "$RESTARTS" "$EXITS" 32
+  grep '^result ' "$log" | cut -d' ' -f2- >>"$VALUES"
 done
 
 # median NAME: the median of NAME's values (lower middle for an even count).
@@ -212,12 +217,20 @@ printf '| 5 | suite %s --jobs 2: seed-runs/min over gRPC, in-process | %s, %s | 
 printf '| 5 | in-process / gRPC suite throughput | %sx | >= 20x | %s |\n' \
   "$suite_ratio" "$(verdict "$suite_ratio" '>=' 20)"
 printf '| 6 | restart: kill + start + Open of an incarnation, median | %s ms | | |\n' "$(median restart_ms)"
+printf '| 7 | restart phases, medians: kill + spawn + handshake + connect + Open (total) | %s + %s + %s + %s + %s ms (%s ms) | | |\n' \
+  "$(median supervise_kill_ms)" "$(median supervise_spawn_ms)" "$(median supervise_handshake_ms)" \
+  "$(median supervise_connect_ms)" "$(median supervise_open_ms)" "$(median supervise_restart_ms)"
+printf '| 7 | connector exec and loading alone (spawn to its first byte) | %s ms | | |\n' "$(median supervise_exec_load_ms)"
+printf '| 7 | exit notice, SIGKILL to reaped: pidfd, SIGCHLD, old 2 ms poll | %s, %s, %s ms | | |\n' \
+  "$(median exit_notice_pidfd_ms)" "$(median exit_notice_sigchld_ms)" "$(median exit_notice_poll_ms)"
+printf '| 7 | threads added by 32 watched processes | %s | 0 | %s |\n' "$(median supervise_threads_added)" \
+  "$(verdict "$(median supervise_threads_added)" '<=' 0)"
 floor_cpp=$(median floor_cpp_floor_ratio)
 floor_py=$(median floor_python_floor_ratio)
-printf '| 7 | certify floor, C++ reference, %s --jobs %s: wall / floor | %s s / %s s = %sx | <= 1.3x | %s |\n' \
+printf '| 8 | certify floor, C++ reference, %s --jobs %s: wall / floor | %s s / %s s = %sx | <= 1.3x | %s |\n' \
   "$(basename "$FLOOR_SUITE")" "$CORES" "$(median floor_cpp_wall_s)" "$(median floor_cpp_floor_s)" "$floor_cpp" \
   "$(verdict "$floor_cpp" '<=' 1.3)"
-printf '| 7 | certify floor, Python reference, same suite: wall / floor | %s s / %s s = %sx | <= 1.3x | %s |\n' \
+printf '| 8 | certify floor, Python reference, same suite: wall / floor | %s s / %s s = %sx | <= 1.3x | %s |\n' \
   "$(median floor_python_wall_s)" "$(median floor_python_floor_s)" "$floor_py" "$(verdict "$floor_py" '<=' 1.3)"
 echo
 ((TINY)) || echo "raw output: $OUT"

@@ -2,25 +2,29 @@
 
 #include <signal.h>
 
+#include <mutex>
+
+#include "harness/edge/supervisor.h"
+
 namespace weir {
 namespace {
 
 std::atomic<bool> g_stop{false};
 std::atomic<int> g_signal{0};
 
-extern "C" void OnStopSignal(int sig) {
-  int none = 0;
-  g_signal.compare_exchange_strong(none, sig);
-  g_stop.store(true);
-}
-
 }  // namespace
 
 const std::atomic<bool>* InstallStopSignals() {
-  struct sigaction sa {};
-  sa.sa_handler = OnStopSignal;
-  sigemptyset(&sa.sa_mask);
-  for (int sig : {SIGINT, SIGTERM, SIGHUP}) sigaction(sig, &sa, nullptr);
+  static std::once_flag once;
+  std::call_once(once, [] {
+    // On the supervisor's loop, which also wakes every wait on a connector
+    // process, so a start-up wait ends at once rather than at its bound.
+    Supervisor::Shared().OnStopSignals({SIGINT, SIGTERM, SIGHUP}, [](int sig) {
+      int none = 0;
+      g_signal.compare_exchange_strong(none, sig);
+      g_stop.store(true);
+    });
+  });
   return &g_stop;
 }
 

@@ -1,14 +1,17 @@
 #include "harness/edge/child_process.h"
 
 #include <fcntl.h>
-#include <poll.h>
 #include <signal.h>
 #include <spawn.h>
 #include <string.h>
 #include <sys/wait.h>
 #include <unistd.h>
 
+#include <array>
 #include <cerrno>
+
+#include <boost/asio/buffer.hpp>
+#include <boost/asio/posix/stream_descriptor.hpp>
 
 #include "absl/status/status.h"
 #include "absl/strings/str_cat.h"
@@ -16,11 +19,96 @@
 extern char** environ;
 
 namespace weir {
+
+// What the loop knows about one process. The descriptors and buffers are the
+// loop thread's alone; the rest is guarded by the supervisor's lock.
+struct ChildProcess::State {
+  explicit State(boost::asio::io_context& io) : output(io), ready(io) {}
+
+  // Loop thread only.
+  boost::asio::posix::stream_descriptor output;
+  boost::asio::posix::stream_descriptor ready;
+  std::array<char, 4096> output_chunk;
+  std::array<char, 512> ready_chunk;
+  bool ready_reading = false;
+  int echo_fd = -1;
+  std::size_t tail_bytes = 8192;
+
+  // Guarded by Supervisor::mu().
+  std::string tail;
+  bool output_eof = false;  // the output pipe ended (or failed)
+  std::string ready_buffer;
+  bool ready_closed = false;  // the handshake pipe ended before a newline
+  std::string ready_error;
+  bool reaped = false;
+  std::string exit_description;
+  bool closed = false;  // Kill() closed the pipes
+};
+
 namespace {
 
-void CloseFd(int& fd) {
-  if (fd >= 0) ::close(fd);
-  fd = -1;
+// The handshake reader stops once the line is there (or too long); a
+// consumed line lets it go on.
+bool ReadyLineComplete(const std::string& buffer) {
+  return buffer.find('\n') != std::string::npos || buffer.size() > 4096;
+}
+
+void AppendTail(ChildProcess::State& st, const char* data, std::size_t n) {
+  st.tail.append(data, n);
+  if (st.tail.size() > 2 * st.tail_bytes) st.tail.erase(0, st.tail.size() - st.tail_bytes);
+}
+
+void Echo(int fd, const char* data, std::size_t n) {
+  // Best effort: a closed or full echo never stops the reading.
+  for (std::size_t done = 0; done < n;) {
+    const ssize_t w = ::write(fd, data + done, n - done);
+    if (w <= 0) break;
+    done += static_cast<std::size_t>(w);
+  }
+}
+
+void ReadOutput(Supervisor& sup, const std::shared_ptr<ChildProcess::State>& st) {
+  st->output.async_read_some(boost::asio::buffer(st->output_chunk),
+                             [&sup, st](const boost::system::error_code& ec, std::size_t n) {
+                               if (ec == boost::asio::error::operation_aborted) return;  // Kill() closed it
+                               if (n > 0 && st->echo_fd >= 0) Echo(st->echo_fd, st->output_chunk.data(), n);
+                               {
+                                 std::lock_guard<std::mutex> lock(sup.mu());
+                                 if (n > 0) AppendTail(*st, st->output_chunk.data(), n);
+                                 if (ec) st->output_eof = true;  // the end of the pipe, or an error that ends it
+                               }
+                               if (ec) {
+                                 sup.WakeAll();
+                                 return;
+                               }
+                               ReadOutput(sup, st);
+                             });
+}
+
+void ReadReady(Supervisor& sup, const std::shared_ptr<ChildProcess::State>& st) {
+  st->ready_reading = true;
+  st->ready.async_read_some(boost::asio::buffer(st->ready_chunk),
+                            [&sup, st](const boost::system::error_code& ec, std::size_t n) {
+                              st->ready_reading = false;
+                              if (ec == boost::asio::error::operation_aborted) return;
+                              bool more = false;
+                              {
+                                std::lock_guard<std::mutex> lock(sup.mu());
+                                if (n > 0) st->ready_buffer.append(st->ready_chunk.data(), n);
+                                if (ec == boost::asio::error::eof) {
+                                  st->ready_closed = true;
+                                } else if (ec) {
+                                  st->ready_error = ec.message();
+                                } else {
+                                  more = !ReadyLineComplete(st->ready_buffer);
+                                }
+                              }
+                              if (more) {
+                                ReadReady(sup, st);
+                              } else {
+                                sup.WakeAll();
+                              }
+                            });
 }
 
 }  // namespace
@@ -40,8 +128,6 @@ absl::StatusOr<std::unique_ptr<ChildProcess>> ChildProcess::Spawn(const Options&
     return absl::InvalidArgumentError("empty connector command");
   }
   std::unique_ptr<ChildProcess> child(new ChildProcess());
-  child->tail_bytes_ = options.tail_bytes;
-  child->echo_fd_ = options.echo_fd;
 
   int out_pipe[2] = {-1, -1};
   int ready_pipe[2] = {-1, -1};
@@ -99,139 +185,129 @@ absl::StatusOr<std::unique_ptr<ChildProcess>> ChildProcess::Spawn(const Options&
     if (options.ready_pipe) ::close(ready_pipe[0]);
     return absl::NotFoundError(absl::StrCat("cannot start '", options.argv[0], "': ", ::strerror(rc)));
   }
+  Supervisor& sup = options.supervisor != nullptr ? *options.supervisor : Supervisor::Shared();
+  child->supervisor_ = &sup;
   child->pid_ = pid;
-  child->output_fd_ = out_pipe[0];
-  child->ready_fd_ = options.ready_pipe ? ready_pipe[0] : -1;
-  ChildProcess* raw = child.get();
-  child->reader_ = std::thread([raw] { raw->ReadOutput(); });
+  child->has_ready_pipe_ = options.ready_pipe;
+  auto st = std::make_shared<State>(sup.context());
+  st->echo_fd = options.echo_fd;
+  st->tail_bytes = options.tail_bytes;
+  child->state_ = st;
+  const int output_fd = out_pipe[0];
+  const int ready_fd = options.ready_pipe ? ready_pipe[0] : -1;
+  // The descriptors go to the loop before the exit watch: a Kill() right
+  // after Spawn finds them in place (Post keeps the order).
+  sup.Post([&sup, st, output_fd, ready_fd] {
+    st->output.assign(output_fd);
+    ReadOutput(sup, st);
+    if (ready_fd >= 0) {
+      st->ready.assign(ready_fd);
+      ReadReady(sup, st);
+    }
+  });
+  sup.WatchExit(pid, [&sup, st](int status) {
+    {
+      std::lock_guard<std::mutex> lock(sup.mu());
+      st->reaped = true;
+      st->exit_description = DescribeWaitStatus(status);
+    }
+    sup.WakeAll();
+  });
   return child;
 }
 
-ChildProcess::~ChildProcess() {
-  Kill();
-  CloseFd(ready_fd_);
-}
-
-void ChildProcess::ReadOutput() {
-  char buf[4096];
-  // After Kill() asks us to stop, read what is already buffered (bounded, in
-  // case an escaped grandchild keeps writing) and leave.
-  std::size_t after_stop = 0;
-  for (;;) {
-    const bool stopping = stop_reader_.load();
-    pollfd p{output_fd_, POLLIN, 0};
-    const int r = ::poll(&p, 1, stopping ? 0 : 50);
-    if (r < 0 && errno != EINTR) break;
-    if (r > 0) {
-      const ssize_t n = ::read(output_fd_, buf, sizeof buf);
-      if (n > 0) {
-        if (echo_fd_ >= 0) {  // best effort: a closed or full echo never stops the reader
-          for (ssize_t done = 0; done < n;) {
-            const ssize_t w = ::write(echo_fd_, buf + done, static_cast<std::size_t>(n - done));
-            if (w <= 0) break;
-            done += w;
-          }
-        }
-        std::lock_guard<std::mutex> lock(tail_mu_);
-        tail_.append(buf, static_cast<std::size_t>(n));
-        if (tail_.size() > 2 * tail_bytes_) tail_.erase(0, tail_.size() - tail_bytes_);
-        if (stopping && (after_stop += static_cast<std::size_t>(n)) > (1u << 20)) break;
-        continue;
-      }
-      if (n == 0 || (n < 0 && errno != EINTR && errno != EAGAIN)) break;  // EOF
-    }
-    if (stopping) break;
-  }
-  {
-    std::lock_guard<std::mutex> lock(tail_mu_);
-    output_eof_ = true;
-  }
-  output_ended_.notify_all();
-}
+ChildProcess::~ChildProcess() { Kill(); }
 
 std::string ChildProcess::OutputTail(std::chrono::milliseconds eof_wait) {
-  std::unique_lock<std::mutex> lock(tail_mu_);
-  // A reaped process's group was killed, so the pipe reaches EOF promptly
-  // unless a descendant escaped the group; the wait is bounded either way.
-  if (reaped_) {
-    output_ended_.wait_for(lock, eof_wait, [this] { return output_eof_; });
-  }
-  if (tail_.size() <= tail_bytes_) return tail_;
-  return tail_.substr(tail_.size() - tail_bytes_);
+  if (state_ == nullptr) return "";
+  State& st = *state_;
+  std::unique_lock<std::mutex> lock(supervisor_->mu());
+  // A reaped process's group was killed, so the pipe reaches its end
+  // promptly unless a descendant escaped the group; the wait is bounded
+  // either way.
+  if (st.reaped) supervisor_->Wait(lock, eof_wait, nullptr, [&st] { return st.output_eof || st.closed; });
+  if (st.tail.size() <= st.tail_bytes) return st.tail;
+  return st.tail.substr(st.tail.size() - st.tail_bytes);
 }
 
 absl::StatusOr<std::string> ChildProcess::ReadReadyLine(std::chrono::milliseconds timeout,
                                                         const std::atomic<bool>* stop) {
-  if (ready_fd_ < 0) return absl::FailedPreconditionError("no ready pipe");
-  const auto deadline = std::chrono::steady_clock::now() + timeout;
-  for (;;) {
-    const auto nl = ready_buffer_.find('\n');
-    if (nl != std::string::npos) {
-      std::string line = ready_buffer_.substr(0, nl);
-      ready_buffer_.erase(0, nl + 1);
-      return line;
-    }
-    if (ready_buffer_.size() > 4096) {
-      return absl::InvalidArgumentError("handshake line longer than 4096 bytes");
-    }
-    if (stop != nullptr && stop->load()) return absl::CancelledError("interrupted");
-    const auto left =
-        std::chrono::duration_cast<std::chrono::milliseconds>(deadline - std::chrono::steady_clock::now());
-    if (left.count() <= 0) {
-      return absl::DeadlineExceededError(absl::StrCat("no address on WEIR_READY_FD within ", timeout.count(), " ms"));
-    }
-    pollfd p{ready_fd_, POLLIN, 0};
-    const int r = ::poll(&p, 1, static_cast<int>(std::min<long long>(left.count(), 100)));
-    if (r < 0 && errno != EINTR) return absl::InternalError("poll failed");
-    if (r <= 0) continue;
-    char buf[512];
-    const ssize_t n = ::read(ready_fd_, buf, sizeof buf);
-    if (n > 0) {
-      ready_buffer_.append(buf, static_cast<std::size_t>(n));
-    } else if (n == 0) {
-      return absl::UnavailableError("closed WEIR_READY_FD without writing its address");
-    } else if (errno != EINTR && errno != EAGAIN) {
-      return absl::InternalError("read failed");
-    }
+  if (!has_ready_pipe_ || closed_) return absl::FailedPreconditionError("no ready pipe");
+  State& st = *state_;
+  std::unique_lock<std::mutex> lock(supervisor_->mu());
+  const Supervisor::WaitEnd end = supervisor_->Wait(lock, timeout, stop, [&st] {
+    return ReadyLineComplete(st.ready_buffer) || st.ready_closed || !st.ready_error.empty();
+  });
+  const auto nl = st.ready_buffer.find('\n');
+  if (nl != std::string::npos) {
+    std::string line = st.ready_buffer.substr(0, nl);
+    st.ready_buffer.erase(0, nl + 1);
+    lock.unlock();
+    std::shared_ptr<State> shared = state_;
+    Supervisor& sup = *supervisor_;
+    sup.Post([&sup, shared] {  // read on for a next line, if anyone asks
+      if (!shared->ready_reading && shared->ready.is_open()) ReadReady(sup, shared);
+    });
+    return line;
   }
+  if (st.ready_buffer.size() > 4096) {
+    return absl::InvalidArgumentError("handshake line longer than 4096 bytes");
+  }
+  if (end == Supervisor::WaitEnd::kStopped) return absl::CancelledError("interrupted");
+  if (st.ready_closed) return absl::UnavailableError("closed WEIR_READY_FD without writing its address");
+  if (!st.ready_error.empty()) return absl::InternalError(absl::StrCat("read failed: ", st.ready_error));
+  return absl::DeadlineExceededError(absl::StrCat("no address on WEIR_READY_FD within ", timeout.count(), " ms"));
 }
 
 std::optional<std::string> ChildProcess::TryReap(std::chrono::milliseconds wait) {
-  if (reaped_) return exit_description_;
-  if (pid_ <= 0) return std::nullopt;
-  const auto deadline = std::chrono::steady_clock::now() + wait;
-  for (;;) {
-    int status = 0;
-    const pid_t r = ::waitpid(pid_, &status, WNOHANG);
-    if (r == pid_) {
-      reaped_ = true;
-      exit_description_ = DescribeWaitStatus(status);
-      // Whatever it left behind in its group goes too.
-      ::kill(-pid_, SIGKILL);
-      return exit_description_;
-    }
-    if (std::chrono::steady_clock::now() >= deadline) return std::nullopt;
-    std::this_thread::sleep_for(std::chrono::milliseconds(2));
+  if (state_ == nullptr || pid_ <= 0) return std::nullopt;
+  State& st = *state_;
+  std::unique_lock<std::mutex> lock(supervisor_->mu());
+  supervisor_->Wait(lock, wait, nullptr, [&st] { return st.reaped; });
+  if (!st.reaped) return std::nullopt;
+  if (!group_killed_) {
+    // Whatever it left behind in its group goes too.
+    group_killed_ = true;
+    ::kill(-pid_, SIGKILL);
   }
+  return st.exit_description;
 }
 
 void ChildProcess::Kill() {
-  if (pid_ > 0) {
-    ::kill(-pid_, SIGKILL);
-    if (!reaped_) {
-      int status = 0;
-      while (::waitpid(pid_, &status, 0) < 0 && errno == EINTR) {
-      }
-      reaped_ = true;
-      exit_description_ = DescribeWaitStatus(status);
+  if (state_ == nullptr || closed_) return;
+  closed_ = true;
+  State& st = *state_;
+  Supervisor& sup = *supervisor_;
+  if (pid_ > 0) ::kill(-pid_, SIGKILL);
+  std::shared_ptr<State> shared = state_;
+  sup.Post([&sup, shared] {
+    // Keep what is already in the pipe (bounded, in case an escaped
+    // grandchild keeps writing), then close both pipes.
+    boost::system::error_code ec;
+    std::size_t after_stop = 0;
+    if (shared->output.is_open()) shared->output.non_blocking(true, ec);
+    while (!ec && shared->output.is_open() && after_stop <= (1u << 20)) {
+      const std::size_t n = shared->output.read_some(boost::asio::buffer(shared->output_chunk), ec);
+      if (n == 0) break;
+      if (shared->echo_fd >= 0) Echo(shared->echo_fd, shared->output_chunk.data(), n);
+      std::lock_guard<std::mutex> lock(sup.mu());
+      AppendTail(*shared, shared->output_chunk.data(), n);
+      after_stop += n;
     }
-  }
-  if (reader_.joinable()) {
-    stop_reader_.store(true);
-    reader_.join();
-  }
-  CloseFd(output_fd_);
-  CloseFd(ready_fd_);
+    boost::system::error_code ignored;
+    shared->output.close(ignored);
+    shared->ready.close(ignored);
+    {
+      std::lock_guard<std::mutex> lock(sup.mu());
+      shared->closed = true;
+    }
+    sup.WakeAll();
+  });
+  // SIGKILL cannot be caught or ignored: the process ends and the loop reaps
+  // it; no bound is needed for either, and none may cut it short (a process
+  // left unreaped is the one thing this must not do).
+  std::unique_lock<std::mutex> lock(sup.mu());
+  sup.Wait(lock, std::chrono::hours(24 * 365), nullptr, [&st] { return st.reaped && st.closed; });
 }
 
 }  // namespace weir

@@ -6,22 +6,26 @@
 // whole group (children that outlive the connector die too) and reaps it; the
 // destructor kills as well, so no exit path leaves a process behind.
 //
-// Thread safety: one owner thread; the stderr reader thread is internal.
+// The pipes and the process's end are watched by a Supervisor's event loop
+// (supervisor.h), shared by every process weir starts: no thread per
+// process, no polling; each wait here is a bounded wait on that loop.
+//
+// Thread safety: one owner thread; the loop's handlers share the state
+// under the supervisor's lock.
 #pragma once
 
 #include <sys/types.h>
 
 #include <atomic>
 #include <chrono>
-#include <condition_variable>
 #include <map>
-#include <mutex>
+#include <memory>
 #include <optional>
 #include <string>
-#include <thread>
 #include <vector>
 
 #include "absl/status/statusor.h"
+#include "harness/edge/supervisor.h"
 
 namespace weir {
 
@@ -39,6 +43,9 @@ class ChildProcess {
     // descriptor as it comes (weir's stderr, for a connector under a
     // debugger). Not owned; it must stay open while the process runs.
     int echo_fd = -1;
+    // Whose loop watches the process; null: Supervisor::Shared(). Must
+    // outlive the ChildProcess.
+    Supervisor* supervisor = nullptr;
   };
 
   // Starts the process. Error: exec or pipe setup failed (argv[0] not found…).
@@ -53,42 +60,39 @@ class ChildProcess {
   // Reads one line from the ready pipe, waiting at most `timeout` (wall).
   // Errors: DEADLINE_EXCEEDED on timeout, UNAVAILABLE when the pipe closed
   // (the child exited or closed it) before a newline.
-  // CANCELLED when `stop` (if given) becomes true first.
+  // CANCELLED when `stop` (if given) becomes true first (a stop signal wakes
+  // the wait at once: Supervisor::OnStopSignals).
   [[nodiscard]] absl::StatusOr<std::string> ReadReadyLine(std::chrono::milliseconds timeout,
                                                           const std::atomic<bool>* stop = nullptr);
 
   // If the process has ended, reaps it and returns how ("exit code 3",
-  // "signal 9 (SIGKILL)"); waits at most `wait` for it to end.
+  // "signal 9 (SIGKILL)"); waits at most `wait` for it to end. The first
+  // time it reports the end it kills what is left of the process group.
   std::optional<std::string> TryReap(std::chrono::milliseconds wait);
 
-  // SIGKILL to the process group, then reaps. Idempotent.
+  // SIGKILL to the process group, waits until it is reaped, reads what is
+  // already in the output pipe and closes the pipes. Idempotent.
   void Kill();
 
   // The last bytes the process wrote to stdout/stderr. Once the process has
   // been reaped, first waits (at most `eof_wait` of wall time, 2 s by
-  // default so that load does not change it) until the reader has seen the
+  // default so that load does not change it) until the loop has seen the
   // end of the pipe, so text written just before exiting is not missed: the
   // tail goes into the trace.
   std::string OutputTail(std::chrono::milliseconds eof_wait = std::chrono::milliseconds(2000));
 
+  // What the supervisor's loop knows of the process (child_process.cc).
+  struct State;
+
  private:
   ChildProcess() = default;
-  void ReadOutput();
 
+  Supervisor* supervisor_ = nullptr;
+  std::shared_ptr<State> state_;
   pid_t pid_ = -1;
-  bool reaped_ = false;
-  std::string exit_description_;
-  int ready_fd_ = -1;
-  std::string ready_buffer_;
-  int output_fd_ = -1;
-  std::thread reader_;
-  std::atomic<bool> stop_reader_{false};
-  std::mutex tail_mu_;
-  std::condition_variable output_ended_;
-  bool output_eof_ = false;  // guarded by tail_mu_; reader finished
-  std::string tail_;
-  std::size_t tail_bytes_ = 8192;
-  int echo_fd_ = -1;
+  bool group_killed_ = false;  // TryReap killed what was left of the group
+  bool has_ready_pipe_ = false;
+  bool closed_ = false;  // Kill() ran
 };
 
 // "exit code 3" / "signal 11 (SIGSEGV)" for a waitpid status.

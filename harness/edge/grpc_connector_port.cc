@@ -81,7 +81,16 @@ ConnectorFailure GrpcConnectorPort::Interrupted() {
 }
 
 ConnectorFailure GrpcConnectorPort::Start(std::uint64_t incarnation) {
+  using Clock = std::chrono::steady_clock;
+  phases_ = {};
+  auto mark = Clock::now();
+  const auto phase = [&mark](std::chrono::nanoseconds& into) {
+    const auto now = Clock::now();
+    into = now - mark;
+    mark = now;
+  };
   Kill();
+  phase(phases_.kill);
   ChildProcess::Options spawn;
   spawn.argv = options_.wrapper_argv;
   spawn.argv.insert(spawn.argv.end(), options_.argv.begin(), options_.argv.end());
@@ -91,12 +100,14 @@ ConnectorFailure GrpcConnectorPort::Start(std::uint64_t incarnation) {
   spawn.env["WEIR_READY_FD"] = "3";
   spawn.env["WEIR_INCARNATION"] = std::to_string(incarnation);
   auto child = ChildProcess::Spawn(spawn);
+  phase(phases_.spawn);
   if (!child.ok()) {
     return ConnectorFailure{ConnectorFailure::Kind::kStartFailed, std::string(child.status().message()), "", ""};
   }
   child_ = std::move(*child);
   const std::chrono::milliseconds start_timeout = options_.wall_bounds ? options_.start_timeout : kUnbounded;
   auto line = child_->ReadReadyLine(start_timeout, options_.stop);
+  phase(phases_.handshake);
   if (absl::IsCancelled(line.status())) return Interrupted();
   if (!line.ok()) {
     // Alive but silent: it hangs in start-up. Gone: it exited.
@@ -127,6 +138,7 @@ ConnectorFailure GrpcConnectorPort::Start(std::uint64_t incarnation) {
         absl::StrCat("the connector reported address ", address, ", but nothing accepted a connection there within ",
                      options_.start_timeout.count(), " ms"));
   }
+  phase(phases_.connect);
   stub_ = std::make_unique<grpc::GenericStub>(channel_);
   address_ = address;
   return {};

@@ -86,6 +86,15 @@ class GrpcConnectorPort : public ConnectorPort {
   const std::string& connector_address() const { return address_; }
   const std::string& broker_address() const { return options_.broker_address; }
 
+  // Where the last Start()'s wall time went (bench/supervise_cost).
+  struct StartPhases {
+    std::chrono::nanoseconds kill{0};       // ending the previous incarnation
+    std::chrono::nanoseconds spawn{0};      // launching the process
+    std::chrono::nanoseconds handshake{0};  // to its address line: exec, loading, its server's start
+    std::chrono::nanoseconds connect{0};    // a channel to that address, connected
+  };
+  const StartPhases& last_start_phases() const { return phases_; }
+
  private:
   ConnectorFailure Invoke(const char* name, const google::protobuf::Message& request,
                           google::protobuf::Message* response, BrokerEndpoint& broker);
@@ -102,6 +111,7 @@ class GrpcConnectorPort : public ConnectorPort {
   // Generic, so that an answer that is no message at all, or bytes that do
   // not parse, can be told apart from an empty answer.
   std::unique_ptr<grpc::GenericStub> stub_;
+  StartPhases phases_;
 };
 
 // True for addresses weir may talk to without an explicit opt-in: loopback

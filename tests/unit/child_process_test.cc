@@ -1,6 +1,7 @@
 // ChildProcess: what a connector writes just before it exits is in the
-// captured tail once the process has been reaped (the reader thread may lag
-// behind waitpid), the tail stays bounded, and Kill() takes the whole group.
+// captured tail once the process has been reaped (the loop may see the exit
+// before the pipe's last bytes), the tail stays bounded, and Kill() takes
+// the whole group. These start real processes: label e2e.
 #include <signal.h>
 
 #include <chrono>
@@ -27,9 +28,9 @@ std::unique_ptr<ChildProcess> SpawnShell(const std::string& script, std::size_t 
 }
 
 TEST(ChildProcessTest, LastWordsBeforeExitAreInTheTailAfterReap) {
-  // Repeated: the race between waitpid and the reader thread is timing
-  // dependent; before the reader's end of output was awaited this lost the
-  // text in some of the runs on a loaded machine.
+  // Repeated: the race between the exit and the pipe's end is timing
+  // dependent; before the end of output was awaited this lost the text in
+  // some of the runs on a loaded machine.
   for (int i = 0; i < 100; ++i) {
     auto child = SpawnShell("printf '<script>last words %s</script>' 42 >&2; exit 3");
     ASSERT_NE(child, nullptr);
