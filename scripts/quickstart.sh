@@ -9,7 +9,7 @@ cd "$(dirname "$0")/.."
 phase_start=$SECONDS
 phases=()
 phase_done() {
-  phases+=("$(printf '%-34s %4d s' "$1" $((SECONDS - phase_start)))")
+  phases+=("$(printf '%-40s %4d s' "$1" $((SECONDS - phase_start)))")
   phase_start=$SECONDS
 }
 bash scripts/setup-deps.sh main
