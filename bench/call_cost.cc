@@ -243,13 +243,7 @@ WeirFigures MeasureInProcess(const RunSpec& spec) {
 
 // --- 3. restart cost ---------------------------------------------------------
 
-class NoBroker : public BrokerEndpoint {
-  CallStatus Pull(const v1::PullRequest&, v1::PullResponse*) override { return {}; }
-  CallStatus Ack(const v1::AckRequest&, v1::AckResponse*) override { return {}; }
-  CallStatus Nack(const v1::NackRequest&, v1::NackResponse*) override { return {}; }
-  CallStatus ExtendLease(const v1::ExtendLeaseRequest&, v1::ExtendLeaseResponse*) override { return {}; }
-  void OnStrayCall(const std::string&) override {}
-};
+using bench::NoBroker;
 
 // Median milliseconds of Kill + Start + Open of an incarnation over TCP.
 double MeasureRestart(const std::string& connector, int restarts) {

@@ -16,6 +16,7 @@
 #include <string>
 #include <vector>
 
+#include "harness/edge/broker_server.h"
 #include "harness/edge/child_process.h"
 #include "harness/edge/private_dir.h"
 #include "harness/run/run.h"
@@ -55,6 +56,17 @@ double MeasureEcho(const std::string& self, Transport transport, int calls, std:
 // the ready pipe, connect, answer one call and kill it: what a restart costs
 // with nothing of weir or a connector in it. Prints one line.
 double MeasureBareRestart(const std::string& self, Transport transport, int restarts);
+
+// A broker that answers every call with nothing: for timing a connector's
+// start and Open, where no broker work is wanted.
+class NoBroker : public BrokerEndpoint {
+ public:
+  CallStatus Pull(const v1::PullRequest&, v1::PullResponse*) override { return {}; }
+  CallStatus Ack(const v1::AckRequest&, v1::AckResponse*) override { return {}; }
+  CallStatus Nack(const v1::NackRequest&, v1::NackResponse*) override { return {}; }
+  CallStatus ExtendLease(const v1::ExtendLeaseRequest&, v1::ExtendLeaseResponse*) override { return {}; }
+  void OnStrayCall(const std::string&) override {}
+};
 
 // `processes` busy-looping children at normal priority for as long as this
 // value lives (killed and reaped on destruction).

@@ -36,6 +36,7 @@
 #include <vector>
 
 #include "absl/synchronization/mutex.h"
+#include "bench/echo_baseline.h"
 #include "harness/edge/broker_server.h"
 #include "harness/edge/child_process.h"
 #include "harness/edge/grpc_connector_port.h"
@@ -48,17 +49,9 @@ using Clock = std::chrono::steady_clock;
 
 double Ms(Clock::duration d) { return std::chrono::duration<double, std::milli>(d).count(); }
 
-double Percentile(std::vector<double> v, double p) {
-  if (v.empty()) return 0;
-  std::sort(v.begin(), v.end());
-  return v[std::min(v.size() - 1, static_cast<std::size_t>(p * static_cast<double>(v.size())))];
-}
-double Median(const std::vector<double>& v) { return Percentile(v, 0.5); }
-
-[[noreturn]] void Fail(const std::string& what) {
-  std::fprintf(stderr, "supervise_cost: %s\n", what.c_str());
-  std::exit(1);
-}
+using bench::Fail;
+using bench::Median;
+using bench::Percentile;
 
 int ThreadCount() {
   int n = 0;
@@ -148,13 +141,7 @@ double ExecAndLoad(const std::string& connector) {
 
 // --- 4. restart -----------------------------------------------------------------
 
-class NoBroker : public BrokerEndpoint {
-  CallStatus Pull(const v1::PullRequest&, v1::PullResponse*) override { return {}; }
-  CallStatus Ack(const v1::AckRequest&, v1::AckResponse*) override { return {}; }
-  CallStatus Nack(const v1::NackRequest&, v1::NackResponse*) override { return {}; }
-  CallStatus ExtendLease(const v1::ExtendLeaseRequest&, v1::ExtendLeaseResponse*) override { return {}; }
-  void OnStrayCall(const std::string&) override {}
-};
+using bench::NoBroker;
 
 }  // namespace
 }  // namespace weir

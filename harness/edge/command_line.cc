@@ -54,10 +54,11 @@ absl::StatusOr<std::vector<std::string>> SplitCommandLine(std::string_view text)
   return out;
 }
 
-std::optional<std::string> ResolveExecutable(const std::string& program) {
+std::optional<std::string> SearchPath(const std::string& program,
+                                      const std::function<bool(const std::string&)>& usable) {
   if (program.empty()) return std::nullopt;
   if (program.find('/') != std::string::npos) {
-    if (::access(program.c_str(), X_OK) == 0) return program;
+    if (usable(program)) return program;
     return std::nullopt;
   }
   const char* path = std::getenv("PATH");
@@ -68,10 +69,14 @@ std::optional<std::string> ResolveExecutable(const std::string& program) {
     if (end == std::string::npos) end = dirs.size();
     const std::string dir = end > start ? dirs.substr(start, end - start) : ".";
     const std::string candidate = dir + "/" + program;
-    if (::access(candidate.c_str(), X_OK) == 0) return candidate;
+    if (usable(candidate)) return candidate;
     start = end + 1;
   }
   return std::nullopt;
+}
+
+std::optional<std::string> ResolveExecutable(const std::string& program) {
+  return SearchPath(program, [](const std::string& file) { return ::access(file.c_str(), X_OK) == 0; });
 }
 
 namespace {

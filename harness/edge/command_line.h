@@ -7,6 +7,7 @@
 // paste-ready replay lines.
 #pragma once
 
+#include <functional>
 #include <optional>
 #include <string>
 #include <string_view>
@@ -24,6 +25,11 @@ std::string ShellQuote(std::string_view word);
 // Where posix_spawnp would find `program` (a path with '/', or a PATH search),
 // or nullopt when it is not an executable file.
 std::optional<std::string> ResolveExecutable(const std::string& program);
+// The PATH search behind it: `program` itself when it holds a '/', else the
+// first PATH entry (an empty entry is ".") holding it, each candidate kept only
+// when `usable` accepts it; nullopt when none is.
+std::optional<std::string> SearchPath(const std::string& program,
+                                      const std::function<bool(const std::string&)>& usable);
 std::string ShellJoin(const std::vector<std::string>& argv);
 
 // How the command lines weir prints (replay:, next:) name weir itself, so

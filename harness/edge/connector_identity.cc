@@ -10,6 +10,7 @@
 #include "absl/status/status.h"
 #include "absl/strings/match.h"
 #include "absl/strings/str_cat.h"
+#include "harness/edge/command_line.h"
 #include "harness/trace/trace_format.h"
 
 namespace weir {
@@ -75,23 +76,9 @@ absl::StatusOr<std::string> FileSha256(const std::string& path) {
 }
 
 std::optional<std::string> FindExecutableAbsolute(const std::string& program) {
-  if (program.empty()) return std::nullopt;
-  if (program.find('/') != std::string::npos) {
-    if (IsExecutableFile(program)) return Absolute(program);
-    return std::nullopt;
-  }
-  const char* path = std::getenv("PATH");
-  const std::string dirs = path != nullptr ? path : "/usr/bin:/bin";
-  std::size_t start = 0;
-  while (start <= dirs.size()) {
-    std::size_t end = dirs.find(':', start);
-    if (end == std::string::npos) end = dirs.size();
-    const std::string dir = end > start ? dirs.substr(start, end - start) : ".";
-    const std::string candidate = dir + "/" + program;
-    if (IsExecutableFile(candidate)) return Absolute(candidate);
-    start = end + 1;
-  }
-  return std::nullopt;
+  auto found = SearchPath(program, [](const std::string& file) { return IsExecutableFile(file); });
+  if (!found.has_value()) return std::nullopt;
+  return Absolute(*found);
 }
 
 absl::StatusOr<v1::ConnectorIdentity> IdentifyConnector(const std::vector<std::string>& argv) {
