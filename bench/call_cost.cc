@@ -16,7 +16,8 @@
 // usage: call_cost CONNECTOR SCENARIO [ECHO_CALLS [RESTARTS [ROUNDS [LOAD]]]]
 //   LOAD: busy-looping processes kept running beside every measurement (the
 //   loaded variant; bench/run_all.sh uses one per core), default 0.
-//   WEIR_BENCH_ECHO_SERVER=CMD: the echo child is CMD (same handshake) instead
+//   WEIR_BENCH_ECHO_SERVER=CMD: the echo child is CMD (same handshake; words split
+//   and quoted as in --connector) instead
 //   of this binary, e.g. the Go echo server to measure a Go connector against
 //   gRPC for Go's own round trip.
 //   defaults: 20000 echo calls per transport, 30 restarts, 5 rounds. A round

@@ -11,6 +11,7 @@
 #include <grpcpp/grpcpp.h>
 
 #include "echo.grpc.pb.h"  // generated from bench/echo.proto
+#include "harness/edge/command_line.h"
 
 namespace weir::bench {
 namespace {
@@ -71,7 +72,12 @@ EchoChild StartEcho(const std::string& self, const ListenAddress& listen) {
   // Another echo server with the same handshake (e.g. one written in Go, to
   // measure a Go connector against its own language's round trip).
   if (const char* other = std::getenv("WEIR_BENCH_ECHO_SERVER"); other != nullptr && *other != '\0') {
-    spawn.argv = {other};
+    auto words = SplitCommandLine(other);
+    if (!words.ok() || words->empty()) {
+      Fail("WEIR_BENCH_ECHO_SERVER: " +
+           (words.ok() ? std::string("no command") : std::string(words.status().message())));
+    }
+    spawn.argv = std::move(*words);
   }
   spawn.env["WEIR_LISTEN_ADDRESS"] = listen.address;
   auto child = ChildProcess::Spawn(spawn);

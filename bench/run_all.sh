@@ -16,9 +16,10 @@
 # Needs: the targets weir, reference_connector, call_cost, certify_floor,
 # oracle_bench, log_oracle_bench, suite_throughput and supervise_cost
 # (`ninja -C build weir reference_connector call_cost certify_floor
-# oracle_bench log_oracle_bench suite_throughput supervise_cost`), and for the
-# Python figures the Python stubs (build/adapters/python) with Debian's
-# python3-grpcio.
+# oracle_bench log_oracle_bench suite_throughput supervise_cost bench_python_echo
+# weir_python`), and for the
+# Python figures the Python stubs (build/adapters/python, build/bench/python)
+# with Debian's python3-grpcio.
 set -euo pipefail
 ROOT=$(cd "$(dirname "$0")/.." && pwd)
 BUILD=${WEIR_BUILD_DIR:-build}
@@ -47,6 +48,10 @@ for exe in "$WEIR" "$CONNECTOR" "$BUILD/bench/call_cost" "$BUILD/bench/certify_f
     exit 2
   fi
 done
+if [[ ! -f $BUILD/bench/python/echo_pb2.py || ! -f $BUILD/adapters/python/weir/v1/connector_pb2.py ]]; then
+  echo "run_all.sh: the Python stubs are missing; build them first (ninja -C build bench_python_echo weir_python)" >&2
+  exit 2
+fi
 
 if ((TINY)); then
   STEADY=$ROOT/fixtures/scenarios/steady_parcel_scanners.scenario
@@ -67,6 +72,9 @@ else
 fi
 CORES=$(nproc)
 PY_REFERENCE=$ROOT/fixtures/connectors/python/reference.py
+PY_ECHO=$ROOT/bench/python/echo_server.py
+PY_PATH=$BUILD/bench/python:$BUILD/adapters/python
+if ((TINY)); then PY_ECHO_CALLS=100 PY_RESTARTS=2 PY_FLOOR_ECHO=100; else PY_ECHO_CALLS=2000 PY_RESTARTS=10 PY_FLOOR_ECHO=2000; fi
 
 OUT=${BENCH_OUT:-$(mktemp -d "${TMPDIR:-/tmp}/weir-bench-XXXXXX")}
 mkdir -p "$OUT"
@@ -111,10 +119,22 @@ for ((i = 1; i <= REPEATS; i++)); do
   log=$OUT/floor_cpp.$i.log
   run certify_floor "$log" "$BUILD/bench/certify_floor" "$FLOOR_SUITE" "$CORES" "$FLOOR_ECHO" "$FLOOR_RESTARTS" -- "$CONNECTOR"
   grep '^result ' "$log" | cut -d' ' -f2- | sed 's/^/floor_cpp_/' >>"$VALUES"
+  # The Python reference against Python's own floor: the bare Python echo's
+  # round trip and the bare restart of a Python process (echo_server.py).
   log=$OUT/floor_python.$i.log
-  run certify_floor_python "$log" env PYTHONPATH="$BUILD/adapters/python" \
-    "$BUILD/bench/certify_floor" "$FLOOR_SUITE" "$CORES" "$FLOOR_ECHO" "$FLOOR_RESTARTS" -- "$PY_REFERENCE"
+  run certify_floor_python "$log" env PYTHONPATH="$PY_PATH" WEIR_BENCH_ECHO_SERVER="$PY_ECHO pool" \
+    "$BUILD/bench/certify_floor" "$FLOOR_SUITE" "$CORES" "$PY_FLOOR_ECHO" "$FLOOR_RESTARTS" -- "$PY_REFERENCE"
   grep '^result ' "$log" | cut -d' ' -f2- | sed 's/^/floor_python_/' >>"$VALUES"
+
+  # Python cost per call against the bare Python echo (grpc.server with a
+  # thread pool, the plain way), and against the echo served by the adapter's
+  # own completion loop (context: what serving alone costs).
+  for serving in pool loop; do
+    log=$OUT/python_call_cost_$serving.$i.log
+    run python_call_cost "$log" env PYTHONPATH="$PY_PATH" WEIR_BENCH_ECHO_SERVER="$PY_ECHO $serving" \
+      "$BUILD/bench/call_cost" "$PY_REFERENCE" "$STEADY" "$PY_ECHO_CALLS" "$PY_RESTARTS" "$ROUNDS"
+    grep '^result ' "$log" | cut -d' ' -f2- | sed "s/^/python_${serving}_/" >>"$VALUES"
+  done
 
   log=$OUT/idle_hour.$i.log
   run idle_hour "$log" bash "$ROOT/bench/idle_hour.sh" "$WEIR" "$CONNECTOR" "$IDLE"
@@ -230,7 +250,20 @@ floor_py=$(median floor_python_floor_ratio)
 printf '| 8 | certify floor, C++ reference, %s --jobs %s: wall / floor | %s s / %s s = %sx | <= 1.3x | %s |\n' \
   "$(basename "$FLOOR_SUITE")" "$CORES" "$(median floor_cpp_wall_s)" "$(median floor_cpp_floor_s)" "$floor_cpp" \
   "$(verdict "$floor_cpp" '<=' 1.3)"
-printf '| 8 | certify floor, Python reference, same suite: wall / floor | %s s / %s s = %sx | <= 1.3x | %s |\n' \
+printf '| 8 | certify floor, Python reference, same suite, floor of Python'"'"'s own echo and restart: wall / floor | %s s / %s s = %sx | <= 1.3x | %s |\n' \
   "$(median floor_python_wall_s)" "$(median floor_python_floor_s)" "$floor_py" "$(verdict "$floor_py" '<=' 1.3)"
+py_vs_cpp=$(awk -v p="$(median floor_python_wall_s)" -v c="$(median floor_cpp_wall_s)" 'BEGIN { printf "%.2f", (c > 0 ? p / c : 0) }')
+printf '| 8 | Python reference wall / C++ reference wall, same suite and calls | %sx | <= 1.5x | %s |\n' \
+  "$py_vs_cpp" "$(verdict "$py_vs_cpp" '<=' 1.5)"
+py_tcp=$(median python_pool_weir_tcp_ratio)
+py_unix=$(median python_pool_weir_unix_ratio)
+printf '| 9 | Python reference cost per call / bare Python echo (grpc.server, thread pool), TCP | %s us / %s us = %sx | <= 1.5x | %s |\n' \
+  "$(median python_pool_weir_tcp_us)" "$(median python_pool_echo_tcp_us)" "$py_tcp" "$(verdict "$py_tcp" '<=' 1.5)"
+printf '| 9 | Python reference cost per call / bare Python echo (grpc.server, thread pool), Unix socket | %s us / %s us = %sx | <= 1.5x | %s |\n' \
+  "$(median python_pool_weir_unix_us)" "$(median python_pool_echo_unix_us)" "$py_unix" "$(verdict "$py_unix" '<=' 1.5)"
+printf '| 9 | (context) the same against the echo served by the adapter'"'"'s completion loop, TCP, Unix | %s us = %sx, %s us = %sx | | |\n' \
+  "$(median python_loop_echo_tcp_us)" "$(median python_loop_weir_tcp_ratio)" \
+  "$(median python_loop_echo_unix_us)" "$(median python_loop_weir_unix_ratio)"
+printf '| 9 | restart of a Python connector: kill + start + Open, median | %s ms | | |\n' "$(median python_pool_restart_ms)"
 echo
 ((TINY)) || echo "raw output: $OUT"

@@ -15,6 +15,7 @@ import traceback
 
 import grpc
 
+from . import loop
 from .source import (ADVANCE, ASSIGN, CHECKPOINT, COMMITTED, CUT, OPEN, REVOKE, Bookmark,
                      BrokerClient, BrokerStatus, Context, OpenInfo, ReadResult, SourceError,
                      SourceShape, Span)
@@ -384,13 +385,43 @@ def _listened_address(requested, port):
     return f"{host}:{port}"
 
 
-def serve(source):
-    """Serves `source` until the process is killed. Reads the environment:
+LOOP = "loop"
+POOL = "pool"
+SERVING_ENV = "WEIR_PYTHON_SERVING"
+_SERVER_OPTIONS = (
+    # Without this a second server could silently share the port.
+    ("grpc.so_reuseport", 0),
+    ("grpc.max_receive_message_length", -1),
+    ("grpc.max_send_message_length", -1),
+)
+
+
+def _server(serving):
+    """The gRPC server for `serving`: LOOP (one thread, one completion loop:
+    loop.py) or POOL (grpc.server() with one worker). None: the environment's
+    WEIR_PYTHON_SERVING if set, else LOOP where this grpcio has what it
+    needs, else POOL."""
+    if serving is None:
+        serving = os.environ.get(SERVING_ENV) or (LOOP if loop.available() else POOL)
+    if serving == LOOP:
+        return loop.LoopServer(_SERVER_OPTIONS)
+    if serving == POOL:
+        from concurrent.futures import ThreadPoolExecutor
+        return grpc.server(ThreadPoolExecutor(max_workers=1), options=_SERVER_OPTIONS)
+    raise ValueError(f"serving is {serving!r}; expected {LOOP!r} or {POOL!r}")
+
+
+def serve(source, serving=None):
+    """Serves `source` until the process is killed, on the calling thread
+    (serving LOOP, the default where grpcio allows) or on a one-worker thread
+    pool (POOL); both call the source strictly one call at a time and answer
+    alike. Reads the environment:
       WEIR_BROKER_ADDRESS  gRPC target of the Broker service;
       WEIR_LISTEN_ADDRESS  where to listen: "host:port" (port 0: the OS picks)
                            or "unix:/path";
       WEIR_READY_FD        descriptor on which the address actually listened on
-                           is written with a trailing newline, then closed.
+                           is written with a trailing newline, then closed;
+      WEIR_PYTHON_SERVING  optional, when `serving` is None: "loop" or "pool".
     Connector calls reach the source strictly one at a time. Returns a process
     exit code: 2 (after a one-line message on stderr) when the environment is
     missing or bad, or the address cannot be listened on."""
@@ -410,15 +441,11 @@ def serve(source):
         return _startup_error(f"WEIR_READY_FD {ready_fd} is not an open file descriptor "
                               f"({e.strerror})")
 
-    from concurrent.futures import ThreadPoolExecutor
-
+    try:
+        server = _server(serving)
+    except ValueError as e:
+        return _startup_error(f"{e} ({SERVING_ENV} or serve(serving=...))")
     broker = GrpcBrokerClient(broker_address)
-    server = grpc.server(ThreadPoolExecutor(max_workers=1), options=[
-        # Without this a second server could silently share the port.
-        ("grpc.so_reuseport", 0),
-        ("grpc.max_receive_message_length", -1),
-        ("grpc.max_send_message_length", -1),
-    ])
     connector_pb2_grpc.add_ConnectorServicer_to_server(_ConnectorService(source, broker), server)
     try:
         port = server.add_insecure_port(listen_address)
@@ -437,10 +464,13 @@ def serve(source):
         server.stop(None)
         return _startup_error(f"cannot write the listen address to WEIR_READY_FD {ready_fd} "
                               f"({e.strerror})")
-    server.wait_for_termination()
+    if isinstance(server, loop.LoopServer):
+        server.serve()
+    else:
+        server.wait_for_termination()
     return 0
 
 
-def serve_forever(source):
-    """serve(source), then exits the process with its exit code."""
-    sys.exit(serve(source))
+def serve_forever(source, serving=None):
+    """serve(source, serving), then exits the process with its exit code."""
+    sys.exit(serve(source, serving))
