@@ -3,7 +3,8 @@
 # certified on the quick suite and gives the same trace digest as the C++
 # reference on every run (same broker calls at the same virtual times, jitter
 # included); each Python mutant is refused with its expected invariant; the
-# guide's example passes; a connector started outside weir refuses with exit 2.
+# guide's example passes; a connector started outside weir refuses with exit 2;
+# the thread-pool way of serving gives the same traces as the completion loop.
 # Two parts, so CTest can run them side by side:
 #   python_adapter.sh reference WEIR CPP_REFERENCE SOURCE_DIR PYTHON_DIR
 #   python_adapter.sh mutants   WEIR CPP_REFERENCE SOURCE_DIR PYTHON_DIR
@@ -44,6 +45,19 @@ quick_runs=$(( $(grep -c '\.scenario"' "$SRC/fixtures/suites/quick.suite") * $(s
 check "reports list $quick_runs run digests" test "$(wc -l <"$WORK/py.digests")" -eq "$quick_runs"
 check "python and C++ references give identical traces on every run" \
   cmp -s "$WORK/py.digests" "$WORK/cpp.digests"
+
+# 2b. Served by gRPC's thread-pool server instead of the adapter's completion
+#     loop (WEIR_PYTHON_SERVING=pool, the way back when a grpcio lacks what
+#     the loop uses): the same traces.
+WEIR_PYTHON_SERVING=pool "$WEIR" certify --suite "$SRC/fixtures/suites/quick.suite" --connector "$PY/reference.py" \
+  --jobs 2 --progress none --json "$WORK/pool.json" >"$WORK/pool.out" 2>&1
+check "python reference served by the thread pool is CERTIFIED" grep -q '^CERTIFIED' "$WORK/pool.out"
+digests "$WORK/pool.json" >"$WORK/pool.digests"
+check "and gives the same traces as served by the completion loop" cmp -s "$WORK/pool.digests" "$WORK/py.digests"
+WEIR_PYTHON_SERVING=threads WEIR_BROKER_ADDRESS=127.0.0.1:1 WEIR_LISTEN_ADDRESS=127.0.0.1:0 WEIR_READY_FD=1 \
+  "$PY/reference.py" >"$WORK/serving.out" 2>&1
+check "an unknown WEIR_PYTHON_SERVING exits 2 (got $?)" test $? -eq 2
+check "and says what it expected" grep -q "serving is 'threads'; expected 'loop' or 'pool'" "$WORK/serving.out"
 
 # 3. Outside weir, or with a bad flag: one clear line, exit 2.
 env -u WEIR_BROKER_ADDRESS "$PY/reference.py" >"$WORK/noenv.out" 2>&1
