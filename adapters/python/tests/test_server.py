@@ -2,6 +2,7 @@
 sockets: the Connector service's answers, how a source's exceptions and misuse
 become failed calls, and how broker failures become BrokerStatus values."""
 
+import os
 import unittest
 
 import grpc
@@ -158,6 +159,37 @@ class BrokerFailureTest(unittest.TestCase):
         self.assertEqual(grpc.StatusCode.RESOURCE_EXHAUSTED.value[0], 8)
         self.assertEqual(grpc.StatusCode.UNAVAILABLE.value[0], 14)
         self.assertTrue(BrokerStatus().ok)
+
+
+class ServingTest(unittest.TestCase):
+    def setUp(self):
+        self.saved_env = os.environ.pop(serve_module.SERVING_ENV, None)
+        self.saved_available = serve_module.loop.available
+
+    def tearDown(self):
+        serve_module.loop.available = self.saved_available
+        if self.saved_env is not None:
+            os.environ[serve_module.SERVING_ENV] = self.saved_env
+
+    def test_loop_by_default_where_grpcio_allows(self):
+        if not serve_module.loop.available():
+            self.skipTest("this grpcio lacks the completion-queue layer")
+        self.assertIsInstance(serve_module._server(None), serve_module.loop.LoopServer)
+
+    def test_a_grpcio_without_the_loop_falls_back_to_the_pool(self):
+        serve_module.loop.available = lambda: False
+        self.assertNotIsInstance(serve_module._server(None), serve_module.loop.LoopServer)
+        with self.assertRaises(RuntimeError):
+            serve_module._server(serve_module.LOOP)
+
+    def test_the_environment_picks_when_the_caller_does_not(self):
+        os.environ[serve_module.SERVING_ENV] = serve_module.POOL
+        self.assertNotIsInstance(serve_module._server(None), serve_module.loop.LoopServer)
+        os.environ[serve_module.SERVING_ENV] = "threads"
+        with self.assertRaises(ValueError) as raised:
+            serve_module._server(None)
+        self.assertIn("expected 'loop' or 'pool'", str(raised.exception))
+        os.environ.pop(serve_module.SERVING_ENV)
 
 
 class ListenedAddressTest(unittest.TestCase):

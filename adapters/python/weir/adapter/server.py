@@ -402,7 +402,12 @@ def _server(serving):
     WEIR_PYTHON_SERVING if set, else LOOP where this grpcio has what it
     needs, else POOL."""
     if serving is None:
-        serving = os.environ.get(SERVING_ENV) or (LOOP if loop.available() else POOL)
+        serving = os.environ.get(SERVING_ENV)
+    if not serving:
+        try:
+            return loop.LoopServer(_SERVER_OPTIONS)
+        except Exception:  # this grpcio's Cython layer is not what the loop expects
+            serving = POOL
     if serving == LOOP:
         return loop.LoopServer(_SERVER_OPTIONS)
     if serving == POOL:
