@@ -10,6 +10,7 @@ import (
 	"os"
 	"path/filepath"
 	"strings"
+	"syscall"
 	"testing"
 	"time"
 
@@ -109,10 +110,18 @@ func serveForTest(t *testing.T, src Source, listen string) (weirv1.ConnectorClie
 		t.Fatal(err)
 	}
 	defer r.Close()
+	// Serve closes the ready descriptor it is given, so it gets a copy of its
+	// own: handing it w's would close that number twice (w's finalizer closes
+	// it again once w is collected, whatever file has reused it by then).
+	readyFD, err := syscall.Dup(int(w.Fd()))
+	w.Close()
+	if err != nil {
+		t.Fatal(err)
+	}
 	ctx, cancel := context.WithCancel(context.Background())
 	served := make(chan error, 1)
 	go func() {
-		served <- Serve(ctx, src, Config{BrokerAddress: brokerListener.Addr().String(), ListenAddress: listen, ReadyFD: int(w.Fd())})
+		served <- Serve(ctx, src, Config{BrokerAddress: brokerListener.Addr().String(), ListenAddress: listen, ReadyFD: readyFD})
 	}()
 	t.Cleanup(func() {
 		cancel()
