@@ -6,12 +6,14 @@ import (
 	"fmt"
 	"math"
 	"strconv"
+	"strings"
 	"time"
 
 	"google.golang.org/grpc"
 	"google.golang.org/grpc/codes"
 	"google.golang.org/grpc/metadata"
 	"google.golang.org/grpc/status"
+	"google.golang.org/protobuf/proto"
 
 	weirv1 "weir/v1"
 )
@@ -150,10 +152,13 @@ func trailingInt(md metadata.MD, key string) (int64, bool) {
 }
 
 // failed turns a failed gRPC call into a *BrokerError. weir sends a
-// RetryAfter or OffsetOutOfRange message as the status details; gRPC for Go
-// reads the details header as a whole status and lets it replace the code
-// and message, so the code of those two answers is taken from the trailing
-// metadata that comes with them.
+// throttle's and an out-of-range read's status details as a whole
+// google.rpc.Status with the call's code and message, its details holding a
+// RetryAfter or OffsetOutOfRange packed in an Any; gRPC for Go lets that
+// status replace the code and message of the call, which weir keeps equal.
+// The trailing metadata of those two answers names their code too, and is
+// what the code is taken from when it is there: status details gRPC for Go
+// could not take as a whole status would otherwise leave a wrong code.
 func failed(method string, err error, md metadata.MD) *BrokerError {
 	st, _ := status.FromError(err)
 	be := &BrokerError{Method: method, Code: st.Code(), Message: st.Message()}
@@ -181,7 +186,27 @@ func failed(method string, err error, md metadata.MD) *BrokerError {
 			be.FirstRetainedOffset, be.HasFirstRetainedOffset = off, true
 		}
 	}
+	if be.OutOfRange() && !be.HasFirstRetainedOffset {
+		var detail weirv1.OffsetOutOfRange
+		if unpackDetail(st, &detail) {
+			be.FirstRetainedOffset, be.HasFirstRetainedOffset = detail.FirstRetainedOffset, true
+		}
+	}
 	return be
+}
+
+// unpackDetail fills m from the first of st's details that is a message of
+// m's type (an Any whose type URL ends in "/" and m's full name); false when
+// there is none or it does not parse.
+func unpackDetail(st *status.Status, m proto.Message) bool {
+	name := string(m.ProtoReflect().Descriptor().FullName())
+	for _, packed := range st.Proto().GetDetails() {
+		url := packed.GetTypeUrl()
+		if url[strings.LastIndexByte(url, '/')+1:] == name {
+			return proto.Unmarshal(packed.GetValue(), m) == nil
+		}
+	}
+	return false
 }
 
 // invoke runs one broker call with the wall-clock bound, the trailer and

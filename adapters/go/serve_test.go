@@ -10,13 +10,17 @@ import (
 	"os"
 	"path/filepath"
 	"strings"
+	"syscall"
 	"testing"
 	"time"
 
+	anypb "github.com/golang/protobuf/ptypes/any"
+	spb "google.golang.org/genproto/googleapis/rpc/status"
 	"google.golang.org/grpc"
 	"google.golang.org/grpc/codes"
 	"google.golang.org/grpc/metadata"
 	"google.golang.org/grpc/status"
+	"google.golang.org/protobuf/proto"
 
 	weirv1 "weir/v1"
 )
@@ -24,11 +28,27 @@ import (
 // These tests serve sources over real gRPC on loopback and Unix sockets,
 // against a scripted broker in the same process: no child process.
 
-// scriptedBroker answers Pull with two deliveries at now 5 s, and fails Ack
-// the way weir throttles: RESOURCE_EXHAUSTED with "weir-now-ns" and
-// "retry-after-ms" in the trailing metadata.
+// scriptedBroker answers Pull with two deliveries at now 5 s, fails Ack the
+// way weir throttles: RESOURCE_EXHAUSTED with "weir-now-ns" and
+// "retry-after-ms" in the trailing metadata and a RetryAfter in the status
+// details, and fails Read below offset 77 OUT_OF_RANGE with the first retained
+// offset in the status details only (proto/weir/v1/broker.proto).
 type scriptedBroker struct {
 	weirv1.UnimplementedBrokerServer
+}
+
+// withDetail is a status error whose details are one Any packing detail, the
+// way weir sends them: a whole google.rpc.Status with the call's code and
+// message (proto/google/rpc/status.proto); type URL "type.googleapis.com/"
+// and the message's full name, as every protobuf runtime packs an Any.
+func withDetail(code codes.Code, message string, detail proto.Message) error {
+	value, err := proto.Marshal(detail)
+	if err != nil {
+		panic(err)
+	}
+	url := "type.googleapis.com/" + string(detail.ProtoReflect().Descriptor().FullName())
+	return status.FromProto(&spb.Status{Code: int32(code), Message: message,
+		Details: []*anypb.Any{{TypeUrl: url, Value: value}}}).Err()
 }
 
 func (scriptedBroker) Pull(ctx context.Context, r *weirv1.PullRequest) (*weirv1.PullResponse, error) {
@@ -40,7 +60,13 @@ func (scriptedBroker) Pull(ctx context.Context, r *weirv1.PullRequest) (*weirv1.
 
 func (scriptedBroker) Ack(ctx context.Context, r *weirv1.AckRequest) (*weirv1.AckResponse, error) {
 	grpc.SetTrailer(ctx, metadata.Pairs(nowKey, "6000000000", retryAfterKey, "250"))
-	return nil, status.Error(codes.ResourceExhausted, "throttled: 4 calls/s")
+	return nil, withDetail(codes.ResourceExhausted, "throttled: 4 calls/s", &weirv1.RetryAfter{RetryAfterNs: 249_000_001})
+}
+
+func (scriptedBroker) Read(ctx context.Context, r *weirv1.ReadRequest) (*weirv1.ReadResponse, error) {
+	grpc.SetTrailer(ctx, metadata.Pairs(nowKey, "7000000000"))
+	return nil, withDetail(codes.OutOfRange, "first retained offset 77",
+		&weirv1.OffsetOutOfRange{Partition: r.Partition, FirstRetainedOffset: 77})
 }
 
 // funcSource is a Source whose calls are the functions given.
@@ -84,10 +110,18 @@ func serveForTest(t *testing.T, src Source, listen string) (weirv1.ConnectorClie
 		t.Fatal(err)
 	}
 	defer r.Close()
+	// Serve closes the ready descriptor it is given, so it gets a copy of its
+	// own: handing it w's would close that number twice (w's finalizer closes
+	// it again once w is collected, whatever file has reused it by then).
+	readyFD, err := syscall.Dup(int(w.Fd()))
+	w.Close()
+	if err != nil {
+		t.Fatal(err)
+	}
 	ctx, cancel := context.WithCancel(context.Background())
 	served := make(chan error, 1)
 	go func() {
-		served <- Serve(ctx, src, Config{BrokerAddress: brokerListener.Addr().String(), ListenAddress: listen, ReadyFD: int(w.Fd())})
+		served <- Serve(ctx, src, Config{BrokerAddress: brokerListener.Addr().String(), ListenAddress: listen, ReadyFD: readyFD})
 	}()
 	t.Cleanup(func() {
 		cancel()
@@ -167,7 +201,29 @@ func TestAdvanceEmitsAndTheClockFollowsTheBroker(t *testing.T) {
 	}
 	be := AsBrokerError(ackErr)
 	if be == nil || !be.Throttled() || !be.HasRetryAfter || be.RetryAfterNs != 250_000_000 || !IsThrottled(ackErr) {
-		t.Errorf("Ack error %#v, want throttled with retry-after 250 ms", be)
+		t.Errorf("Ack error %#v, want throttled with retry-after 250 ms (the trailer's)", be)
+	}
+	if be != nil && be.Message != "throttled: 4 calls/s" {
+		t.Errorf("Ack error message %q, want the status's", be.Message)
+	}
+}
+
+func TestAnOutOfRangeReadTakesTheFirstRetainedOffsetFromTheStatusDetails(t *testing.T) {
+	var readErr error
+	var nowAfterRead int64
+	src := &funcSource{advance: func(ctx context.Context, step *Step) error {
+		_, readErr = Broker(ctx).Read(ctx, 3, 12, ReadOptions{})
+		nowAfterRead = Now(ctx)
+		return nil
+	}}
+	client, _ := serveForTest(t, src, "127.0.0.1:0")
+	if _, err := client.Advance(bounded(t), &weirv1.AdvanceRequest{NowNs: 4 * second}); err != nil {
+		t.Fatal(err)
+	}
+	be := AsBrokerError(readErr)
+	if be == nil || !be.OutOfRange() || be.Message != "first retained offset 77" || !be.HasFirstRetainedOffset ||
+		be.FirstRetainedOffset != 77 || nowAfterRead != 7*second {
+		t.Errorf("Read error %#v (now %d), want OUT_OF_RANGE, first retained offset 77 at 7 s", be, nowAfterRead)
 	}
 }
 
@@ -290,8 +346,9 @@ func TestLogSourceOverAUnixSocket(t *testing.T) {
 }
 
 func TestFailedReadsTheCodeOfThrottlesAndOutOfRangeFromTheTrailer(t *testing.T) {
-	// weir sends a RetryAfter message as a throttle's status details; gRPC
-	// for Go parses it as a whole status, so the code that arrives is the
+	// Status details that are a bare RetryAfter message rather than a whole
+	// google.rpc.Status (as weir sent them before it wrapped them) are parsed
+	// by gRPC for Go as a status all the same: the code that arrives is the
 	// delay's low bits and the message is empty. The trailer tells.
 	garbled := status.Error(codes.Code(250000000), "")
 	be := failed("Pull", garbled, metadata.Pairs(nowKey, "12", retryAfterKey, "250"))
@@ -308,6 +365,34 @@ func TestFailedReadsTheCodeOfThrottlesAndOutOfRangeFromTheTrailer(t *testing.T) 
 	}
 	if huge := failed("Pull", garbled, metadata.Pairs(retryAfterKey, "9223372036854775")); huge.RetryAfterNs != math.MaxInt64 {
 		t.Errorf("a huge retry-after: %d, want MaxInt64", huge.RetryAfterNs)
+	}
+}
+
+func TestFailedReadsTheFirstRetainedOffsetFromTheDetailsOnlyWhenTheyHoldIt(t *testing.T) {
+	detail := &weirv1.OffsetOutOfRange{Partition: 3, FirstRetainedOffset: 77}
+	be := failed("Read", withDetail(codes.OutOfRange, "first retained offset 77", detail), nil)
+	if !be.OutOfRange() || !be.HasFirstRetainedOffset || be.FirstRetainedOffset != 77 {
+		t.Errorf("from the details: %#v", be)
+	}
+	// The trailer wins over the details.
+	be = failed("Read", withDetail(codes.OutOfRange, "x", detail), metadata.Pairs(firstRetainedOffsetKey, "80"))
+	if be.FirstRetainedOffset != 80 {
+		t.Errorf("trailer and details: %d, want the trailer's 80", be.FirstRetainedOffset)
+	}
+	// Details of another type, or whose value does not parse, say nothing.
+	for name, err := range map[string]error{
+		"a RetryAfter": withDetail(codes.OutOfRange, "x", &weirv1.RetryAfter{RetryAfterNs: 77}),
+		"garbage": status.FromProto(&spb.Status{Code: int32(codes.OutOfRange), Details: []*anypb.Any{
+			{TypeUrl: "type.googleapis.com/weir.v1.OffsetOutOfRange", Value: []byte{0xff, 0xff}}}}).Err(),
+		"no details": status.Error(codes.OutOfRange, "gone"),
+	} {
+		if be := failed("Read", err, nil); !be.OutOfRange() || be.HasFirstRetainedOffset {
+			t.Errorf("%s: %#v, want OUT_OF_RANGE without a first retained offset", name, be)
+		}
+	}
+	// Only an out-of-range failure carries it.
+	if be := failed("Read", withDetail(codes.Unavailable, "x", detail), nil); be.HasFirstRetainedOffset {
+		t.Errorf("UNAVAILABLE: %#v", be)
 	}
 }
 

@@ -1,8 +1,13 @@
 #include "harness/edge/broker_server.h"
 
+#include <cstdint>
+#include <string>
+#include <type_traits>
+
 #include "absl/status/status.h"
 #include "absl/strings/str_cat.h"
 #include "absl/synchronization/mutex.h"
+#include "google/rpc/status.pb.h"
 #include "weir/v1/broker.grpc.pb.h"
 
 namespace weir {
@@ -10,7 +15,19 @@ namespace {
 
 constexpr std::size_t kMaxStrayNames = 1000;
 
-grpc::Status ToGrpc(const CallStatus& status, grpc::ServerContext& context) {
+// The status details of a failed call: a whole google.rpc.Status (what gRPC
+// carries in "grpc-status-details-bin") with the call's code and message and
+// `detail` packed in one Any.
+std::string StatusDetails(grpc::StatusCode code, const std::string& message, const google::protobuf::Message& detail) {
+  google::rpc::Status status;
+  status.set_code(static_cast<std::int32_t>(code));
+  status.set_message(message);
+  status.add_details()->PackFrom(detail);
+  return status.SerializeAsString();
+}
+
+// `partition`: the partition a Read asked for (0 for other methods).
+grpc::Status ToGrpc(const CallStatus& status, std::uint32_t partition, grpc::ServerContext& context) {
   context.AddTrailingMetadata("weir-now-ns", std::to_string(status.now));
   if (status.ok()) return grpc::Status::OK;
   if (status.code == CallCode::kResourceExhausted) {
@@ -18,13 +35,16 @@ grpc::Status ToGrpc(const CallStatus& status, grpc::ServerContext& context) {
     context.AddTrailingMetadata("retry-after-ms", std::to_string(ms));
     v1::RetryAfter detail;
     detail.set_retry_after_ns(status.retry_after);
-    return grpc::Status(grpc::StatusCode::RESOURCE_EXHAUSTED, status.message, detail.SerializeAsString());
+    constexpr grpc::StatusCode kCode = grpc::StatusCode::RESOURCE_EXHAUSTED;
+    return grpc::Status(kCode, status.message, StatusDetails(kCode, status.message, detail));
   }
   if (status.code == CallCode::kOutOfRange) {
     context.AddTrailingMetadata("weir-first-retained-offset", std::to_string(status.first_retained_offset));
     v1::OffsetOutOfRange detail;
+    detail.set_partition(partition);
     detail.set_first_retained_offset(status.first_retained_offset);
-    return grpc::Status(grpc::StatusCode::OUT_OF_RANGE, status.message, detail.SerializeAsString());
+    constexpr grpc::StatusCode kCode = grpc::StatusCode::OUT_OF_RANGE;
+    return grpc::Status(kCode, status.message, StatusDetails(kCode, status.message, detail));
   }
   return grpc::Status(static_cast<grpc::StatusCode>(status.code), status.message);
 }
@@ -102,7 +122,9 @@ class MethodCall final : public BrokerServer::Call {
   CallStatus Run(BrokerEndpoint& broker) override { return (broker.*method_.run)(request_, &response_); }
   void Answer(const CallStatus& status) override {
     state_ = State::kAnswered;
-    const grpc::Status s = ToGrpc(status, context_);
+    std::uint32_t partition = 0;
+    if constexpr (std::is_same_v<Request, v1::ReadRequest>) partition = request_.partition();
+    const grpc::Status s = ToGrpc(status, partition, context_);
     if (s.ok()) {
       responder_.Finish(response_, s, this);
     } else {

@@ -22,8 +22,13 @@
 // once kill() has returned, reaped or not). The connector never sees them.
 //
 // Answers carry the virtual now; a failed call carries it in trailing metadata
-// "weir-now-ns", and a throttled one "retry-after-ms" plus a weir.v1.RetryAfter
-// status detail.
+// "weir-now-ns", a throttled one also "retry-after-ms" and an out-of-range
+// Read "weir-first-retained-offset". Those two also carry status details (the
+// "grpc-status-details-bin" trailer): a whole google.rpc.Status
+// (proto/google/rpc/status.proto) with the call's code and message and one Any
+// packing a weir.v1.RetryAfter or a weir.v1.OffsetOutOfRange (the partition
+// read and the first retained offset), as every gRPC implementation expects.
+// The details are not part of the trace.
 //
 // Resource bounds: at most 16 concurrent streams per connection; calls are
 // handled one at a time, each method awaiting its next call as soon as one

@@ -1,8 +1,8 @@
 // Tests for the log shape of the C++ adapter (adapters/cpp/include/weir/adapter/source.h):
 // what a step carries (log records, gaps), what Open and Checkpoint answer for
 // a log source, the default broker calls of a queue-only client, the gRPC
-// broker client's reading of an out-of-range read (the status and trailing
-// metadata of proto/weir/v1/broker.proto, Broker.Read), and the many-readers
+// broker client's reading of an out-of-range read (the status, status details
+// and trailing metadata of proto/weir/v1/broker.proto, Broker.Read), and the many-readers
 // calls (Assign, Revoke, Cut) as the hosts run them.
 #include <chrono>
 #include <cstdint>
@@ -15,6 +15,7 @@
 #include <gtest/gtest.h>
 
 #include "adapters/cpp/src/call_queue.h"
+#include "google/rpc/status.pb.h"
 #include "adapters/cpp/src/grpc_broker_client.h"
 #include "weir/adapter/source.h"
 #include "weir/v1/broker.grpc.pb.h"
@@ -432,12 +433,41 @@ TEST(AdapterReaders, TheBrokerMovesNowInsideTheCallsAndStepsCannotBeShaped) {
   EXPECT_NE(in_assign.misuse().find("ReportGap called during Assign"), std::string::npos);
 }
 
+// Status details as weir sends them (proto/weir/v1/broker.proto): a whole
+// google.rpc.Status with the call's code and message and `detail` packed in
+// one Any.
+std::string Wrapped(grpc::StatusCode code, const std::string& message, const google::protobuf::Message& detail) {
+  google::rpc::Status status;
+  status.set_code(code);
+  status.set_message(message);
+  status.add_details()->PackFrom(detail);
+  return status.SerializeAsString();
+}
+
+// Status details that say nothing about the first retained offset: the bare
+// OffsetOutOfRange weir sent before it wrapped it, another detail type, an
+// Any that does not parse, bytes that are no Status at all.
+std::string BareDetail(const v1::OffsetOutOfRange& detail) { return detail.SerializeAsString(); }
+std::string OtherTypeDetail() {
+  v1::RetryAfter other;
+  other.set_retry_after_ns(77);
+  return Wrapped(grpc::StatusCode::OUT_OF_RANGE, "x", other);
+}
+std::string GarbledAnyDetail() {
+  google::rpc::Status status;
+  status.set_code(grpc::StatusCode::OUT_OF_RANGE);
+  google::protobuf::Any* any = status.add_details();
+  any->set_type_url("type.googleapis.com/weir.v1.OffsetOutOfRange");
+  any->set_value("\xff\xff");
+  return status.SerializeAsString();
+}
+
 // A Broker service whose Read fails OUT_OF_RANGE the way weir's does, with
 // the first retained offset in the trailing metadata, in the status detail
-// only, or nowhere.
+// only, or nowhere; or with status details that do not hold it.
 class OutOfRangeBroker final : public v1::Broker::Service {
  public:
-  enum class Carry { kMetadata, kDetailOnly, kNothing };
+  enum class Carry { kMetadata, kDetailOnly, kNothing, kBareDetail, kOtherTypeDetail, kGarbledAny, kGarbage };
   explicit OutOfRangeBroker(Carry carry) : carry_(carry) {}
 
   grpc::Status Read(grpc::ServerContext* context, const v1::ReadRequest* request, v1::ReadResponse* response) override {
@@ -455,13 +485,18 @@ class OutOfRangeBroker final : public v1::Broker::Service {
     v1::OffsetOutOfRange detail;
     detail.set_partition(request->partition());
     detail.set_first_retained_offset(77);
+    constexpr grpc::StatusCode kCode = grpc::StatusCode::OUT_OF_RANGE;
+    const std::string message = "first retained offset 77";
     switch (carry_) {
       case Carry::kMetadata:
         context->AddTrailingMetadata("weir-first-retained-offset", "77");
-        return grpc::Status(grpc::StatusCode::OUT_OF_RANGE, "first retained offset 77", detail.SerializeAsString());
-      case Carry::kDetailOnly:
-        return grpc::Status(grpc::StatusCode::OUT_OF_RANGE, "first retained offset 77", detail.SerializeAsString());
+        return grpc::Status(kCode, message, Wrapped(kCode, message, detail));
+      case Carry::kDetailOnly: return grpc::Status(kCode, message, Wrapped(kCode, message, detail));
       case Carry::kNothing: break;
+      case Carry::kBareDetail: return grpc::Status(kCode, message, BareDetail(detail));
+      case Carry::kOtherTypeDetail: return grpc::Status(kCode, message, OtherTypeDetail());
+      case Carry::kGarbledAny: return grpc::Status(kCode, message, GarbledAnyDetail());
+      case Carry::kGarbage: return grpc::Status(kCode, message, "\xff\xff");
     }
     return grpc::Status(grpc::StatusCode::OUT_OF_RANGE, "gone");
   }
@@ -519,6 +554,18 @@ TEST(AdapterLogGrpc, OutOfRangeReadWithoutTheOffsetLeavesItUnset) {
   const BrokerStatus status = ReadOverGrpc(OutOfRangeBroker::Carry::kNothing, 12, &got);
   EXPECT_TRUE(status.out_of_range());
   EXPECT_FALSE(status.first_retained_offset.has_value());
+}
+
+TEST(AdapterLogGrpc, StatusDetailsThatDoNotHoldTheOffsetAreIgnored) {
+  using Carry = OutOfRangeBroker::Carry;
+  for (const Carry carry : {Carry::kBareDetail, Carry::kOtherTypeDetail, Carry::kGarbledAny, Carry::kGarbage}) {
+    SCOPED_TRACE(static_cast<int>(carry));
+    ReadResult got;
+    const BrokerStatus status = ReadOverGrpc(carry, 12, &got);
+    EXPECT_TRUE(status.out_of_range());
+    EXPECT_EQ(status.message, "first retained offset 77");
+    EXPECT_FALSE(status.first_retained_offset.has_value());
+  }
 }
 
 TEST(AdapterLogGrpc, ASuccessfulReadReturnsRecordsAndWhereThePartitionStands) {

@@ -7,6 +7,8 @@
 
 #include <grpcpp/grpcpp.h>
 
+#include "google/rpc/status.pb.h"
+
 namespace weir::adapter::internal {
 namespace {
 
@@ -24,12 +26,16 @@ std::optional<Int> TrailingInt(const grpc::ClientContext& call, std::string_view
 }
 
 // The first retained offset of an OUT_OF_RANGE read: the trailing metadata, or
-// else the OffsetOutOfRange status detail.
+// else the OffsetOutOfRange in the status details (a google.rpc.Status whose
+// details hold it packed in an Any). Details that do not parse, or hold no
+// OffsetOutOfRange, say nothing.
 std::optional<std::uint64_t> FirstRetainedOffset(const grpc::ClientContext& call, const grpc::Status& status) {
   if (auto offset = TrailingInt<std::uint64_t>(call, kFirstRetainedOffsetMetadataKey)) return offset;
-  v1::OffsetOutOfRange detail;
-  if (!status.error_details().empty() && detail.ParseFromString(status.error_details())) {
-    return detail.first_retained_offset();
+  google::rpc::Status details;
+  if (status.error_details().empty() || !details.ParseFromString(status.error_details())) return std::nullopt;
+  for (const google::protobuf::Any& any : details.details()) {
+    v1::OffsetOutOfRange detail;
+    if (any.Is<v1::OffsetOutOfRange>() && any.UnpackTo(&detail)) return detail.first_retained_offset();
   }
   return std::nullopt;
 }

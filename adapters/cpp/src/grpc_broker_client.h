@@ -6,7 +6,8 @@
 // hang the connector; the answer's virtual now comes from the response's now_ns
 // or, on failure, from the trailing metadata key "weir-now-ns"; a throttle's
 // hint from "retry-after-ms"; an out-of-range read's first retained offset from
-// "weir-first-retained-offset" (or the OffsetOutOfRange status detail).
+// "weir-first-retained-offset" (or else the OffsetOutOfRange packed in the
+// status details, a google.rpc.Status).
 //
 // Thread safety: the CallQueue's thread only.
 #pragma once

@@ -14,6 +14,7 @@ from weir.adapter import (Bookmark, BrokerClient, BrokerStatus, Context, GrpcBro
                           ReadResult, ResumePoint, Source, SourceShape, Span)
 from weir.adapter import server as serve_module
 from weir.adapter.source import ADVANCE, CHECKPOINT, COMMITTED
+from google.rpc import status_pb2
 from weir.v1 import broker_pb2, broker_pb2_grpc, connector_pb2
 
 
@@ -281,13 +282,26 @@ class FakeRpcError(grpc.RpcError):
         return self._trailers
 
 
-DETAIL_77 = broker_pb2.OffsetOutOfRange(partition=3, first_retained_offset=77).SerializeToString()
+def wrapped(code, message, detail):
+    """Status details as weir sends them (proto/weir/v1/broker.proto): a whole
+    google.rpc.Status with the call's code and message and `detail` packed in
+    one Any (type URL "type.googleapis.com/weir.v1....")."""
+    status = status_pb2.Status(code=code.value[0], message=message)
+    status.details.add().Pack(detail)
+    return status.SerializeToString()
+
+
+OFFSET_77 = broker_pb2.OffsetOutOfRange(partition=3, first_retained_offset=77)
+DETAIL_77 = wrapped(grpc.StatusCode.OUT_OF_RANGE, "first retained offset 77", OFFSET_77)
+# The bare message, as weir sent it before it wrapped it in a google.rpc.Status.
+BARE_DETAIL_77 = OFFSET_77.SerializeToString()
 
 
 class OutOfRangeStatusTest(unittest.TestCase):
     # Keys from proto/weir/v1/broker.proto (Broker.Read): "weir-first-retained-offset"
     # and the OffsetOutOfRange detail; gRPC carries a status's details in the
-    # trailer "grpc-status-details-bin".
+    # trailer "grpc-status-details-bin", a whole google.rpc.Status (gRPC's rich
+    # error model, docs/references.md).
     def test_the_first_retained_offset_comes_from_the_trailing_metadata(self):
         s = serve_module._failed(FakeRpcError(grpc.StatusCode.OUT_OF_RANGE, (
             ("weir-now-ns", "4200"), ("weir-first-retained-offset", "77"))))
@@ -302,6 +316,16 @@ class OutOfRangeStatusTest(unittest.TestCase):
             ("weir-first-retained-offset", "-1"), ("grpc-status-details-bin", DETAIL_77))))
         self.assertEqual(s.first_retained_offset, 77)
 
+    def test_the_detail_packs_the_offset_the_way_every_grpc_reads_details(self):
+        # gRPC's rich error model: grpc-status-details-bin holds a google.rpc.Status
+        # (code 1, message 2, details 3: repeated google.protobuf.Any), and
+        # Any.Pack names the type "type.googleapis.com/" + its full name.
+        status = status_pb2.Status.FromString(DETAIL_77)
+        self.assertEqual((status.code, status.message, len(status.details)),
+                         (11, "first retained offset 77", 1))
+        self.assertEqual(status.details[0].type_url,
+                         "type.googleapis.com/weir.v1.OffsetOutOfRange")
+
     def test_without_either_it_stays_unset(self):
         s = serve_module._failed(FakeRpcError(grpc.StatusCode.OUT_OF_RANGE, ()))
         self.assertTrue(s.out_of_range)
@@ -309,6 +333,22 @@ class OutOfRangeStatusTest(unittest.TestCase):
         s = serve_module._failed(FakeRpcError(grpc.StatusCode.OUT_OF_RANGE, (
             ("grpc-status-details-bin", b"\xff\xff"),)))
         self.assertIsNone(s.first_retained_offset)
+
+    def test_details_that_hold_no_offset_are_ignored(self):
+        garbled_any = status_pb2.Status(code=11)
+        garbled_any.details.add(type_url="type.googleapis.com/weir.v1.OffsetOutOfRange",
+                                value=b"\xff\xff")
+        for name, details in (
+                ("the bare message", BARE_DETAIL_77),
+                ("another type", wrapped(grpc.StatusCode.OUT_OF_RANGE, "x",
+                                         broker_pb2.RetryAfter(retry_after_ns=77))),
+                ("an Any that does not parse", garbled_any.SerializeToString()),
+                ("no details", status_pb2.Status(code=11).SerializeToString())):
+            with self.subTest(name):
+                s = serve_module._failed(FakeRpcError(grpc.StatusCode.OUT_OF_RANGE, (
+                    ("grpc-status-details-bin", details),)))
+                self.assertTrue(s.out_of_range)
+                self.assertIsNone(s.first_retained_offset)
 
     def test_only_an_out_of_range_failure_carries_it(self):
         s = serve_module._failed(FakeRpcError(grpc.StatusCode.UNAVAILABLE, (
