@@ -5,10 +5,9 @@
 #   lib/cmake/weir/                           find_package(weir CONFIG): weir::adapter,
 #                                             weir::inprocess, weir::weir (the command)
 #   share/weir/{scenarios,profiles,suites}/   bundled files (harness/cli/bundled_files.h)
-#   share/weir/proto/weir/v1/*.proto          the wire contract, for other languages,
-#   share/weir/proto/google/rpc/status.proto  and the Status of its status details
-#   ${WEIR_INSTALL_PYTHONDIR}/weir/           the Python adapter and its stubs, with
-#   ${WEIR_INSTALL_PYTHONDIR}/google/rpc/     status_pb2.py (adapters/python/CMakeLists.txt)
+#   share/weir/proto/weir/v1/*.proto          the wire contract, for other languages
+#   ${WEIR_INSTALL_PYTHONDIR}/weir/           the Python adapter and its stubs
+#                                             (adapters/python/CMakeLists.txt)
 # Every destination is relative to the prefix, so the tree can be moved whole.
 include(CMakePackageConfigHelpers)
 
@@ -43,8 +42,8 @@ install(DIRECTORY ${PROJECT_SOURCE_DIR}/harness DESTINATION ${CMAKE_INSTALL_INCL
 
 install(DIRECTORY ${PROJECT_SOURCE_DIR}/fixtures/scenarios ${PROJECT_SOURCE_DIR}/fixtures/profiles
   ${PROJECT_SOURCE_DIR}/fixtures/suites DESTINATION ${WEIR_INSTALL_DATADIR})
-install(DIRECTORY ${PROJECT_SOURCE_DIR}/proto/weir ${PROJECT_SOURCE_DIR}/proto/google
-  DESTINATION ${WEIR_INSTALL_DATADIR}/proto FILES_MATCHING PATTERN "*.proto")
+install(DIRECTORY ${PROJECT_SOURCE_DIR}/proto/weir DESTINATION ${WEIR_INSTALL_DATADIR}/proto
+  FILES_MATCHING PATTERN "*.proto")
 
 install(EXPORT weirTargets NAMESPACE weir:: DESTINATION ${WEIR_INSTALL_CMAKEDIR})
 configure_package_config_file(${PROJECT_SOURCE_DIR}/cmake/weirConfig.cmake.in

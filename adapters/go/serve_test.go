@@ -39,7 +39,7 @@ type scriptedBroker struct {
 
 // withDetail is a status error whose details are one Any packing detail, the
 // way weir sends them: a whole google.rpc.Status with the call's code and
-// message (proto/google/rpc/status.proto); type URL "type.googleapis.com/"
+// message (proto/weir/v1/status_details.proto); type URL "type.googleapis.com/"
 // and the message's full name, as every protobuf runtime packs an Any.
 func withDetail(code codes.Code, message string, detail proto.Message) error {
 	value, err := proto.Marshal(detail)

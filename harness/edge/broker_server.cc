@@ -7,7 +7,7 @@
 #include "absl/status/status.h"
 #include "absl/strings/str_cat.h"
 #include "absl/synchronization/mutex.h"
-#include "google/rpc/status.pb.h"
+#include "weir/v1/status_details.pb.h"
 #include "weir/v1/broker.grpc.pb.h"
 
 namespace weir {
@@ -19,7 +19,7 @@ constexpr std::size_t kMaxStrayNames = 1000;
 // carries in "grpc-status-details-bin") with the call's code and message and
 // `detail` packed in one Any.
 std::string StatusDetails(grpc::StatusCode code, const std::string& message, const google::protobuf::Message& detail) {
-  google::rpc::Status status;
+  v1::StatusDetails status;
   status.set_code(static_cast<std::int32_t>(code));
   status.set_message(message);
   status.add_details()->PackFrom(detail);

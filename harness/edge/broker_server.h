@@ -24,8 +24,9 @@
 // Answers carry the virtual now; a failed call carries it in trailing metadata
 // "weir-now-ns", a throttled one also "retry-after-ms" and an out-of-range
 // Read "weir-first-retained-offset". Those two also carry status details (the
-// "grpc-status-details-bin" trailer): a whole google.rpc.Status
-// (proto/google/rpc/status.proto) with the call's code and message and one Any
+// "grpc-status-details-bin" trailer): a whole google.rpc.Status (weir's
+// v1::StatusDetails is that message on the wire) with the call's code and
+// message and one Any
 // packing a weir.v1.RetryAfter or a weir.v1.OffsetOutOfRange (the partition
 // read and the first retained offset), as every gRPC implementation expects.
 // The details are not part of the trace.

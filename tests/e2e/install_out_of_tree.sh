@@ -25,10 +25,10 @@ cmake --install "$BUILD" --prefix "$P" >/dev/null
 for f in bin/weir lib/cmake/weir/weirConfig.cmake include/weir/adapter/source.h \
     include/weir/v1/connector.grpc.pb.h include/weir/harness/inprocess/in_process_port.h \
     share/weir/suites/quick.suite share/weir/proto/weir/v1/connector.proto \
-    share/weir/proto/google/rpc/status.proto \
+    share/weir/proto/weir/v1/status_details.proto \
     lib/python3/dist-packages/weir/adapter/__init__.py \
     lib/python3/dist-packages/weir/v1/connector_pb2_grpc.py \
-    lib/python3/dist-packages/google/rpc/status_pb2.py; do
+    lib/python3/dist-packages/weir/v1/status_details_pb2.py; do
   [[ -f $P/$f ]] || fail "the install has no $f"
 done
 if hits=$(grep -rIl "${trees[@]}" "$P"); then

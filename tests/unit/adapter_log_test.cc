@@ -15,7 +15,7 @@
 #include <gtest/gtest.h>
 
 #include "adapters/cpp/src/call_queue.h"
-#include "google/rpc/status.pb.h"
+#include "weir/v1/status_details.pb.h"
 #include "adapters/cpp/src/grpc_broker_client.h"
 #include "weir/adapter/source.h"
 #include "weir/v1/broker.grpc.pb.h"
@@ -437,7 +437,7 @@ TEST(AdapterReaders, TheBrokerMovesNowInsideTheCallsAndStepsCannotBeShaped) {
 // google.rpc.Status with the call's code and message and `detail` packed in
 // one Any.
 std::string Wrapped(grpc::StatusCode code, const std::string& message, const google::protobuf::Message& detail) {
-  google::rpc::Status status;
+  v1::StatusDetails status;
   status.set_code(code);
   status.set_message(message);
   status.add_details()->PackFrom(detail);
@@ -454,7 +454,7 @@ std::string OtherTypeDetail() {
   return Wrapped(grpc::StatusCode::OUT_OF_RANGE, "x", other);
 }
 std::string GarbledAnyDetail() {
-  google::rpc::Status status;
+  v1::StatusDetails status;
   status.set_code(grpc::StatusCode::OUT_OF_RANGE);
   google::protobuf::Any* any = status.add_details();
   any->set_type_url("type.googleapis.com/weir.v1.OffsetOutOfRange");

@@ -13,7 +13,7 @@
 
 #include <gtest/gtest.h>
 
-#include "google/rpc/status.pb.h"
+#include "weir/v1/status_details.pb.h"
 #include "harness/edge/broker_server.h"
 #include "weir/v1/broker.grpc.pb.h"
 
@@ -217,9 +217,9 @@ std::string Trailer(const Answer& answer, const std::string& key) {
 // repeated google.protobuf.Any), which gRPC for C++ hands over as
 // error_details(); Any::PackFrom names the type "type.googleapis.com/" and
 // the message's full name.
-google::rpc::Status Details(const Answer& answer) {
+v1::StatusDetails Details(const Answer& answer) {
   EXPECT_EQ(Trailer(answer, "grpc-status-details-bin"), answer.status.error_details());
-  google::rpc::Status details;
+  v1::StatusDetails details;
   EXPECT_TRUE(details.ParseFromString(answer.status.error_details()));
   EXPECT_EQ(details.code(), answer.status.error_code());
   EXPECT_EQ(details.message(), answer.status.error_message());
@@ -239,7 +239,7 @@ TEST(BrokerServer, AThrottledAnswerCarriesARetryAfterInAWholeStatus) {
   EXPECT_EQ(answer.status.error_message(), "throttled: 4 calls/s");
   EXPECT_EQ(Trailer(answer, "weir-now-ns"), "42");
   EXPECT_EQ(Trailer(answer, "retry-after-ms"), "250") << "rounded up";
-  const google::rpc::Status details = Details(answer);
+  const v1::StatusDetails details = Details(answer);
   ASSERT_EQ(details.details_size(), 1);
   EXPECT_EQ(details.details(0).type_url(), "type.googleapis.com/weir.v1.RetryAfter");
   v1::RetryAfter retry_after;
@@ -262,7 +262,7 @@ TEST(BrokerServer, AnOutOfRangeReadCarriesItsFirstRetainedOffsetInAWholeStatus) 
   EXPECT_EQ(answer.status.error_message(), "first retained offset 77");
   EXPECT_EQ(Trailer(answer, "weir-now-ns"), "44");
   EXPECT_EQ(Trailer(answer, "weir-first-retained-offset"), "77");
-  const google::rpc::Status details = Details(answer);
+  const v1::StatusDetails details = Details(answer);
   ASSERT_EQ(details.details_size(), 1);
   EXPECT_EQ(details.details(0).type_url(), "type.googleapis.com/weir.v1.OffsetOutOfRange");
   v1::OffsetOutOfRange out_of_range;

@@ -7,7 +7,7 @@
 
 #include <grpcpp/grpcpp.h>
 
-#include "google/rpc/status.pb.h"
+#include "weir/v1/status_details.pb.h"
 
 namespace weir::adapter::internal {
 namespace {
@@ -31,7 +31,7 @@ std::optional<Int> TrailingInt(const grpc::ClientContext& call, std::string_view
 // OffsetOutOfRange, say nothing.
 std::optional<std::uint64_t> FirstRetainedOffset(const grpc::ClientContext& call, const grpc::Status& status) {
   if (auto offset = TrailingInt<std::uint64_t>(call, kFirstRetainedOffsetMetadataKey)) return offset;
-  google::rpc::Status details;
+  v1::StatusDetails details;
   if (status.error_details().empty() || !details.ParseFromString(status.error_details())) return std::nullopt;
   for (const google::protobuf::Any& any : details.details()) {
     v1::OffsetOutOfRange detail;

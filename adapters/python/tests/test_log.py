@@ -14,7 +14,7 @@ from weir.adapter import (Bookmark, BrokerClient, BrokerStatus, Context, GrpcBro
                           ReadResult, ResumePoint, Source, SourceShape, Span)
 from weir.adapter import server as serve_module
 from weir.adapter.source import ADVANCE, CHECKPOINT, COMMITTED
-from google.rpc import status_pb2
+from weir.v1 import status_details_pb2
 from weir.v1 import broker_pb2, broker_pb2_grpc, connector_pb2
 
 
@@ -286,7 +286,7 @@ def wrapped(code, message, detail):
     """Status details as weir sends them (proto/weir/v1/broker.proto): a whole
     google.rpc.Status with the call's code and message and `detail` packed in
     one Any (type URL "type.googleapis.com/weir.v1....")."""
-    status = status_pb2.Status(code=code.value[0], message=message)
+    status = status_details_pb2.StatusDetails(code=code.value[0], message=message)
     status.details.add().Pack(detail)
     return status.SerializeToString()
 
@@ -320,7 +320,7 @@ class OutOfRangeStatusTest(unittest.TestCase):
         # gRPC's rich error model: grpc-status-details-bin holds a google.rpc.Status
         # (code 1, message 2, details 3: repeated google.protobuf.Any), and
         # Any.Pack names the type "type.googleapis.com/" + its full name.
-        status = status_pb2.Status.FromString(DETAIL_77)
+        status = status_details_pb2.StatusDetails.FromString(DETAIL_77)
         self.assertEqual((status.code, status.message, len(status.details)),
                          (11, "first retained offset 77", 1))
         self.assertEqual(status.details[0].type_url,
@@ -335,7 +335,7 @@ class OutOfRangeStatusTest(unittest.TestCase):
         self.assertIsNone(s.first_retained_offset)
 
     def test_details_that_hold_no_offset_are_ignored(self):
-        garbled_any = status_pb2.Status(code=11)
+        garbled_any = status_details_pb2.StatusDetails(code=11)
         garbled_any.details.add(type_url="type.googleapis.com/weir.v1.OffsetOutOfRange",
                                 value=b"\xff\xff")
         for name, details in (
@@ -343,7 +343,7 @@ class OutOfRangeStatusTest(unittest.TestCase):
                 ("another type", wrapped(grpc.StatusCode.OUT_OF_RANGE, "x",
                                          broker_pb2.RetryAfter(retry_after_ns=77))),
                 ("an Any that does not parse", garbled_any.SerializeToString()),
-                ("no details", status_pb2.Status(code=11).SerializeToString())):
+                ("no details", status_details_pb2.StatusDetails(code=11).SerializeToString())):
             with self.subTest(name):
                 s = serve_module._failed(FakeRpcError(grpc.StatusCode.OUT_OF_RANGE, (
                     ("grpc-status-details-bin", details),)))
