@@ -122,7 +122,7 @@ for ((i = 1; i <= REPEATS; i++)); do
   # The Python reference against Python's own floor: the bare Python echo's
   # round trip and the bare restart of a Python process (echo_server.py).
   log=$OUT/floor_python.$i.log
-  run certify_floor_python "$log" env PYTHONPATH="$PY_PATH" WEIR_BENCH_ECHO_SERVER="$PY_ECHO pool" \
+  run certify_floor_python "$log" env PYTHONPATH="$PY_PATH" WEIR_BENCH_ECHO_SERVER="'$PY_ECHO' pool" \
     "$BUILD/bench/certify_floor" "$FLOOR_SUITE" "$CORES" "$PY_FLOOR_ECHO" "$FLOOR_RESTARTS" -- "$PY_REFERENCE"
   grep '^result ' "$log" | cut -d' ' -f2- | sed 's/^/floor_python_/' >>"$VALUES"
 
@@ -131,7 +131,7 @@ for ((i = 1; i <= REPEATS; i++)); do
   # own completion loop (context: what serving alone costs).
   for serving in pool loop; do
     log=$OUT/python_call_cost_$serving.$i.log
-    run python_call_cost "$log" env PYTHONPATH="$PY_PATH" WEIR_BENCH_ECHO_SERVER="$PY_ECHO $serving" \
+    run python_call_cost "$log" env PYTHONPATH="$PY_PATH" WEIR_BENCH_ECHO_SERVER="'$PY_ECHO' $serving" \
       "$BUILD/bench/call_cost" "$PY_REFERENCE" "$STEADY" "$PY_ECHO_CALLS" "$PY_RESTARTS" "$ROUNDS"
     grep '^result ' "$log" | cut -d' ' -f2- | sed "s/^/python_${serving}_/" >>"$VALUES"
   done
@@ -174,10 +174,12 @@ median() {
   awk -v k="$1" '$1 == k { print $2 }' "$VALUES" | sort -g |
     awk '{ v[NR] = $1 } END { if (NR == 0) print "?"; else print v[int((NR + 1) / 2)] }'
 }
-# verdict VALUE OP LIMIT: "met" or "NOT met".
+# verdict VALUE OP LIMIT: "met" or "NOT met"; "?" when VALUE is not a number
+# (a figure missing from every run).
 verdict() {
   awk -v v="$1" -v op="$2" -v l="$3" \
-    'BEGIN { ok = (op == "<=") ? v + 0 <= l + 0 : v + 0 >= l + 0; print ok ? "met" : "NOT met" }'
+    'BEGIN { if (v !~ /^[0-9.]+$/) { print "?"; exit }
+             ok = (op == "<=") ? v + 0 <= l + 0 : v + 0 >= l + 0; print ok ? "met" : "NOT met" }'
 }
 
 hwm_1m=$(median oracle_hwm_1m_kb)
@@ -204,9 +206,9 @@ printf '| 2 | weir cost per call / bare round trip, Unix socket | %s us = %sx | 
   "$(median weir_unix_us)" "$unix_ratio" "$(verdict "$unix_ratio" '<=' 1.5)"
 loaded_tcp=$(median loaded_weir_tcp_ratio)
 loaded_unix=$(median loaded_weir_unix_ratio)
-printf '| 2 | loaded (%s busy processes beside it): cost per call / round trip, TCP | %s us / %s us = %sx | <= 1.4x | %s |\n' \
+printf '| 2 | loaded (%s busy processes beside it): cost per call / round trip, TCP: median times, median per-round ratio | %s us, %s us: %sx | <= 1.4x | %s |\n' \
   "$CORES" "$(median loaded_weir_tcp_us)" "$(median loaded_echo_tcp_us)" "$loaded_tcp" "$(verdict "$loaded_tcp" '<=' 1.4)"
-printf '| 2 | loaded (%s busy processes beside it): cost per call / round trip, Unix socket | %s us / %s us = %sx | <= 1.4x | %s |\n' \
+printf '| 2 | loaded (%s busy processes beside it): the same, Unix socket | %s us, %s us: %sx | <= 1.4x | %s |\n' \
   "$CORES" "$(median loaded_weir_unix_us)" "$(median loaded_echo_unix_us)" "$loaded_unix" "$(verdict "$loaded_unix" '<=' 1.4)"
 printf '| 2 | (context) cost per call / echo carrying the mean message sizes of weir'"'"'s calls, TCP, Unix | %sx (echo %s us), %sx (echo %s us) | | |\n' \
   "$(median weir_tcp_sized_ratio)" "$(median echo_tcp_sized_us)" "$(median weir_unix_sized_ratio)" "$(median echo_unix_sized_us)"
@@ -252,14 +254,15 @@ printf '| 8 | certify floor, C++ reference, %s --jobs %s: wall / floor | %s s / 
   "$(verdict "$floor_cpp" '<=' 1.3)"
 printf '| 8 | certify floor, Python reference, same suite, floor of Python'"'"'s own echo and restart: wall / floor | %s s / %s s = %sx | <= 1.3x | %s |\n' \
   "$(median floor_python_wall_s)" "$(median floor_python_floor_s)" "$floor_py" "$(verdict "$floor_py" '<=' 1.3)"
-py_vs_cpp=$(awk -v p="$(median floor_python_wall_s)" -v c="$(median floor_cpp_wall_s)" 'BEGIN { printf "%.2f", (c > 0 ? p / c : 0) }')
+py_vs_cpp=$(awk -v p="$(median floor_python_wall_s)" -v c="$(median floor_cpp_wall_s)" \
+  'BEGIN { if (p !~ /^[0-9.]+$/ || c !~ /^[0-9.]+$/ || c + 0 == 0) print "?"; else printf "%.2f", p / c }')
 printf '| 8 | Python reference wall / C++ reference wall, same suite and calls | %sx | <= 1.5x | %s |\n' \
   "$py_vs_cpp" "$(verdict "$py_vs_cpp" '<=' 1.5)"
 py_tcp=$(median python_pool_weir_tcp_ratio)
 py_unix=$(median python_pool_weir_unix_ratio)
-printf '| 9 | Python reference cost per call / bare Python echo (grpc.server, thread pool), TCP | %s us / %s us = %sx | <= 1.5x | %s |\n' \
+printf '| 9 | Python reference cost per call / bare Python echo (grpc.server, thread pool), TCP: median times, median per-round ratio | %s us, %s us: %sx | <= 1.5x | %s |\n' \
   "$(median python_pool_weir_tcp_us)" "$(median python_pool_echo_tcp_us)" "$py_tcp" "$(verdict "$py_tcp" '<=' 1.5)"
-printf '| 9 | Python reference cost per call / bare Python echo (grpc.server, thread pool), Unix socket | %s us / %s us = %sx | <= 1.5x | %s |\n' \
+printf '| 9 | the same, Unix socket | %s us, %s us: %sx | <= 1.5x | %s |\n' \
   "$(median python_pool_weir_unix_us)" "$(median python_pool_echo_unix_us)" "$py_unix" "$(verdict "$py_unix" '<=' 1.5)"
 printf '| 9 | (context) the same against the echo served by the adapter'"'"'s completion loop, TCP, Unix | %s us = %sx, %s us = %sx | | |\n' \
   "$(median python_loop_echo_tcp_us)" "$(median python_loop_weir_tcp_ratio)" \

@@ -46,13 +46,22 @@ class Handlers:
     def nothing(self, request, context):
         return None
 
+    def odd_code(self, request, context):
+        context.set_code(5)  # not a grpc.StatusCode
+        context.set_details(b"raw bytes")
+        return b""
+
     def generic(self):
         unary = {
             name: grpc.unary_unary_rpc_method_handler(getattr(self, attr), **IDENTITY)
             for name, attr in (("Echo", "echo"), ("Fail", "fail"), ("Raise", "raise_"),
                                ("Abort", "abort"), ("Metadata", "metadata"),
-                               ("Nothing", "nothing"))
+                               ("Nothing", "nothing"), ("OddCode", "odd_code"))
         }
+        unary["BadRequest"] = grpc.unary_unary_rpc_method_handler(
+            self.echo, request_deserializer=lambda b: b.decode("ascii"), response_serializer=None)
+        unary["BadAnswer"] = grpc.unary_unary_rpc_method_handler(
+            self.echo, request_deserializer=None, response_serializer=lambda r: r.no_such)
         unary["Stream"] = grpc.unary_stream_rpc_method_handler(lambda r, c: iter([r]), **IDENTITY)
         return grpc.method_handlers_generic_handler(SERVICE, unary)
 
@@ -122,12 +131,66 @@ class LoopServerTest(unittest.TestCase):
     def test_no_answer_is_internal(self):
         self.assertEqual(self.failure("Nothing").code(), grpc.StatusCode.INTERNAL)
 
+    def test_a_code_that_is_not_a_status_code_is_unknown_and_the_loop_goes_on(self):
+        # As grpc.server() does (grpc/_server.py, _application_code).
+        error = self.failure("OddCode")
+        self.assertEqual(error.code(), grpc.StatusCode.UNKNOWN)
+        self.assertEqual(error.details(), "raw bytes")
+        self.assertEqual(self.call("Echo", b"on"), b"on")
+
+    def test_serializer_failures_are_internal(self):
+        # As grpc.server() answers them: INTERNAL (grpc/_server.py, _abort on
+        # a failed deserialization or serialization).
+        error = self.failure("BadRequest", b"\xff")
+        self.assertEqual(error.code(), grpc.StatusCode.INTERNAL)
+        self.assertIn("deserializing the request", error.details())
+        error = self.failure("BadAnswer", b"x")
+        self.assertEqual(error.code(), grpc.StatusCode.INTERNAL)
+        self.assertIn("serializing the answer", error.details())
+
     def test_unknown_and_streaming_methods_are_unimplemented(self):
         self.assertEqual(self.failure("Missing").code(), grpc.StatusCode.UNIMPLEMENTED)
         with self.assertRaises(grpc.RpcError) as raised:
             list(self.channel.unary_stream(f"/{SERVICE}/Stream")(b"x", timeout=30))
         self.assertEqual(raised.exception.code(), grpc.StatusCode.UNIMPLEMENTED)
         self.assertEqual(self.call("Echo", b"after"), b"after")
+
+
+@unittest.skipUnless(loop.available(), "this grpcio lacks the completion-queue layer")
+class LoopServerStopTest(unittest.TestCase):
+
+    def test_stop_before_serve_or_from_another_thread_ends_serve(self):
+        for stop_first in (True, False):
+            with self.subTest(stop_first=stop_first):
+                directory = tempfile.mkdtemp(prefix="weir-loop-")
+                try:
+                    server = loop.LoopServer()
+                    server.add_generic_rpc_handlers((Handlers().generic(),))
+                    self.assertNotEqual(server.add_insecure_port(f"unix:{directory}/s.sock"), 0)
+                    server.start()
+                    if stop_first:
+                        server.stop()
+                    raised = []
+
+                    def serve():
+                        try:
+                            server.serve()
+                        except Exception as e:  # what the test is about
+                            raised.append(e)
+
+                    thread = threading.Thread(target=serve)
+                    thread.start()
+                    if not stop_first:
+                        server.stop()
+                    thread.join(timeout=30)
+                    self.assertFalse(thread.is_alive(), "serve() did not return")
+                    self.assertEqual(raised, [])
+                finally:
+                    shutil.rmtree(directory)
+
+    def test_newer_stubs_may_register_methods_twice(self):
+        server = loop.LoopServer()
+        server.add_registered_method_handlers(SERVICE, {})  # newer generated stubs call it
 
 
 if __name__ == "__main__":

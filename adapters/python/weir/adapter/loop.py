@@ -10,9 +10,11 @@ answer and the status go out in one batch, all on that thread.
 
 It uses grpcio's Cython layer (grpc._cython.cygrpc, the layer grpc.server()
 itself is built on), which is not a public API. available() says whether this
-grpcio has what the loop needs; serve() in server.py falls back to
-grpc.server() when it has not, so a newer or older grpcio costs speed, never
-correctness.
+grpcio has the names the loop uses; serve() in server.py falls back to
+grpc.server() when it has not or when a LoopServer cannot be built. A grpcio
+whose layer kept those names but changed what they do would fail calls rather
+than fall back: the tests run the loop on Debian 12's grpcio (1.51), and
+WEIR_PYTHON_SERVING=pool is the way around it elsewhere.
 
 Handlers come the public way: a generated add_XServicer_to_server() registers
 its generic handler on the LoopServer, and each call's RpcMethodHandler comes
@@ -100,11 +102,14 @@ class _Finish:
 
 
 def _status_operations(code, details, trailing_metadata, answer=None):
+    # Like grpc.server(): a code that is not a grpc.StatusCode is UNKNOWN.
+    number = code.value[0] if isinstance(code, grpc.StatusCode) else grpc.StatusCode.UNKNOWN.value[0]
+    details = details if isinstance(details, bytes) else str(details).encode()
     operations = [cygrpc.SendInitialMetadataOperation(None, _NO_FLAGS)]
     if answer is not None:
         operations.append(cygrpc.SendMessageOperation(answer, _NO_FLAGS))
-    operations.append(cygrpc.SendStatusFromServerOperation(trailing_metadata, code.value[0],
-                                                           details.encode(), _NO_FLAGS))
+    operations.append(cygrpc.SendStatusFromServerOperation(trailing_metadata, number, details,
+                                                           _NO_FLAGS))
     operations.append(cygrpc.ReceiveCloseOnServerOperation(_NO_FLAGS))
     return tuple(operations)
 
@@ -119,10 +124,15 @@ class LoopServer:
         self._server = cygrpc.Server(tuple(options), False)
         self._server.register_completion_queue(self._queue)
         self._generic_handlers = []
+        self._stopping = False
 
     # What generated add_XServicer_to_server() calls.
     def add_generic_rpc_handlers(self, handlers):
         self._generic_handlers.extend(handlers)
+
+    def add_registered_method_handlers(self, service, handlers):
+        """What newer generated stubs call besides add_generic_rpc_handlers:
+        the same methods again, already served through the generic handler."""
 
     def add_insecure_port(self, address):
         """The port listened on (0 when the address cannot be listened on)."""
@@ -134,6 +144,7 @@ class LoopServer:
     def stop(self, grace=None):
         """Ends every call at once (grace is ignored) and makes serve()
         return; callable from any thread."""
+        self._stopping = True
         self._server.shutdown(self._queue, _SHUT_DOWN)
         self._server.cancel_all_calls()
 
@@ -148,19 +159,31 @@ class LoopServer:
     def serve(self):
         """Serves until stop() (a signal's exception propagates)."""
         server, queue = self._server, self._queue
-        server.request_call(queue, queue, _NEW_CALL)
+        self._request_call()
         while True:
             event = queue.poll()
             tag = event.tag
             if tag is _NEW_CALL:
                 if event.success:
-                    server.request_call(queue, queue, _NEW_CALL)
+                    self._request_call()
                     self._arrived(event)
             elif type(tag) is _Request:
                 self._answer(tag, event)
             elif tag is _SHUT_DOWN:
+                server.destroy()
                 return
             # A _Finish needs nothing more: dropping it frees the call.
+
+    def _request_call(self):
+        """Asks for the next call, unless stop() has begun (a shut-down
+        server refuses the request; the shutdown's own completion ends
+        serve())."""
+        if self._stopping:
+            return
+        try:
+            self._server.request_call(self._queue, self._queue, _NEW_CALL)
+        except ValueError:  # stop() won the race
+            pass
 
     def _arrived(self, event):
         call = event.call
@@ -186,18 +209,22 @@ class LoopServer:
             return
         context = LoopContext(request.metadata)
         answer = None
+        step = "deserializing the request"
         try:
             if handler.request_deserializer is not None:  # None: the handler takes bytes
                 message = handler.request_deserializer(message)
+            step = None
             response = handler.unary_unary(message, context)
             if context.code == grpc.StatusCode.OK and response is not None:
+                step = "serializing the answer"
                 answer = response if handler.response_serializer is None else \
                     handler.response_serializer(response)
         except _Abort:
             pass
         except Exception as e:  # the edge: a handler's exception fails its call only
-            context.code = grpc.StatusCode.UNKNOWN
-            context.details = f"handler raised {type(e).__name__}: {e}"
+            # Like grpc.server(): INTERNAL for the (de)serializers, UNKNOWN for the handler.
+            context.code = grpc.StatusCode.UNKNOWN if step is None else grpc.StatusCode.INTERNAL
+            context.details = f"{step or 'handler'} raised {type(e).__name__}: {e}"
         if context.code == grpc.StatusCode.OK and answer is None:
             context.code = grpc.StatusCode.INTERNAL
             context.details = "handler returned no answer"

@@ -455,7 +455,7 @@ def serve(source, serving=None):
 
     try:
         server = _server(serving)
-    except ValueError as e:
+    except (ValueError, RuntimeError) as e:
         return _startup_error(f"{e} ({SERVING_ENV} or serve(serving=...))")
     broker = GrpcBrokerClient(broker_address)
     connector_pb2_grpc.add_ConnectorServicer_to_server(_ConnectorService(source, broker), server)
