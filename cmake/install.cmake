@@ -8,6 +8,8 @@
 #   share/weir/proto/weir/v1/*.proto          the wire contract, for other languages
 #   ${WEIR_INSTALL_PYTHONDIR}/weir/           the Python adapter and its stubs
 #                                             (adapters/python/CMakeLists.txt)
+#   share/weir/go/src/weir/{adapter,v1}/      the Go adapter's sources and its stubs, a
+#                                             GOPATH entry (only when Go was found)
 # Every destination is relative to the prefix, so the tree can be moved whole.
 include(CMakePackageConfigHelpers)
 
@@ -44,6 +46,14 @@ install(DIRECTORY ${PROJECT_SOURCE_DIR}/fixtures/scenarios ${PROJECT_SOURCE_DIR}
   ${PROJECT_SOURCE_DIR}/fixtures/suites DESTINATION ${WEIR_INSTALL_DATADIR})
 install(DIRECTORY ${PROJECT_SOURCE_DIR}/proto/weir DESTINATION ${WEIR_INSTALL_DATADIR}/proto
   FILES_MATCHING PATTERN "*.proto")
+# The Go adapter as source (Go builds it with the connector): with Debian's Go
+# libraries, GOPATH=<prefix>/share/weir/go:/usr/share/gocode (docs/go.md).
+if(WEIR_GO_FOUND)
+  install(DIRECTORY ${PROJECT_SOURCE_DIR}/adapters/go/ DESTINATION ${WEIR_INSTALL_DATADIR}/go/src/weir/adapter
+    FILES_MATCHING PATTERN "*.go" PATTERN examples EXCLUDE)
+  install(DIRECTORY ${WEIR_GOPATH}/src/weir/v1 DESTINATION ${WEIR_INSTALL_DATADIR}/go/src/weir
+    FILES_MATCHING PATTERN "*.go")
+endif()
 
 install(EXPORT weirTargets NAMESPACE weir:: DESTINATION ${WEIR_INSTALL_CMAKEDIR})
 configure_package_config_file(${PROJECT_SOURCE_DIR}/cmake/weirConfig.cmake.in

@@ -23,6 +23,7 @@ set(CPACK_DEBIAN_FILE_NAME DEB-DEFAULT)
 set(CPACK_DEBIAN_PACKAGE_SECTION devel)
 set(CPACK_DEBIAN_PACKAGE_SHLIBDEPS ON)
 set(CPACK_DEBIAN_PACKAGE_RECOMMENDS "python3, python3-grpcio, python3-protobuf")
+# The C++ adapter's build needs, then the Go adapter's (share/weir/go).
 set(CPACK_DEBIAN_PACKAGE_SUGGESTS
-  "cmake, g++, ninja-build, libgrpc++-dev, libprotobuf-dev, protobuf-compiler-grpc, libabsl-dev, libboost-dev, libssl-dev, libgtest-dev")
+  "cmake, g++, ninja-build, libgrpc++-dev, libprotobuf-dev, protobuf-compiler-grpc, libabsl-dev, libboost-dev, libssl-dev, libgtest-dev, golang-go, golang-google-grpc-dev, golang-google-protobuf-dev")
 include(CPack)

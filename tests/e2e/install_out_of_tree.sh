@@ -7,11 +7,16 @@
 # (its compile commands and the headers it read name no path of weir's trees,
 # and do name the prefix); runs the example's tests (the in-process
 # GoogleTest on the installed quick suite, and certify over gRPC); certifies
-# its Python connector with the installed Python adapter.
+# its Python connector with the installed Python adapter; and, when Go was
+# built (GO, the go command, and GO_LIBRARIES, Debian's GOPATH entry), that
+# the installed Go adapter compiles from the prefix alone.
+# usage: install_out_of_tree.sh SRC BUILD VERSION [GO GO_LIBRARIES]
 set -euo pipefail
 SRC=$(cd "$1" && pwd -P)
 BUILD=$(cd "$2" && pwd -P)
 VERSION=$3
+GO=${4:-}
+GO_LIBRARIES=${5:-}
 tmp=$(mktemp -d)
 #trap 'rm -rf "$tmp"' EXIT
 tmp=$(cd "$tmp" && pwd -P)
@@ -70,4 +75,15 @@ where=$(cd "$tmp" && /usr/bin/python3 -c 'import weir.adapter; print(weir.adapte
   --connector "$tmp/src/python/buoy_connector.py") > "$tmp/python.txt" ||
   { cat "$tmp/python.txt"; fail "the Python buoy connector was not certified"; }
 tail -n 3 "$tmp/python.txt"
+
+if [[ -n $GO ]]; then
+  echo "== the Go adapter from the prefix"
+  for f in adapter/serve.go adapter/weirtest/weirtest.go v1/connector.pb.go v1/connector_grpc.pb.go; do
+    [[ -f $P/share/weir/go/src/weir/$f ]] || fail "the install has no share/weir/go/src/weir/$f"
+  done
+  # GOPATH mode against the prefix and Debian's libraries only; nothing downloaded.
+  (cd "$tmp" && env GO111MODULE=off GOPROXY=off GOFLAGS=-buildvcs=false GOCACHE="$tmp/gocache" \
+    GOPATH="$P/share/weir/go:$GO_LIBRARIES" "$GO" vet weir/adapter weir/adapter/weirtest) ||
+    fail "the installed Go adapter does not build from the prefix"
+fi
 echo "install_out_of_tree: PASS"
