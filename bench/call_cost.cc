@@ -248,13 +248,8 @@ using bench::NoBroker;
 
 // Median milliseconds of Kill + Start + Open of an incarnation over TCP.
 double MeasureRestart(const std::string& connector, int restarts) {
-  auto server = BrokerServer::Start("127.0.0.1:0");
-  if (!server.ok()) Fail(std::string(server.status().message()));
-  GrpcConnectorPort::Options options;
-  options.argv = {connector};
-  options.broker_address = (*server)->address();
-  options.listen_address = "127.0.0.1:0";
-  GrpcConnectorPort port(options, **server);
+  bench::ConnectorOnTcp run(connector);
+  GrpcConnectorPort& port = *run.port;
   NoBroker broker;
   std::vector<double> ms;
   for (int i = 0; i <= restarts; ++i) {

@@ -193,6 +193,17 @@ double MeasureBareRestart(const std::string& self, Transport transport, int rest
   return median;
 }
 
+ConnectorOnTcp::ConnectorOnTcp(const std::string& connector) {
+  auto started = BrokerServer::Start("127.0.0.1:0");
+  if (!started.ok()) Fail(std::string(started.status().message()));
+  server = std::move(*started);
+  GrpcConnectorPort::Options options;
+  options.argv = {connector};
+  options.broker_address = server->address();
+  options.listen_address = "127.0.0.1:0";
+  port = std::make_unique<GrpcConnectorPort>(options, *server);
+}
+
 BusyLoad::BusyLoad(const std::string& self, int processes) {
   for (int i = 0; i < processes; ++i) {
     ChildProcess::Options spawn;

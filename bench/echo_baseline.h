@@ -18,6 +18,7 @@
 
 #include "harness/edge/broker_server.h"
 #include "harness/edge/child_process.h"
+#include "harness/edge/grpc_connector_port.h"
 #include "harness/edge/private_dir.h"
 #include "harness/run/run.h"
 
@@ -66,6 +67,14 @@ class NoBroker : public BrokerEndpoint {
   CallStatus Nack(const v1::NackRequest&, v1::NackResponse*) override { return {}; }
   CallStatus ExtendLease(const v1::ExtendLeaseRequest&, v1::ExtendLeaseResponse*) override { return {}; }
   void OnStrayCall(const std::string&) override {}
+};
+
+// A connector run by weir's own port over loopback TCP, with a broker server
+// that lives as long as this value: for timing starts, restarts and Open.
+struct ConnectorOnTcp {
+  explicit ConnectorOnTcp(const std::string& connector);
+  std::unique_ptr<BrokerServer> server;
+  std::unique_ptr<GrpcConnectorPort> port;  // declared after the server: destroyed first
 };
 
 // `processes` busy-looping children at normal priority for as long as this

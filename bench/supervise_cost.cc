@@ -203,13 +203,8 @@ int main(int argc, char** argv) {
   for (int i = 0; i < restarts; ++i) exec_ms.push_back(ExecAndLoad(connector));
 
   // 4.
-  auto server = BrokerServer::Start("127.0.0.1:0");
-  if (!server.ok()) Fail(std::string(server.status().message()));
-  GrpcConnectorPort::Options options;
-  options.argv = {connector};
-  options.broker_address = (*server)->address();
-  options.listen_address = "127.0.0.1:0";
-  GrpcConnectorPort port(options, **server);
+  bench::ConnectorOnTcp run(connector);
+  GrpcConnectorPort& port = *run.port;
   NoBroker broker;
   std::vector<double> total, kill, spawn, handshake, connect, open, advance;
   for (int i = 0; i <= restarts; ++i) {
