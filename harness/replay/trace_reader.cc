@@ -1,5 +1,6 @@
 #include "harness/replay/trace_reader.h"
 
+#include <cstring>
 #include <string_view>
 #include <vector>
 
@@ -85,19 +86,30 @@ absl::StatusOr<std::unique_ptr<TraceReader>> TraceReader::Open(const std::string
 }
 
 bool TraceReader::ReadLine() {
+  // Every byte is kept, a NUL too (the decoder then names it): a line is what
+  // lies between two newlines, however damaged.
   text_.clear();
-  char buf[1 << 14];
   bool any = false;
-  while (std::fgets(buf, sizeof buf, file_) != nullptr) {
+  for (;;) {
+    if (chunk_begin_ == chunk_end_) {
+      chunk_begin_ = 0;
+      chunk_end_ = std::fread(chunk_.data(), 1, chunk_.size(), file_);
+      if (chunk_end_ == 0) break;
+    }
     any = true;
-    text_ += buf;
+    const char* begin = chunk_.data() + chunk_begin_;
+    const std::size_t available = chunk_end_ - chunk_begin_;
+    const auto* newline = static_cast<const char*>(std::memchr(begin, '\n', available));
+    const std::size_t take = newline == nullptr ? available : static_cast<std::size_t>(newline - begin) + 1;
+    text_.append(begin, take);
+    chunk_begin_ += take;
     // No trace line is this long (the header holds a scenario and a plan):
     // stop reading so a damaged or hostile file cannot exhaust memory.
     if (text_.size() > kMaxLineBytes) {
       overlong_ = true;
       break;
     }
-    if (!text_.empty() && text_.back() == '\n') break;
+    if (newline != nullptr) break;
   }
   if (any) ++line_no_;
   return any;

@@ -22,6 +22,7 @@
 #include <cstdio>
 #include <memory>
 #include <string>
+#include <vector>
 
 #include "absl/status/statusor.h"
 #include "harness/trace/trace_format.h"
@@ -66,6 +67,10 @@ class TraceReader {
 
   std::string path_;
   std::FILE* file_ = nullptr;
+  // Bytes read from file_ and not yet taken into a line: [chunk_begin_, chunk_end_).
+  std::vector<char> chunk_ = std::vector<char>(1 << 16);
+  std::size_t chunk_begin_ = 0;
+  std::size_t chunk_end_ = 0;
   std::string text_;
   std::uint64_t line_no_ = 0;
   std::uint64_t events_ = 0;

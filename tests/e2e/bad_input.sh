@@ -107,6 +107,12 @@ damaged wrong-value '{"event":{"seq":"2","published":{"message_id":"abc"}}}'
 bad trace-wrong-value "wrong-value.trace:4:34: .*invalid value" -- "$WEIR" explain "$WORK/wrong-value.trace"
 damaged unclosed '{"event":{"seq":"2","published":{"message_id":"1"}}'
 bad trace-unclosed "unclosed.trace:4:52: .*end of string" -- "$WEIR" replay "$WORK/unclosed.trace"
+# NUL bytes are bytes of the line like any other: the decoder names the column
+# (a line that began with one was read as empty and crashed the reader).
+{ head -n 3 "$WORK/good.jsonl"; printf '\0{"seq":3}\n'; tail -n +5 "$WORK/good.jsonl"; } >"$WORK/nul-first.trace"
+bad trace-nul-first "nul-first.trace:4:1: .*expected an event or the footer" -- "$WEIR" explain "$WORK/nul-first.trace"
+{ head -n 3 "$WORK/good.jsonl"; printf '{"seq":\0 3}\n'; tail -n +5 "$WORK/good.jsonl"; } >"$WORK/nul-inside.trace"
+bad trace-nul-inside "nul-inside.trace:4:8: .*expected an event or the footer" -- "$WEIR" explain "$WORK/nul-inside.trace"
 rm -f "$WORK/good.jsonl"
 
 # Flags.
